@@ -1,0 +1,238 @@
+//! Calibration methods: each one turns raw scores of a base model into
+//! probabilities, fitted on a calibration sample.
+//!
+//! A method is described in a suite by a [`MethodSpec`] (a plain id plus its
+//! parameters). [`MethodSpec::validate`] checks the parameters against the score
+//! kind of a task before any unit runs; [`MethodSpec::build`] turns a checked spec
+//! into a [`Calibrator`]. Fitting returns a [`Fitted`] map plus notes that end up
+//! in the unit's status column (for example `separable` for Platt scaling on a
+//! perfectly separated sample).
+//!
+//! Adding a method: one file in this folder with a `//!` doc that states the math
+//! and cites the paper, one variant in [`MethodSpec`], one arm in `validate` and
+//! `build`, and tests beside the code (see DEVELOPERS.md).
+
+use serde::{Deserialize, Serialize};
+
+pub mod identity;
+pub mod isotonic;
+pub mod platt;
+
+/// What a task's score column holds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ScoreKind {
+    /// A probability in [0, 1].
+    Probability,
+    /// A real-valued margin (log-odds or any monotone score on the real line).
+    Margin,
+}
+
+impl ScoreKind {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ScoreKind::Probability => "probability",
+            ScoreKind::Margin => "margin",
+        }
+    }
+}
+
+/// Probabilities are clipped to `[LOGIT_EPS, 1 - LOGIT_EPS]` before a method
+/// takes their log-odds (beta, temperature, spline, Platt on log-odds). The value
+/// keeps `ln(s / (1 - s))` finite for scores of exactly 0 or 1 (about ±27.6).
+pub const LOGIT_EPS: f64 = 1e-12;
+
+/// Log-odds of a score: the logit of a clipped probability, or the margin itself.
+pub fn log_odds(score: f64, kind: ScoreKind) -> f64 {
+    match kind {
+        ScoreKind::Probability => {
+            let s = score.clamp(LOGIT_EPS, 1.0 - LOGIT_EPS);
+            (s / (1.0 - s)).ln()
+        }
+        ScoreKind::Margin => score,
+    }
+}
+
+/// Numerically stable logistic function.
+pub fn sigmoid(z: f64) -> f64 {
+    if z >= 0.0 {
+        1.0 / (1.0 + (-z).exp())
+    } else {
+        let e = z.exp();
+        e / (1.0 + e)
+    }
+}
+
+/// Why a fit produced no map.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum FitError {
+    #[error("the calibration sample holds only one class")]
+    OneClass,
+    #[error("the calibration sample is empty")]
+    Empty,
+    #[error("{0}")]
+    Failed(String),
+}
+
+/// A parameter of a method that cannot be used.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("{key} = {value}: {reason}")]
+pub struct ParamError {
+    pub key: String,
+    pub value: String,
+    pub reason: String,
+}
+
+impl ParamError {
+    pub fn new(key: &str, value: impl std::fmt::Display, reason: &str) -> Self {
+        ParamError {
+            key: key.to_string(),
+            value: value.to_string(),
+            reason: reason.to_string(),
+        }
+    }
+}
+
+/// A fitted calibration map.
+pub trait FittedMap: Send + Sync {
+    /// Probabilities in [0, 1] for raw scores; `out.len() == scores.len()`.
+    fn predict(&self, scores: &[f64], out: &mut [f64]);
+    /// The fitted parameters, for saving and applying the map elsewhere.
+    fn describe(&self) -> serde_json::Value;
+    /// Extra per-unit figures a method reports about its predictions on the test
+    /// scores (for example the mean Venn–Abers interval width). Each name becomes
+    /// a column of `units.csv`; methods without extras leave it empty.
+    fn extras(&self, _test_scores: &[f64]) -> Vec<(&'static str, f64)> {
+        Vec::new()
+    }
+}
+
+/// The result of a successful fit.
+pub struct Fitted {
+    pub map: Box<dyn FittedMap>,
+    /// Short machine-readable notes (for example `separable`); they are joined
+    /// with `+` into the unit's status, which is `ok` when there are none.
+    pub notes: Vec<&'static str>,
+}
+
+impl Fitted {
+    pub fn plain(map: Box<dyn FittedMap>) -> Self {
+        Fitted {
+            map,
+            notes: Vec::new(),
+        }
+    }
+}
+
+/// A calibration method with checked parameters, ready to fit.
+pub trait Calibrator: Send + Sync {
+    /// The method's kind id (as written in suites), e.g. `platt`.
+    fn kind(&self) -> &'static str;
+    /// Fit on a calibration sample. `labels[i]` is true for the positive class.
+    fn fit(&self, scores: &[f64], labels: &[bool]) -> Result<Fitted, FitError>;
+}
+
+/// Check the common preconditions of every fit.
+pub fn check_sample(scores: &[f64], labels: &[bool]) -> Result<(), FitError> {
+    if scores.is_empty() {
+        return Err(FitError::Empty);
+    }
+    if scores.len() != labels.len() {
+        return Err(FitError::Failed(format!(
+            "{} scores but {} labels",
+            scores.len(),
+            labels.len()
+        )));
+    }
+    let pos = labels.iter().filter(|&&y| y).count();
+    if pos == 0 || pos == labels.len() {
+        return Err(FitError::OneClass);
+    }
+    Ok(())
+}
+
+/// A method as written in a suite: `kind` picks the method, the other keys are
+/// its parameters. Unknown keys are rejected.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
+pub enum MethodSpec {
+    /// The raw probability, unchanged (probability tasks only).
+    Identity,
+    /// Platt scaling.
+    Platt {
+        /// Use Platt's (1999) smoothed targets instead of 0/1 labels.
+        #[serde(default)]
+        target_smoothing: bool,
+    },
+    /// Isotonic regression by pool-adjacent-violators.
+    Isotonic {},
+}
+
+impl MethodSpec {
+    /// The kind id as written in suites.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            MethodSpec::Identity => "identity",
+            MethodSpec::Platt { .. } => "platt",
+            MethodSpec::Isotonic { .. } => "isotonic",
+        }
+    }
+
+    /// Check the parameters for a task whose scores are of `score_kind`.
+    pub fn validate(&self, score_kind: ScoreKind) -> Result<(), ParamError> {
+        match self {
+            MethodSpec::Identity => {
+                if score_kind != ScoreKind::Probability {
+                    return Err(ParamError::new(
+                        "kind",
+                        "identity",
+                        "the identity map needs probability scores; this task's scores are margins",
+                    ));
+                }
+                Ok(())
+            }
+            MethodSpec::Platt { .. } => Ok(()),
+            MethodSpec::Isotonic { .. } => Ok(()),
+        }
+    }
+
+    /// Build a calibrator for scores of `score_kind`; calls [`Self::validate`].
+    pub fn build(&self, score_kind: ScoreKind) -> Result<Box<dyn Calibrator>, ParamError> {
+        self.validate(score_kind)?;
+        Ok(match self {
+            MethodSpec::Identity => Box::new(identity::Identity),
+            MethodSpec::Platt { target_smoothing } => Box::new(platt::Platt {
+                target_smoothing: *target_smoothing,
+            }),
+            MethodSpec::Isotonic {} => Box::new(isotonic::Isotonic {}),
+        })
+    }
+}
+
+#[cfg(test)]
+mod spec_tests {
+    use super::*;
+
+    #[derive(Deserialize)]
+    struct W {
+        m: MethodSpec,
+    }
+
+    #[test]
+    fn spec_rejects_unknown_keys_and_kinds() {
+        let ok: W = toml::from_str("m = { kind = \"platt\", target_smoothing = true }").unwrap();
+        assert_eq!(
+            ok.m,
+            MethodSpec::Platt {
+                target_smoothing: true
+            }
+        );
+        let iso: W = toml::from_str("m = { kind = \"isotonic\" }").unwrap();
+        assert_eq!(iso.m.kind(), "isotonic");
+        let e = toml::from_str::<W>("m = { kind = \"platt\", smoothing = true }")
+            .err()
+            .unwrap();
+        assert!(e.to_string().contains("smoothing"), "{e}");
+        assert!(toml::from_str::<W>("m = { kind = \"platypus\" }").is_err());
+    }
+}

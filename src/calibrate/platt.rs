@@ -1,0 +1,222 @@
+//! Platt scaling: a logistic map of the raw score.
+//!
+//! Math: p(s) = σ(a·s + b) with σ(z) = 1/(1 + e^(−z)), fitted by maximum
+//! likelihood on the calibration sample (Platt 1999, "Probabilistic outputs for
+//! support vector machines and comparisons to regularized likelihood methods").
+//! We minimise Σ_i [softplus(z_i) − t_i z_i] with z_i = a·s_i + b, computed in the
+//! overflow-free form softplus(z) = max(z, 0) + ln(1 + e^(−|z|)), by Newton's method
+//! with a backtracking (Armijo) line search and a tiny ridge (1e-12) on the
+//! Hessian diagonal, as in Lin, Lin & Weng (2007, Machine Learning 68, "A note on
+//! Platt's probabilistic outputs for support vector machines"). Scores are
+//! centred and scaled internally for conditioning; the reported (a, b) are on the
+//! raw score scale.
+//!
+//! Targets: t_i = y_i (unregularised maximum likelihood, the default), or Platt's
+//! smoothed targets t₊ = (N₊ + 1)/(N₊ + 2) for positives and t₋ = 1/(N₋ + 2) for
+//! negatives (`target_smoothing = true`), a Bayesian prior that keeps the optimum
+//! finite.
+//!
+//! Separation: when every positive score is ≥ every negative score (or ≤), the
+//! unregularised likelihood has no maximum: it keeps rising as |a| → ∞. We detect
+//! this before fitting. The method then returns the fit with Platt's smoothed
+//! targets (whose optimum always exists) and notes `separable` in the unit's
+//! status, so the comparison keeps the unit and the report can count how often
+//! it happened.
+
+use super::{check_sample, sigmoid, Calibrator, FitError, Fitted, FittedMap};
+
+pub struct Platt {
+    pub target_smoothing: bool,
+}
+
+/// Fitted parameters of σ(a·s + b).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LogisticFit {
+    pub a: f64,
+    pub b: f64,
+    pub iterations: usize,
+}
+
+fn softplus(z: f64) -> f64 {
+    z.max(0.0) + (-z.abs()).exp().ln_1p()
+}
+
+/// True when a threshold on the score separates the classes (ties allowed at the
+/// threshold: quasi-complete separation also has no finite optimum).
+pub fn is_separable(x: &[f64], y: &[bool]) -> bool {
+    let mut max_neg = f64::NEG_INFINITY;
+    let mut min_neg = f64::INFINITY;
+    let mut max_pos = f64::NEG_INFINITY;
+    let mut min_pos = f64::INFINITY;
+    for (&s, &l) in x.iter().zip(y) {
+        if l {
+            max_pos = max_pos.max(s);
+            min_pos = min_pos.min(s);
+        } else {
+            max_neg = max_neg.max(s);
+            min_neg = min_neg.min(s);
+        }
+    }
+    max_neg <= min_pos || max_pos <= min_neg
+}
+
+/// Maximum-likelihood fit of σ(a·x + b) to targets `t` in [0, 1] (Newton with
+/// backtracking on the stable objective). Fails only when `x` is constant.
+pub fn fit_logistic_1d(x: &[f64], t: &[f64]) -> Result<LogisticFit, FitError> {
+    let n = x.len() as f64;
+    let mean = x.iter().sum::<f64>() / n;
+    let var = x.iter().map(|v| (v - mean) * (v - mean)).sum::<f64>() / n;
+    let sd = var.sqrt();
+    let scale = if sd > 0.0 && sd.is_finite() { sd } else { 1.0 };
+    let u: Vec<f64> = x.iter().map(|v| (v - mean) / scale).collect();
+    let objective = |a: f64, b: f64| -> f64 {
+        u.iter()
+            .zip(t)
+            .map(|(&ui, &ti)| {
+                let z = a * ui + b;
+                softplus(z) - ti * z
+            })
+            .sum()
+    };
+    // Start at the intercept-only optimum.
+    let tbar = (t.iter().sum::<f64>() / n).clamp(1e-12, 1.0 - 1e-12);
+    let (mut a, mut b) = (0.0, (tbar / (1.0 - tbar)).ln());
+    let mut f = objective(a, b);
+    let mut iterations = 0;
+    for it in 0..200 {
+        iterations = it + 1;
+        let (mut g1, mut g2, mut h11, mut h12, mut h22) = (0.0, 0.0, 1e-12, 0.0, 1e-12);
+        for (&ui, &ti) in u.iter().zip(t) {
+            let p = sigmoid(a * ui + b);
+            let r = p - ti;
+            let w = p * (1.0 - p);
+            g1 += r * ui;
+            g2 += r;
+            h11 += w * ui * ui;
+            h12 += w * ui;
+            h22 += w;
+        }
+        if g1.abs() < 1e-11 * n && g2.abs() < 1e-11 * n {
+            break;
+        }
+        let det = h11 * h22 - h12 * h12;
+        if !(det > 0.0) {
+            return Err(FitError::Failed(
+                "Platt: singular Hessian (constant scores?)".into(),
+            ));
+        }
+        let da = -(h22 * g1 - h12 * g2) / det;
+        let db = -(-h12 * g1 + h11 * g2) / det;
+        let gd = g1 * da + g2 * db;
+        let mut step = 1.0;
+        let mut accepted = false;
+        while step >= 1e-10 {
+            let (na, nb) = (a + step * da, b + step * db);
+            let nf = objective(na, nb);
+            if nf <= f + 1e-4 * step * gd {
+                a = na;
+                b = nb;
+                f = nf;
+                accepted = true;
+                break;
+            }
+            step /= 2.0;
+        }
+        if !accepted {
+            break; // no further decrease possible at machine precision
+        }
+    }
+    // Back to the raw scale: a·(x − mean)/scale + b.
+    let a_raw = a / scale;
+    let b_raw = b - a * mean / scale;
+    if !(a_raw.is_finite() && b_raw.is_finite()) {
+        return Err(FitError::Failed(
+            "Platt: the fit did not converge to finite values".into(),
+        ));
+    }
+    Ok(LogisticFit {
+        a: a_raw,
+        b: b_raw,
+        iterations,
+    })
+}
+
+/// Platt's smoothed targets.
+pub fn smoothed_targets(y: &[bool]) -> Vec<f64> {
+    let np = y.iter().filter(|&&l| l).count() as f64;
+    let nn = y.len() as f64 - np;
+    let tp = (np + 1.0) / (np + 2.0);
+    let tn = 1.0 / (nn + 2.0);
+    y.iter().map(|&l| if l { tp } else { tn }).collect()
+}
+
+/// A fitted logistic map σ(a·s + b) of the raw score.
+pub struct PlattMap {
+    pub fit: LogisticFit,
+    pub smoothed: bool,
+}
+
+impl FittedMap for PlattMap {
+    fn predict(&self, scores: &[f64], out: &mut [f64]) {
+        for (o, &s) in out.iter_mut().zip(scores) {
+            *o = sigmoid(self.fit.a * s + self.fit.b);
+        }
+    }
+    fn describe(&self) -> serde_json::Value {
+        serde_json::json!({ "kind": "platt", "a": self.fit.a, "b": self.fit.b, "smoothed_targets": self.smoothed })
+    }
+}
+
+impl Calibrator for Platt {
+    fn kind(&self) -> &'static str {
+        "platt"
+    }
+    fn fit(&self, scores: &[f64], labels: &[bool]) -> Result<Fitted, FitError> {
+        check_sample(scores, labels)?;
+        let separable = !self.target_smoothing && is_separable(scores, labels);
+        let smoothed = self.target_smoothing || separable;
+        let t: Vec<f64> = if smoothed {
+            smoothed_targets(labels)
+        } else {
+            labels.iter().map(|&l| if l { 1.0 } else { 0.0 }).collect()
+        };
+        let fit = fit_logistic_1d(scores, &t)?;
+        let notes = if separable {
+            vec!["separable"]
+        } else {
+            Vec::new()
+        };
+        Ok(Fitted {
+            map: Box::new(PlattMap { fit, smoothed }),
+            notes,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn detects_separation_and_falls_back() {
+        let s = [0.1, 0.2, 0.3, 0.6, 0.7];
+        let y = [false, false, false, true, true];
+        assert!(is_separable(&s, &y));
+        let f = Platt {
+            target_smoothing: false,
+        }
+        .fit(&s, &y)
+        .unwrap();
+        assert_eq!(f.notes, vec!["separable"]);
+        let mut out = [0.0; 2];
+        f.map.predict(&[0.1, 0.7], &mut out);
+        assert!(out[0] < 0.5 && out[1] > 0.5 && out[0] > 0.0 && out[1] < 1.0);
+    }
+
+    #[test]
+    fn overlapping_sample_is_not_separable() {
+        let s = [0.1, 0.2, 0.3, 0.6, 0.7];
+        let y = [false, true, false, true, false];
+        assert!(!is_separable(&s, &y));
+    }
+}

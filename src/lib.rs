@@ -1,0 +1,12 @@
+//! plumbline: a benchmark harness for probability-calibration methods.
+//!
+//! The modules follow the data flow: `suite` (TOML → validated plan) →
+//! `data` (score files, open datasets) → `models` (base classifiers) → `split`
+//! (seeds and draws) → `calibrate` (methods) → `metrics` → `run` (parallel
+//! executor) → `stats` (paired intervals, across-task tests, thresholds) →
+//! `report` (tables and figures).
+
+pub mod calibrate;
+pub mod data;
+pub mod metrics;
+pub mod split;
