@@ -246,7 +246,20 @@ pub fn hex(bytes: &[u8]) -> String {
 fn toml_err(ctx: &Ctx, e: &toml::de::Error, key_hint: &str) -> SuiteError {
     let span = e.span().unwrap_or(0..0);
     let msg = e.message().trim().to_string();
-    ctx.err(span, key_hint, msg)
+    // Name the key written on the offending line (or its table header).
+    let start = ctx.text[..span.start.min(ctx.text.len())]
+        .rfind('\n')
+        .map(|i| i + 1)
+        .unwrap_or(0);
+    let line = ctx.text[start..].lines().next().unwrap_or("").trim();
+    let key = if line.starts_with('[') {
+        line.to_string()
+    } else if let Some((k, _)) = line.split_once('=') {
+        k.trim().to_string()
+    } else {
+        key_hint.to_string()
+    };
+    ctx.err(span, &key, msg)
 }
 
 /// Parse suite text; `path` locates relative data files (and names the file in errors).
