@@ -8,7 +8,7 @@ use anyhow::{bail, Context, Result};
 use sha2::{Digest, Sha256};
 
 use crate::analysis::{self, AnalysisSettings};
-use crate::report::{csvout, summary};
+use crate::report::{self, summary};
 use crate::run::{self, journal::Journal, output, table::UnitTable, RunOptions};
 use crate::suite::{self, hex, Plan, TaskSource};
 
@@ -219,12 +219,9 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         "timings.csv",
         timings_csv(&result.timings).as_bytes(),
     )?;
-    output::write_file(&staging, "paired.csv", csvout::paired_csv(&a).as_bytes())?;
-    output::write_file(
-        &staging,
-        "summary.md",
-        summary::summary_md(&a, &ctx).as_bytes(),
-    )?;
+    for (name, bytes) in report::publish(&a, &ctx) {
+        output::write_file(&staging, &name, &bytes)?;
+    }
     let manifest = serde_json::json!({
         "tool": "plumbline",
         "version": env!("CARGO_PKG_VERSION"),
@@ -377,11 +374,8 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         settings: settings.clone(),
         warnings: Vec::new(),
     };
-    output::write_file(&args.dir, "paired.csv", csvout::paired_csv(&a).as_bytes())?;
-    output::write_file(
-        &args.dir,
-        "summary.md",
-        summary::summary_md(&a, &ctx).as_bytes(),
-    )?;
+    for (name, bytes) in report::publish(&a, &ctx) {
+        output::write_file(&args.dir, &name, &bytes)?;
+    }
     Ok(summary::terminal(&a, &settings))
 }

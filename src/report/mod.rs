@@ -3,7 +3,44 @@
 //! and Markdown; each format only supplies how cells, rows and dividers look.
 
 pub mod csvout;
+pub mod figures;
+pub mod html;
 pub mod summary;
+
+use crate::analysis::Analysis;
+
+/// Every published file of a results folder except `units.csv`, `timings.csv`
+/// and `manifest.json`: (path inside the folder, bytes). The same function
+/// serves `plumbline run` and `plumbline report`, so both publish the same files.
+pub fn publish(a: &Analysis, ctx: &summary::ReportContext) -> Vec<(String, Vec<u8>)> {
+    let s = &ctx.settings;
+    let mut files = vec![
+        ("paired.csv".to_string(), csvout::paired_csv(a).into_bytes()),
+        (
+            "summary.md".to_string(),
+            summary::summary_md(a, ctx).into_bytes(),
+        ),
+    ];
+    let mut tex = String::from("% plumbline tables (requires \\usepackage{booktabs})\n");
+    for t in summary::task_tables(a, s, &s.primary_metric, false) {
+        tex.push_str(&t.to_latex());
+        tex.push('\n');
+    }
+    files.push(("tables.tex".to_string(), tex.into_bytes()));
+    let mut figs = Vec::new();
+    for task in &a.tasks {
+        if let Some(svg) = figures::diff_figure(a, task, &s.primary_metric, &s.reference) {
+            let name = figures::figure_name(task, &s.primary_metric);
+            figs.push(name.clone());
+            files.push((name, svg.into_bytes()));
+        }
+    }
+    files.push((
+        "index.html".to_string(),
+        html::index(a, ctx, &figs).into_bytes(),
+    ));
+    files
+}
 
 use comfy_table::{presets::UTF8_FULL_CONDENSED, Cell, CellAlignment, ContentArrangement};
 
@@ -79,6 +116,78 @@ impl Table {
             for n in &self.notes {
                 s.push_str(&format!("{n}\n"));
             }
+        }
+        s
+    }
+}
+
+impl Table {
+    /// A LaTeX `tabular` with booktabs rules; line breaks inside cells become `; `.
+    pub fn to_latex(&self) -> String {
+        let esc = |c: &str| {
+            c.replace('\\', "\\textbackslash{}")
+                .replace('&', "\\&")
+                .replace('%', "\\%")
+                .replace('_', "\\_")
+                .replace('#', "\\#")
+                .replace('−', "$-$")
+                .replace('✓', "$\\downarrow$")
+                .replace('✗', "$\\uparrow$")
+                .replace('↓', "$\\downarrow$")
+                .replace('↑', "$\\uparrow$")
+                .replace('\n', "; ")
+        };
+        let mut s = String::new();
+        s.push_str(&format!("% {}\n", self.title));
+        s.push_str(&format!(
+            "\\begin{{tabular}}{{l{}}}\n\\toprule\n",
+            "r".repeat(self.header.len().saturating_sub(1))
+        ));
+        s.push_str(&format!(
+            "{} \\\\\n\\midrule\n",
+            self.header
+                .iter()
+                .map(|h| esc(h))
+                .collect::<Vec<_>>()
+                .join(" & ")
+        ));
+        for r in &self.rows {
+            s.push_str(&format!(
+                "{} \\\\\n",
+                r.iter().map(|c| esc(c)).collect::<Vec<_>>().join(" & ")
+            ));
+        }
+        s.push_str("\\bottomrule\n\\end{tabular}\n");
+        s
+    }
+
+    /// An HTML table; line breaks inside cells become `<br>`.
+    pub fn to_html(&self) -> String {
+        let esc = |c: &str| {
+            c.replace('&', "&amp;")
+                .replace('<', "&lt;")
+                .replace('>', "&gt;")
+                .replace('\n', "<br>")
+        };
+        let mut s = format!("<h3>{}</h3>\n<table>\n<thead><tr>", esc(&self.title));
+        for h in &self.header {
+            s.push_str(&format!("<th>{}</th>", esc(h)));
+        }
+        s.push_str("</tr></thead>\n<tbody>\n");
+        for r in &self.rows {
+            s.push_str("<tr>");
+            for (i, c) in r.iter().enumerate() {
+                if i == 0 {
+                    s.push_str(&format!("<th>{}</th>", esc(c)));
+                } else {
+                    s.push_str(&format!("<td>{}</td>", esc(c)));
+                }
+            }
+            s.push_str("</tr>\n");
+        }
+        s.push_str("</tbody>\n</table>\n");
+        for n in &self.notes {
+            s.push_str(&format!("<p class=\"note\">{}</p>\n", esc(n)));
         }
         s
     }
