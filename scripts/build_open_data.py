@@ -79,8 +79,119 @@ def magic(src):
     return header, read_keel(src, "magic")
 
 
+def letter(src):
+    # mlbench's LetterRecognition keeps the UCI attribute names with "-"
+    # turned into "."; written here with "_" and the class column moved last.
+    header, rows = read_r_csv(src, "letter")
+    if header[0] != "lettr":
+        raise SystemExit("letter: first column is not lettr")
+    names = [h.replace(".", "_") for h in header[1:]] + ["lettr"]
+    return names, [row[1:] + [row[0]] for row in rows]
+
+
+def spambase(src):
+    # kernlab's spam: the 4,601 UCI Spambase rows, kernlab's column names.
+    return read_r_csv(src, "spam")
+
+
+def pendigits(src):
+    # UCI "Pen-Based Recognition of Handwritten Digits": 8 resampled (x, y)
+    # pen positions, then the digit. KEEL calls the set "penbased".
+    header = [f"{c}{i}" for i in range(1, 9) for c in ("x", "y")] + ["digit"]
+    return header, read_keel(src, "penbased")
+
+
+def satimage(src):
+    # UCI "Statlog (Landsat Satellite)": 3x3 pixel neighbourhood, 4 spectral
+    # bands per pixel, pixels in row order; class codes 1-5 and 7 (no 6).
+    header = [f"p{p}_b{b}" for p in range(1, 10) for b in range(1, 5)] + ["class"]
+    return header, read_keel(src, "satimage")
+
+
+def phoneme(src):
+    # ELENA phoneme: amplitudes of five cochlear-spectrum harmonics; class 0
+    # nasal, 1 oral.
+    header = [f"h{i}" for i in range(1, 6)] + ["class"]
+    return header, read_keel(src, "phoneme")
+
+
+def german(src):
+    # UCI "Statlog (German Credit Data)", german.data (symbolic codes A11...).
+    # Attribute names after the UCI attribute list; class 1 good, 2 bad.
+    header = ["checking_status", "duration", "credit_history", "purpose",
+              "credit_amount", "savings", "employment_since", "installment_rate",
+              "personal_status_sex", "other_debtors", "residence_since",
+              "property", "age", "other_installment_plans", "housing",
+              "existing_credits", "job", "people_liable", "telephone",
+              "foreign_worker", "class"]
+    return header, read_keel(src, "german")
+
+
+WDBC_BASES = ["radius", "texture", "perimeter", "area", "smoothness",
+              "compactness", "concavity", "concave_points", "symmetry",
+              "fractal_dimension"]
+
+
+def wdbc(src):
+    # scikit-learn's breast_cancer.csv: meta line "569,30,malignant,benign",
+    # then 30 features (10 means, 10 standard errors, 10 worst values) and the
+    # target, 0 = malignant. Written with the WDBC diagnosis codes M / B.
+    path = os.path.join(src, "sklearn", "sklearn", "datasets", "data", "breast_cancer.csv")
+    with open(path, newline="") as f:
+        r = csv.reader(f)
+        meta = next(r)
+        if meta[:2] != ["569", "30"]:
+            raise SystemExit(f"wdbc: unexpected meta line {meta}")
+        rows = []
+        for row in r:
+            code = {"0": "M", "1": "B"}[row[30]]
+            rows.append(row[:30] + [code])
+    header = [f"{b}_{g}" for g in ("mean", "se", "worst") for b in WDBC_BASES] + ["diagnosis"]
+    return header, rows
+
+
+# COIL 2000 (ticdata) as the UCI "Insurance Company Benchmark" codes:
+# kernlab turned the codes into labelled factors. Ordered factors were written
+# by export_r_data.R as 0-based level positions, which are the original codes
+# L3 (0-9) and L4 (0-9). MGEMLEEF (L1, 1-6) is an unordered factor whose
+# labels "20-30" ... "70-80" sort in code order, so code = position + 1.
+# MOSTYPE (L0) and MOSHOOFD (L2) stay as their labels: nominal columns.
+COIL_AGE = ["20-30", "30-40", "40-50", "50-60", "60-70", "70-80"]
+
+
+def coil2000(src):
+    header, rows = read_r_csv(src, "ticdata")
+    if header[0] != "STYPE" or header[3] != "MGEMLEEF" or header[-1] != "CARAVAN":
+        raise SystemExit(f"ticdata: unexpected columns {header[:4]} ... {header[-1]}")
+    header = ["MOSTYPE"] + header[1:]
+    out = []
+    for row in rows:
+        row = list(row)
+        row[3] = str(COIL_AGE.index(row[3]) + 1)
+        row[-1] = {"noinsurance": "0", "insurance": "1"}[row[-1]]
+        out.append(row)
+    return header, out
+
+
+def shuttle(src):
+    # mlbench's Shuttle (UCI Statlog Shuttle, training then test rows, 58,000).
+    # Subsampled to every third row (rows 1, 4, 7, ... in mlbench's order) to
+    # keep the shipped data small; class labels as mlbench names them.
+    header, rows = read_r_csv(src, "shuttle")
+    return header, rows[::3]
+
+
 DATASETS = {
     "magic": magic,
+    "letter": letter,
+    "spambase": spambase,
+    "pendigits": pendigits,
+    "satimage": satimage,
+    "phoneme": phoneme,
+    "german": german,
+    "wdbc": wdbc,
+    "coil2000": coil2000,
+    "shuttle": shuttle,
 }
 
 
