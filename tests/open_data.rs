@@ -93,7 +93,7 @@ fn counts_match_the_published_dataset_facts() {
         // shipped as every third row: ceil(58,000 / 3) = 19,334.
         (
             "shuttle",
-            (43_500 + 14_500 + 2) / 3,
+            (43_500usize + 14_500).div_ceil(3),
             None,
             "UCI Statlog Shuttle",
         ),

@@ -67,7 +67,7 @@ pub fn generate(id: &str, rows: usize, seed: u64) -> Dataset {
     let a = offset();
     let mut rng = split::rng(seed);
     let mut normals = Normals { spare: None };
-    let mut columns = vec![Vec::with_capacity(rows); FEATURES];
+    let mut columns: Vec<Vec<f64>> = (0..FEATURES).map(|_| Vec::with_capacity(rows)).collect();
     let mut labels = Vec::with_capacity(rows);
     for _ in 0..rows {
         let positive = rng.next_u64() >> 63 == 1;
