@@ -32,3 +32,5 @@ export("kernlab", "spam", "spam")
 export("kernlab", "ticdata", "ticdata")
 export("mlbench", "Shuttle", "shuttle")
 export("mlbench", "LetterRecognition", "letter")
+# Only for the cross-check of the KEEL satimage copy in build_open_data.py.
+export("mlbench", "Satellite", "satellite")
