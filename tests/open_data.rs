@@ -375,3 +375,26 @@ fn twonorm_through_the_manifest_is_reproducible() {
     assert_eq!(a.columns, b.columns);
     assert_eq!(a.labels, b.labels);
 }
+
+#[test]
+fn the_task_table_in_the_docs_matches_the_manifest() {
+    let docs =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/datasets.md"))
+            .unwrap();
+    let number = |s: &str| s.trim().replace(',', "").parse::<usize>().unwrap();
+    let mut seen = 0;
+    for t in open::list_tasks(&data_dir()).unwrap() {
+        let prefix = format!("| `{}` |", t.id);
+        let line = docs
+            .lines()
+            .find(|l| l.starts_with(&prefix))
+            .unwrap_or_else(|| panic!("docs/datasets.md has no row for {}", t.id));
+        let cells: Vec<&str> = line.split('|').collect();
+        assert_eq!(number(cells[2]), t.rows, "{}: rows", t.id);
+        assert_eq!(number(cells[3]), t.positives, "{}: positives", t.id);
+        let rate = format!("{:.1}%", 100.0 * t.base_rate());
+        assert_eq!(cells[4].trim(), rate, "{}: base rate", t.id);
+        seen += 1;
+    }
+    assert_eq!(seen, 12);
+}
