@@ -9,4 +9,5 @@
 pub mod calibrate;
 pub mod data;
 pub mod metrics;
+pub mod models;
 pub mod split;
