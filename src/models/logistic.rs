@@ -105,7 +105,6 @@ pub fn newton(
     let mut beta = vec![0.0; m];
     beta[p] = (ybar / (1.0 - ybar)).ln();
     let mut f = objective(&beta);
-    let tol = 1e-9 * (n as f64).max(1.0);
     let mut grad = vec![0.0; m];
     let mut hess = vec![0.0; m * m];
     for it in 0..max_iterations {
@@ -136,9 +135,6 @@ pub fn newton(
             hess[j * m + j] += l2;
         }
         let gmax = grad.iter().fold(0.0f64, |a, g| a.max(g.abs()));
-        if gmax == 0.0 {
-            return Ok((beta[p], beta[..p].to_vec(), it));
-        }
         if !cholesky(&mut hess, m) {
             return Err(if l2 == 0.0 {
                 "the Hessian became singular: separated classes (no maximum-likelihood \
@@ -163,27 +159,41 @@ pub fn newton(
             return Ok((beta[p], beta[..p].to_vec(), it + 1));
         }
         let slope: f64 = grad.iter().zip(&step).map(|(g, s)| g * s).sum();
-        let mut t = 1.0;
+        // When the predicted decrease (half the Newton decrement −slope) is
+        // below the objective's rounding, no line search can make progress:
+        // accept the point if the step is small (precision-limited optimum of an
+        // ill-conditioned problem), else report the stall.
+        let at_precision = -slope <= 1e-15 * (1.0 + f.abs());
         let mut accepted = false;
-        while t >= 1e-12 {
-            let trial: Vec<f64> = beta.iter().zip(&step).map(|(b, s)| b + t * s).collect();
-            let ft = objective(&trial);
-            if ft <= f + 1e-4 * t * slope {
-                beta = trial;
-                f = ft;
-                accepted = true;
-                break;
+        if !at_precision {
+            let mut t = 1.0;
+            while t >= 1e-12 {
+                let trial: Vec<f64> = beta.iter().zip(&step).map(|(b, s)| b + t * s).collect();
+                let ft = objective(&trial);
+                if ft < f && ft <= f + 1e-4 * t * slope {
+                    beta = trial;
+                    f = ft;
+                    accepted = true;
+                    break;
+                }
+                t /= 2.0;
             }
-            t /= 2.0;
         }
         if !accepted {
-            // No further decrease at machine precision: accept if the gradient
-            // is negligible, else report.
-            if gmax <= tol {
+            if smax <= 1e-6 * (1.0 + bmax) {
+                for (b, s) in beta.iter_mut().zip(&step) {
+                    *b += s;
+                }
                 return Ok((beta[p], beta[..p].to_vec(), it + 1));
             }
             return Err(format!(
-                "the line search stalled (largest gradient component {gmax:.3e})"
+                "no further decrease possible (largest gradient component {gmax:.3e}, \
+                 Newton step {smax:.3e}){}",
+                if l2 == 0.0 {
+                    "; separated classes have no maximum-likelihood fit, use l2 > 0"
+                } else {
+                    ""
+                }
             ));
         }
         if beta.iter().any(|b| !b.is_finite()) {
