@@ -11,6 +11,7 @@ pub mod app;
 pub mod calibrate;
 pub mod data;
 pub mod metrics;
+pub mod models;
 pub mod report;
 pub mod run;
 pub mod simulate;
