@@ -46,23 +46,29 @@ pub fn describe_plan(plan: &Plan) -> String {
     ));
     s.push_str("  tasks:\n");
     for t in &plan.tasks {
-        let pos = t.pool.labels.iter().filter(|&&y| y).count();
-        let src = match &t.source {
-            TaskSource::ScoreFile(f) => format!("score file {}", f.path.display()),
+        let (src, pinned) = match &t.source {
+            TaskSource::ScoreFile(f) => (
+                format!("score file {}", f.path.display()),
+                if f.split_column.is_some() { " (pinned by the file)" } else { "" },
+            ),
+            TaskSource::Open { data, model_id, model, protocol, .. } => (
+                format!("open data `{data}` · model `{model_id}` ({}) · protocol {}", model.kind(), protocol.kind()),
+                if matches!(protocol, crate::models::protocol::Protocol::CrossFitted { .. }) {
+                    " (out-of-fold reservoir)"
+                } else {
+                    ""
+                },
+            ),
         };
         s.push_str(&format!(
             "    {:<24} {} rows ({:.1}% positive), {} scores · reservoir {} · test {}{} · {}\n",
             t.id,
-            t.pool.labels.len(),
-            100.0 * pos as f64 / t.pool.labels.len() as f64,
+            t.rows,
+            100.0 * t.positives as f64 / t.rows.max(1) as f64,
             t.score_kind.as_str(),
-            t.reservoir.len(),
-            t.test.len(),
-            if t.pool.sides.is_some() {
-                " (pinned by the file)"
-            } else {
-                ""
-            },
+            t.reservoir_rows,
+            t.test_rows,
+            pinned,
             src
         ));
         s.push_str(&format!(
@@ -238,7 +244,7 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
             "id": t.id,
             "data_sha256": t.data_sha256,
             "task_seed": crate::split::task_seed(plan.seed, &t.id),
-            "rows": t.pool.labels.len(),
+            "rows": t.rows,
             "reservoir": t.reservoir.len(),
             "test_rows": t.test.len(),
             "sizes": t.sizes,

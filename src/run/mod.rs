@@ -13,6 +13,7 @@
 
 pub mod journal;
 pub mod output;
+pub mod pools;
 pub mod table;
 
 use std::collections::{BTreeMap, BTreeSet};

@@ -19,6 +19,8 @@ use sha2::{Digest, Sha256};
 use toml::Spanned;
 
 use crate::calibrate::{MethodSpec, ScoreKind};
+use crate::data::open;
+use crate::models::{protocol::Protocol, ModelSpec};
 use crate::data::scorefile::{self, ScoreFileSpec};
 use crate::data::{ScorePool, Side};
 use crate::metrics::{MetricId, MetricSettings};
@@ -90,7 +92,32 @@ struct RawSuite {
     #[serde(default)]
     method: Vec<Spanned<toml::Table>>,
     #[serde(default)]
+    open_data: Option<Spanned<String>>,
+    #[serde(default)]
+    model: Vec<Spanned<toml::Table>>,
+    #[serde(default)]
     task: Vec<Spanned<toml::Table>>,
+    #[serde(default)]
+    task_grid: Vec<Spanned<toml::Table>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawOpenTask {
+    id: String,
+    data: String,
+    model: String,
+    #[serde(default)]
+    protocol: Option<Protocol>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawGrid {
+    data: toml::Value,
+    models: Vec<String>,
+    #[serde(default)]
+    protocol: Option<Protocol>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -160,6 +187,19 @@ pub struct MethodEntry {
 #[derive(Debug, Clone)]
 pub enum TaskSource {
     ScoreFile(ScoreFileSpec),
+    /// An open dataset task turned into scores by a base model.
+    Open {
+        data_dir: PathBuf,
+        data: String,
+        model_id: String,
+        model: ModelSpec,
+        protocol: Protocol,
+    },
+}
+
+/// The protocol used when a task names none.
+pub fn default_protocol() -> Protocol {
+    Protocol::HeldOut { train_fraction: 0.5 }
 }
 
 /// A task ready to run: its pool, partition and sizes.
@@ -168,9 +208,18 @@ pub struct TaskPlan {
     pub id: String,
     pub source: TaskSource,
     pub score_kind: ScoreKind,
-    /// SHA-256 of the task's input data (the score file's bytes).
+    /// SHA-256 of the task's input data (the score file's bytes, or the open
+    /// dataset's digest).
     pub data_sha256: String,
+    /// The scores; empty for an open-data task until its pool is built
+    /// (`run::pools::resolve`).
     pub pool: ScorePool,
+    /// Rows and positives of the task's data (known before the pool is built).
+    pub rows: usize,
+    pub positives: usize,
+    /// Reservoir and test-set sizes (known before the pool is built).
+    pub reservoir_rows: usize,
+    pub test_rows: usize,
     pub truth: Option<Vec<f64>>,
     /// Pool row indices of the calibration reservoir, ascending.
     pub reservoir: Vec<usize>,
@@ -525,133 +574,242 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     }
 
     // Tasks.
-    if raw.task.is_empty() {
-        return Err(ctx.err(0..0, "task", "the suite lists no [[task]] tables"));
+    if raw.task.is_empty() && raw.task_grid.is_empty() {
+        return Err(ctx.err(0..0, "task", "the suite lists no [[task]] or [[task_grid]] tables"));
     }
-    let mut tasks: Vec<TaskPlan> = Vec::new();
+    // Models (for open-data tasks).
+    let mut models: Vec<(String, ModelSpec)> = Vec::new();
+    for (i, m) in raw.model.iter().enumerate() {
+        let mut table = m.get_ref().clone();
+        let label = format!("model #{}", i + 1);
+        let id = match table.remove("id") {
+            Some(toml::Value::String(s)) if valid_id(&s) => s,
+            Some(v) => return Err(ctx.err(m.span(), &format!("{label}.id"), format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"))),
+            None => return Err(ctx.err(m.span(), &label, "missing key `id`")),
+        };
+        let spec: ModelSpec = toml::Value::Table(table)
+            .try_into()
+            .map_err(|e: toml::de::Error| ctx.err(m.span(), &format!("model `{id}`"), e.message().trim().to_string()))?;
+        spec.validate().map_err(|e| ctx.err(m.span(), &format!("model `{id}`"), e.to_string()))?;
+        if models.iter().any(|(x, _)| *x == id) {
+            return Err(ctx.err(m.span(), &format!("model `{id}`"), "this id is used by another model"));
+        }
+        models.push((id, spec));
+    }
+    let data_dir = match &raw.open_data {
+        Some(p) => base.join(p.get_ref()),
+        None => base.join("..").join(open::DEFAULT_DATA_DIR),
+    };
+    let open_span = raw.open_data.as_ref().map(|p| p.span()).unwrap_or(0..0);
+
+    // Expand [[task]] and [[task_grid]] into one list of specs.
+    enum Spec {
+        File(RawScoreTask),
+        Open(RawOpenTask),
+    }
+    let mut specs: Vec<(Spec, std::ops::Range<usize>, String)> = Vec::new();
     for (i, t) in raw.task.iter().enumerate() {
         let label = format!("task #{}", i + 1);
-        let rt: RawScoreTask =
-            toml::Value::Table(t.get_ref().clone())
-                .try_into()
-                .map_err(|e: toml::de::Error| {
-                    ctx.err(t.span(), &label, e.message().trim().to_string())
-                })?;
-        let tl = format!("task `{}`", rt.id);
-        if !valid_id(&rt.id) {
-            return Err(ctx.err(
-                t.span(),
-                &format!("{label}.id"),
-                format!(
-                    "`{}`: an id is a non-empty word of letters, digits, '-', '_' or '.'",
-                    rt.id
-                ),
-            ));
-        }
-        if tasks.iter().any(|x| x.id == rt.id) {
-            return Err(ctx.err(
-                t.span(),
-                &format!("{tl}.id"),
-                "this id is used by another task",
-            ));
-        }
-        for (m, span) in &methods {
-            m.spec.validate(rt.score_kind).map_err(|e| {
-                ctx.err(
-                    span.clone(),
-                    &format!("method `{}`", m.id),
-                    format!(
-                        "{e} (for {tl}, score_kind = \"{}\")",
-                        rt.score_kind.as_str()
-                    ),
-                )
+        let table = t.get_ref();
+        let de_err = |e: toml::de::Error| ctx.err(t.span(), &label, e.message().trim().to_string());
+        let spec = if table.contains_key("scores") {
+            Spec::File(toml::Value::Table(table.clone()).try_into().map_err(de_err)?)
+        } else if table.contains_key("data") {
+            Spec::Open(toml::Value::Table(table.clone()).try_into().map_err(de_err)?)
+        } else {
+            return Err(ctx.err(t.span(), &label, "a task needs `scores` (a score file) or `data` (an open dataset task)"));
+        };
+        specs.push((spec, t.span(), label));
+    }
+    let mut open_tasks: Option<Vec<open::TaskSummary>> = None;
+    let mut list_open = |span: std::ops::Range<usize>| -> Result<Vec<open::TaskSummary>, SuiteError> {
+        if open_tasks.is_none() {
+            let l = open::list_tasks(&data_dir).map_err(|e| {
+                ctx.err(if open_span.is_empty() { span.clone() } else { open_span.clone() }, "open_data", format!("{} ({})", e, data_dir.display()))
             })?;
+            open_tasks = Some(l);
         }
-        let fpath = base.join(&rt.scores);
-        let spec = ScoreFileSpec {
-            path: fpath.clone(),
-            score_column: rt.score_column.clone(),
-            label_column: rt.label_column.clone(),
-            score_kind: rt.score_kind,
-            split_column: rt.split_column.clone(),
-            truth_column: rt.truth_column.clone(),
+        Ok(open_tasks.clone().unwrap_or_default())
+    };
+    for (i, g) in raw.task_grid.iter().enumerate() {
+        let label = format!("task_grid #{}", i + 1);
+        let rg: RawGrid = toml::Value::Table(g.get_ref().clone())
+            .try_into()
+            .map_err(|e: toml::de::Error| ctx.err(g.span(), &label, e.message().trim().to_string()))?;
+        let data: Vec<String> = match &rg.data {
+            toml::Value::String(s) if s == "all" => list_open(g.span())?.iter().map(|t| t.id.clone()).collect(),
+            toml::Value::Array(a) => a
+                .iter()
+                .map(|v| v.as_str().map(str::to_string))
+                .collect::<Option<Vec<_>>>()
+                .ok_or_else(|| ctx.err(g.span(), &format!("{label}.data"), "expected a list of open-data task ids or \"all\""))?,
+            _ => return Err(ctx.err(g.span(), &format!("{label}.data"), "expected a list of open-data task ids or \"all\"")),
         };
-        let bytes = std::fs::read(&fpath).map_err(|e| {
-            ctx.err(
-                t.span(),
-                &format!("{tl}.scores"),
-                format!("{}: cannot read: {e}", fpath.display()),
-            )
-        })?;
-        let data_sha256 = hex(&Sha256::digest(&bytes));
-        let loaded = scorefile::load(&spec)
-            .map_err(|e| ctx.err(t.span(), &format!("{tl}.scores"), e.to_string()))?;
-        let n = loaded.pool.scores.len();
-        let (reservoir, test) = match &loaded.pool.sides {
-            Some(sides) => {
-                let res = (0..n).filter(|&i| sides[i] == Side::Reservoir).collect();
-                let te = (0..n).filter(|&i| sides[i] == Side::Test).collect();
-                (res, te)
-            }
-            None => {
-                let rows = test_set.rows(n);
-                if rows == 0 || rows >= n {
-                    return Err(ctx.err(
-                        raw.test_set.as_ref().map(|s| s.span()).unwrap_or(t.span()),
-                        "test_set",
-                        format!(
-                            "{}: gives {rows} test rows for {tl}, which has {n} rows",
-                            test_set.describe()
-                        ),
-                    ));
-                }
-                split::partition(n, rows, split::task_seed(seed as u64, &rt.id))
-            }
-        };
-        let mut task_sizes = Vec::new();
-        let mut skipped = Vec::new();
-        for &s in &sizes {
-            if s <= reservoir.len() {
-                task_sizes.push(s);
-            } else if too_large == TooLarge::Skip {
-                skipped.push(s);
-            } else {
-                let span = raw
-                    .sizes
-                    .get_ref()
-                    .iter()
-                    .find(|x| *x.get_ref() as usize == s)
-                    .map(|x| x.span())
-                    .unwrap();
-                return Err(ctx.err(
-                    span,
-                    "sizes",
-                    format!("{s} is larger than the calibration reservoir of {tl} ({} rows); lower it or set too_large = \"skip\"", reservoir.len()),
+        for d in &data {
+            for m in &rg.models {
+                specs.push((
+                    Spec::Open(RawOpenTask { id: format!("{d}.{m}"), data: d.clone(), model: m.clone(), protocol: rg.protocol.clone() }),
+                    g.span(),
+                    label.clone(),
                 ));
             }
         }
-        if task_sizes.is_empty() {
-            return Err(ctx.err(
-                raw.sizes.span(),
-                "sizes",
-                format!(
-                    "no size fits the reservoir of {tl} ({} rows)",
-                    reservoir.len()
-                ),
-            ));
+    }
+
+    let mut tasks: Vec<TaskPlan> = Vec::new();
+    for (spec, span, label) in specs {
+        let id = match &spec {
+            Spec::File(r) => r.id.clone(),
+            Spec::Open(r) => r.id.clone(),
+        };
+        let tl = format!("task `{id}`");
+        if !valid_id(&id) {
+            return Err(ctx.err(span, &format!("{label}.id"), format!("`{id}`: an id is a non-empty word of letters, digits, '-', '_' or '.'")));
         }
-        tasks.push(TaskPlan {
-            id: rt.id.clone(),
-            source: TaskSource::ScoreFile(spec),
-            score_kind: rt.score_kind,
-            data_sha256,
-            pool: loaded.pool,
-            truth: loaded.truth,
-            reservoir,
-            test,
-            sizes: task_sizes,
-            skipped_sizes: skipped,
-        });
+        if tasks.iter().any(|x| x.id == id) {
+            return Err(ctx.err(span, &format!("{tl}.id"), "this id is used by another task"));
+        }
+        let score_kind = match &spec {
+            Spec::File(r) => r.score_kind,
+            Spec::Open(_) => ScoreKind::Probability,
+        };
+        for (m, mspan) in &methods {
+            m.spec.validate(score_kind).map_err(|e| {
+                ctx.err(mspan.clone(), &format!("method `{}`", m.id), format!("{e} (for {tl}, score_kind = \"{}\")", score_kind.as_str()))
+            })?;
+        }
+        let test_set_span = raw.test_set.as_ref().map(|s| s.span()).unwrap_or(span.clone());
+        let mut plan_task = match spec {
+            Spec::File(rt) => {
+                let fpath = base.join(&rt.scores);
+                let fspec = ScoreFileSpec {
+                    path: fpath.clone(),
+                    score_column: rt.score_column.clone(),
+                    label_column: rt.label_column.clone(),
+                    score_kind: rt.score_kind,
+                    split_column: rt.split_column.clone(),
+                    truth_column: rt.truth_column.clone(),
+                };
+                let bytes = std::fs::read(&fpath)
+                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), format!("{}: cannot read: {e}", fpath.display())))?;
+                let data_sha256 = hex(&Sha256::digest(&bytes));
+                let loaded = scorefile::load(&fspec).map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), e.to_string()))?;
+                let n = loaded.pool.scores.len();
+                let positives = loaded.pool.labels.iter().filter(|&&y| y).count();
+                let (reservoir, test) = match &loaded.pool.sides {
+                    Some(sides) => {
+                        let res = (0..n).filter(|&i| sides[i] == Side::Reservoir).collect();
+                        let te = (0..n).filter(|&i| sides[i] == Side::Test).collect();
+                        (res, te)
+                    }
+                    None => {
+                        let rows = test_set.rows(n);
+                        if rows == 0 || rows >= n {
+                            return Err(ctx.err(
+                                test_set_span,
+                                "test_set",
+                                format!("{}: gives {rows} test rows for {tl}, which has {n} rows", test_set.describe()),
+                            ));
+                        }
+                        split::partition(n, rows, split::task_seed(seed as u64, &rt.id))
+                    }
+                };
+                TaskPlan {
+                    id: rt.id.clone(),
+                    source: TaskSource::ScoreFile(fspec),
+                    score_kind: rt.score_kind,
+                    data_sha256,
+                    rows: n,
+                    positives,
+                    reservoir_rows: reservoir.len(),
+                    test_rows: test.len(),
+                    pool: loaded.pool,
+                    truth: loaded.truth,
+                    reservoir,
+                    test,
+                    sizes: Vec::new(),
+                    skipped_sizes: Vec::new(),
+                }
+            }
+            Spec::Open(ro) => {
+                let list = list_open(span.clone())?;
+                let summary = list.iter().find(|t| t.id == ro.data).ok_or_else(|| {
+                    ctx.err(
+                        span.clone(),
+                        &format!("{tl}.data"),
+                        format!("`{}` is not an open-data task in {}; known: {}", ro.data, data_dir.display(),
+                            list.iter().map(|t| t.id.as_str()).collect::<Vec<_>>().join(", ")),
+                    )
+                })?;
+                let model = models.iter().find(|(m, _)| *m == ro.model).map(|(_, s)| s.clone()).ok_or_else(|| {
+                    ctx.err(
+                        span.clone(),
+                        &format!("{tl}.model"),
+                        format!("`{}` is not one of the suite's [[model]] ids ({})", ro.model,
+                            models.iter().map(|(m, _)| m.as_str()).collect::<Vec<_>>().join(", ")),
+                    )
+                })?;
+                let protocol = ro.protocol.clone().unwrap_or_else(default_protocol);
+                protocol.validate().map_err(|e| ctx.err(span.clone(), &format!("{tl}.protocol"), e.to_string()))?;
+                let n = summary.rows;
+                let (reservoir_rows, test_rows) = match protocol {
+                    Protocol::HeldOut { train_fraction } => {
+                        let n_train = (train_fraction * n as f64).round() as usize;
+                        let pool_n = n.saturating_sub(n_train);
+                        let rows = test_set.rows(pool_n);
+                        if rows == 0 || rows >= pool_n {
+                            return Err(ctx.err(
+                                test_set_span,
+                                "test_set",
+                                format!("{}: gives {rows} test rows for {tl}, whose held-out pool has {pool_n} rows", test_set.describe()),
+                            ));
+                        }
+                        (pool_n - rows, rows)
+                    }
+                    Protocol::CrossFitted { train_fraction, .. } => {
+                        let n_train = (train_fraction * n as f64).round() as usize;
+                        (n_train, n - n_train)
+                    }
+                };
+                let data_sha256 = open::dataset_digest(&data_dir, &ro.data)
+                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.data"), e.to_string()))?;
+                TaskPlan {
+                    id: ro.id.clone(),
+                    source: TaskSource::Open { data_dir: data_dir.clone(), data: ro.data.clone(), model_id: ro.model.clone(), model, protocol },
+                    score_kind: ScoreKind::Probability,
+                    data_sha256,
+                    rows: n,
+                    positives: summary.positives,
+                    reservoir_rows,
+                    test_rows,
+                    pool: ScorePool { scores: Vec::new(), labels: Vec::new(), sides: None },
+                    truth: None,
+                    reservoir: Vec::new(),
+                    test: Vec::new(),
+                    sizes: Vec::new(),
+                    skipped_sizes: Vec::new(),
+                }
+            }
+        };
+        let reservoir_len = plan_task.reservoir_rows;
+        for &s in &sizes {
+            if s <= reservoir_len {
+                plan_task.sizes.push(s);
+            } else if too_large == TooLarge::Skip {
+                plan_task.skipped_sizes.push(s);
+            } else {
+                let sspan = raw.sizes.get_ref().iter().find(|x| *x.get_ref() as usize == s).map(|x| x.span()).unwrap_or(0..0);
+                return Err(ctx.err(
+                    sspan,
+                    "sizes",
+                    format!("{s} is larger than the calibration reservoir of {tl} ({reservoir_len} rows); lower it or set too_large = \"skip\""),
+                ));
+            }
+        }
+        if plan_task.sizes.is_empty() {
+            return Err(ctx.err(raw.sizes.span(), "sizes", format!("no size fits the reservoir of {tl} ({reservoir_len} rows)")));
+        }
+        tasks.push(plan_task);
     }
 
     Ok(Plan {
