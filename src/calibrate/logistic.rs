@@ -1,0 +1,264 @@
+//! Maximum-likelihood logistic regression in a few dimensions (an intercept plus
+//! up to three features), shared by the methods that are logistic models of
+//! transformed scores (beta calibration and its tied form).
+//!
+//! Math: with features x_i ∈ ℝ^d and targets t_i ∈ [0, 1], minimise the negative
+//! log-likelihood F(β, c) = Σ_i [softplus(z_i) − t_i z_i], z_i = β·x_i + c, where
+//! softplus(z) = ln(1 + e^z) is evaluated in the overflow-free form
+//! max(z, 0) + ln(1 + e^(−|z|)). F is convex; its gradient is Σ (p_i − t_i)(x_i, 1)
+//! and its Hessian Σ p_i(1 − p_i)(x_i, 1)(x_i, 1)ᵀ with p_i = σ(z_i). We take Newton
+//! steps (solved by Cholesky with a 1e-12 ridge on the diagonal) with an Armijo
+//! backtracking line search, as for the 1-D fit in `platt.rs` (Lin, Lin & Weng 2007,
+//! Machine Learning 68). Features are centred and scaled internally for
+//! conditioning; coefficients are reported on the raw feature scale.
+//!
+//! The optimum is finite unless the sample is (quasi-)separable; callers detect
+//! separation beforehand and pass smoothed targets in that case.
+
+use super::{sigmoid, FitError};
+
+/// Most features supported (plus the intercept).
+pub const MAX_FEATURES: usize = 3;
+const P: usize = MAX_FEATURES + 1;
+
+/// A fitted logistic model σ(coef·x + intercept).
+#[derive(Debug, Clone, PartialEq)]
+pub struct LogisticModel {
+    /// One coefficient per feature column, on the raw feature scale.
+    pub coef: Vec<f64>,
+    pub intercept: f64,
+    pub iterations: usize,
+}
+
+/// Overflow-free ln(1 + e^z).
+pub fn softplus(z: f64) -> f64 {
+    z.max(0.0) + (-z.abs()).exp().ln_1p()
+}
+
+/// Solve the symmetric positive-definite system `h · x = g` (size `k`) by Cholesky.
+/// Returns `None` when the matrix is not numerically positive definite.
+fn cholesky_solve(h: &[[f64; P]; P], g: &[f64; P], k: usize) -> Option<[f64; P]> {
+    let mut l = [[0.0; P]; P];
+    for i in 0..k {
+        for j in 0..=i {
+            let mut s = h[i][j];
+            for m in 0..j {
+                s -= l[i][m] * l[j][m];
+            }
+            if i == j {
+                // Relative pivot test: a pivot that is lost in rounding means the
+                // features are (numerically) collinear.
+                if !(s > 1e-10 * h[i][i]) || !s.is_finite() {
+                    return None;
+                }
+                l[i][i] = s.sqrt();
+            } else {
+                l[i][j] = s / l[j][j];
+            }
+        }
+    }
+    let mut y = [0.0; P];
+    for i in 0..k {
+        let mut s = g[i];
+        for m in 0..i {
+            s -= l[i][m] * y[m];
+        }
+        y[i] = s / l[i][i];
+    }
+    let mut x = [0.0; P];
+    for i in (0..k).rev() {
+        let mut s = y[i];
+        for m in i + 1..k {
+            s -= l[m][i] * x[m];
+        }
+        x[i] = s / l[i][i];
+    }
+    Some(x)
+}
+
+/// Fit σ(coef·x + c) to targets `t` by maximum likelihood. `cols` holds the
+/// feature columns (each of length `t.len()`, at most [`MAX_FEATURES`] of them;
+/// none gives the intercept-only model). Fails when a column is constant or the
+/// columns are collinear with the intercept.
+pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitError> {
+    let d = cols.len();
+    let n = t.len();
+    if d > MAX_FEATURES {
+        return Err(FitError::Failed(format!(
+            "logistic fit: {d} features, at most {MAX_FEATURES} supported"
+        )));
+    }
+    if n == 0 {
+        return Err(FitError::Empty);
+    }
+    if cols.iter().any(|c| c.len() != n) {
+        return Err(FitError::Failed(
+            "logistic fit: feature and target lengths differ".into(),
+        ));
+    }
+    let nf = n as f64;
+    // Standardise each column.
+    let mut mean = [0.0; MAX_FEATURES];
+    let mut scale = [1.0; MAX_FEATURES];
+    for (j, c) in cols.iter().enumerate() {
+        let m = c.iter().sum::<f64>() / nf;
+        let v = c.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / nf;
+        if !m.is_finite() || !v.is_finite() {
+            return Err(FitError::Failed(
+                "logistic fit: non-finite feature values".into(),
+            ));
+        }
+        if !(v.sqrt() > 0.0) {
+            return Err(FitError::Failed(
+                "logistic fit: a feature is constant on the calibration sample".into(),
+            ));
+        }
+        mean[j] = m;
+        scale[j] = v.sqrt();
+    }
+    let k = d + 1; // parameters: d slopes then the intercept
+    let mut u: Vec<[f64; MAX_FEATURES]> = vec![[0.0; MAX_FEATURES]; n];
+    for (j, c) in cols.iter().enumerate() {
+        for (ui, &x) in u.iter_mut().zip(c.iter()) {
+            ui[j] = (x - mean[j]) / scale[j];
+        }
+    }
+    let lin = |w: &[f64; P], ui: &[f64; MAX_FEATURES]| -> f64 {
+        let mut z = w[d];
+        for j in 0..d {
+            z += w[j] * ui[j];
+        }
+        z
+    };
+    let objective = |w: &[f64; P]| -> f64 {
+        u.iter()
+            .zip(t)
+            .map(|(ui, &ti)| {
+                let z = lin(w, ui);
+                softplus(z) - ti * z
+            })
+            .sum()
+    };
+    let tbar = (t.iter().sum::<f64>() / nf).clamp(1e-12, 1.0 - 1e-12);
+    let mut w = [0.0; P];
+    w[d] = (tbar / (1.0 - tbar)).ln();
+    let mut f = objective(&w);
+    let mut iterations = 0;
+    for it in 0..200 {
+        iterations = it + 1;
+        let mut g = [0.0; P];
+        let mut h = [[0.0; P]; P];
+        for (ui, &ti) in u.iter().zip(t) {
+            let p = sigmoid(lin(&w, ui));
+            let r = p - ti;
+            let wt = p * (1.0 - p);
+            let mut x = [1.0; P];
+            x[..d].copy_from_slice(&ui[..d]);
+            for a in 0..k {
+                g[a] += r * x[a];
+                for b in 0..=a {
+                    h[a][b] += wt * x[a] * x[b];
+                }
+            }
+        }
+        if g[..k].iter().all(|ga| ga.abs() < 1e-11 * nf) {
+            break;
+        }
+        for a in 0..k {
+            h[a][a] += 1e-12;
+            for b in 0..a {
+                h[b][a] = h[a][b];
+            }
+        }
+        let step_dir = match cholesky_solve(&h, &g, k) {
+            Some(s) => s,
+            None => {
+                return Err(FitError::Failed(
+                    "logistic fit: singular Hessian (collinear features?)".into(),
+                ))
+            }
+        };
+        let mut dir = [0.0; P];
+        let mut gd = 0.0;
+        for a in 0..k {
+            dir[a] = -step_dir[a];
+            gd += g[a] * dir[a];
+        }
+        let mut step = 1.0;
+        let mut accepted = false;
+        while step >= 1e-10 {
+            let mut nw = w;
+            for a in 0..k {
+                nw[a] += step * dir[a];
+            }
+            let nf_val = objective(&nw);
+            if nf_val <= f + 1e-4 * step * gd {
+                w = nw;
+                f = nf_val;
+                accepted = true;
+                break;
+            }
+            step /= 2.0;
+        }
+        if !accepted {
+            break; // no further decrease at machine precision
+        }
+    }
+    let mut coef = Vec::with_capacity(d);
+    let mut intercept = w[d];
+    for j in 0..d {
+        coef.push(w[j] / scale[j]);
+        intercept -= w[j] * mean[j] / scale[j];
+    }
+    if !(intercept.is_finite() && coef.iter().all(|c| c.is_finite())) {
+        return Err(FitError::Failed(
+            "logistic fit did not converge to finite values".into(),
+        ));
+    }
+    Ok(LogisticModel {
+        coef,
+        intercept,
+        iterations,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::calibrate::platt::fit_logistic_1d;
+
+    /// The 1-feature case must agree with the existing 1-D Newton fitter.
+    #[test]
+    fn one_feature_matches_platt_fitter() {
+        let x = [0.1, 0.4, 0.35, 0.8, 0.6, 0.2, 0.9, 0.55];
+        let t = [0.0, 0.0, 1.0, 1.0, 0.0, 0.0, 1.0, 1.0];
+        let m = fit_logistic(&[&x], &t).unwrap();
+        let p = fit_logistic_1d(&x, &t).unwrap();
+        assert!((m.coef[0] - p.a).abs() < 1e-9, "{m:?} {p:?}");
+        assert!((m.intercept - p.b).abs() < 1e-9);
+    }
+
+    /// Intercept-only: the optimum is the logit of the mean target (score
+    /// equation Σ (p − t) = 0; common practice).
+    #[test]
+    fn intercept_only_is_logit_of_mean() {
+        let t = [1.0, 0.0, 0.0, 1.0, 0.0];
+        let m = fit_logistic(&[], &t).unwrap();
+        assert!((m.intercept - (0.4f64 / 0.6).ln()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn constant_feature_is_an_error_not_a_panic() {
+        let x = [1.0; 4];
+        let t = [0.0, 1.0, 0.0, 1.0];
+        assert!(matches!(fit_logistic(&[&x], &t), Err(FitError::Failed(_))));
+    }
+
+    #[test]
+    fn collinear_features_are_an_error() {
+        let x = [0.1, 0.5, 0.2, 0.9, 0.7];
+        let x2: Vec<f64> = x.iter().map(|v| 2.0 * v + 1.0).collect();
+        let t = [0.0, 1.0, 0.0, 1.0, 0.0];
+        assert!(fit_logistic(&[&x, &x2], &t).is_err());
+    }
+}
