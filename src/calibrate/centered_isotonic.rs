@@ -3,8 +3,8 @@
 //! interval estimation for dose–response studies").
 //!
 //! Math: fit isotonic regression by PAV (ties merged first, as in `isotonic.rs`),
-//! then pool adjacent blocks with equal values too, so the block values are
-//! strictly increasing. Each block of distinct scores x_j with row counts w_j is
+//! then pool adjacent blocks with equal values too (equal within 1e-12, to absorb
+//! rounding), so the block values are strictly increasing. Each block of distinct scores x_j with row counts w_j is
 //! replaced by a single point at its weighted-mean score x̄ = Σ w_j x_j / Σ w_j
 //! with the block's value. The map interpolates linearly between consecutive
 //! points and is flat (the end points' values) below the first and above the
@@ -22,6 +22,11 @@
 use super::isotonic::{base_rate, merge_ties, pav, shrink_blocks, StepLinear};
 use super::{check_sample, Calibrator, FitError, Fitted, FittedMap};
 
+/// Block values closer than this count as equal. Mathematically equal shrunk
+/// values such as (3 + π)/7 and (6 + 2π)/14 can differ in the last bit, and
+/// keeping both would leave a numerically flat piece.
+pub const EQUAL_TOL: f64 = 1e-12;
+
 pub struct CenteredIsotonic {
     pub pseudo_count: f64,
 }
@@ -35,14 +40,22 @@ pub fn cir_points(groups: &[(f64, f64, f64)], pseudo_count: f64, base_rate: f64)
     let mut gi = 0usize;
     let mut i = 0usize;
     while i < blocks.len() {
-        let value = blocks[i].value;
         let lo = blocks[i].lo;
         let mut hi = blocks[i].hi;
+        let (mut vw, mut w) = (blocks[i].value * blocks[i].weight, blocks[i].weight);
         let mut j = i + 1;
-        while j < blocks.len() && blocks[j].value == value {
+        while j < blocks.len() && blocks[j].value - blocks[i].value <= EQUAL_TOL {
             hi = blocks[j].hi;
+            vw += blocks[j].value * blocks[j].weight;
+            w += blocks[j].weight;
             j += 1;
         }
+        // Equal up to rounding: the row-weighted mean (exact when all are equal).
+        let value = if j == i + 1 {
+            blocks[i].value
+        } else {
+            (vw / w).clamp(blocks[i].value, blocks[j - 1].value)
+        };
         let (mut swx, mut sw) = (0.0, 0.0);
         while gi < groups.len() && groups[gi].0 <= hi {
             swx += groups[gi].1 * groups[gi].0;

@@ -144,6 +144,7 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
     w[d] = (tbar / (1.0 - tbar)).ln();
     let mut f = objective(&w);
     let mut iterations = 0;
+    let mut prev_dir = f64::INFINITY;
     for it in 0..200 {
         iterations = it + 1;
         let mut g = [0.0; P];
@@ -186,14 +187,16 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
             gd += g[a] * dir[a];
             max_dir = max_dir.max(dir[a].abs());
         }
-        // Converged: the Newton step (standardised scale) is below what the
-        // rounding in the sums lets the gradient resolve.
-        if max_dir < 1e-10 {
+        // Converged: the Newton step (standardised scale) is negligible, or it
+        // has stopped shrinking quadratically because the gradient is down to
+        // the rounding noise of its sums.
+        if max_dir < 1e-10 || (max_dir < 1e-6 && max_dir > 0.5 * prev_dir) {
             for a in 0..k {
                 w[a] += dir[a];
             }
             break;
         }
+        prev_dir = max_dir;
         let mut step = 1.0;
         let mut accepted = false;
         while step >= 1e-10 {
@@ -202,12 +205,14 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                 nw[a] += step * dir[a];
             }
             let nf_val = objective(&nw);
-            if nf_val <= f + 1e-4 * step * gd {
-                // An accepted step without any decrease means the objective is
-                // flat to machine precision here: stop after taking it.
-                accepted = nf_val < f;
+            // Armijo decrease; or, for the full Newton step, no change beyond
+            // the rounding of the objective (near the optimum the objective is
+            // flat to machine precision while Newton still gains digits in β).
+            let flat = step == 1.0 && (nf_val - f).abs() <= 1e-12 * f.abs().max(1.0);
+            if nf_val <= f + 1e-4 * step * gd || flat {
                 w = nw;
                 f = nf_val;
+                accepted = true;
                 break;
             }
             step /= 2.0;
