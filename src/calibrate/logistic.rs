@@ -15,7 +15,7 @@
 //! The optimum is finite unless the sample is (quasi-)separable; callers detect
 //! separation beforehand and pass smoothed targets in that case.
 
-use super::{sigmoid, FitError};
+use super::FitError;
 
 /// Most features supported (plus the intercept).
 pub const MAX_FEATURES: usize = 3;
@@ -130,27 +130,21 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
         }
         z
     };
-    let objective = |w: &[f64; P]| -> f64 {
-        u.iter()
-            .zip(t)
-            .map(|(ui, &ti)| {
-                let z = lin(w, ui);
-                softplus(z) - ti * z
-            })
-            .sum()
-    };
-    let tbar = (t.iter().sum::<f64>() / nf).clamp(1e-12, 1.0 - 1e-12);
-    let mut w = [0.0; P];
-    w[d] = (tbar / (1.0 - tbar)).ln();
-    let mut f = objective(&w);
-    let mut iterations = 0;
-    let mut prev_dir = f64::INFINITY;
-    for it in 0..200 {
-        iterations = it + 1;
+    // Objective, gradient and Hessian (lower triangle) in one pass; the
+    // softplus and the sigmoid share one exponential e^(−|z|).
+    let eval = |w: &[f64; P]| -> (f64, [f64; P], [[f64; P]; P]) {
+        let mut f = 0.0;
         let mut g = [0.0; P];
         let mut h = [[0.0; P]; P];
         for (ui, &ti) in u.iter().zip(t) {
-            let p = sigmoid(lin(&w, ui));
+            let z = lin(w, ui);
+            let e = (-z.abs()).exp();
+            f += z.max(0.0) + e.ln_1p() - ti * z;
+            let p = if z >= 0.0 {
+                1.0 / (1.0 + e)
+            } else {
+                e / (1.0 + e)
+            };
             let r = p - ti;
             let wt = p * (1.0 - p);
             let mut x = [1.0; P];
@@ -162,16 +156,27 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                 }
             }
         }
+        (f, g, h)
+    };
+    let tbar = (t.iter().sum::<f64>() / nf).clamp(1e-12, 1.0 - 1e-12);
+    let mut w = [0.0; P];
+    w[d] = (tbar / (1.0 - tbar)).ln();
+    let (mut f, mut g, mut h) = eval(&w);
+    let mut iterations = 0;
+    let mut prev_dir = f64::INFINITY;
+    for it in 0..200 {
+        iterations = it + 1;
         if g[..k].iter().all(|ga| ga.abs() < 1e-11 * nf) {
             break;
         }
+        let mut hs = h;
         for a in 0..k {
-            h[a][a] += 1e-12;
+            hs[a][a] += 1e-12;
             for b in 0..a {
-                h[b][a] = h[a][b];
+                hs[b][a] = hs[a][b];
             }
         }
-        let step_dir = match cholesky_solve(&h, &g, k) {
+        let step_dir = match cholesky_solve(&hs, &g, k) {
             Some(s) => s,
             None => {
                 return Err(FitError::Failed(
@@ -204,7 +209,7 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
             for a in 0..k {
                 nw[a] += step * dir[a];
             }
-            let nf_val = objective(&nw);
+            let (nf_val, ng, nh) = eval(&nw);
             // Armijo decrease; or, for the full Newton step, no change beyond
             // the rounding of the objective (near the optimum the objective is
             // flat to machine precision while Newton still gains digits in β).
@@ -212,6 +217,8 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
             if nf_val <= f + 1e-4 * step * gd || flat {
                 w = nw;
                 f = nf_val;
+                g = ng;
+                h = nh;
                 accepted = true;
                 break;
             }
