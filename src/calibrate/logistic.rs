@@ -37,6 +37,7 @@ pub fn softplus(z: f64) -> f64 {
 
 /// Solve the symmetric positive-definite system `h · x = g` (size `k`) by Cholesky.
 /// Returns `None` when the matrix is not numerically positive definite.
+#[allow(clippy::needless_range_loop)] // index form mirrors the matrix algebra
 fn cholesky_solve(h: &[[f64; P]; P], g: &[f64; P], k: usize) -> Option<[f64; P]> {
     let mut l = [[0.0; P]; P];
     for i in 0..k {
@@ -48,7 +49,7 @@ fn cholesky_solve(h: &[[f64; P]; P], g: &[f64; P], k: usize) -> Option<[f64; P]>
             if i == j {
                 // Relative pivot test: a pivot that is lost in rounding means the
                 // features are (numerically) collinear.
-                if !(s > 1e-10 * h[i][i]) || !s.is_finite() {
+                if s.is_nan() || s <= 1e-10 * h[i][i] || !s.is_finite() {
                     return None;
                 }
                 l[i][i] = s.sqrt();
@@ -80,6 +81,7 @@ fn cholesky_solve(h: &[[f64; P]; P], g: &[f64; P], k: usize) -> Option<[f64; P]>
 /// feature columns (each of length `t.len()`, at most [`MAX_FEATURES`] of them;
 /// none gives the intercept-only model). Fails when a column is constant or the
 /// columns are collinear with the intercept.
+#[allow(clippy::needless_range_loop)] // index form mirrors the matrix algebra
 pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitError> {
     let d = cols.len();
     let n = t.len();
@@ -108,7 +110,7 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                 "logistic fit: non-finite feature values".into(),
             ));
         }
-        if !(v.sqrt() > 0.0) {
+        if v <= 0.0 {
             return Err(FitError::Failed(
                 "logistic fit: a feature is constant on the calibration sample".into(),
             ));
