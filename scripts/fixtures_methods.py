@@ -20,6 +20,10 @@ Reference computations (independent of the Rust code):
   temperature.json  scipy.optimize.minimize_scalar of the negative log-likelihood in T
   centered.json     centred isotonic points from sklearn's isotonic fit (runs of
                     equal fitted values) and numpy.interp
+  separation.json   whether the maximum-likelihood fit exists, by the linear
+                    programme of Albert & Anderson (1984): the sample is
+                    (quasi-)separated iff some beta != 0 has y'_i x_i.beta >= 0 for
+                    all i (y' = +-1); solved with scipy.optimize.linprog (HiGHS)
 """
 
 import json
@@ -31,7 +35,7 @@ import scipy
 import sklearn
 import statsmodels
 import statsmodels.api as sm
-from scipy.optimize import isotonic_regression, minimize_scalar
+from scipy.optimize import isotonic_regression, linprog, minimize_scalar
 from sklearn.isotonic import IsotonicRegression
 
 OUT = os.path.join("tests", "fixtures", "methods")
@@ -149,6 +153,51 @@ def beta_cases(rng):
         "full_unconstrained": {"a": float(a_full), "b": float(b_full), "c": float(c_full)},
         "full": {"a": float(a_red), "b": 0.0, "c": float(c_red)},
     })
+    # Margin scores: s = sigmoid(m), features ln sigmoid(m) = -logaddexp(0, -m)
+    # and -ln(1 - sigmoid(m)) = logaddexp(0, m).
+    n = 300
+    m = rng.normal(0.0, 2.5, n)
+    x1, x2 = -np.logaddexp(0.0, -m), np.logaddexp(0.0, m)
+    y = rng.random(n) < 1.0 / (1.0 + np.exp(-(0.8 * x1 + 1.6 * x2 - 0.3)))
+    c_full, a_full, b_full = logit_fit(np.column_stack([x1, x2]), y.astype(float))
+    c_tied, a_tied = logit_fit(m, y.astype(float))
+    cases.append({
+        "name": "margin-300", "score_kind": "margin", "scores": fl(m), "labels": ints(y),
+        "full": {"a": float(a_full), "b": float(b_full), "c": float(c_full)},
+        "tied": {"a": float(a_tied), "c": float(c_tied)},
+    })
+    return cases
+
+
+def separated(X, y):
+    """True when some beta != 0 has y'_i * (x_i . beta) >= 0 for every row."""
+    A = np.column_stack([X, np.ones(len(y))]) * np.where(y, 1.0, -1.0)[:, None]
+    k = A.shape[1]
+    r = linprog(np.zeros(k), A_ub=-A, b_ub=np.zeros(len(y)),
+                A_eq=A.sum(axis=0)[None, :], b_eq=[1.0],
+                bounds=[(None, None)] * k, method="highs")
+    return r.status == 0
+
+
+def separation_cases(rng):
+    cases = []
+    grid = np.arange(1, 10) / 10.0
+    while len(cases) < 300:
+        n = int(rng.integers(4, 13))
+        s = rng.choice(grid, n)
+        if len(np.unique(s)) < 3:
+            continue
+        y = rng.random(n) < 0.5
+        if y.all() or not y.any():
+            continue
+        x1, x2 = np.log(s), -np.log1p(-s)
+        cases.append({
+            "scores": fl(s), "labels": ints(y),
+            "full": bool(separated(np.column_stack([x1, x2]), y)),
+            "one_feature": bool(separated(np.log(s / (1 - s))[:, None], y)),
+        })
+    print("separation: full separated", sum(c["full"] for c in cases),
+          "one-feature separated", sum(c["one_feature"] for c in cases), "of", len(cases))
     return cases
 
 
@@ -257,6 +306,7 @@ def main():
     write("binning.json", binning_cases(rng), "equal-mass histogram binning computed with numpy")
     write("temperature.json", temperature_cases(rng), "temperature T from scipy minimize_scalar")
     write("centered.json", centered_cases(rng), "centred isotonic points from scikit-learn and numpy")
+    write("separation.json", separation_cases(rng), "existence of the logistic MLE by linear programming")
 
 
 if __name__ == "__main__":

@@ -4,7 +4,7 @@
 //! scripts/fixtures_methods.py (library versions in each file's "generator"
 //! header); the script documents how each reference value is computed.
 
-use plumbline::calibrate::{logistic, Fitted, MethodSpec, ScoreKind};
+use plumbline::calibrate::{beta, logistic, Fitted, MethodSpec, ScoreKind};
 use plumbline::split::splitmix64;
 use serde_json::Value;
 
@@ -141,7 +141,11 @@ fn beta_matches_statsmodels_logit() {
         let name = c["name"].as_str().unwrap();
         let s = f64s(&c["scores"]);
         let y = labels(&c["labels"]);
-        let f = fit("{ kind = \"beta\" }", ScoreKind::Probability, &s, &y);
+        let kind = match c["score_kind"].as_str() {
+            Some("margin") => ScoreKind::Margin,
+            _ => ScoreKind::Probability,
+        };
+        let f = fit("{ kind = \"beta\" }", kind, &s, &y);
         let d = f.map.describe();
         for k in ["a", "b", "c"] {
             assert!(
@@ -156,7 +160,7 @@ fn beta_matches_statsmodels_logit() {
             assert!(num(u, "b") < 0.0);
             let (x1, x2): (Vec<f64>, Vec<f64>) = s
                 .iter()
-                .map(|&v| plumbline::calibrate::beta::beta_features(v, ScoreKind::Probability))
+                .map(|&v| beta::beta_features(v, ScoreKind::Probability))
                 .unzip();
             let t: Vec<f64> = y.iter().map(|&l| l as u8 as f64).collect();
             let m = logistic::fit_logistic(&[&x1, &x2], &t).unwrap();
@@ -166,12 +170,7 @@ fn beta_matches_statsmodels_logit() {
             assert_eq!(f.notes, vec!["refit"], "{name}");
         } else {
             assert!(f.notes.is_empty(), "{name}: {:?}", f.notes);
-            let t = fit(
-                "{ kind = \"beta\", shape = \"tied\" }",
-                ScoreKind::Probability,
-                &s,
-                &y,
-            );
+            let t = fit("{ kind = \"beta\", shape = \"tied\" }", kind, &s, &y);
             let d = t.map.describe();
             assert!(
                 (num(&d, "a") - num(&c["tied"], "a")).abs() < 1e-6,
@@ -327,4 +326,57 @@ fn centered_isotonic_equals_isotonic_without_violations() {
     let pb = predict(&b, &[0.25, 0.35]);
     assert_eq!(pa[0], pa[1]);
     assert!(pb[0] < pb[1]);
+}
+
+/// The separation rule of beta calibration (threshold or interval patterns
+/// along the convex feature curve) agrees with the linear-programming test of
+/// Albert & Anderson (1984, Biometrika 71) for existence of the logistic MLE,
+/// solved by scipy.optimize.linprog, on both the full design [ln s, −ln(1 − s), 1]
+/// and the one-feature design [logit s, 1].
+#[test]
+fn beta_separation_rule_matches_linear_programme() {
+    let cases = load(include_str!("fixtures/methods/separation.json"));
+    let (mut full_sep, mut one_sep) = (0, 0);
+    for (i, c) in cases.iter().enumerate() {
+        let s = f64s(&c["scores"]);
+        let y = labels(&c["labels"]);
+        let classes: Vec<i8> = plumbline::calibrate::isotonic::merge_ties(&s, &y)
+            .iter()
+            .map(|&(_, w, k)| {
+                if k == 0.0 {
+                    -1
+                } else if k == w {
+                    1
+                } else {
+                    0
+                }
+            })
+            .collect();
+        let full = c["full"].as_bool().unwrap();
+        let one = c["one_feature"].as_bool().unwrap();
+        assert_eq!(
+            beta::separable_with_cuts(&classes, 2),
+            full,
+            "case {i}: {c}"
+        );
+        assert_eq!(beta::separable_with_cuts(&classes, 1), one, "case {i}: {c}");
+        // The tied form reports exactly the one-feature outcome.
+        let f = fit(
+            "{ kind = \"beta\", shape = \"tied\" }",
+            ScoreKind::Probability,
+            &s,
+            &y,
+        );
+        assert_eq!(
+            f.notes.contains(&"separable"),
+            one,
+            "case {i}: {:?}",
+            f.notes
+        );
+        full_sep += full as usize;
+        one_sep += one as usize;
+    }
+    // The fixture exercises both outcomes of both rules.
+    assert!(full_sep > 20 && full_sep < cases.len() - 20);
+    assert!(one_sep > 10 && one_sep < cases.len() - 10);
 }

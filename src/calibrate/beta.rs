@@ -32,7 +32,9 @@
 //! two) tied scores where the line meets the curve. For one feature (the tied form
 //! or a refit) the condition is the usual threshold separation. When detected, the
 //! fit uses Platt's smoothed targets t₊ = (N₊ + 1)/(N₊ + 2), t₋ = 1/(N₋ + 2)
-//! (finite optimum) and notes `separable`, as Platt scaling does here.
+//! (finite optimum) and notes `separable`, as Platt scaling does here. The note
+//! is kept when separation is found at any stage, even if the final map is a
+//! refit that needed no smoothing.
 
 use super::isotonic::merge_ties;
 use super::logistic::{fit_logistic, softplus};
@@ -162,18 +164,19 @@ fn targets(labels: &[bool], smoothed: bool) -> Vec<f64> {
 }
 
 /// Fit a one-feature logistic model with the separation rule; returns
-/// (slope, intercept, smoothed) or `None` when the slope is negative.
+/// (slope, intercept, smoothed), or `None` when the slope is negative, and
+/// whether the sample was separable for this model.
 fn fit_one(
     x: &[f64],
     labels: &[bool],
     classes: &[i8],
-) -> Result<Option<(f64, f64, bool)>, FitError> {
+) -> Result<(Option<(f64, f64, bool)>, bool), FitError> {
     let sep = separable_with_cuts(classes, 1);
     let m = fit_logistic(&[x], &targets(labels, sep))?;
     if m.coef[0] < 0.0 {
-        return Ok(None);
+        return Ok((None, sep));
     }
-    Ok(Some((m.coef[0], m.intercept, sep)))
+    Ok((Some((m.coef[0], m.intercept, sep)), sep))
 }
 
 fn base_rate_intercept(labels: &[bool]) -> f64 {
@@ -216,7 +219,9 @@ impl Calibrator for Beta {
                     .iter()
                     .map(|&s| log_odds(s, self.score_kind))
                     .collect();
-                match fit_one(&z, labels, &classes)? {
+                let (fitted, sep) = fit_one(&z, labels, &classes)?;
+                separation_seen = sep;
+                match fitted {
                     Some((a, c, sm)) => (a, a, c, sm),
                     None => {
                         notes.push("refit");
@@ -244,10 +249,17 @@ impl Calibrator for Beta {
                     notes.push("refit");
                     let reduced = if fa < 0.0 && fb < 0.0 {
                         None
-                    } else if fa < 0.0 {
-                        fit_one(&x2, labels, &classes)?.map(|(b, c, sm)| (0.0, b, c, sm))
                     } else {
-                        fit_one(&x1, labels, &classes)?.map(|(a, c, sm)| (a, 0.0, c, sm))
+                        let x = if fa < 0.0 { &x2 } else { &x1 };
+                        let (fitted, sep1) = fit_one(x, labels, &classes)?;
+                        separation_seen |= sep1;
+                        fitted.map(|(s, c, sm)| {
+                            if fa < 0.0 {
+                                (0.0, s, c, sm)
+                            } else {
+                                (s, 0.0, c, sm)
+                            }
+                        })
                     };
                     reduced.unwrap_or((0.0, 0.0, base_rate_intercept(labels), false))
                 }
