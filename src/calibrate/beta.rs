@@ -163,14 +163,13 @@ fn targets(labels: &[bool], smoothed: bool) -> Vec<f64> {
     }
 }
 
+/// (slope, intercept, smoothed targets used) of a one-feature fit.
+type OneFit = (f64, f64, bool);
+
 /// Fit a one-feature logistic model with the separation rule; returns
 /// (slope, intercept, smoothed), or `None` when the slope is negative, and
 /// whether the sample was separable for this model.
-fn fit_one(
-    x: &[f64],
-    labels: &[bool],
-    classes: &[i8],
-) -> Result<(Option<(f64, f64, bool)>, bool), FitError> {
+fn fit_one(x: &[f64], labels: &[bool], classes: &[i8]) -> Result<(Option<OneFit>, bool), FitError> {
     let sep = separable_with_cuts(classes, 1);
     let m = fit_logistic(&[x], &targets(labels, sep))?;
     if m.coef[0] < 0.0 {
@@ -207,7 +206,7 @@ impl Calibrator for Beta {
         let classes: Vec<i8> = groups.iter().map(|g| group_class(g.1, g.2)).collect();
         let mut notes = Vec::new();
         // Separation seen at any stage (the full fit or a refit).
-        let mut separation_seen = false;
+        let mut separation_seen: bool;
         let (a, b, c, smoothed) = match self.shape {
             BetaShape::Tied => {
                 if groups.len() < 2 {
