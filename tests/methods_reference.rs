@@ -206,6 +206,17 @@ fn beta_recovers_identity_on_calibrated_scores() {
     assert!(num(&d, "c").abs() < 0.05, "{d}");
 }
 
+/// Temperature scaling leaves calibrated log-odds alone: if y ~ Bernoulli(s)
+/// the population optimum is T = 1 (the model σ(z/T) contains the truth at T = 1;
+/// Guo et al. 2017).
+#[test]
+fn temperature_recovers_one_on_calibrated_scores() {
+    let (s, y) = calibrated_sample(100_000, 11);
+    let f = fit("{ kind = \"temperature\" }", ScoreKind::Probability, &s, &y);
+    let t = num(&f.map.describe(), "temperature");
+    assert!((t - 1.0).abs() < 0.03, "T = {t}");
+}
+
 /// Histogram binning vs a numpy computation of the same binning rule (bin
 /// thresholds at order statistics, searchsorted for membership).
 #[test]

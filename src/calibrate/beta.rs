@@ -337,6 +337,30 @@ mod tests {
         assert!(d["a"].as_f64().unwrap() >= 0.0 && d["b"].as_f64().unwrap() >= 0.0);
     }
 
+    /// Labels drawn with P(y = 1) = 1 − s: the true map is logit p = −ln s +
+    /// ln(1 − s), so both a and b come out negative and the monotone fit is the
+    /// constant base rate (derived from the model family).
+    #[test]
+    fn decreasing_relation_falls_back_to_base_rate() {
+        use crate::split::splitmix64;
+        let unit = |h: u64| ((h >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
+        let n = 2000u64;
+        let s: Vec<f64> = (0..n).map(|i| unit(splitmix64(2 * i))).collect();
+        let y: Vec<bool> = (0..n)
+            .map(|i| unit(splitmix64(2 * i + 1)) < 1.0 - s[i as usize])
+            .collect();
+        let f = fit(BetaShape::Full, &s, &y);
+        assert_eq!(f.notes, vec!["refit"]);
+        let rate = y.iter().filter(|&&l| l).count() as f64 / n as f64;
+        let mut out = [0.0; 3];
+        f.map.predict(&[0.01, 0.5, 0.99], &mut out);
+        for p in out {
+            assert!((p - rate).abs() < 1e-12, "{p} vs {rate}");
+        }
+        let t = fit(BetaShape::Tied, &s, &y);
+        assert_eq!(t.notes, vec!["refit"]);
+    }
+
     #[test]
     fn too_few_distinct_scores_is_an_error() {
         let r = Beta {

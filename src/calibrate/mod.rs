@@ -184,8 +184,10 @@ pub enum MethodSpec {
     },
     /// Histogram binning with equal-mass bins (Zadrozny & Elkan 2001).
     Binning {
+        /// Number of equal-mass bins (default 10).
         #[serde(default = "default_bins")]
         bins: usize,
+        /// Pseudo-rows at the base rate per bin (0 = raw bin frequencies).
         #[serde(default)]
         pseudo_count: f64,
     },
@@ -193,6 +195,7 @@ pub enum MethodSpec {
     Temperature {},
     /// Centered isotonic regression (Oron & Flournoy 2017).
     CenteredIsotonic {
+        /// Pseudo-rows at the base rate per block (0 = plain CIR).
         #[serde(default)]
         pseudo_count: f64,
     },
