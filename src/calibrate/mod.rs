@@ -14,9 +14,14 @@
 
 use serde::{Deserialize, Serialize};
 
+pub mod beta;
+pub mod binning;
+pub mod centered_isotonic;
 pub mod identity;
 pub mod isotonic;
+pub mod logistic;
 pub mod platt;
+pub mod temperature;
 
 /// What a task's score column holds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -165,7 +170,50 @@ pub enum MethodSpec {
         target_smoothing: bool,
     },
     /// Isotonic regression by pool-adjacent-violators.
-    Isotonic {},
+    Isotonic {
+        /// Pseudo-rows at the base rate per block (0 = plain PAV; > 0 bounds the
+        /// outputs strictly inside (0, 1)).
+        #[serde(default)]
+        pseudo_count: f64,
+    },
+    /// Beta calibration (Kull, Silva Filho & Flach 2017).
+    Beta {
+        /// `full` (a, b, c) or `tied` (a = b).
+        #[serde(default)]
+        shape: beta::BetaShape,
+    },
+    /// Histogram binning with equal-mass bins (Zadrozny & Elkan 2001).
+    Binning {
+        /// Number of equal-mass bins (default 10).
+        #[serde(default = "default_bins")]
+        bins: usize,
+        /// Pseudo-rows at the base rate per bin (0 = raw bin frequencies).
+        #[serde(default)]
+        pseudo_count: f64,
+    },
+    /// Temperature scaling of the log-odds (Guo et al. 2017).
+    Temperature {},
+    /// Centered isotonic regression (Oron & Flournoy 2017).
+    CenteredIsotonic {
+        /// Pseudo-rows at the base rate per block (0 = plain CIR).
+        #[serde(default)]
+        pseudo_count: f64,
+    },
+}
+
+fn default_bins() -> usize {
+    binning::DEFAULT_BINS
+}
+
+fn check_pseudo_count(m: f64) -> Result<(), ParamError> {
+    if !(m.is_finite() && m >= 0.0) {
+        return Err(ParamError::new(
+            "pseudo_count",
+            m,
+            "must be a finite number >= 0 (0 = plain fit)",
+        ));
+    }
+    Ok(())
 }
 
 impl MethodSpec {
@@ -175,6 +223,10 @@ impl MethodSpec {
             MethodSpec::Identity => "identity",
             MethodSpec::Platt { .. } => "platt",
             MethodSpec::Isotonic { .. } => "isotonic",
+            MethodSpec::Beta { .. } => "beta",
+            MethodSpec::Binning { .. } => "binning",
+            MethodSpec::Temperature { .. } => "temperature",
+            MethodSpec::CenteredIsotonic { .. } => "centered-isotonic",
         }
     }
 
@@ -192,7 +244,16 @@ impl MethodSpec {
                 Ok(())
             }
             MethodSpec::Platt { .. } => Ok(()),
-            MethodSpec::Isotonic { .. } => Ok(()),
+            MethodSpec::Isotonic { pseudo_count } => check_pseudo_count(*pseudo_count),
+            MethodSpec::Beta { .. } => Ok(()),
+            MethodSpec::Binning { bins, pseudo_count } => {
+                if *bins == 0 {
+                    return Err(ParamError::new("bins", bins, "must be at least 1"));
+                }
+                check_pseudo_count(*pseudo_count)
+            }
+            MethodSpec::Temperature { .. } => Ok(()),
+            MethodSpec::CenteredIsotonic { pseudo_count } => check_pseudo_count(*pseudo_count),
         }
     }
 
@@ -204,7 +265,23 @@ impl MethodSpec {
             MethodSpec::Platt { target_smoothing } => Box::new(platt::Platt {
                 target_smoothing: *target_smoothing,
             }),
-            MethodSpec::Isotonic {} => Box::new(isotonic::Isotonic {}),
+            MethodSpec::Isotonic { pseudo_count } => Box::new(isotonic::Isotonic {
+                pseudo_count: *pseudo_count,
+            }),
+            MethodSpec::Beta { shape } => Box::new(beta::Beta {
+                shape: *shape,
+                score_kind,
+            }),
+            MethodSpec::Binning { bins, pseudo_count } => Box::new(binning::Binning {
+                bins: *bins,
+                pseudo_count: *pseudo_count,
+            }),
+            MethodSpec::Temperature {} => Box::new(temperature::Temperature { score_kind }),
+            MethodSpec::CenteredIsotonic { pseudo_count } => {
+                Box::new(centered_isotonic::CenteredIsotonic {
+                    pseudo_count: *pseudo_count,
+                })
+            }
         })
     }
 }
@@ -234,5 +311,46 @@ mod spec_tests {
             .unwrap();
         assert!(e.to_string().contains("smoothing"), "{e}");
         assert!(toml::from_str::<W>("m = { kind = \"platypus\" }").is_err());
+    }
+
+    #[test]
+    fn method_specs_parse_with_defaults_and_validate() {
+        let parse = |s: &str| toml::from_str::<W>(s).map(|w| w.m);
+        assert_eq!(
+            parse("m = { kind = \"isotonic\" }").unwrap(),
+            MethodSpec::Isotonic { pseudo_count: 0.0 }
+        );
+        assert_eq!(
+            parse("m = { kind = \"beta\" }").unwrap(),
+            MethodSpec::Beta {
+                shape: beta::BetaShape::Full
+            }
+        );
+        assert_eq!(
+            parse("m = { kind = \"beta\", shape = \"tied\" }").unwrap(),
+            MethodSpec::Beta {
+                shape: beta::BetaShape::Tied
+            }
+        );
+        assert!(parse("m = { kind = \"beta\", shape = \"three\" }").is_err());
+        assert_eq!(
+            parse("m = { kind = \"binning\" }").unwrap(),
+            MethodSpec::Binning {
+                bins: 10,
+                pseudo_count: 0.0
+            }
+        );
+        let b = parse("m = { kind = \"binning\", bins = 0 }").unwrap();
+        let e = b.validate(ScoreKind::Probability).err().unwrap();
+        assert_eq!(e.key, "bins");
+        let c = parse("m = { kind = \"centered-isotonic\", pseudo_count = -1.0 }").unwrap();
+        assert_eq!(
+            c.validate(ScoreKind::Margin).err().unwrap().key,
+            "pseudo_count"
+        );
+        let t = parse("m = { kind = \"temperature\" }").unwrap();
+        assert_eq!(t.build(ScoreKind::Margin).unwrap().kind(), "temperature");
+        assert!(parse("m = { kind = \"temperature\", t = 1.0 }").is_err());
+        assert_eq!((b.kind(), c.kind()), ("binning", "centered-isotonic"));
     }
 }
