@@ -184,11 +184,20 @@ pub struct RunSummary {
 pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
     let t0 = std::time::Instant::now();
     let started = now_rfc3339();
-    let plan = load_plan(&args.suite)?;
+    let mut plan = load_plan(&args.suite)?;
     let out = args
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("results").join(&plan.name));
+    if out.exists() && !args.force {
+        return Err(output::OutputError::Exists(out.display().to_string()).into());
+    }
+    let cache = out
+        .parent()
+        .map(|p| p.join(".cache").join("pools"))
+        .unwrap_or_else(|| PathBuf::from(".cache/pools"));
+    let pool_reports = run::pools::resolve(&mut plan, Some(&cache), args.threads, args.quiet)
+        .map_err(anyhow::Error::msg)?;
     let staging = output::prepare(&out, args.force)?;
     let fp = fingerprint(&plan);
     let (journal, done) = Journal::open(&staging, &fp).map_err(anyhow::Error::msg)?;
@@ -251,6 +260,7 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
             "skipped_sizes": t.skipped_sizes,
         })).collect::<Vec<_>>(),
         "seed_rule": "unit seed = mix(suite seed, task id, size, repeat), SplitMix64 folding into ChaCha8",
+        "score_pools": pool_reports,
         "units": plan.unit_count(),
         "resumed_units": result.resumed_units,
         "threads": result.threads,
