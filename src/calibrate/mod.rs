@@ -17,6 +17,8 @@ use serde::{Deserialize, Serialize};
 pub mod identity;
 pub mod isotonic;
 pub mod platt;
+pub mod spline;
+pub mod venn_abers;
 
 /// What a task's score column holds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -166,6 +168,24 @@ pub enum MethodSpec {
     },
     /// Isotonic regression by pool-adjacent-violators.
     Isotonic {},
+    /// Penalized cubic-spline logistic calibration on the log-odds (P-spline).
+    Spline {
+        /// Number of equal knot intervals over the log-odds range.
+        #[serde(default = "spline_default_intervals")]
+        intervals: usize,
+        /// Fixed smoothing parameter λ > 0; when absent λ is chosen by `criterion`.
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        lambda: Option<f64>,
+        /// How λ is chosen on its grid (`aic`, the default, or `bic`).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        criterion: Option<spline::Criterion>,
+    },
+    /// Inductive Venn–Abers predictor (isotonic fits with the test point added).
+    VennAbers {},
+}
+
+fn spline_default_intervals() -> usize {
+    spline::DEFAULT_INTERVALS
 }
 
 impl MethodSpec {
@@ -175,6 +195,8 @@ impl MethodSpec {
             MethodSpec::Identity => "identity",
             MethodSpec::Platt { .. } => "platt",
             MethodSpec::Isotonic { .. } => "isotonic",
+            MethodSpec::Spline { .. } => "spline",
+            MethodSpec::VennAbers { .. } => "venn-abers",
         }
     }
 
@@ -193,6 +215,37 @@ impl MethodSpec {
             }
             MethodSpec::Platt { .. } => Ok(()),
             MethodSpec::Isotonic { .. } => Ok(()),
+            MethodSpec::Spline {
+                intervals,
+                lambda,
+                criterion,
+            } => {
+                if *intervals == 0 || *intervals > spline::MAX_INTERVALS {
+                    return Err(ParamError::new(
+                        "intervals",
+                        intervals,
+                        "the number of knot intervals must be between 1 and 200",
+                    ));
+                }
+                if let Some(l) = lambda {
+                    if !(l.is_finite() && *l > 0.0) {
+                        return Err(ParamError::new(
+                            "lambda",
+                            l,
+                            "the smoothing parameter must be a finite number above 0",
+                        ));
+                    }
+                    if criterion.is_some() {
+                        return Err(ParamError::new(
+                            "criterion",
+                            criterion.unwrap().as_str(),
+                            "give either a fixed lambda or a criterion to choose it, not both",
+                        ));
+                    }
+                }
+                Ok(())
+            }
+            MethodSpec::VennAbers { .. } => Ok(()),
         }
     }
 
@@ -205,6 +258,17 @@ impl MethodSpec {
                 target_smoothing: *target_smoothing,
             }),
             MethodSpec::Isotonic {} => Box::new(isotonic::Isotonic {}),
+            MethodSpec::Spline {
+                intervals,
+                lambda,
+                criterion,
+            } => Box::new(spline::Spline {
+                score_kind,
+                intervals: *intervals,
+                lambda: *lambda,
+                criterion: criterion.unwrap_or_default(),
+            }),
+            MethodSpec::VennAbers {} => Box::new(venn_abers::VennAbers {}),
         })
     }
 }
