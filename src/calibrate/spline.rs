@@ -49,7 +49,7 @@
 
 use nalgebra::{DMatrix, DVector};
 
-use super::platt::{is_separable, smoothed_targets};
+use super::platt::is_separable;
 use super::{check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, ScoreKind};
 
 /// Default number of equal knot intervals over the log-odds range.
@@ -396,33 +396,45 @@ pub fn fit_spline(
         ));
     }
     let separable = is_separable(x, y);
-    let targets: Vec<f64> = if separable {
-        smoothed_targets(y)
+    // Targets of a positive and of a negative row.
+    let (t_pos, t_neg) = if separable {
+        let np = y.iter().filter(|&&l| l).count() as f64;
+        let nn = y.len() as f64 - np;
+        ((np + 1.0) / (np + 2.0), 1.0 / (nn + 2.0))
     } else {
-        y.iter().map(|&l| if l { 1.0 } else { 0.0 }).collect()
+        (1.0, 0.0)
     };
     let basis = Basis { lo, hi, intervals };
-    // Merge ties: sort by x, then sum counts and targets.
-    let mut idx: Vec<(f64, f64)> = x.iter().copied().zip(targets.iter().copied()).collect();
-    idx.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
-    let mut first = Vec::with_capacity(idx.len());
-    let mut vals = Vec::with_capacity(idx.len());
-    let mut count: Vec<f64> = Vec::with_capacity(idx.len());
-    let mut target: Vec<f64> = Vec::with_capacity(idx.len());
+    // Merge ties: sort by x, count rows and positives per distinct x. Counting
+    // (rather than summing targets) keeps the result independent of row order.
+    let mut pairs: Vec<(f64, bool)> = x.iter().copied().zip(y.iter().copied()).collect();
+    pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+    let mut first = Vec::with_capacity(pairs.len());
+    let mut vals = Vec::with_capacity(pairs.len());
+    let mut count: Vec<f64> = Vec::with_capacity(pairs.len());
+    let mut positives: Vec<f64> = Vec::with_capacity(pairs.len());
     let mut last = f64::NAN;
-    for &(xi, ti) in &idx {
+    for &(xi, yi) in &pairs {
+        let py = if yi { 1.0 } else { 0.0 };
         if xi == last {
             *count.last_mut().unwrap() += 1.0;
-            *target.last_mut().unwrap() += ti;
+            *positives.last_mut().unwrap() += py;
         } else {
             let (j, b, _) = basis.local(xi);
             first.push(j);
             vals.push(b);
             count.push(1.0);
-            target.push(ti);
+            positives.push(py);
             last = xi;
         }
     }
+    let target: Vec<f64> = count
+        .iter()
+        .zip(&positives)
+        .map(|(&c, &k)| k * t_pos + (c - k) * t_neg)
+        .collect();
+    let total_pos: f64 = positives.iter().sum();
+    let total_target = total_pos * t_pos + (x.len() as f64 - total_pos) * t_neg;
     let design = Design {
         basis: basis.clone(),
         first,
@@ -433,7 +445,7 @@ pub fn fit_spline(
     };
     let m = basis.len();
     let p = penalty_matrix(m);
-    let tbar = (targets.iter().sum::<f64>() / x.len() as f64).clamp(1e-12, 1.0 - 1e-12);
+    let tbar = (total_target / x.len() as f64).clamp(1e-12, 1.0 - 1e-12);
     let start = vec![(tbar / (1.0 - tbar)).ln(); m];
 
     if let Some(l) = lambda {
