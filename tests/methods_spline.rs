@@ -175,3 +175,53 @@ fn probability_and_margin_scores_agree() {
     let lam = a.map.describe()["lambda"].as_f64().unwrap();
     assert!(lam > 0.0);
 }
+
+#[derive(serde::Deserialize)]
+struct W {
+    m: plumbline::calibrate::MethodSpec,
+}
+
+fn spec(text: &str) -> Result<plumbline::calibrate::MethodSpec, String> {
+    toml::from_str::<W>(text)
+        .map(|w| w.m)
+        .map_err(|e| e.to_string())
+}
+
+/// Suite syntax of the two methods: defaults, checks, unknown keys.
+#[test]
+fn suite_specs_parse_and_validate() {
+    use plumbline::calibrate::MethodSpec;
+    let d = spec("m = { kind = \"spline\" }").unwrap();
+    assert_eq!(
+        d,
+        MethodSpec::Spline {
+            intervals: 20,
+            lambda: None,
+            criterion: None
+        }
+    );
+    assert_eq!(d.kind(), "spline");
+    assert!(d.validate(ScoreKind::Probability).is_ok());
+    assert!(d.build(ScoreKind::Margin).is_ok());
+    let b = spec("m = { kind = \"spline\", intervals = 8, criterion = \"bic\" }").unwrap();
+    assert!(b.validate(ScoreKind::Margin).is_ok());
+    for bad in [
+        "m = { kind = \"spline\", intervals = 0 }",
+        "m = { kind = \"spline\", intervals = 201 }",
+        "m = { kind = \"spline\", lambda = 0.0 }",
+        "m = { kind = \"spline\", lambda = -1.0 }",
+        "m = { kind = \"spline\", lambda = 2.0, criterion = \"aic\" }",
+    ] {
+        let e = spec(bad)
+            .unwrap()
+            .validate(ScoreKind::Probability)
+            .unwrap_err();
+        assert!(!e.reason.is_empty(), "{bad}");
+    }
+    assert!(spec("m = { kind = \"spline\", criterion = \"gcv\" }").is_err());
+    assert!(spec("m = { kind = \"spline\", knots = 5 }").is_err());
+    let va = spec("m = { kind = \"venn-abers\" }").unwrap();
+    assert_eq!(va.kind(), "venn-abers");
+    assert!(va.build(ScoreKind::Margin).is_ok());
+    assert!(spec("m = { kind = \"venn-abers\", width = 1 }").is_err());
+}
