@@ -121,7 +121,8 @@ fn huge_penalty_reduces_to_logistic_on_log_odds() {
 /// errors of a local average over ~1,000 rows at p = 0.5).
 #[test]
 fn recovers_monotone_true_maps_on_large_samples() {
-    let truths: [(&str, fn(f64) -> f64); 3] = [
+    type Truth = (&'static str, fn(f64) -> f64);
+    let truths: [Truth; 3] = [
         ("logistic", |v| 1.0 * v - 0.5),
         ("bent", |v| 0.9 * v + 0.6 * (2.0 * v).tanh() - 0.3),
         ("overconfident", |v| 0.4 * v + 0.3),

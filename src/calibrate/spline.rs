@@ -508,7 +508,12 @@ pub fn fit_spline(
     }
     let lo = x.iter().copied().fold(f64::INFINITY, f64::min);
     let hi = x.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    if !(hi > lo) || !((hi - lo) / intervals as f64 > 0.0) {
+    // Equal values, or a range so small that the knot spacing underflows.
+    let spacing_ok = matches!(
+        ((hi - lo) / intervals as f64).partial_cmp(&0.0),
+        Some(std::cmp::Ordering::Greater)
+    );
+    if hi <= lo || !spacing_ok {
         return Err(FitError::Failed(
             "spline: the log-odds of the calibration sample are all equal".into(),
         ));

@@ -166,12 +166,11 @@ impl VennAbersTable {
         };
         // Gap 0: prefix {P_0}, suffix from P_0.
         place(&left, &right, &mut p0, &mut p1);
-        for j in 1..=k {
+        for (j, &p) in csd.iter().enumerate().skip(1) {
             // Tie with distinct score j: prefix up to P_{j−1}, suffix from P_j.
             undo(j - 1, &mut right);
             place(&left, &right, &mut p0, &mut p1);
             // Gap after distinct score j: prefix up to P_j, suffix from P_j.
-            let p = csd[j];
             while left.len() >= 2 && cross(left[left.len() - 2], left[left.len() - 1], p) <= 0 {
                 left.pop();
             }
@@ -309,7 +308,7 @@ mod tests {
     fn random_case(seed: u64) -> (Vec<f64>, Vec<bool>, Vec<f64>) {
         let mut r = rng(seed);
         let n = 1 + (r.next_u64() % 30) as usize;
-        let grid = 1 + (r.next_u64() % 12) as u64; // few levels → many ties
+        let grid = 1 + r.next_u64() % 12; // few levels → many ties
         let mut s: Vec<f64> = (0..n).map(|_| (r.next_u64() % grid) as f64).collect();
         let mut y: Vec<bool> = (0..n).map(|_| r.next_u64() % 3 == 0).collect();
         // Both classes present.
