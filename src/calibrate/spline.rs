@@ -171,6 +171,8 @@ impl Basis {
             df += d[k] * beta[j + k];
         }
         match edge {
+            // A flat end stays flat even at an infinite margin (0·∞ would be NaN).
+            Some(_) if df == 0.0 => f,
             Some(e) => f + df * (x - e),
             None => f,
         }
@@ -731,6 +733,8 @@ mod tests {
         // Outside the range the linear continuation stays on the line.
         assert!((b.eval(&line, -10.0) + 10.0).abs() < 1e-11);
         assert!((b.eval(&line, 9.0) - 9.0).abs() < 1e-11);
+        assert_eq!(b.eval(&line, f64::INFINITY), f64::INFINITY);
+        assert!((b.eval(&ones, f64::NEG_INFINITY) - 1.0).abs() < 1e-13);
     }
 
     /// The derivative used for extrapolation matches a central difference.
