@@ -371,4 +371,22 @@ mod tests {
         assert_eq!(e[0].0, "va_width");
         assert!(e[0].1 > 0.0 && e[0].1 <= 1.0);
     }
+
+    /// `va_width` is the mean of p1 − p0 from the definition over the test scores.
+    #[test]
+    fn width_extra_is_the_mean_interval_width() {
+        let (s, y, test) = random_case(5);
+        let f = VennAbers {}.fit(&s, &y).unwrap();
+        let want = test
+            .iter()
+            .map(|&x| {
+                let (a, b) = brute_force_pair(&s, &y, x);
+                b - a
+            })
+            .sum::<f64>()
+            / test.len() as f64;
+        let got = f.map.extras(&test);
+        assert_eq!(got[0].0, "va_width");
+        assert!((got[0].1 - want).abs() < 1e-12, "{} vs {want}", got[0].1);
+    }
 }
