@@ -171,7 +171,7 @@ pub enum MethodSpec {
     /// Penalized cubic-spline logistic calibration on the log-odds (P-spline).
     Spline {
         /// Number of equal knot intervals over the log-odds range.
-        #[serde(default = "spline_default_intervals")]
+        #[serde(default = "spline::default_intervals")]
         intervals: usize,
         /// Fixed smoothing parameter λ > 0; when absent λ is chosen by `criterion`.
         #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -182,10 +182,6 @@ pub enum MethodSpec {
     },
     /// Inductive Venn–Abers predictor (isotonic fits with the test point added).
     VennAbers {},
-}
-
-fn spline_default_intervals() -> usize {
-    spline::DEFAULT_INTERVALS
 }
 
 impl MethodSpec {

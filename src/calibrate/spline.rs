@@ -59,6 +59,11 @@ use super::{check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, Fitte
 
 /// Default number of equal knot intervals over the log-odds range.
 pub const DEFAULT_INTERVALS: usize = 20;
+/// [`DEFAULT_INTERVALS`], for the suite parser's defaults.
+pub fn default_intervals() -> usize {
+    DEFAULT_INTERVALS
+}
+
 /// Largest accepted number of knot intervals.
 pub const MAX_INTERVALS: usize = 200;
 
