@@ -486,7 +486,8 @@ fn search_grid(
 pub struct SplineFit {
     pub basis: Basis,
     pub chosen: LambdaFit,
-    /// Every λ tried with its criterion value (empty for a fixed λ).
+    /// Every λ tried with its criterion value (empty for a fixed λ); computed on
+    /// the binned copy when the search used one.
     pub path: Vec<(f64, f64)>,
     pub separable: bool,
 }
