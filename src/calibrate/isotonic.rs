@@ -54,13 +54,17 @@ pub struct Block {
 }
 
 /// Sort pairs by score and merge ties: returns (distinct score, weight, sum of labels).
+///
+/// Sorts the (score, label) pairs themselves rather than an index array: the
+/// comparisons then read contiguous memory, which makes the whole fit cost about
+/// one sort (see `benches/methods.rs`). Label sums are integers, so the order in
+/// which tied rows are met does not change the result.
 pub fn merge_ties(scores: &[f64], labels: &[bool]) -> Vec<(f64, f64, f64)> {
-    let mut idx: Vec<usize> = (0..scores.len()).collect();
-    idx.sort_by(|&a, &b| scores[a].total_cmp(&scores[b]));
-    let mut out: Vec<(f64, f64, f64)> = Vec::new();
-    for i in idx {
-        let s = scores[i];
-        let y = if labels[i] { 1.0 } else { 0.0 };
+    let mut pairs: Vec<(f64, bool)> = scores.iter().copied().zip(labels.iter().copied()).collect();
+    pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+    let mut out: Vec<(f64, f64, f64)> = Vec::with_capacity(pairs.len());
+    for (s, l) in pairs {
+        let y = if l { 1.0 } else { 0.0 };
         match out.last_mut() {
             Some(last) if last.0 == s => {
                 last.1 += 1.0;
@@ -75,10 +79,32 @@ pub fn merge_ties(scores: &[f64], labels: &[bool]) -> Vec<(f64, f64, f64)> {
 /// Weighted PAV on points already sorted by `x` with distinct `x`:
 /// `points[j] = (x, weight, weighted sum of y)`.
 pub fn pav(points: &[(f64, f64, f64)]) -> Vec<Block> {
-    let mut blocks: Vec<Block> = Vec::with_capacity(points.len());
-    // Keep the running sum of labels in `value * weight` form to avoid drift.
-    let mut sums: Vec<f64> = Vec::with_capacity(points.len());
+    let mut state = PavState::with_capacity(points.len());
     for &(x, w, sy) in points {
+        state.push(x, w, sy);
+    }
+    state.blocks
+}
+
+/// The PAV stack: blocks so far and their label sums.
+struct PavState {
+    blocks: Vec<Block>,
+    // Keep the running sum of labels in `value * weight` form to avoid drift.
+    sums: Vec<f64>,
+}
+
+impl PavState {
+    fn with_capacity(n: usize) -> Self {
+        PavState {
+            blocks: Vec::with_capacity(n),
+            sums: Vec::with_capacity(n),
+        }
+    }
+
+    /// Add the next point (larger `x` than all before) and pool violators.
+    fn push(&mut self, x: f64, w: f64, sy: f64) {
+        let blocks = &mut self.blocks;
+        let sums = &mut self.sums;
         blocks.push(Block {
             lo: x,
             hi: x,
@@ -101,7 +127,6 @@ pub fn pav(points: &[(f64, f64, f64)]) -> Vec<Block> {
             prev.value = *prev_sum / prev.weight;
         }
     }
-    blocks
 }
 
 /// Bounded form of a PAV fit (see the module doc): each block gets
@@ -211,8 +236,34 @@ impl FittedMap for IsotonicMap {
 }
 
 /// Fit PAV on raw (unsorted, possibly tied) calibration pairs.
+///
+/// Same result as `pav(&merge_ties(scores, labels))`, but the merged points are
+/// streamed into PAV straight from the sorted pairs instead of being stored.
 pub fn fit_blocks(scores: &[f64], labels: &[bool]) -> Vec<Block> {
-    pav(&merge_ties(scores, labels))
+    let mut pairs: Vec<(f64, bool)> = scores.iter().copied().zip(labels.iter().copied()).collect();
+    pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+    // Blocks are at most as many as distinct scores; the stack rarely gets deep,
+    // so reserve little and let it grow.
+    let mut state = PavState::with_capacity(1024.min(pairs.len()));
+    let mut it = pairs.into_iter();
+    let Some((mut x, l)) = it.next() else {
+        return Vec::new();
+    };
+    let (mut w, mut sy) = (1.0, if l { 1.0 } else { 0.0 });
+    for (s, l) in it {
+        let y = if l { 1.0 } else { 0.0 };
+        if s == x {
+            w += 1.0;
+            sy += y;
+        } else {
+            state.push(x, w, sy);
+            x = s;
+            w = 1.0;
+            sy = y;
+        }
+    }
+    state.push(x, w, sy);
+    state.blocks
 }
 
 impl Calibrator for Isotonic {
@@ -312,5 +363,16 @@ mod tests {
         assert_eq!(s.len(), 1);
         assert!((s[0].value - 84.9 / 109.0).abs() < 1e-14);
         assert_eq!((s[0].lo, s[0].hi, s[0].weight), (0.0, 2.0, 101.0));
+    }
+
+    /// The streamed fit equals PAV on the merged points (ties, -0.0 and 0.0).
+    #[test]
+    fn streamed_fit_equals_two_step_fit() {
+        let s = [0.5, -0.0, 0.0, 0.5, 0.1, 0.9, 0.1, 0.3, 0.9, 0.2];
+        let y = [
+            true, false, true, false, true, false, false, true, true, false,
+        ];
+        assert_eq!(fit_blocks(&s, &y), pav(&merge_ties(&s, &y)));
+        assert!(fit_blocks(&[], &[]).is_empty());
     }
 }

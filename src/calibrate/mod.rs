@@ -22,6 +22,8 @@ pub mod isotonic;
 pub mod logistic;
 pub mod platt;
 pub mod temperature;
+pub mod spline;
+pub mod venn_abers;
 
 /// What a task's score column holds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -199,6 +201,20 @@ pub enum MethodSpec {
         #[serde(default)]
         pseudo_count: f64,
     },
+    /// Penalized cubic-spline logistic calibration on the log-odds (P-spline).
+    Spline {
+        /// Number of equal knot intervals over the log-odds range.
+        #[serde(default = "spline::default_intervals")]
+        intervals: usize,
+        /// Fixed smoothing parameter λ > 0; when absent λ is chosen by `criterion`.
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        lambda: Option<f64>,
+        /// How λ is chosen on its grid (`aic`, the default, or `bic`).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        criterion: Option<spline::Criterion>,
+    },
+    /// Inductive Venn–Abers predictor (isotonic fits with the test point added).
+    VennAbers {},
 }
 
 fn default_bins() -> usize {
@@ -227,6 +243,8 @@ impl MethodSpec {
             MethodSpec::Binning { .. } => "binning",
             MethodSpec::Temperature { .. } => "temperature",
             MethodSpec::CenteredIsotonic { .. } => "centered-isotonic",
+            MethodSpec::Spline { .. } => "spline",
+            MethodSpec::VennAbers { .. } => "venn-abers",
         }
     }
 
@@ -254,6 +272,37 @@ impl MethodSpec {
             }
             MethodSpec::Temperature { .. } => Ok(()),
             MethodSpec::CenteredIsotonic { pseudo_count } => check_pseudo_count(*pseudo_count),
+            MethodSpec::Spline {
+                intervals,
+                lambda,
+                criterion,
+            } => {
+                if *intervals == 0 || *intervals > spline::MAX_INTERVALS {
+                    return Err(ParamError::new(
+                        "intervals",
+                        intervals,
+                        "the number of knot intervals must be between 1 and 200",
+                    ));
+                }
+                if let Some(l) = lambda {
+                    if !(l.is_finite() && *l > 0.0) {
+                        return Err(ParamError::new(
+                            "lambda",
+                            l,
+                            "the smoothing parameter must be a finite number above 0",
+                        ));
+                    }
+                    if criterion.is_some() {
+                        return Err(ParamError::new(
+                            "criterion",
+                            criterion.unwrap().as_str(),
+                            "give either a fixed lambda or a criterion to choose it, not both",
+                        ));
+                    }
+                }
+                Ok(())
+            }
+            MethodSpec::VennAbers { .. } => Ok(()),
         }
     }
 
@@ -282,6 +331,17 @@ impl MethodSpec {
                     pseudo_count: *pseudo_count,
                 })
             }
+            MethodSpec::Spline {
+                intervals,
+                lambda,
+                criterion,
+            } => Box::new(spline::Spline {
+                score_kind,
+                intervals: *intervals,
+                lambda: *lambda,
+                criterion: criterion.unwrap_or_default(),
+            }),
+            MethodSpec::VennAbers {} => Box::new(venn_abers::VennAbers {}),
         })
     }
 }
