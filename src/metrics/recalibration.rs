@@ -1,0 +1,142 @@
+//! Logistic recalibration of test predictions: calibration slope and
+//! calibration intercept.
+//!
+//! Both regress the test labels on the logit of the prediction, x_i =
+//! logit(p_i), with p clipped to [c, 1 − c] by the suite's `log_loss_clip` c
+//! so that predictions of exactly 0 or 1 stay finite.
+//!
+//! Calibration slope (Cox 1958, Biometrika 45, "Two further applications of a
+//! model for binary regression"): the maximum-likelihood β of
+//! logit P(y = 1) = α + β·x. β = 1 is ideal; β < 1 means predictions are too
+//! extreme, β > 1 too moderate. Fitted by Newton's method
+//! ([`crate::calibrate::platt::fit_logistic_1d`]).
+//!
+//! Calibration intercept, "calibration-in-the-large" (Steyerberg et al. 2010,
+//! Epidemiology 21, "Assessing the performance of prediction models: a framework
+//! for traditional and novel measures"; Steyerberg 2019, "Clinical Prediction
+//! Models", 2nd ed.): the maximum-likelihood α of logit P(y = 1) = α + x, i.e.
+//! with the slope fixed at 1 (x enters as an offset). This is NOT the α of the
+//! slope fit above. α = 0 is ideal; α > 0 means predictions are too low on
+//! average. Fitted by a 1-D Newton iteration with step halving on the convex
+//! objective Σ softplus(α + x_i) − y_i(α + x_i).
+//!
+//! Undefined (NaN): with a single class (no finite maximum), for the slope also
+//! when the logits are constant or separate the classes (β → ±∞).
+
+use crate::calibrate::platt::{fit_logistic_1d, is_separable};
+use crate::calibrate::sigmoid;
+
+fn logits(p: &[f64], clip: f64) -> Vec<f64> {
+    p.iter()
+        .map(|&v| {
+            let q = v.clamp(clip, 1.0 - clip);
+            (q / (1.0 - q)).ln()
+        })
+        .collect()
+}
+
+fn softplus(z: f64) -> f64 {
+    z.max(0.0) + (-z.abs()).exp().ln_1p()
+}
+
+fn one_class(y: &[bool]) -> bool {
+    y.iter().all(|&l| l) || y.iter().all(|&l| !l)
+}
+
+/// Calibration slope β of logit P(y) = α + β·logit(p).
+pub fn calibration_slope(p: &[f64], y: &[bool], clip: f64) -> f64 {
+    let n = p.len().min(y.len());
+    if n == 0 || one_class(&y[..n]) {
+        return f64::NAN;
+    }
+    let x = logits(&p[..n], clip);
+    if is_separable(&x, &y[..n]) {
+        return f64::NAN;
+    }
+    let t: Vec<f64> = y[..n].iter().map(|&l| if l { 1.0 } else { 0.0 }).collect();
+    match fit_logistic_1d(&x, &t) {
+        Ok(fit) => fit.a,
+        Err(_) => f64::NAN,
+    }
+}
+
+/// Calibration intercept α of logit P(y) = α + logit(p) (slope fixed at 1).
+pub fn calibration_intercept(p: &[f64], y: &[bool], clip: f64) -> f64 {
+    let n = p.len().min(y.len());
+    if n == 0 || one_class(&y[..n]) {
+        return f64::NAN;
+    }
+    let x = logits(&p[..n], clip);
+    let y = &y[..n];
+    let objective = |a: f64| -> f64 {
+        x.iter()
+            .zip(y)
+            .map(|(&xi, &yi)| {
+                let z = a + xi;
+                softplus(z) - if yi { z } else { 0.0 }
+            })
+            .sum()
+    };
+    let mut a = 0.0;
+    let mut f = objective(a);
+    for _ in 0..100 {
+        let (mut g, mut h) = (0.0, 0.0);
+        for (&xi, &yi) in x.iter().zip(y) {
+            let q = sigmoid(a + xi);
+            g += q - if yi { 1.0 } else { 0.0 };
+            h += q * (1.0 - q);
+        }
+        if g.abs() <= 1e-12 * n as f64 {
+            break;
+        }
+        if !(h > 0.0) {
+            return f64::NAN;
+        }
+        let d = -g / h;
+        let mut step = 1.0;
+        let mut moved = false;
+        while step >= 1e-12 {
+            let na = a + step * d;
+            let nf = objective(na);
+            if nf <= f {
+                a = na;
+                f = nf;
+                moved = true;
+                break;
+            }
+            step /= 2.0;
+        }
+        if !moved {
+            break;
+        }
+    }
+    if a.is_finite() {
+        a
+    } else {
+        f64::NAN
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Derived by hand: with every prediction equal to q, the offset model's
+    /// MLE solves σ(α + logit q) = ȳ, so α = logit ȳ − logit q.
+    #[test]
+    fn intercept_of_constant_forecast() {
+        let p = [0.2; 8];
+        let y = [true, true, true, false, false, false, false, false];
+        let a = calibration_intercept(&p, &y, 1e-6);
+        let expect = (3.0f64 / 5.0).ln() - (0.2f64 / 0.8).ln();
+        assert!((a - expect).abs() < 1e-10, "{a} vs {expect}");
+    }
+
+    #[test]
+    fn slope_undefined_when_separated_or_one_class() {
+        let p = [0.1, 0.2, 0.8, 0.9];
+        assert!(calibration_slope(&p, &[false, false, true, true], 1e-6).is_nan());
+        assert!(calibration_slope(&p, &[true; 4], 1e-6).is_nan());
+        assert!(calibration_intercept(&p, &[true; 4], 1e-6).is_nan());
+    }
+}
