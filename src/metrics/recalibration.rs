@@ -17,8 +17,10 @@
 //! Models", 2nd ed.): the maximum-likelihood α of logit P(y = 1) = α + x, i.e.
 //! with the slope fixed at 1 (x enters as an offset). This is NOT the α of the
 //! slope fit above. α = 0 is ideal; α > 0 means predictions are too low on
-//! average. Fitted by a 1-D Newton iteration with step halving on the convex
-//! objective Σ softplus(α + x_i) − y_i(α + x_i).
+//! average. Fitted by a 1-D Newton iteration on the score equation
+//! Σ σ(α + x_i) = Σ y_i (its left side increases with α), halving a step until
+//! the residual of the equation shrinks; it stops when that residual is below
+//! 1e-13·n.
 //!
 //! Undefined (NaN): with a single class (no finite maximum), for the slope also
 //! when the logits are constant or separate the classes (β → ±∞).
@@ -33,10 +35,6 @@ fn logits(p: &[f64], clip: f64) -> Vec<f64> {
             (q / (1.0 - q)).ln()
         })
         .collect()
-}
-
-fn softplus(z: f64) -> f64 {
-    z.max(0.0) + (-z.abs()).exp().ln_1p()
 }
 
 fn one_class(y: &[bool]) -> bool {
@@ -68,25 +66,21 @@ pub fn calibration_intercept(p: &[f64], y: &[bool], clip: f64) -> f64 {
     }
     let x = logits(&p[..n], clip);
     let y = &y[..n];
-    let objective = |a: f64| -> f64 {
-        x.iter()
-            .zip(y)
-            .map(|(&xi, &yi)| {
-                let z = a + xi;
-                softplus(z) - if yi { z } else { 0.0 }
-            })
-            .sum()
-    };
-    let mut a = 0.0;
-    let mut f = objective(a);
-    for _ in 0..100 {
-        let (mut g, mut h) = (0.0, 0.0);
-        for (&xi, &yi) in x.iter().zip(y) {
+    let ysum = y.iter().filter(|&&l| l).count() as f64;
+    // Gradient and curvature of the negative log-likelihood at α.
+    let grad = |a: f64| -> (f64, f64) {
+        let (mut s, mut h) = (0.0, 0.0);
+        for &xi in &x {
             let q = sigmoid(a + xi);
-            g += q - if yi { 1.0 } else { 0.0 };
+            s += q;
             h += q * (1.0 - q);
         }
-        if g.abs() <= 1e-12 * n as f64 {
+        (s - ysum, h)
+    };
+    let mut a = 0.0;
+    let (mut g, mut h) = grad(a);
+    for _ in 0..200 {
+        if g.abs() <= 1e-13 * n as f64 {
             break;
         }
         if !(h > 0.0) {
@@ -97,10 +91,9 @@ pub fn calibration_intercept(p: &[f64], y: &[bool], clip: f64) -> f64 {
         let mut moved = false;
         while step >= 1e-12 {
             let na = a + step * d;
-            let nf = objective(na);
-            if nf <= f {
-                a = na;
-                f = nf;
+            let (ng, nh) = grad(na);
+            if ng.abs() < g.abs() {
+                (a, g, h) = (na, ng, nh);
                 moved = true;
                 break;
             }
