@@ -124,15 +124,16 @@ def smece_sigma(p, y, sigma):
 
 def smece(p, y):
     lo, hi = 1e-3, 1.0
-    at_min = smece_sigma(p, y, lo)
-    if at_min <= lo:
-        return at_min
     while hi - lo > 1e-6:
         mid = 0.5 * (lo + hi)
         if smece_sigma(p, y, mid) > mid:
             lo = mid
         else:
             hi = mid
+    if lo == 1e-3:
+        at_min = smece_sigma(p, y, lo)
+        if at_min <= lo:
+            return at_min
     return 0.5 * (lo + hi)
 
 

@@ -91,6 +91,8 @@ fn every_metric_matches_its_reference() {
 
 /// smECE at a fixed bandwidth against the numpy image-sum kernel (trapezoid on
 /// 8001 points): checks the kernel and the integral apart from the bisection.
+/// The tolerance is set by the reference: the trapezoid rule on |h| errs by
+/// about Δ²/12 · |jump of h'| ≈ 5e-9 at each zero of h (Δ = 1/8000).
 #[test]
 fn smooth_ece_at_fixed_bandwidth() {
     for c in &load().cases {

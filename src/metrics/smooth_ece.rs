@@ -27,9 +27,9 @@
 //! needed mode (Chebyshev recurrence, O(n) per mode) and reused by every
 //! bisection step. The series is cut at m ≤ 3/σ (the dropped factors are below
 //! e^(−44)). For the integral of |h_σ|, h is evaluated on a grid of
-//! G = max(256, ⌈8/σ⌉) equal intervals to find its sign changes; between
-//! consecutive zeros h is integrated exactly through the antiderivative of the
-//! series. The cost per step is O(G·3/σ) plus O(n) per new mode.
+//! G = max(128, ⌈4/σ⌉) equal intervals to find its sign changes, each zero is
+//! refined by one Newton step, and between consecutive zeros h is integrated
+//! exactly through the antiderivative of the series. The cost per step is O(G·3/σ) plus O(n) per new mode.
 
 const SIGMA_MIN: f64 = 1e-3;
 const SIGMA_TOL: f64 = 1e-6;
@@ -88,29 +88,44 @@ impl Coefficients {
     }
 }
 
+/// h(t), h'(t) and the antiderivative H(t) = a₀t + Σ_m a_m sin(mπt)/(mπ) of
+/// h(t) = a₀ + Σ_m a_m cos(mπt) (a[m − 1] = a_m), by rotation recurrences.
+fn series_at(t: f64, a0: f64, a: &[f64]) -> (f64, f64, f64) {
+    let (s1, c1) = (std::f64::consts::PI * t).sin_cos();
+    let (mut s, mut c) = (s1, c1);
+    let (mut h, mut dh, mut big_h) = (a0, 0.0, a0 * t);
+    for (k, &am) in a.iter().enumerate() {
+        let w = (k + 1) as f64 * std::f64::consts::PI;
+        h += am * c;
+        dh -= am * w * s;
+        big_h += am * s / w;
+        (s, c) = (s * c1 + c * s1, c * c1 - s * s1);
+    }
+    (h, dh, big_h)
+}
+
 /// ∫₀¹ |h| for h(t) = a₀ + Σ_m a_m cos(mπt), given `vals` = h on the grid
-/// j/G. Zeros of h are located by linear interpolation inside each grid
-/// interval whose end values differ in sign, and h is integrated exactly
-/// between consecutive zeros through its antiderivative
-/// H(t) = a₀t + Σ_m a_m sin(mπt)/(mπ). An error ε in a zero's position changes
-/// the result only by O(h'·ε²), since H' = h vanishes there.
+/// j/G. Each zero of h is bracketed by a sign change between grid points,
+/// located by linear interpolation and one Newton step, and h is integrated
+/// exactly between consecutive zeros through its antiderivative H. An error ε
+/// in a zero's position changes the result only by O(h'·ε²), since H' = h
+/// vanishes there.
 fn abs_integral(a0: f64, a: &[f64], vals: &[f64]) -> f64 {
     let g = (vals.len() - 1) as f64;
-    let antiderivative = |t: f64| -> f64 {
-        let mut s = a0 * t;
-        for (m, &am) in a.iter().enumerate() {
-            let w = (m + 1) as f64 * std::f64::consts::PI;
-            s += am * (w * t).sin() / w;
-        }
-        s
-    };
     let mut total = 0.0;
     let mut h_start = 0.0; // H(0)
     for (j, w) in vals.windows(2).enumerate() {
         let (u, v) = (w[0], w[1]);
         if (u >= 0.0) != (v >= 0.0) {
-            let z = (j as f64 + u / (u - v)) / g;
-            let h_z = antiderivative(z);
+            let (t0, t1) = (j as f64 / g, (j + 1) as f64 / g);
+            let z0 = t0 + (t1 - t0) * u / (u - v);
+            let (h0, dh0, _) = series_at(z0, a0, a);
+            let z = if dh0 != 0.0 {
+                (z0 - h0 / dh0).clamp(t0, t1)
+            } else {
+                z0
+            };
+            let h_z = series_at(z, a0, a).2;
             total += (h_z - h_start).abs();
             h_start = h_z;
         }
@@ -122,7 +137,7 @@ fn abs_integral(a0: f64, a: &[f64], vals: &[f64]) -> f64 {
 fn smece_at(sigma: f64, coef: &mut Coefficients, table: &mut Vec<f64>, vals: &mut Vec<f64>) -> f64 {
     let m_max = (3.0 / sigma).ceil() as usize;
     coef.extend_to(m_max);
-    let g = ((8.0 / sigma).ceil() as usize).max(256);
+    let g = ((4.0 / sigma).ceil() as usize).max(128);
     // cos(mπ j / g) = table[(m·j) mod 2g].
     table.clear();
     table.extend((0..2 * g).map(|k| (std::f64::consts::PI * k as f64 / g as f64).cos()));
@@ -167,10 +182,6 @@ pub fn smooth_ece(f: &[f64], y: &[bool]) -> f64 {
     }
     let mut coef = Coefficients::new(&f[..n], &y[..n]);
     let (mut table, mut vals) = (Vec::new(), Vec::new());
-    let at_min = smece_at(SIGMA_MIN, &mut coef, &mut table, &mut vals);
-    if at_min <= SIGMA_MIN {
-        return at_min;
-    }
     let (mut lo, mut hi) = (SIGMA_MIN, 1.0);
     while hi - lo > SIGMA_TOL {
         let mid = 0.5 * (lo + hi);
@@ -178,6 +189,13 @@ pub fn smooth_ece(f: &[f64], y: &[bool]) -> f64 {
             lo = mid;
         } else {
             hi = mid;
+        }
+    }
+    if lo == SIGMA_MIN {
+        // Every step moved the upper end down: smECE may be below σ_min.
+        let at_min = smece_at(SIGMA_MIN, &mut coef, &mut table, &mut vals);
+        if at_min <= SIGMA_MIN {
+            return at_min;
         }
     }
     0.5 * (lo + hi)
