@@ -8,8 +8,11 @@
 //! Calibration slope (Cox 1958, Biometrika 45, "Two further applications of a
 //! model for binary regression"): the maximum-likelihood β of
 //! logit P(y = 1) = α + β·x. β = 1 is ideal; β < 1 means predictions are too
-//! extreme, β > 1 too moderate. Fitted by Newton's method
-//! ([`crate::calibrate::platt::fit_logistic_1d`]).
+//! extreme, β > 1 too moderate. Fitted by Newton's method on standardised
+//! logits (mean 0, s.d. 1; β is scaled back): a step is halved until the
+//! negative log-likelihood decreases, or, once the decrease is below rounding
+//! (1e-13 relative), until the gradient shrinks; it stops when both score
+//! equations hold to 1e-13·n.
 //!
 //! Calibration intercept, "calibration-in-the-large" (Steyerberg et al. 2010,
 //! Epidemiology 21, "Assessing the performance of prediction models: a framework
@@ -25,7 +28,7 @@
 //! Undefined (NaN): with a single class (no finite maximum), for the slope also
 //! when the logits are constant or separate the classes (β → ±∞).
 
-use crate::calibrate::platt::{fit_logistic_1d, is_separable};
+use crate::calibrate::platt::is_separable;
 use crate::calibrate::sigmoid;
 
 fn logits(p: &[f64], clip: f64) -> Vec<f64> {
@@ -51,11 +54,74 @@ pub fn calibration_slope(p: &[f64], y: &[bool], clip: f64) -> f64 {
     if is_separable(&x, &y[..n]) {
         return f64::NAN;
     }
-    let t: Vec<f64> = y[..n].iter().map(|&l| if l { 1.0 } else { 0.0 }).collect();
-    match fit_logistic_1d(&x, &t) {
-        Ok(fit) => fit.a,
-        Err(_) => f64::NAN,
+    slope_newton(&x, &y[..n]).unwrap_or(f64::NAN)
+}
+
+fn softplus(z: f64) -> f64 {
+    z.max(0.0) + (-z.abs()).exp().ln_1p()
+}
+
+/// Maximum-likelihood slope of logit P(y) = α + β·x; None for constant x or
+/// no convergence to finite values.
+fn slope_newton(x: &[f64], y: &[bool]) -> Option<f64> {
+    let n = x.len() as f64;
+    let mean = x.iter().sum::<f64>() / n;
+    let sd = (x.iter().map(|v| (v - mean) * (v - mean)).sum::<f64>() / n).sqrt();
+    if !(sd > 0.0 && sd.is_finite()) {
+        return None;
     }
+    let u: Vec<f64> = x.iter().map(|v| (v - mean) / sd).collect();
+    // Objective, gradient (a: slope on u, b: intercept) and Hessian.
+    let eval = |a: f64, b: f64| -> (f64, [f64; 2], [f64; 3]) {
+        let (mut f, mut g, mut h) = (0.0, [0.0; 2], [0.0; 3]);
+        for (&ui, &yi) in u.iter().zip(y) {
+            let z = a * ui + b;
+            let t = if yi { 1.0 } else { 0.0 };
+            f += softplus(z) - t * z;
+            let q = crate::calibrate::sigmoid(z);
+            let r = q - t;
+            let w = q * (1.0 - q);
+            g[0] += r * ui;
+            g[1] += r;
+            h[0] += w * ui * ui;
+            h[1] += w * ui;
+            h[2] += w;
+        }
+        (f, g, h)
+    };
+    let ybar = (y.iter().filter(|&&l| l).count() as f64 / n).clamp(1e-12, 1.0 - 1e-12);
+    let (mut a, mut b) = (0.0, (ybar / (1.0 - ybar)).ln());
+    let (mut f, mut g, mut h) = eval(a, b);
+    let norm = |g: &[f64; 2]| g[0].abs().max(g[1].abs());
+    for _ in 0..100 {
+        if norm(&g) <= 1e-13 * n {
+            break;
+        }
+        let det = h[0] * h[2] - h[1] * h[1];
+        if !(det > 0.0) {
+            return None;
+        }
+        let da = -(h[2] * g[0] - h[1] * g[1]) / det;
+        let db = -(h[0] * g[1] - h[1] * g[0]) / det;
+        let mut step = 1.0;
+        let mut moved = false;
+        while step >= 1e-12 {
+            let (na, nb) = (a + step * da, b + step * db);
+            let (nf, ng, nh) = eval(na, nb);
+            let flat = (nf - f).abs() <= 1e-13 * f.abs().max(1.0);
+            if nf < f && !flat || flat && norm(&ng) < norm(&g) {
+                (a, b, f, g, h) = (na, nb, nf, ng, nh);
+                moved = true;
+                break;
+            }
+            step /= 2.0;
+        }
+        if !moved {
+            break;
+        }
+    }
+    let beta = a / sd;
+    beta.is_finite().then_some(beta)
 }
 
 /// Calibration intercept α of logit P(y) = α + logit(p) (slope fixed at 1).
