@@ -51,6 +51,25 @@ mod tests {
         assert!((auc(&p, &y) - 3.5 / 4.0).abs() < 1e-15);
     }
 
+    /// Hanley & McNeil (1982, Radiology 143, Table 1; counts and the published
+    /// area 0.893 from memory): 58 normal and 51 abnormal cases rated 1–5 by a
+    /// radiologist; normal counts 33, 6, 6, 11, 2 and abnormal 3, 2, 2, 11, 33.
+    /// Ties within a rating count half.
+    #[test]
+    fn hanley_mcneil_rating_example() {
+        let normal = [33, 6, 6, 11, 2];
+        let abnormal = [3, 2, 2, 11, 33];
+        let (mut p, mut y) = (Vec::new(), Vec::new());
+        for r in 0..5 {
+            for (count, label) in [(normal[r], false), (abnormal[r], true)] {
+                p.extend(std::iter::repeat((r + 1) as f64).take(count));
+                y.extend(std::iter::repeat(label).take(count));
+            }
+        }
+        assert_eq!(p.len(), 109);
+        assert!((auc(&p, &y) - 0.893).abs() < 5e-4);
+    }
+
     #[test]
     fn one_class_is_undefined() {
         assert!(auc(&[0.1, 0.2], &[true, true]).is_nan());

@@ -9,7 +9,8 @@
 //! model for binary regression"): the maximum-likelihood β of
 //! logit P(y = 1) = α + β·x. β = 1 is ideal; β < 1 means predictions are too
 //! extreme, β > 1 too moderate. Fitted by Newton's method on standardised
-//! logits (mean 0, s.d. 1; β is scaled back): a step is halved until the
+//! logits (mean 0, s.d. 1; β is scaled back), starting from β = 1, α = 0:
+//! a step is halved until the
 //! negative log-likelihood decreases, or, once the decrease is below rounding
 //! (1e-13 relative), until the gradient shrinks; it stops when both score
 //! equations hold to 1e-13·n.
@@ -57,10 +58,6 @@ pub fn calibration_slope(p: &[f64], y: &[bool], clip: f64) -> f64 {
     slope_newton(&x, &y[..n]).unwrap_or(f64::NAN)
 }
 
-fn softplus(z: f64) -> f64 {
-    z.max(0.0) + (-z.abs()).exp().ln_1p()
-}
-
 /// Maximum-likelihood slope of logit P(y) = α + β·x; None for constant x or
 /// no convergence to finite values.
 fn slope_newton(x: &[f64], y: &[bool]) -> Option<f64> {
@@ -77,8 +74,14 @@ fn slope_newton(x: &[f64], y: &[bool]) -> Option<f64> {
         for (&ui, &yi) in u.iter().zip(y) {
             let z = a * ui + b;
             let t = if yi { 1.0 } else { 0.0 };
-            f += softplus(z) - t * z;
-            let q = crate::calibrate::sigmoid(z);
+            // softplus(z) and σ(z) from one exponential.
+            let e = (-z.abs()).exp();
+            f += z.max(0.0) + e.ln_1p() - t * z;
+            let q = if z >= 0.0 {
+                1.0 / (1.0 + e)
+            } else {
+                e / (1.0 + e)
+            };
             let r = q - t;
             let w = q * (1.0 - q);
             g[0] += r * ui;
@@ -89,8 +92,8 @@ fn slope_newton(x: &[f64], y: &[bool]) -> Option<f64> {
         }
         (f, g, h)
     };
-    let ybar = (y.iter().filter(|&&l| l).count() as f64 / n).clamp(1e-12, 1.0 - 1e-12);
-    let (mut a, mut b) = (0.0, (ybar / (1.0 - ybar)).ln());
+    // Start at the identity recalibration β = 1, α = 0: a = sd, b = mean.
+    let (mut a, mut b) = (sd, mean);
     let (mut f, mut g, mut h) = eval(a, b);
     let norm = |g: &[f64; 2]| g[0].abs().max(g[1].abs());
     for _ in 0..100 {
