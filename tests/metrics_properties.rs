@@ -181,3 +181,33 @@ fn murphy_gap_with_spread_bins() {
     assert!(gap.abs() > 1e-3);
     assert!((brier - (d.rel - d.res + d.unc) - gap).abs() < 1e-14);
 }
+
+proptest! {
+    /// Robustness (common practice): any input, including NaN, infinities and
+    /// values outside [0, 1], and unvalidated settings, yields a number or NaN,
+    /// never a panic or a hang.
+    #[test]
+    fn arbitrary_input_never_panics(
+        p in proptest::collection::vec(
+            prop_oneof![any::<f64>(), Just(f64::NAN), Just(0.0), Just(1.0), -2.0f64..3.0],
+            0..40,
+        ),
+        y in proptest::collection::vec(any::<bool>(), 0..40),
+        bins in 0usize..30,
+        span in prop_oneof![Just(f64::NAN), -1.0f64..2.0],
+        delta in prop_oneof![Just(f64::NAN), -1.0f64..2.0],
+    ) {
+        let n = p.len().min(y.len());
+        let s = MetricSettings {
+            ece_bins: bins,
+            murphy_bins: bins,
+            ici_span: span,
+            ici_delta: delta,
+            ..MetricSettings::default()
+        };
+        for &id in MetricId::ALL {
+            let _ = id.compute(&p[..n], &y[..n], &s);
+            let _ = id.compute(&p, &y, &s);
+        }
+    }
+}

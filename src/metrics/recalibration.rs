@@ -101,7 +101,7 @@ fn slope_newton(x: &[f64], y: &[bool]) -> Option<f64> {
             break;
         }
         let det = h[0] * h[2] - h[1] * h[1];
-        if !(det > 0.0) {
+        if det.is_nan() || det <= 0.0 {
             return None;
         }
         let da = -(h[2] * g[0] - h[1] * g[1]) / det;
@@ -152,7 +152,7 @@ pub fn calibration_intercept(p: &[f64], y: &[bool], clip: f64) -> f64 {
         if g.abs() <= 1e-13 * n as f64 {
             break;
         }
-        if !(h > 0.0) {
+        if h.is_nan() || h <= 0.0 {
             return f64::NAN;
         }
         let d = -g / h;

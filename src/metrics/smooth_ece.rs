@@ -167,7 +167,7 @@ fn smece_at(sigma: f64, coef: &mut Coefficients, table: &mut Vec<f64>, vals: &mu
 /// smECE at a fixed bandwidth σ > 0 (exposed for tests and diagnostics).
 pub fn smooth_ece_sigma(f: &[f64], y: &[bool], sigma: f64) -> f64 {
     let n = f.len().min(y.len());
-    if n == 0 || !(sigma > 0.0) {
+    if n == 0 || sigma.is_nan() || sigma <= 0.0 {
         return f64::NAN;
     }
     let mut coef = Coefficients::new(&f[..n], &y[..n]);
