@@ -49,11 +49,28 @@ pub fn describe_plan(plan: &Plan) -> String {
         let (src, pinned) = match &t.source {
             TaskSource::ScoreFile(f) => (
                 format!("score file {}", f.path.display()),
-                if f.split_column.is_some() { " (pinned by the file)" } else { "" },
+                if f.split_column.is_some() {
+                    " (pinned by the file)"
+                } else {
+                    ""
+                },
             ),
-            TaskSource::Open { data, model_id, model, protocol, .. } => (
-                format!("open data `{data}` · model `{model_id}` ({}) · protocol {}", model.kind(), protocol.kind()),
-                if matches!(protocol, crate::models::protocol::Protocol::CrossFitted { .. }) {
+            TaskSource::Open {
+                data,
+                model_id,
+                model,
+                protocol,
+                ..
+            } => (
+                format!(
+                    "open data `{data}` · model `{model_id}` ({}) · protocol {}",
+                    model.kind(),
+                    protocol.kind()
+                ),
+                if matches!(
+                    protocol,
+                    crate::models::protocol::Protocol::CrossFitted { .. }
+                ) {
                     " (out-of-fold reservoir)"
                 } else {
                     ""

@@ -4,7 +4,7 @@
 
 use std::collections::BTreeMap;
 
-use crate::metrics::MetricId;
+use crate::metrics::{Goal, MetricId};
 use crate::run::table::UnitTable;
 
 /// Settings the analysis needs (recorded in `manifest.json`, or given to
@@ -99,6 +99,23 @@ fn higher_is_better(metric: &str) -> bool {
     MetricId::parse(metric)
         .map(|m| m.higher_is_better())
         .unwrap_or(false)
+}
+
+/// The value paired differences are taken on: the metric itself, or for a
+/// metric with a target value (calibration slope 1, intercept 0, Z 0) the
+/// distance |v − target|. `None` for descriptive terms (the same for every
+/// method in a unit); unknown ids are taken as losses.
+pub fn compared_value(metric: &str, v: f64) -> Option<f64> {
+    match MetricId::parse(metric).map(|m| m.goal()) {
+        Some(Goal::Descriptive) => None,
+        Some(Goal::Toward(x)) => Some((v - x).abs()),
+        _ => Some(v),
+    }
+}
+
+/// True when paired differences of this metric are reported.
+pub fn is_compared(metric: &str) -> bool {
+    compared_value(metric, 0.0).is_some()
 }
 
 fn mean_sd(v: &[f64]) -> (f64, f64) {
@@ -210,7 +227,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                             clipped.iter().sum::<f64>() / clipped.len() as f64
                         },
                     });
-                    if *method == settings.reference {
+                    if *method == settings.reference || !is_compared(metric) {
                         continue;
                     }
                     let Some(rc) = reference else { continue };
@@ -219,8 +236,12 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                     for (rep, &i) in c {
                         if let (Some(a), Some(&j)) = (table.rows[i].metrics[mi], rc.get(rep)) {
                             if let Some(b) = table.rows[j].metrics[mi] {
-                                dm.push(a);
-                                dr.push(b);
+                                if let (Some(a), Some(b)) =
+                                    (compared_value(metric, a), compared_value(metric, b))
+                                {
+                                    dm.push(a);
+                                    dr.push(b);
+                                }
                             }
                         }
                     }

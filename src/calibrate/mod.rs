@@ -21,8 +21,8 @@ pub mod identity;
 pub mod isotonic;
 pub mod logistic;
 pub mod platt;
-pub mod temperature;
 pub mod spline;
+pub mod temperature;
 pub mod venn_abers;
 
 /// What a task's score column holds.

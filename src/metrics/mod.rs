@@ -1,49 +1,198 @@
 //! Scoring rules and calibration measures computed on a unit's test set.
 //!
 //! A metric is named in a suite by a plain id (see [`MetricId`]); each id
-//! becomes one column of `units.csv`. Settings shared by metrics (the log-loss
-//! clip, bin counts) live in [`MetricSettings`].
+//! becomes one column of `units.csv`, so a decomposition contributes one id per
+//! term. Settings shared by metrics (the log-loss clip, bin counts, the ICI
+//! smoother) live in [`MetricSettings`], the suite's `[metric_settings]` table.
+//!
+//! Every metric is a function of the test predictions p and labels y only. A
+//! value that is undefined on a test set (for example the AUC when the test set
+//! holds one class) is NaN, never a panic; see each module for when that
+//! happens.
 //!
 //! Adding a metric: a function in a file of this folder with a `//!` doc that
 //! cites its source, one variant in [`MetricId`], one arm in [`MetricId::compute`],
 //! and a reference check (see DEVELOPERS.md).
+//!
+//! Files: [`scoring`] (log loss, Brier), [`decompose`] (Murphy and CORP
+//! decompositions), [`binned`] (ECE), [`smooth_ece`], [`recalibration`]
+//! (calibration slope and intercept), [`spiegelhalter`], [`ici`], [`ranking`]
+//! (AUC).
 
 use serde::{Deserialize, Serialize};
 
+pub mod binned;
+pub mod decompose;
+pub mod ici;
+pub mod ranking;
+pub mod recalibration;
 pub mod scoring;
+pub mod smooth_ece;
+pub mod spiegelhalter;
 
-/// Settings shared by metrics.
+use decompose::CorpScore;
+
+/// Settings shared by metrics: the suite's `[metric_settings]` table. Every key
+/// is optional; see [`MetricSettings::default`].
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct MetricSettings {
-    /// Probabilities are clipped to [clip, 1 − clip] before the log loss.
+    /// Probabilities are clipped to [clip, 1 − clip] before the log loss (also
+    /// its CORP decomposition) and before the logit of the calibration slope
+    /// and intercept. Default 1e-6.
     pub log_loss_clip: f64,
+    /// Bins of `ece_width` and `ece_mass`. Default 10.
+    pub ece_bins: usize,
+    /// Equal-width bins of the Murphy decomposition; 0 groups by distinct
+    /// prediction. Default 10.
+    pub murphy_bins: usize,
+    /// Fraction of the test rows in each local fit of the ICI smoother.
+    /// Default 0.75.
+    pub ici_span: f64,
+    /// The ICI smoother fits at points at least `ici_delta` × (range of p)
+    /// apart and interpolates in between; 0 fits at every row. Default 0.01.
+    pub ici_delta: f64,
 }
 
 impl Default for MetricSettings {
     fn default() -> Self {
         MetricSettings {
             log_loss_clip: 1e-6,
+            ece_bins: 10,
+            murphy_bins: 10,
+            ici_span: 0.75,
+            ici_delta: 0.01,
         }
     }
 }
 
-/// A metric id as written in suites. All metrics are losses: lower is better,
-/// except where [`MetricId::higher_is_better`] says otherwise.
+/// A metric setting that cannot be used.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("metric_settings.{key} = {value}: {reason}")]
+pub struct SettingsError {
+    pub key: &'static str,
+    pub value: String,
+    pub reason: &'static str,
+}
+
+/// Largest accepted bin count (more bins than any test set has rows).
+pub const MAX_BINS: usize = 1_000_000;
+
+impl MetricSettings {
+    /// Check every setting; the error names the first bad key and its value.
+    pub fn validate(&self) -> Result<(), SettingsError> {
+        let bad = |key, value: String, reason| Err(SettingsError { key, value, reason });
+        let c = self.log_loss_clip;
+        if !(c > 0.0 && c < 0.5) {
+            return bad("log_loss_clip", c.to_string(), "must be in (0, 0.5)");
+        }
+        if self.ece_bins == 0 || self.ece_bins > MAX_BINS {
+            return bad(
+                "ece_bins",
+                self.ece_bins.to_string(),
+                "must be between 1 and 1000000",
+            );
+        }
+        if self.murphy_bins > MAX_BINS {
+            return bad(
+                "murphy_bins",
+                self.murphy_bins.to_string(),
+                "must be between 0 (distinct values) and 1000000",
+            );
+        }
+        if !(self.ici_span > 0.0 && self.ici_span <= 1.0) {
+            return bad("ici_span", self.ici_span.to_string(), "must be in (0, 1]");
+        }
+        if !(self.ici_delta >= 0.0 && self.ici_delta < 1.0) {
+            return bad("ici_delta", self.ici_delta.to_string(), "must be in [0, 1)");
+        }
+        Ok(())
+    }
+}
+
+/// Which way a metric is better.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Goal {
+    /// A loss: lower is better.
+    Lower,
+    /// Higher is better (AUC, resolution, discrimination).
+    Higher,
+    /// Closer to this value is better (calibration slope 1, intercept 0, Z 0).
+    Toward(f64),
+    /// A property of the labels, not of the predictions (uncertainty terms).
+    Descriptive,
+}
+
+/// A metric id as written in suites. Most metrics are losses: see
+/// [`MetricId::goal`].
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum MetricId {
     LogLoss,
     Brier,
+    MurphyRel,
+    MurphyRes,
+    MurphyUnc,
+    CorpBrierMcb,
+    CorpBrierDsc,
+    CorpBrierUnc,
+    CorpLogMcb,
+    CorpLogDsc,
+    CorpLogUnc,
+    EceWidth,
+    EceMass,
+    SmoothEce,
+    CalibrationSlope,
+    CalibrationIntercept,
+    SpiegelhalterZ,
+    Ici,
+    Auc,
 }
 
 impl MetricId {
-    pub const ALL: &'static [MetricId] = &[MetricId::LogLoss, MetricId::Brier];
+    pub const ALL: &'static [MetricId] = &[
+        MetricId::LogLoss,
+        MetricId::Brier,
+        MetricId::MurphyRel,
+        MetricId::MurphyRes,
+        MetricId::MurphyUnc,
+        MetricId::CorpBrierMcb,
+        MetricId::CorpBrierDsc,
+        MetricId::CorpBrierUnc,
+        MetricId::CorpLogMcb,
+        MetricId::CorpLogDsc,
+        MetricId::CorpLogUnc,
+        MetricId::EceWidth,
+        MetricId::EceMass,
+        MetricId::SmoothEce,
+        MetricId::CalibrationSlope,
+        MetricId::CalibrationIntercept,
+        MetricId::SpiegelhalterZ,
+        MetricId::Ici,
+        MetricId::Auc,
+    ];
 
     pub fn as_str(self) -> &'static str {
         match self {
             MetricId::LogLoss => "log_loss",
             MetricId::Brier => "brier",
+            MetricId::MurphyRel => "murphy_rel",
+            MetricId::MurphyRes => "murphy_res",
+            MetricId::MurphyUnc => "murphy_unc",
+            MetricId::CorpBrierMcb => "corp_brier_mcb",
+            MetricId::CorpBrierDsc => "corp_brier_dsc",
+            MetricId::CorpBrierUnc => "corp_brier_unc",
+            MetricId::CorpLogMcb => "corp_log_mcb",
+            MetricId::CorpLogDsc => "corp_log_dsc",
+            MetricId::CorpLogUnc => "corp_log_unc",
+            MetricId::EceWidth => "ece_width",
+            MetricId::EceMass => "ece_mass",
+            MetricId::SmoothEce => "smooth_ece",
+            MetricId::CalibrationSlope => "calibration_slope",
+            MetricId::CalibrationIntercept => "calibration_intercept",
+            MetricId::SpiegelhalterZ => "spiegelhalter_z",
+            MetricId::Ici => "ici",
+            MetricId::Auc => "auc",
         }
     }
 
@@ -51,8 +200,21 @@ impl MetricId {
         Self::ALL.iter().copied().find(|m| m.as_str() == s)
     }
 
+    /// Which way the metric is better.
+    pub fn goal(self) -> Goal {
+        use MetricId::*;
+        match self {
+            Auc | MurphyRes | CorpBrierDsc | CorpLogDsc => Goal::Higher,
+            MurphyUnc | CorpBrierUnc | CorpLogUnc => Goal::Descriptive,
+            CalibrationSlope => Goal::Toward(1.0),
+            CalibrationIntercept | SpiegelhalterZ => Goal::Toward(0.0),
+            LogLoss | Brier | MurphyRel | CorpBrierMcb | CorpLogMcb | EceWidth | EceMass
+            | SmoothEce | Ici => Goal::Lower,
+        }
+    }
+
     pub fn higher_is_better(self) -> bool {
-        false
+        self.goal() == Goal::Higher
     }
 
     /// True when the metric is a mean of per-row terms (so its test-set spread
@@ -61,19 +223,96 @@ impl MetricId {
         matches!(self, MetricId::LogLoss | MetricId::Brier)
     }
 
-    /// The per-row term of a row-decomposable metric.
+    /// The per-row term of a row-decomposable metric; NaN for the others.
     pub fn row_term(self, p: f64, y: bool, settings: &MetricSettings) -> f64 {
         match self {
             MetricId::LogLoss => scoring::log_loss_term(p, y, settings.log_loss_clip),
             MetricId::Brier => scoring::brier_term(p, y),
+            _ => f64::NAN,
         }
     }
 
-    /// The metric on predictions `p` for labels `y`.
+    /// The metric on predictions `p` for labels `y` (NaN when undefined).
     pub fn compute(self, p: &[f64], y: &[bool], settings: &MetricSettings) -> f64 {
+        let clip = settings.log_loss_clip;
+        if p.is_empty() || p.len() != y.len() {
+            return f64::NAN;
+        }
         match self {
-            MetricId::LogLoss => scoring::log_loss(p, y, settings.log_loss_clip),
+            MetricId::LogLoss => scoring::log_loss(p, y, clip),
             MetricId::Brier => scoring::brier(p, y),
+            MetricId::MurphyRel => decompose::murphy(p, y, settings.murphy_bins).rel,
+            MetricId::MurphyRes => decompose::murphy(p, y, settings.murphy_bins).res,
+            MetricId::MurphyUnc => decompose::murphy(p, y, settings.murphy_bins).unc,
+            MetricId::CorpBrierMcb => decompose::corp(p, y, CorpScore::Brier, clip).mcb,
+            MetricId::CorpBrierDsc => decompose::corp(p, y, CorpScore::Brier, clip).dsc,
+            MetricId::CorpBrierUnc => decompose::corp(p, y, CorpScore::Brier, clip).unc,
+            MetricId::CorpLogMcb => decompose::corp(p, y, CorpScore::LogLoss, clip).mcb,
+            MetricId::CorpLogDsc => decompose::corp(p, y, CorpScore::LogLoss, clip).dsc,
+            MetricId::CorpLogUnc => decompose::corp(p, y, CorpScore::LogLoss, clip).unc,
+            MetricId::EceWidth => binned::ece_equal_width(p, y, settings.ece_bins),
+            MetricId::EceMass => binned::ece_equal_mass(p, y, settings.ece_bins),
+            MetricId::SmoothEce => smooth_ece::smooth_ece(p, y),
+            MetricId::CalibrationSlope => recalibration::calibration_slope(p, y, clip),
+            MetricId::CalibrationIntercept => recalibration::calibration_intercept(p, y, clip),
+            MetricId::SpiegelhalterZ => spiegelhalter::spiegelhalter_z(p, y),
+            MetricId::Ici => ici::ici(p, y, settings.ici_span, settings.ici_delta),
+            MetricId::Auc => ranking::auc(p, y),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn ids_round_trip_and_match_serde_names() {
+        for &m in MetricId::ALL {
+            assert_eq!(MetricId::parse(m.as_str()), Some(m));
+            let json = serde_json::to_string(&m).unwrap();
+            assert_eq!(json, format!("\"{}\"", m.as_str()));
+        }
+        assert_eq!(MetricId::parse("nope"), None);
+    }
+
+    #[test]
+    fn settings_defaults_unknown_keys_and_validation() {
+        let s: MetricSettings = toml::from_str("ece_bins = 15").unwrap();
+        assert_eq!(s.ece_bins, 15);
+        assert_eq!(s.murphy_bins, MetricSettings::default().murphy_bins);
+        assert!(toml::from_str::<MetricSettings>("ece_binz = 15").is_err());
+        assert!(MetricSettings::default().validate().is_ok());
+        let e = MetricSettings {
+            ece_bins: 0,
+            ..Default::default()
+        }
+        .validate()
+        .unwrap_err();
+        assert_eq!(e.key, "ece_bins");
+        assert!(e.to_string().contains("ece_bins = 0"));
+        let e = MetricSettings {
+            ici_span: f64::NAN,
+            ..Default::default()
+        }
+        .validate()
+        .unwrap_err();
+        assert_eq!(e.key, "ici_span");
+        let e = MetricSettings {
+            log_loss_clip: 0.5,
+            ..Default::default()
+        }
+        .validate()
+        .unwrap_err();
+        assert_eq!(e.key, "log_loss_clip");
+    }
+
+    #[test]
+    fn mismatched_lengths_give_nan_not_panic() {
+        let s = MetricSettings::default();
+        for &m in MetricId::ALL {
+            assert!(m.compute(&[0.5, 0.2], &[true], &s).is_nan());
+            assert!(m.compute(&[], &[], &s).is_nan());
         }
     }
 }

@@ -36,9 +36,15 @@ pub fn model_seed(suite_seed: u64, data: &str) -> u64 {
 }
 
 /// Build the pools of every open-data task of the plan (in parallel).
-pub fn resolve(plan: &mut Plan, cache: Option<&Path>, threads: Option<usize>, quiet: bool) -> Result<Vec<PoolReport>, String> {
-    let open_ids: Vec<usize> =
-        (0..plan.tasks.len()).filter(|&i| matches!(plan.tasks[i].source, TaskSource::Open { .. })).collect();
+pub fn resolve(
+    plan: &mut Plan,
+    cache: Option<&Path>,
+    threads: Option<usize>,
+    quiet: bool,
+) -> Result<Vec<PoolReport>, String> {
+    let open_ids: Vec<usize> = (0..plan.tasks.len())
+        .filter(|&i| matches!(plan.tasks[i].source, TaskSource::Open { .. }))
+        .collect();
     if open_ids.is_empty() {
         return Ok(Vec::new());
     }
@@ -47,19 +53,28 @@ pub fn resolve(plan: &mut Plan, cache: Option<&Path>, threads: Option<usize>, qu
     for &i in &open_ids {
         if let TaskSource::Open { data_dir, data, .. } = &plan.tasks[i].source {
             if !datasets.contains_key(data) {
-                let d = open::load_task(data_dir, data).map_err(|e| format!("task `{}`: {e}", plan.tasks[i].id))?;
+                let d = open::load_task(data_dir, data)
+                    .map_err(|e| format!("task `{}`: {e}", plan.tasks[i].id))?;
                 datasets.insert(data.clone(), d);
             }
         }
     }
-    let pool = rayon::ThreadPoolBuilder::new().num_threads(threads.unwrap_or(0)).build().map_err(|e| e.to_string())?;
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads.unwrap_or(0))
+        .build()
+        .map_err(|e| e.to_string())?;
     let bar = if quiet || !std::io::stderr().is_terminal() {
         ProgressBar::with_draw_target(Some(open_ids.len() as u64), ProgressDrawTarget::hidden())
     } else {
-        let b = ProgressBar::with_draw_target(Some(open_ids.len() as u64), ProgressDrawTarget::stderr());
+        let b = ProgressBar::with_draw_target(
+            Some(open_ids.len() as u64),
+            ProgressDrawTarget::stderr(),
+        );
         b.set_style(
-            ProgressStyle::with_template("{spinner} score pools {wide_bar} {pos}/{len} tasks · {elapsed} · {msg}")
-                .unwrap_or_else(|_| ProgressStyle::default_bar()),
+            ProgressStyle::with_template(
+                "{spinner} score pools {wide_bar} {pos}/{len} tasks · {elapsed} · {msg}",
+            )
+            .unwrap_or_else(|_| ProgressStyle::default_bar()),
         );
         b
     };
@@ -70,9 +85,18 @@ pub fn resolve(plan: &mut Plan, cache: Option<&Path>, threads: Option<usize>, qu
             .par_iter()
             .map(|&i| {
                 let t = &tasks[i];
-                let TaskSource::Open { data, model, protocol, .. } = &t.source else { unreachable!() };
+                let TaskSource::Open {
+                    data,
+                    model,
+                    protocol,
+                    ..
+                } = &t.source
+                else {
+                    unreachable!()
+                };
                 let ds = &datasets[data];
-                let r = score_pool(ds, model, protocol, model_seed(seed, data), cache).map_err(|e| format!("task `{}`: {e}", t.id));
+                let r = score_pool(ds, model, protocol, model_seed(seed, data), cache)
+                    .map_err(|e| format!("task `{}`: {e}", t.id));
                 bar.set_message(t.id.clone());
                 bar.inc(1);
                 r.map(|(p, info)| (i, p, info))
@@ -84,12 +108,18 @@ pub fn resolve(plan: &mut Plan, cache: Option<&Path>, threads: Option<usize>, qu
     for b in built {
         let (i, p, info) = b?;
         let t = &mut plan.tasks[i];
-        let TaskSource::Open { data, .. } = &t.source else { continue };
+        let TaskSource::Open { data, .. } = &t.source else {
+            continue;
+        };
         let n = p.scores.len();
         let (reservoir, test) = match &p.sides {
             Some(sides) => (
-                (0..n).filter(|&k| sides[k] == Side::Reservoir).collect::<Vec<_>>(),
-                (0..n).filter(|&k| sides[k] == Side::Test).collect::<Vec<_>>(),
+                (0..n)
+                    .filter(|&k| sides[k] == Side::Reservoir)
+                    .collect::<Vec<_>>(),
+                (0..n)
+                    .filter(|&k| sides[k] == Side::Test)
+                    .collect::<Vec<_>>(),
             ),
             None => split::partition(n, plan.test_set.rows(n), split::task_seed(seed, data)),
         };

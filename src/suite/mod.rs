@@ -20,10 +20,10 @@ use toml::Spanned;
 
 use crate::calibrate::{MethodSpec, ScoreKind};
 use crate::data::open;
-use crate::models::{protocol::Protocol, ModelSpec};
 use crate::data::scorefile::{self, ScoreFileSpec};
 use crate::data::{ScorePool, Side};
 use crate::metrics::{MetricId, MetricSettings};
+use crate::models::{protocol::Protocol, ModelSpec};
 use crate::split;
 
 /// A problem with a suite, located in its file.
@@ -199,7 +199,9 @@ pub enum TaskSource {
 
 /// The protocol used when a task names none.
 pub fn default_protocol() -> Protocol {
-    Protocol::HeldOut { train_fraction: 0.5 }
+    Protocol::HeldOut {
+        train_fraction: 0.5,
+    }
 }
 
 /// A task ready to run: its pool, partition and sizes.
@@ -460,12 +462,11 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                     ctx.err(t.span(), "metric_settings", e.message().trim().to_string())
                 },
             )?;
-            let c = s.log_loss_clip;
-            if !(c > 0.0 && c < 0.5) {
+            if let Err(e) = s.validate() {
                 return Err(ctx.err(
                     t.span(),
-                    "metric_settings.log_loss_clip",
-                    format!("{c}: the clip must lie in (0, 0.5), e.g. 1e-6"),
+                    &format!("metric_settings.{}", e.key),
+                    e.to_string(),
                 ));
             }
             s
@@ -575,7 +576,11 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
 
     // Tasks.
     if raw.task.is_empty() && raw.task_grid.is_empty() {
-        return Err(ctx.err(0..0, "task", "the suite lists no [[task]] or [[task_grid]] tables"));
+        return Err(ctx.err(
+            0..0,
+            "task",
+            "the suite lists no [[task]] or [[task_grid]] tables",
+        ));
     }
     // Models (for open-data tasks).
     let mut models: Vec<(String, ModelSpec)> = Vec::new();
@@ -584,15 +589,33 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         let label = format!("model #{}", i + 1);
         let id = match table.remove("id") {
             Some(toml::Value::String(s)) if valid_id(&s) => s,
-            Some(v) => return Err(ctx.err(m.span(), &format!("{label}.id"), format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"))),
+            Some(v) => {
+                return Err(ctx.err(
+                    m.span(),
+                    &format!("{label}.id"),
+                    format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"),
+                ))
+            }
             None => return Err(ctx.err(m.span(), &label, "missing key `id`")),
         };
-        let spec: ModelSpec = toml::Value::Table(table)
-            .try_into()
-            .map_err(|e: toml::de::Error| ctx.err(m.span(), &format!("model `{id}`"), e.message().trim().to_string()))?;
-        spec.validate().map_err(|e| ctx.err(m.span(), &format!("model `{id}`"), e.to_string()))?;
+        let spec: ModelSpec =
+            toml::Value::Table(table)
+                .try_into()
+                .map_err(|e: toml::de::Error| {
+                    ctx.err(
+                        m.span(),
+                        &format!("model `{id}`"),
+                        e.message().trim().to_string(),
+                    )
+                })?;
+        spec.validate()
+            .map_err(|e| ctx.err(m.span(), &format!("model `{id}`"), e.to_string()))?;
         if models.iter().any(|(x, _)| *x == id) {
-            return Err(ctx.err(m.span(), &format!("model `{id}`"), "this id is used by another model"));
+            return Err(ctx.err(
+                m.span(),
+                &format!("model `{id}`"),
+                "this id is used by another model",
+            ));
         }
         models.push((id, spec));
     }
@@ -613,42 +636,85 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         let table = t.get_ref();
         let de_err = |e: toml::de::Error| ctx.err(t.span(), &label, e.message().trim().to_string());
         let spec = if table.contains_key("scores") {
-            Spec::File(toml::Value::Table(table.clone()).try_into().map_err(de_err)?)
+            Spec::File(
+                toml::Value::Table(table.clone())
+                    .try_into()
+                    .map_err(de_err)?,
+            )
         } else if table.contains_key("data") {
-            Spec::Open(toml::Value::Table(table.clone()).try_into().map_err(de_err)?)
+            Spec::Open(
+                toml::Value::Table(table.clone())
+                    .try_into()
+                    .map_err(de_err)?,
+            )
         } else {
-            return Err(ctx.err(t.span(), &label, "a task needs `scores` (a score file) or `data` (an open dataset task)"));
+            return Err(ctx.err(
+                t.span(),
+                &label,
+                "a task needs `scores` (a score file) or `data` (an open dataset task)",
+            ));
         };
         specs.push((spec, t.span(), label));
     }
     let mut open_tasks: Option<Vec<open::TaskSummary>> = None;
-    let mut list_open = |span: std::ops::Range<usize>| -> Result<Vec<open::TaskSummary>, SuiteError> {
-        if open_tasks.is_none() {
-            let l = open::list_tasks(&data_dir).map_err(|e| {
-                ctx.err(if open_span.is_empty() { span.clone() } else { open_span.clone() }, "open_data", format!("{} ({})", e, data_dir.display()))
-            })?;
-            open_tasks = Some(l);
-        }
-        Ok(open_tasks.clone().unwrap_or_default())
-    };
+    let mut list_open =
+        |span: std::ops::Range<usize>| -> Result<Vec<open::TaskSummary>, SuiteError> {
+            if open_tasks.is_none() {
+                let l = open::list_tasks(&data_dir).map_err(|e| {
+                    ctx.err(
+                        if open_span.is_empty() {
+                            span.clone()
+                        } else {
+                            open_span.clone()
+                        },
+                        "open_data",
+                        format!("{} ({})", e, data_dir.display()),
+                    )
+                })?;
+                open_tasks = Some(l);
+            }
+            Ok(open_tasks.clone().unwrap_or_default())
+        };
     for (i, g) in raw.task_grid.iter().enumerate() {
         let label = format!("task_grid #{}", i + 1);
-        let rg: RawGrid = toml::Value::Table(g.get_ref().clone())
-            .try_into()
-            .map_err(|e: toml::de::Error| ctx.err(g.span(), &label, e.message().trim().to_string()))?;
+        let rg: RawGrid =
+            toml::Value::Table(g.get_ref().clone())
+                .try_into()
+                .map_err(|e: toml::de::Error| {
+                    ctx.err(g.span(), &label, e.message().trim().to_string())
+                })?;
         let data: Vec<String> = match &rg.data {
-            toml::Value::String(s) if s == "all" => list_open(g.span())?.iter().map(|t| t.id.clone()).collect(),
+            toml::Value::String(s) if s == "all" => {
+                list_open(g.span())?.iter().map(|t| t.id.clone()).collect()
+            }
             toml::Value::Array(a) => a
                 .iter()
                 .map(|v| v.as_str().map(str::to_string))
                 .collect::<Option<Vec<_>>>()
-                .ok_or_else(|| ctx.err(g.span(), &format!("{label}.data"), "expected a list of open-data task ids or \"all\""))?,
-            _ => return Err(ctx.err(g.span(), &format!("{label}.data"), "expected a list of open-data task ids or \"all\"")),
+                .ok_or_else(|| {
+                    ctx.err(
+                        g.span(),
+                        &format!("{label}.data"),
+                        "expected a list of open-data task ids or \"all\"",
+                    )
+                })?,
+            _ => {
+                return Err(ctx.err(
+                    g.span(),
+                    &format!("{label}.data"),
+                    "expected a list of open-data task ids or \"all\"",
+                ))
+            }
         };
         for d in &data {
             for m in &rg.models {
                 specs.push((
-                    Spec::Open(RawOpenTask { id: format!("{d}.{m}"), data: d.clone(), model: m.clone(), protocol: rg.protocol.clone() }),
+                    Spec::Open(RawOpenTask {
+                        id: format!("{d}.{m}"),
+                        data: d.clone(),
+                        model: m.clone(),
+                        protocol: rg.protocol.clone(),
+                    }),
                     g.span(),
                     label.clone(),
                 ));
@@ -664,7 +730,11 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         };
         let tl = format!("task `{id}`");
         if !valid_id(&id) {
-            return Err(ctx.err(span, &format!("{label}.id"), format!("`{id}`: an id is a non-empty word of letters, digits, '-', '_' or '.'")));
+            return Err(ctx.err(
+                span,
+                &format!("{label}.id"),
+                format!("`{id}`: an id is a non-empty word of letters, digits, '-', '_' or '.'"),
+            ));
         }
         if tasks.iter().any(|x| x.id == id) {
             return Err(ctx.err(span, &format!("{tl}.id"), "this id is used by another task"));
@@ -675,10 +745,18 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         };
         for (m, mspan) in &methods {
             m.spec.validate(score_kind).map_err(|e| {
-                ctx.err(mspan.clone(), &format!("method `{}`", m.id), format!("{e} (for {tl}, score_kind = \"{}\")", score_kind.as_str()))
+                ctx.err(
+                    mspan.clone(),
+                    &format!("method `{}`", m.id),
+                    format!("{e} (for {tl}, score_kind = \"{}\")", score_kind.as_str()),
+                )
             })?;
         }
-        let test_set_span = raw.test_set.as_ref().map(|s| s.span()).unwrap_or(span.clone());
+        let test_set_span = raw
+            .test_set
+            .as_ref()
+            .map(|s| s.span())
+            .unwrap_or(span.clone());
         let mut plan_task = match spec {
             Spec::File(rt) => {
                 let fpath = base.join(&rt.scores);
@@ -690,10 +768,16 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                     split_column: rt.split_column.clone(),
                     truth_column: rt.truth_column.clone(),
                 };
-                let bytes = std::fs::read(&fpath)
-                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), format!("{}: cannot read: {e}", fpath.display())))?;
+                let bytes = std::fs::read(&fpath).map_err(|e| {
+                    ctx.err(
+                        span.clone(),
+                        &format!("{tl}.scores"),
+                        format!("{}: cannot read: {e}", fpath.display()),
+                    )
+                })?;
                 let data_sha256 = hex(&Sha256::digest(&bytes));
-                let loaded = scorefile::load(&fspec).map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), e.to_string()))?;
+                let loaded = scorefile::load(&fspec)
+                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), e.to_string()))?;
                 let n = loaded.pool.scores.len();
                 let positives = loaded.pool.labels.iter().filter(|&&y| y).count();
                 let (reservoir, test) = match &loaded.pool.sides {
@@ -708,7 +792,10 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                             return Err(ctx.err(
                                 test_set_span,
                                 "test_set",
-                                format!("{}: gives {rows} test rows for {tl}, which has {n} rows", test_set.describe()),
+                                format!(
+                                    "{}: gives {rows} test rows for {tl}, which has {n} rows",
+                                    test_set.describe()
+                                ),
                             ));
                         }
                         split::partition(n, rows, split::task_seed(seed as u64, &rt.id))
@@ -737,20 +824,40 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                     ctx.err(
                         span.clone(),
                         &format!("{tl}.data"),
-                        format!("`{}` is not an open-data task in {}; known: {}", ro.data, data_dir.display(),
-                            list.iter().map(|t| t.id.as_str()).collect::<Vec<_>>().join(", ")),
+                        format!(
+                            "`{}` is not an open-data task in {}; known: {}",
+                            ro.data,
+                            data_dir.display(),
+                            list.iter()
+                                .map(|t| t.id.as_str())
+                                .collect::<Vec<_>>()
+                                .join(", ")
+                        ),
                     )
                 })?;
-                let model = models.iter().find(|(m, _)| *m == ro.model).map(|(_, s)| s.clone()).ok_or_else(|| {
-                    ctx.err(
-                        span.clone(),
-                        &format!("{tl}.model"),
-                        format!("`{}` is not one of the suite's [[model]] ids ({})", ro.model,
-                            models.iter().map(|(m, _)| m.as_str()).collect::<Vec<_>>().join(", ")),
-                    )
-                })?;
+                let model = models
+                    .iter()
+                    .find(|(m, _)| *m == ro.model)
+                    .map(|(_, s)| s.clone())
+                    .ok_or_else(|| {
+                        ctx.err(
+                            span.clone(),
+                            &format!("{tl}.model"),
+                            format!(
+                                "`{}` is not one of the suite's [[model]] ids ({})",
+                                ro.model,
+                                models
+                                    .iter()
+                                    .map(|(m, _)| m.as_str())
+                                    .collect::<Vec<_>>()
+                                    .join(", ")
+                            ),
+                        )
+                    })?;
                 let protocol = ro.protocol.clone().unwrap_or_else(default_protocol);
-                protocol.validate().map_err(|e| ctx.err(span.clone(), &format!("{tl}.protocol"), e.to_string()))?;
+                protocol
+                    .validate()
+                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.protocol"), e.to_string()))?;
                 let n = summary.rows;
                 let (reservoir_rows, test_rows) = match protocol {
                     Protocol::HeldOut { train_fraction } => {
@@ -775,14 +882,24 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                     .map_err(|e| ctx.err(span.clone(), &format!("{tl}.data"), e.to_string()))?;
                 TaskPlan {
                     id: ro.id.clone(),
-                    source: TaskSource::Open { data_dir: data_dir.clone(), data: ro.data.clone(), model_id: ro.model.clone(), model, protocol },
+                    source: TaskSource::Open {
+                        data_dir: data_dir.clone(),
+                        data: ro.data.clone(),
+                        model_id: ro.model.clone(),
+                        model,
+                        protocol,
+                    },
                     score_kind: ScoreKind::Probability,
                     data_sha256,
                     rows: n,
                     positives: summary.positives,
                     reservoir_rows,
                     test_rows,
-                    pool: ScorePool { scores: Vec::new(), labels: Vec::new(), sides: None },
+                    pool: ScorePool {
+                        scores: Vec::new(),
+                        labels: Vec::new(),
+                        sides: None,
+                    },
                     truth: None,
                     reservoir: Vec::new(),
                     test: Vec::new(),
@@ -798,7 +915,13 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
             } else if too_large == TooLarge::Skip {
                 plan_task.skipped_sizes.push(s);
             } else {
-                let sspan = raw.sizes.get_ref().iter().find(|x| *x.get_ref() as usize == s).map(|x| x.span()).unwrap_or(0..0);
+                let sspan = raw
+                    .sizes
+                    .get_ref()
+                    .iter()
+                    .find(|x| *x.get_ref() as usize == s)
+                    .map(|x| x.span())
+                    .unwrap_or(0..0);
                 return Err(ctx.err(
                     sspan,
                     "sizes",
@@ -807,7 +930,11 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
             }
         }
         if plan_task.sizes.is_empty() {
-            return Err(ctx.err(raw.sizes.span(), "sizes", format!("no size fits the reservoir of {tl} ({reservoir_len} rows)")));
+            return Err(ctx.err(
+                raw.sizes.span(),
+                "sizes",
+                format!("no size fits the reservoir of {tl} ({reservoir_len} rows)"),
+            ));
         }
         tasks.push(plan_task);
     }
