@@ -39,6 +39,8 @@ pub struct BoostingSettings {
 
 pub struct Boosting {
     booster: GradientBooster,
+    /// Number of dataset columns at fit time.
+    features: usize,
     /// Dataset columns used by the booster, in order.
     used: Vec<usize>,
     settings: BoostingSettings,
@@ -128,6 +130,7 @@ pub fn fit(
         .map_err(|e| fail(e.to_string()))?;
     Ok(Boosting {
         booster,
+        features: data.columns.len(),
         used,
         settings: *settings,
     })
@@ -137,13 +140,7 @@ impl Boosting {
     /// The ensemble's log-odds F(x) on `rows`.
     pub fn log_odds(&self, data: &Dataset, rows: &[usize]) -> Result<Vec<f64>, ModelError> {
         super::check_rows(data, rows)?;
-        if let Some(&j) = self.used.iter().find(|&&j| j >= data.columns.len()) {
-            return Err(ModelError::Fit {
-                dataset: data.id.clone(),
-                model: "boosting",
-                reason: format!("the dataset lacks feature column #{}", j + 1),
-            });
-        }
+        super::check_width(data, self.features)?;
         check_no_infinities(data, rows)?;
         if rows.is_empty() {
             return Ok(Vec::new());

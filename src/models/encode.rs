@@ -35,6 +35,8 @@ pub struct DesignCol {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Design {
     pub cols: Vec<DesignCol>,
+    /// Number of dataset columns the design was built for.
+    pub source_columns: usize,
 }
 
 impl Design {
@@ -67,7 +69,10 @@ impl Design {
                 }
             }
         }
-        Design { cols }
+        Design {
+            cols,
+            source_columns: data.columns.len(),
+        }
     }
 
     pub fn width(&self) -> usize {

@@ -134,18 +134,8 @@ pub fn fit(
 impl Model for Forest {
     fn score(&self, data: &Dataset, rows: &[usize]) -> Result<Vec<f64>, ModelError> {
         super::check_rows(data, rows)?;
+        super::check_width(data, self.features)?;
         check_values(data, rows)?;
-        if data.columns.len() != self.features {
-            return Err(ModelError::Fit {
-                dataset: data.id.clone(),
-                model: "forest",
-                reason: format!(
-                    "fitted on {} feature columns, asked to score {}",
-                    self.features,
-                    data.columns.len()
-                ),
-            });
-        }
         if rows.is_empty() {
             return Ok(Vec::new());
         }

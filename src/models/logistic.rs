@@ -261,6 +261,7 @@ impl Logistic {
     /// Linear predictors b + wᵀx̃ on `rows`.
     pub fn margins(&self, data: &Dataset, rows: &[usize]) -> Result<Vec<f64>, ModelError> {
         super::check_rows(data, rows)?;
+        super::check_width(data, self.design.source_columns)?;
         check_values(data, rows)?;
         let p = self.design.width();
         let mut x = self.design.row_major(data, rows);

@@ -113,6 +113,7 @@ impl NaiveBayes {
     /// ln P(x, 1) − ln P(x, 0) on `rows`.
     pub fn log_odds(&self, data: &Dataset, rows: &[usize]) -> Result<Vec<f64>, ModelError> {
         super::check_rows(data, rows)?;
+        super::check_width(data, self.design.source_columns)?;
         check_values(data, rows)?;
         let p = self.design.width();
         let x = self.design.row_major(data, rows);
