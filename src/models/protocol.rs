@@ -226,21 +226,11 @@ pub fn cross_fit(
     let trained_on: Vec<Vec<usize>> = parts.into_iter().map(|(t, _)| t).collect();
     // By construction no row is scored by a model that saw it; check anyway, so
     // a future change to the fold logic cannot silently leak.
-    for (k, train) in trained_on.iter().enumerate() {
-        let mut seen = vec![false; data.rows()];
-        for &r in train {
-            seen[r] = true;
-        }
-        if let Some((_, &r)) = rows
-            .iter()
-            .enumerate()
-            .find(|&(i, &r)| fold_of[i] == k && seen[r])
-        {
-            return Err(protocol_error(
-                data,
-                format!("row {r} was scored by a model trained on it"),
-            ));
-        }
+    if let Some(r) = first_leak(data.rows(), &rows, &fold_of, &trained_on) {
+        return Err(protocol_error(
+            data,
+            format!("row {r} was scored by a model trained on it"),
+        ));
     }
     Ok(CrossFit {
         rows: rows.to_vec(),
@@ -250,6 +240,30 @@ pub fn cross_fit(
         fit_seconds,
         score_seconds,
     })
+}
+
+/// The first row scored by a fold model whose training rows contain it, if any
+/// (`n` = dataset rows).
+pub fn first_leak(
+    n: usize,
+    rows: &[usize],
+    fold_of: &[usize],
+    trained_on: &[Vec<usize>],
+) -> Option<usize> {
+    for (k, train) in trained_on.iter().enumerate() {
+        let mut seen = vec![false; n];
+        for &r in train {
+            seen[r] = true;
+        }
+        if let Some((_, &r)) = rows
+            .iter()
+            .enumerate()
+            .find(|&(i, &r)| fold_of[i] == k && seen[r])
+        {
+            return Some(r);
+        }
+    }
+    None
 }
 
 /// Training rows and unseen rows of a protocol's split.
@@ -578,24 +592,29 @@ mod tests {
     }
 
     #[test]
-    fn cross_fit_rejects_duplicate_rows_as_a_leak() {
-        let d = two_gaussians(100, 3, 2);
-        let mut rows: Vec<usize> = (0..60).collect();
-        rows.push(5);
-        let e = cross_fit(&d, &ModelSpec::logistic(), &rows, 3, 1);
-        // Row 5 appears twice: unless both copies land in one fold, one copy is
-        // scored by a model that trained on the other.
-        if let Ok(cf) = &e {
-            let folds: Vec<usize> = rows
-                .iter()
-                .enumerate()
-                .filter(|&(_, &r)| r == 5)
-                .map(|(i, _)| cf.fold_of[i])
-                .collect();
-            assert_eq!(folds[0], folds[1]);
-        } else {
-            assert!(matches!(e, Err(ModelError::Protocol { .. })));
-        }
+    fn leak_check_finds_a_row_in_its_own_fold_model() {
+        // Rows 0..6 in folds 0, 1, 2, 0, 1, 2; fold k's model trained on the rest.
+        let rows: Vec<usize> = (0..6).collect();
+        let fold_of = vec![0, 1, 2, 0, 1, 2];
+        let mut trained_on: Vec<Vec<usize>> = (0..3)
+            .map(|k| (0..6).filter(|&r| fold_of[r] != k).collect())
+            .collect();
+        assert_eq!(first_leak(6, &rows, &fold_of, &trained_on), None);
+        trained_on[2].push(5); // fold 2's model saw row 5, which it scores
+        assert_eq!(first_leak(6, &rows, &fold_of, &trained_on), Some(5));
+        // A row listed twice in different folds is a leak too.
+        let rows = vec![0, 1, 2, 3, 4, 5, 1];
+        let fold_of = vec![0, 1, 2, 0, 1, 2, 0];
+        let trained_on: Vec<Vec<usize>> = (0..3)
+            .map(|k| {
+                rows.iter()
+                    .zip(&fold_of)
+                    .filter(|&(_, &f)| f != k)
+                    .map(|(&r, _)| r)
+                    .collect()
+            })
+            .collect();
+        assert_eq!(first_leak(6, &rows, &fold_of, &trained_on), Some(1));
     }
 
     #[test]
