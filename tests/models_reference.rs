@@ -74,13 +74,13 @@ fn logistic_matches_scikit_learn_and_statsmodels() {
         assert_eq!(m.coef.len(), want.len(), "{source}");
         let b = case["intercept"].as_f64().unwrap();
         assert!(
-            (m.intercept - b).abs() < 1e-6,
+            (m.intercept - b).abs() < tol,
             "{source}: intercept {} vs {b}",
             m.intercept
         );
         for (j, (got, want)) in m.coef.iter().zip(&want).enumerate() {
             assert!(
-                (got - want).abs() < 1e-6,
+                (got - want).abs() < tol,
                 "{source}: coef {j}: {got} vs {want}"
             );
         }

@@ -46,7 +46,7 @@ fn cholesky(a: &mut [f64], m: usize) -> bool {
         for k in 0..j {
             d -= a[j * m + k] * a[j * m + k];
         }
-        if !(d > 0.0) || !d.is_finite() {
+        if d.is_nan() || d <= 0.0 || d.is_infinite() {
             return false;
         }
         let d = d.sqrt();
@@ -329,8 +329,8 @@ mod tests {
             }
             g[p] += res;
         }
-        for j in 0..p {
-            g[j] += 2.5 * m.coef[j];
+        for (gj, w) in g.iter_mut().zip(&m.coef) {
+            *gj += 2.5 * w;
         }
         assert!(g.iter().all(|v| v.abs() < 1e-6), "{g:?}");
     }

@@ -36,9 +36,9 @@ use crate::calibrate::ParamError;
 use crate::data::{Dataset, ScorePool, Side};
 use crate::split::{mix, partition, rng, sample_indices};
 
-const TAG_SPLIT: u64 = 0x7370_6c69_74; // "split"
-const TAG_MODEL: u64 = 0x6d6f_6465_6c; // "model"
-const TAG_FOLDS: u64 = 0x666f_6c64_73; // "folds"
+const TAG_SPLIT: u64 = 0x0073_706c_6974; // "split"
+const TAG_MODEL: u64 = 0x006d_6f64_656c; // "model"
+const TAG_FOLDS: u64 = 0x0066_6f6c_6473; // "folds"
 const TAG_BUDGET: u64 = 0x6275_6467_6574; // "budget"
 
 fn d_train_fraction() -> f64 {
@@ -226,7 +226,7 @@ pub fn cross_fit(
     let trained_on: Vec<Vec<usize>> = parts.into_iter().map(|(t, _)| t).collect();
     // By construction no row is scored by a model that saw it; check anyway, so
     // a future change to the fold logic cannot silently leak.
-    if let Some(r) = first_leak(data.rows(), &rows, &fold_of, &trained_on) {
+    if let Some(r) = first_leak(data.rows(), rows, &fold_of, &trained_on) {
         return Err(protocol_error(
             data,
             format!("row {r} was scored by a model trained on it"),
@@ -378,7 +378,7 @@ fn build_pool(
             let mut rows = train.clone();
             rows.extend(&unseen);
             let mut sides = vec![Side::Reservoir; train.len()];
-            sides.extend(std::iter::repeat_n(Side::Test, unseen.len()));
+            sides.extend(std::iter::repeat(Side::Test).take(unseen.len()));
             let pool = ScorePool {
                 scores,
                 labels: rows.iter().map(|&r| data.labels[r]).collect(),
@@ -483,7 +483,7 @@ pub fn protocol_study_unit(
         let mut labels: Vec<bool> = cal_rows.iter().map(|&r| data.labels[r]).collect();
         labels.extend(&test_labels);
         let mut sides = vec![Side::Reservoir; cal_rows.len()];
-        sides.extend(std::iter::repeat_n(Side::Test, test_rows.len()));
+        sides.extend(std::iter::repeat(Side::Test).take(test_rows.len()));
         ScorePool {
             scores,
             labels,
