@@ -336,6 +336,26 @@ mod tests {
     }
 
     #[test]
+    fn standardisation_uses_training_rows_only() {
+        // Changing feature values of rows outside the training set must not
+        // change the fitted coefficients.
+        let d = crate::models::testdata::two_gaussians(300, 3, 9);
+        let train: Vec<usize> = (0..200).collect();
+        let a = fit(&d, &train, 1.0, 100).unwrap();
+        let mut e = d.clone();
+        for v in &mut e.columns[0][200..] {
+            *v = *v * 100.0 + 50.0;
+        }
+        let b = fit(&e, &train, 1.0, 100).unwrap();
+        assert_eq!(a.coef, b.coef);
+        assert_eq!(a.scaler, b.scaler);
+        // ... while the training rows' statistics are what the scaler holds.
+        let x0: Vec<f64> = train.iter().map(|&r| d.columns[0][r]).collect();
+        let mean = x0.iter().sum::<f64>() / 200.0;
+        assert!((a.scaler.mean[0] - mean).abs() < 1e-12);
+    }
+
+    #[test]
     fn separated_classes_without_penalty_fail_cleanly() {
         let d = Dataset {
             id: "sep".into(),

@@ -490,8 +490,8 @@ pub fn protocol_study_unit(
             sides: Some(sides),
         }
     };
-    let mut out = Vec::new();
-    for (v, &f) in settings.fractions.iter().enumerate() {
+    // Check every variant before fitting any.
+    for &f in &settings.fractions {
         if !(f > 0.0 && f < 1.0) {
             return Err(ParamError::new("fraction", f, "must lie strictly between 0 and 1").into());
         }
@@ -502,6 +502,10 @@ pub fn protocol_study_unit(
                 format!("calibration fraction {f} of budget {budget} leaves {n_cal} rows"),
             ));
         }
+    }
+    let mut out = Vec::new();
+    for (v, &f) in settings.fractions.iter().enumerate() {
+        let n_cal = (f * budget as f64).round() as usize;
         let (cal, train) = drawn.split_at(n_cal);
         let mut train = train.to_vec();
         train.sort_unstable();
