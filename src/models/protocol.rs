@@ -79,6 +79,17 @@ impl Protocol {
         }
     }
 
+    /// Rows that train the base model out of a dataset of `n` rows:
+    /// ⌊train_fraction·n⌉. Held-out pools hold the other n − that rows;
+    /// cross-fitted pools hold that many reservoir rows and the rest as test set.
+    pub fn train_rows(&self, n: usize) -> usize {
+        let tf = match *self {
+            Protocol::HeldOut { train_fraction } => train_fraction,
+            Protocol::CrossFitted { train_fraction, .. } => train_fraction,
+        };
+        (tf * n as f64).round() as usize
+    }
+
     pub fn validate(&self) -> Result<(), ParamError> {
         let tf = match *self {
             Protocol::HeldOut { train_fraction } => train_fraction,
@@ -269,16 +280,17 @@ pub fn first_leak(
 /// Training rows and unseen rows of a protocol's split.
 fn split_rows(
     data: &Dataset,
-    train_fraction: f64,
+    protocol: &Protocol,
     seed: u64,
 ) -> Result<(Vec<usize>, Vec<usize>), ModelError> {
     let n = data.rows();
-    let n_train = (train_fraction * n as f64).round() as usize;
+    let n_train = protocol.train_rows(n);
     if n_train < 2 || n_train >= n {
         return Err(protocol_error(
             data,
             format!(
-                "train_fraction = {train_fraction} of {n} rows leaves {n_train} training and {} other rows",
+                "{} splits {n} rows into {n_train} training and {} other rows",
+                protocol.kind(),
                 n.saturating_sub(n_train)
             ),
         ));
@@ -337,8 +349,8 @@ fn build_pool(
     seed: u64,
 ) -> Result<(ScorePool, PoolInfo), ModelError> {
     match *protocol {
-        Protocol::HeldOut { train_fraction } => {
-            let (train, unseen) = split_rows(data, train_fraction, seed)?;
+        Protocol::HeldOut { .. } => {
+            let (train, unseen) = split_rows(data, protocol, seed)?;
             let t0 = Instant::now();
             let m = model.fit(data, &train, mix(seed, &[TAG_MODEL, 0]))?;
             let fit_seconds = t0.elapsed().as_secs_f64();
@@ -361,11 +373,8 @@ fn build_pool(
             };
             Ok((pool, info))
         }
-        Protocol::CrossFitted {
-            train_fraction,
-            folds,
-        } => {
-            let (train, unseen) = split_rows(data, train_fraction, seed)?;
+        Protocol::CrossFitted { folds, .. } => {
+            let (train, unseen) = split_rows(data, protocol, seed)?;
             let cf = cross_fit(data, model, &train, folds, seed)?;
             let t0 = Instant::now();
             let m = model.fit(data, &train, mix(seed, &[TAG_MODEL, folds as u64]))?;
@@ -630,6 +639,7 @@ mod tests {
         let (pool, info) = score_pool(&d, &ModelSpec::logistic(), &proto, 9, None).unwrap();
         assert!(pool.sides.is_none());
         assert_eq!(info.train_rows, 120); // round(0.4 · 301)
+        assert_eq!(proto.train_rows(301), 120);
         assert_eq!(pool.scores.len(), 181);
         assert!(info.pool_rows.windows(2).all(|w| w[0] < w[1]));
         for (i, &r) in info.pool_rows.iter().enumerate() {
