@@ -6,8 +6,14 @@
 //! executor) → `stats` (paired intervals, across-task tests, thresholds) →
 //! `report` (tables and figures).
 
+pub mod analysis;
+pub mod app;
 pub mod calibrate;
 pub mod data;
 pub mod metrics;
 pub mod models;
+pub mod report;
+pub mod run;
+pub mod simulate;
 pub mod split;
+pub mod suite;

@@ -1,1 +1,175 @@
-fn main() {}
+//! plumbline: CLI definition and glue. The pipeline reads top to bottom:
+//! suite → plan → units → statistics → reports (all in the library).
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+use plumbline::app;
+
+const ABOUT: &str = "Benchmark probability-calibration methods on your scores and on open data, \
+with paired, seeded, reproducible comparisons.";
+
+const LONG_ABOUT: &str = "\
+plumbline compares calibration methods (Platt scaling, isotonic regression, ...) the way a \
+decision needs: over many calibration-set sizes and repeated seeded draws, every method \
+fitted on the same sample and scored on the same test set, with paired confidence intervals.
+
+A suite file (TOML) lists the tasks (score files or open datasets), the sizes, the methods, \
+the metrics and the seed. See docs/suite-format.md, or start from suites/courier-demo.toml.
+
+Typical session:
+  plumbline check suites/courier-demo.toml     validate, print the plan and the unit count
+  plumbline run suites/courier-demo.toml       run it; results in results/courier-demo/
+  plumbline report results/courier-demo        rebuild tables from units.csv";
+
+#[derive(Parser)]
+#[command(name = "plumbline", version, about = ABOUT, long_about = LONG_ABOUT)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Run a suite and write its results folder.
+    #[command(long_about = "\
+Run every unit (task × calibration size × repeat) of a suite in parallel and write the \
+results folder: manifest.json, units.csv, timings.csv, paired.csv and summary.md, then \
+print one table per task.
+
+The folder appears only when complete. Finished units are journaled as they finish: if a \
+run is interrupted, the same command resumes it. An existing results folder is kept \
+unless --force is given.")]
+    Run {
+        /// Suite file; the shipped default suite when omitted.
+        suite: Option<PathBuf>,
+        /// Results folder [default: results/<suite name>].
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
+        /// Worker threads [default: all cores, or RAYON_NUM_THREADS]. Results do not
+        /// depend on it.
+        #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..))]
+        threads: Option<u16>,
+        /// No progress bar and no table on the terminal.
+        #[arg(long)]
+        quiet: bool,
+        /// Replace an existing results folder.
+        #[arg(long)]
+        force: bool,
+    },
+    /// Validate a suite and print the resolved plan without running it.
+    Check {
+        /// Suite file.
+        suite: PathBuf,
+    },
+    /// Rebuild paired.csv, summary.md and the tables from a results folder's units.csv.
+    Report {
+        /// Results folder (holding units.csv).
+        dir: PathBuf,
+        /// Reference method [default: the one recorded in manifest.json].
+        #[arg(long)]
+        reference: Option<String>,
+        /// Metric shown in the tables [default: the one recorded in manifest.json].
+        #[arg(long)]
+        primary_metric: Option<String>,
+        /// Confidence level of the intervals [default: as recorded, else 0.95].
+        #[arg(long)]
+        confidence: Option<f64>,
+    },
+    /// Write the demo score files (an invented courier's late-delivery models with
+    /// known true calibration maps).
+    Simulate {
+        /// Folder for the score files.
+        #[arg(long, default_value = "suites/courier-data")]
+        out: PathBuf,
+        /// Rows per file.
+        #[arg(long, default_value_t = 12_000)]
+        rows: usize,
+        /// Generator seed.
+        #[arg(long, default_value_t = 20_261_201)]
+        seed: u64,
+    },
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match dispatch(cli.command) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: {e:#}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+fn dispatch(cmd: Command) -> anyhow::Result<()> {
+    match cmd {
+        Command::Check { suite } => {
+            let plan = app::load_plan(&suite)?;
+            print!("{}", app::describe_plan(&plan));
+            println!("ok: the suite is valid");
+        }
+        Command::Run {
+            suite,
+            out,
+            threads,
+            quiet,
+            force,
+        } => {
+            let suite = suite.unwrap_or_else(|| PathBuf::from(app::DEFAULT_SUITE));
+            if !suite.exists() {
+                anyhow::bail!(
+                    "{}: no such suite file (with no SUITE argument, run from the repository root to use the default suite)",
+                    suite.display()
+                );
+            }
+            let args = app::RunArgs {
+                suite,
+                out,
+                threads: threads.map(usize::from),
+                quiet,
+                force,
+            };
+            let s = app::run_suite(&args)?;
+            if !quiet {
+                println!("{}", s.terminal);
+            }
+            for w in &s.warnings {
+                eprintln!("warning: {w}");
+            }
+            eprintln!(
+                "{} units ({} resumed) on {} threads in {:.1} s → {}",
+                s.units,
+                s.resumed,
+                s.threads,
+                s.seconds,
+                s.out.display()
+            );
+        }
+        Command::Report {
+            dir,
+            reference,
+            primary_metric,
+            confidence,
+        } => {
+            let t = app::report_dir(&app::ReportArgs {
+                dir,
+                reference,
+                primary_metric,
+                confidence,
+            })?;
+            println!("{t}");
+        }
+        Command::Simulate { out, rows, seed } => {
+            if rows < 100 {
+                anyhow::bail!("--rows {rows}: need at least 100 rows per file");
+            }
+            let names = plumbline::simulate::write_all(&out, rows, seed)?;
+            for n in names {
+                println!("{}", out.join(n).display());
+            }
+        }
+    }
+    Ok(())
+}

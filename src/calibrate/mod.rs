@@ -14,9 +14,16 @@
 
 use serde::{Deserialize, Serialize};
 
+pub mod beta;
+pub mod binning;
+pub mod centered_isotonic;
 pub mod identity;
 pub mod isotonic;
+pub mod logistic;
 pub mod platt;
+pub mod temperature;
+pub mod spline;
+pub mod venn_abers;
 
 /// What a task's score column holds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -165,7 +172,64 @@ pub enum MethodSpec {
         target_smoothing: bool,
     },
     /// Isotonic regression by pool-adjacent-violators.
-    Isotonic {},
+    Isotonic {
+        /// Pseudo-rows at the base rate per block (0 = plain PAV; > 0 bounds the
+        /// outputs strictly inside (0, 1)).
+        #[serde(default)]
+        pseudo_count: f64,
+    },
+    /// Beta calibration (Kull, Silva Filho & Flach 2017).
+    Beta {
+        /// `full` (a, b, c) or `tied` (a = b).
+        #[serde(default)]
+        shape: beta::BetaShape,
+    },
+    /// Histogram binning with equal-mass bins (Zadrozny & Elkan 2001).
+    Binning {
+        /// Number of equal-mass bins (default 10).
+        #[serde(default = "default_bins")]
+        bins: usize,
+        /// Pseudo-rows at the base rate per bin (0 = raw bin frequencies).
+        #[serde(default)]
+        pseudo_count: f64,
+    },
+    /// Temperature scaling of the log-odds (Guo et al. 2017).
+    Temperature {},
+    /// Centered isotonic regression (Oron & Flournoy 2017).
+    CenteredIsotonic {
+        /// Pseudo-rows at the base rate per block (0 = plain CIR).
+        #[serde(default)]
+        pseudo_count: f64,
+    },
+    /// Penalized cubic-spline logistic calibration on the log-odds (P-spline).
+    Spline {
+        /// Number of equal knot intervals over the log-odds range.
+        #[serde(default = "spline::default_intervals")]
+        intervals: usize,
+        /// Fixed smoothing parameter λ > 0; when absent λ is chosen by `criterion`.
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        lambda: Option<f64>,
+        /// How λ is chosen on its grid (`aic`, the default, or `bic`).
+        #[serde(default, skip_serializing_if = "Option::is_none")]
+        criterion: Option<spline::Criterion>,
+    },
+    /// Inductive Venn–Abers predictor (isotonic fits with the test point added).
+    VennAbers {},
+}
+
+fn default_bins() -> usize {
+    binning::DEFAULT_BINS
+}
+
+fn check_pseudo_count(m: f64) -> Result<(), ParamError> {
+    if !(m.is_finite() && m >= 0.0) {
+        return Err(ParamError::new(
+            "pseudo_count",
+            m,
+            "must be a finite number >= 0 (0 = plain fit)",
+        ));
+    }
+    Ok(())
 }
 
 impl MethodSpec {
@@ -175,6 +239,12 @@ impl MethodSpec {
             MethodSpec::Identity => "identity",
             MethodSpec::Platt { .. } => "platt",
             MethodSpec::Isotonic { .. } => "isotonic",
+            MethodSpec::Beta { .. } => "beta",
+            MethodSpec::Binning { .. } => "binning",
+            MethodSpec::Temperature { .. } => "temperature",
+            MethodSpec::CenteredIsotonic { .. } => "centered-isotonic",
+            MethodSpec::Spline { .. } => "spline",
+            MethodSpec::VennAbers { .. } => "venn-abers",
         }
     }
 
@@ -192,7 +262,47 @@ impl MethodSpec {
                 Ok(())
             }
             MethodSpec::Platt { .. } => Ok(()),
-            MethodSpec::Isotonic { .. } => Ok(()),
+            MethodSpec::Isotonic { pseudo_count } => check_pseudo_count(*pseudo_count),
+            MethodSpec::Beta { .. } => Ok(()),
+            MethodSpec::Binning { bins, pseudo_count } => {
+                if *bins == 0 {
+                    return Err(ParamError::new("bins", bins, "must be at least 1"));
+                }
+                check_pseudo_count(*pseudo_count)
+            }
+            MethodSpec::Temperature { .. } => Ok(()),
+            MethodSpec::CenteredIsotonic { pseudo_count } => check_pseudo_count(*pseudo_count),
+            MethodSpec::Spline {
+                intervals,
+                lambda,
+                criterion,
+            } => {
+                if *intervals == 0 || *intervals > spline::MAX_INTERVALS {
+                    return Err(ParamError::new(
+                        "intervals",
+                        intervals,
+                        "the number of knot intervals must be between 1 and 200",
+                    ));
+                }
+                if let Some(l) = lambda {
+                    if !(l.is_finite() && *l > 0.0) {
+                        return Err(ParamError::new(
+                            "lambda",
+                            l,
+                            "the smoothing parameter must be a finite number above 0",
+                        ));
+                    }
+                    if criterion.is_some() {
+                        return Err(ParamError::new(
+                            "criterion",
+                            criterion.unwrap().as_str(),
+                            "give either a fixed lambda or a criterion to choose it, not both",
+                        ));
+                    }
+                }
+                Ok(())
+            }
+            MethodSpec::VennAbers { .. } => Ok(()),
         }
     }
 
@@ -204,7 +314,34 @@ impl MethodSpec {
             MethodSpec::Platt { target_smoothing } => Box::new(platt::Platt {
                 target_smoothing: *target_smoothing,
             }),
-            MethodSpec::Isotonic {} => Box::new(isotonic::Isotonic {}),
+            MethodSpec::Isotonic { pseudo_count } => Box::new(isotonic::Isotonic {
+                pseudo_count: *pseudo_count,
+            }),
+            MethodSpec::Beta { shape } => Box::new(beta::Beta {
+                shape: *shape,
+                score_kind,
+            }),
+            MethodSpec::Binning { bins, pseudo_count } => Box::new(binning::Binning {
+                bins: *bins,
+                pseudo_count: *pseudo_count,
+            }),
+            MethodSpec::Temperature {} => Box::new(temperature::Temperature { score_kind }),
+            MethodSpec::CenteredIsotonic { pseudo_count } => {
+                Box::new(centered_isotonic::CenteredIsotonic {
+                    pseudo_count: *pseudo_count,
+                })
+            }
+            MethodSpec::Spline {
+                intervals,
+                lambda,
+                criterion,
+            } => Box::new(spline::Spline {
+                score_kind,
+                intervals: *intervals,
+                lambda: *lambda,
+                criterion: criterion.unwrap_or_default(),
+            }),
+            MethodSpec::VennAbers {} => Box::new(venn_abers::VennAbers {}),
         })
     }
 }
@@ -234,5 +371,46 @@ mod spec_tests {
             .unwrap();
         assert!(e.to_string().contains("smoothing"), "{e}");
         assert!(toml::from_str::<W>("m = { kind = \"platypus\" }").is_err());
+    }
+
+    #[test]
+    fn method_specs_parse_with_defaults_and_validate() {
+        let parse = |s: &str| toml::from_str::<W>(s).map(|w| w.m);
+        assert_eq!(
+            parse("m = { kind = \"isotonic\" }").unwrap(),
+            MethodSpec::Isotonic { pseudo_count: 0.0 }
+        );
+        assert_eq!(
+            parse("m = { kind = \"beta\" }").unwrap(),
+            MethodSpec::Beta {
+                shape: beta::BetaShape::Full
+            }
+        );
+        assert_eq!(
+            parse("m = { kind = \"beta\", shape = \"tied\" }").unwrap(),
+            MethodSpec::Beta {
+                shape: beta::BetaShape::Tied
+            }
+        );
+        assert!(parse("m = { kind = \"beta\", shape = \"three\" }").is_err());
+        assert_eq!(
+            parse("m = { kind = \"binning\" }").unwrap(),
+            MethodSpec::Binning {
+                bins: 10,
+                pseudo_count: 0.0
+            }
+        );
+        let b = parse("m = { kind = \"binning\", bins = 0 }").unwrap();
+        let e = b.validate(ScoreKind::Probability).err().unwrap();
+        assert_eq!(e.key, "bins");
+        let c = parse("m = { kind = \"centered-isotonic\", pseudo_count = -1.0 }").unwrap();
+        assert_eq!(
+            c.validate(ScoreKind::Margin).err().unwrap().key,
+            "pseudo_count"
+        );
+        let t = parse("m = { kind = \"temperature\" }").unwrap();
+        assert_eq!(t.build(ScoreKind::Margin).unwrap().kind(), "temperature");
+        assert!(parse("m = { kind = \"temperature\", t = 1.0 }").is_err());
+        assert_eq!((b.kind(), c.kind()), ("binning", "centered-isotonic"));
     }
 }

@@ -6,7 +6,7 @@
 //! We minimise Σ_i [softplus(z_i) − t_i z_i] with z_i = a·s_i + b, computed in the
 //! overflow-free form softplus(z) = max(z, 0) + ln(1 + e^(−|z|)), by Newton's method
 //! with a backtracking (Armijo) line search and a tiny ridge (1e-12) on the
-//! Hessian diagonal, as in Lin, Lin & Weng (2007, Machine Learning 68, "A note on
+//! Hessian diagonal (the shared fitter in `logistic.rs`), as in Lin, Lin & Weng (2007, Machine Learning 68, "A note on
 //! Platt's probabilistic outputs for support vector machines"). Scores are
 //! centred and scaled internally for conditioning; the reported (a, b) are on the
 //! raw score scale.
@@ -23,6 +23,7 @@
 //! status, so the comparison keeps the unit and the report can count how often
 //! it happened.
 
+use super::logistic::fit_logistic;
 use super::{check_sample, sigmoid, Calibrator, FitError, Fitted, FittedMap};
 
 pub struct Platt {
@@ -35,10 +36,6 @@ pub struct LogisticFit {
     pub a: f64,
     pub b: f64,
     pub iterations: usize,
-}
-
-fn softplus(z: f64) -> f64 {
-    z.max(0.0) + (-z.abs()).exp().ln_1p()
 }
 
 /// True when a threshold on the score separates the classes (ties allowed at the
@@ -61,83 +58,17 @@ pub fn is_separable(x: &[f64], y: &[bool]) -> bool {
 }
 
 /// Maximum-likelihood fit of σ(a·x + b) to targets `t` in [0, 1] (Newton with
-/// backtracking on the stable objective). Fails only when `x` is constant.
+/// backtracking on the stable objective; the one-feature case of
+/// [`fit_logistic`]). Fails only when `x` is constant or not finite.
 pub fn fit_logistic_1d(x: &[f64], t: &[f64]) -> Result<LogisticFit, FitError> {
-    let n = x.len() as f64;
-    let mean = x.iter().sum::<f64>() / n;
-    let var = x.iter().map(|v| (v - mean) * (v - mean)).sum::<f64>() / n;
-    let sd = var.sqrt();
-    let scale = if sd > 0.0 && sd.is_finite() { sd } else { 1.0 };
-    let u: Vec<f64> = x.iter().map(|v| (v - mean) / scale).collect();
-    let objective = |a: f64, b: f64| -> f64 {
-        u.iter()
-            .zip(t)
-            .map(|(&ui, &ti)| {
-                let z = a * ui + b;
-                softplus(z) - ti * z
-            })
-            .sum()
-    };
-    // Start at the intercept-only optimum.
-    let tbar = (t.iter().sum::<f64>() / n).clamp(1e-12, 1.0 - 1e-12);
-    let (mut a, mut b) = (0.0, (tbar / (1.0 - tbar)).ln());
-    let mut f = objective(a, b);
-    let mut iterations = 0;
-    for it in 0..200 {
-        iterations = it + 1;
-        let (mut g1, mut g2, mut h11, mut h12, mut h22) = (0.0, 0.0, 1e-12, 0.0, 1e-12);
-        for (&ui, &ti) in u.iter().zip(t) {
-            let p = sigmoid(a * ui + b);
-            let r = p - ti;
-            let w = p * (1.0 - p);
-            g1 += r * ui;
-            g2 += r;
-            h11 += w * ui * ui;
-            h12 += w * ui;
-            h22 += w;
-        }
-        if g1.abs() < 1e-11 * n && g2.abs() < 1e-11 * n {
-            break;
-        }
-        let det = h11 * h22 - h12 * h12;
-        if !(det > 0.0) {
-            return Err(FitError::Failed(
-                "Platt: singular Hessian (constant scores?)".into(),
-            ));
-        }
-        let da = -(h22 * g1 - h12 * g2) / det;
-        let db = -(-h12 * g1 + h11 * g2) / det;
-        let gd = g1 * da + g2 * db;
-        let mut step = 1.0;
-        let mut accepted = false;
-        while step >= 1e-10 {
-            let (na, nb) = (a + step * da, b + step * db);
-            let nf = objective(na, nb);
-            if nf <= f + 1e-4 * step * gd {
-                a = na;
-                b = nb;
-                f = nf;
-                accepted = true;
-                break;
-            }
-            step /= 2.0;
-        }
-        if !accepted {
-            break; // no further decrease possible at machine precision
-        }
-    }
-    // Back to the raw scale: a·(x − mean)/scale + b.
-    let a_raw = a / scale;
-    let b_raw = b - a * mean / scale;
-    if !(a_raw.is_finite() && b_raw.is_finite()) {
-        return Err(FitError::Failed(
-            "Platt: the fit did not converge to finite values".into(),
-        ));
-    }
+    let m = fit_logistic(&[x], t).map_err(|e| match e {
+        FitError::Failed(msg) => FitError::Failed(format!("Platt: {msg}")),
+        other => other,
+    })?;
     Ok(LogisticFit {
-        a: a_raw,
-        b: b_raw,
-        iterations,
+        a: m.coef[0],
+        b: m.intercept,
+        iterations: m.iterations,
     })
 }
 

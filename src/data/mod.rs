@@ -1,6 +1,10 @@
 //! Data sources: a task's rows come from a user's score file or from an open
 //! dataset shipped in `data-open/` that a base model turns into scores.
 
+pub mod open;
+pub mod scorefile;
+pub mod twonorm;
+
 /// A feature table for base models: column-major, with per-column kind.
 #[derive(Debug, Clone)]
 pub struct Dataset {

@@ -14,6 +14,7 @@ pub mod scoring;
 
 /// Settings shared by metrics.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
 pub struct MetricSettings {
     /// Probabilities are clipped to [clip, 1 − clip] before the log loss.
     pub log_loss_clip: f64,

@@ -1,0 +1,397 @@
+//! The commands, as library functions the binary calls (and tests can too):
+//! `check`, `run`, `report`, `simulate`.
+
+use std::path::{Path, PathBuf};
+use std::time::{SystemTime, UNIX_EPOCH};
+
+use anyhow::{bail, Context, Result};
+use sha2::{Digest, Sha256};
+
+use crate::analysis::{self, AnalysisSettings};
+use crate::report::{self, summary};
+use crate::run::{self, journal::Journal, output, table::UnitTable, RunOptions};
+use crate::suite::{self, hex, Plan, TaskSource};
+
+/// The suite `plumbline run` uses when none is given.
+pub const DEFAULT_SUITE: &str = "suites/courier-demo.toml";
+
+/// A resolved plan as text (what `plumbline check` prints).
+pub fn describe_plan(plan: &Plan) -> String {
+    let mut s = String::new();
+    s.push_str(&format!(
+        "suite `{}` ({})\n",
+        plan.name,
+        plan.suite_file.display()
+    ));
+    s.push_str(&format!(
+        "  seed {} · {} repeats · confidence {} · interval {} · reference `{}` · primary metric `{}`\n",
+        plan.seed, plan.repeats, plan.confidence, plan.interval, plan.reference, plan.primary.as_str()
+    ));
+    s.push_str(&format!(
+        "  metrics: {} · log-loss clip {}\n",
+        plan.metrics
+            .iter()
+            .map(|m| m.as_str())
+            .collect::<Vec<_>>()
+            .join(", "),
+        plan.metric_settings.log_loss_clip
+    ));
+    s.push_str(&format!(
+        "  methods: {}\n",
+        plan.methods
+            .iter()
+            .map(|m| format!("{} ({})", m.id, m.spec.kind()))
+            .collect::<Vec<_>>()
+            .join(", ")
+    ));
+    s.push_str("  tasks:\n");
+    for t in &plan.tasks {
+        let (src, pinned) = match &t.source {
+            TaskSource::ScoreFile(f) => (
+                format!("score file {}", f.path.display()),
+                if f.split_column.is_some() { " (pinned by the file)" } else { "" },
+            ),
+            TaskSource::Open { data, model_id, model, protocol, .. } => (
+                format!("open data `{data}` · model `{model_id}` ({}) · protocol {}", model.kind(), protocol.kind()),
+                if matches!(protocol, crate::models::protocol::Protocol::CrossFitted { .. }) {
+                    " (out-of-fold reservoir)"
+                } else {
+                    ""
+                },
+            ),
+        };
+        s.push_str(&format!(
+            "    {:<24} {} rows ({:.1}% positive), {} scores · reservoir {} · test {}{} · {}\n",
+            t.id,
+            t.rows,
+            100.0 * t.positives as f64 / t.rows.max(1) as f64,
+            t.score_kind.as_str(),
+            t.reservoir_rows,
+            t.test_rows,
+            pinned,
+            src
+        ));
+        s.push_str(&format!(
+            "      sizes {}{}\n",
+            t.sizes
+                .iter()
+                .map(|x| x.to_string())
+                .collect::<Vec<_>>()
+                .join(", "),
+            if t.skipped_sizes.is_empty() {
+                String::new()
+            } else {
+                format!(
+                    " (skipped, larger than the reservoir: {})",
+                    t.skipped_sizes
+                        .iter()
+                        .map(|x| x.to_string())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )
+            }
+        ));
+    }
+    s.push_str(&format!(
+        "  {} units × {} methods = {} fits\n",
+        plan.unit_count(),
+        plan.methods.len(),
+        plan.fit_count()
+    ));
+    s
+}
+
+/// Load and validate a suite.
+pub fn load_plan(path: &Path) -> Result<Plan> {
+    Ok(suite::load(path)?)
+}
+
+/// Options of `plumbline run`.
+#[derive(Debug, Clone, Default)]
+pub struct RunArgs {
+    pub suite: PathBuf,
+    pub out: Option<PathBuf>,
+    pub threads: Option<usize>,
+    pub quiet: bool,
+    pub force: bool,
+}
+
+fn now_rfc3339() -> String {
+    let secs = SystemTime::now()
+        .duration_since(UNIX_EPOCH)
+        .map(|d| d.as_secs())
+        .unwrap_or(0) as i64;
+    let days = secs.div_euclid(86_400);
+    let rem = secs.rem_euclid(86_400);
+    // Civil date from days since 1970-01-01 (Hinnant's algorithm).
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let y = yoe + era * 400;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = if m <= 2 { y + 1 } else { y };
+    format!(
+        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
+        rem / 3600,
+        (rem % 3600) / 60,
+        rem % 60
+    )
+}
+
+/// A fingerprint of everything that determines the units: a journal written
+/// under another fingerprint is not resumed.
+pub fn fingerprint(plan: &Plan) -> String {
+    let mut h = Sha256::new();
+    h.update(env!("CARGO_PKG_VERSION").as_bytes());
+    h.update(plan.suite_sha256.as_bytes());
+    for t in &plan.tasks {
+        h.update(t.id.as_bytes());
+        h.update(t.data_sha256.as_bytes());
+    }
+    hex(&h.finalize())
+}
+
+pub fn settings_of(plan: &Plan) -> AnalysisSettings {
+    AnalysisSettings {
+        reference: plan.reference.clone(),
+        primary_metric: plan.primary.as_str().to_string(),
+        confidence: plan.confidence,
+        interval: plan.interval.clone(),
+    }
+}
+
+/// Portable form of a path for reports: forward slashes, as given.
+fn shown(p: &Path) -> String {
+    p.display().to_string().replace('\\', "/")
+}
+
+/// What a finished run leaves behind, for the caller to print.
+pub struct RunSummary {
+    pub out: PathBuf,
+    pub terminal: String,
+    pub units: usize,
+    pub resumed: usize,
+    pub threads: usize,
+    pub warnings: Vec<String>,
+    pub seconds: f64,
+}
+
+/// `plumbline run`.
+pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
+    let t0 = std::time::Instant::now();
+    let started = now_rfc3339();
+    let mut plan = load_plan(&args.suite)?;
+    let out = args
+        .out
+        .clone()
+        .unwrap_or_else(|| PathBuf::from("results").join(&plan.name));
+    if out.exists() && !args.force {
+        return Err(output::OutputError::Exists(out.display().to_string()).into());
+    }
+    let cache = out
+        .parent()
+        .map(|p| p.join(".cache").join("pools"))
+        .unwrap_or_else(|| PathBuf::from(".cache/pools"));
+    let pool_reports = run::pools::resolve(&mut plan, Some(&cache), args.threads, args.quiet)
+        .map_err(anyhow::Error::msg)?;
+    let staging = output::prepare(&out, args.force)?;
+    let fp = fingerprint(&plan);
+    let (journal, done) = Journal::open(&staging, &fp).map_err(anyhow::Error::msg)?;
+    if !done.is_empty() && !args.quiet {
+        eprintln!(
+            "resuming: {} of {} units already finished in {}",
+            done.len(),
+            plan.unit_count(),
+            staging.display()
+        );
+    }
+    let opts = RunOptions {
+        threads: args.threads,
+        quiet: args.quiet,
+    };
+    let result = run::run(&plan, &opts, done, &|u| journal.append(u))?;
+    drop(journal);
+
+    let settings = settings_of(&plan);
+    let a = analysis::analyse(&result.table, &settings);
+    let ctx = summary::ReportContext {
+        suite_name: plan.name.clone(),
+        suite_file: shown(&args.suite),
+        suite_sha256: plan.suite_sha256.clone(),
+        seed: Some(plan.seed),
+        settings: settings.clone(),
+        warnings: result.warnings.clone(),
+    };
+    let mut units = Vec::new();
+    result.table.write_csv(&mut units)?;
+    output::write_file(&staging, "units.csv", &units)?;
+    output::write_file(
+        &staging,
+        "timings.csv",
+        timings_csv(&result.timings).as_bytes(),
+    )?;
+    for (name, bytes) in report::publish(&a, &ctx) {
+        output::write_file(&staging, &name, &bytes)?;
+    }
+    let manifest = serde_json::json!({
+        "tool": "plumbline",
+        "version": env!("CARGO_PKG_VERSION"),
+        "git_commit": option_env!("PLUMBLINE_GIT_COMMIT"),
+        "suite": {
+            "file": shown(&args.suite),
+            "name": plan.name,
+            "sha256": plan.suite_sha256,
+            "seed": plan.seed,
+            "repeats": plan.repeats,
+        },
+        "analysis": settings,
+        "tasks": plan.tasks.iter().map(|t| serde_json::json!({
+            "id": t.id,
+            "data_sha256": t.data_sha256,
+            "task_seed": crate::split::task_seed(plan.seed, &t.id),
+            "rows": t.rows,
+            "reservoir": t.reservoir.len(),
+            "test_rows": t.test.len(),
+            "sizes": t.sizes,
+            "skipped_sizes": t.skipped_sizes,
+        })).collect::<Vec<_>>(),
+        "seed_rule": "unit seed = mix(suite seed, task id, size, repeat), SplitMix64 folding into ChaCha8",
+        "score_pools": pool_reports,
+        "units": plan.unit_count(),
+        "resumed_units": result.resumed_units,
+        "threads": result.threads,
+        "started": started,
+        "finished": now_rfc3339(),
+        "wall_seconds": t0.elapsed().as_secs_f64(),
+    });
+    output::write_file(
+        &staging,
+        "manifest.json",
+        serde_json::to_string_pretty(&manifest)?.as_bytes(),
+    )?;
+    output::commit(&staging, &out)?;
+    Ok(RunSummary {
+        terminal: summary::terminal(&a, &settings),
+        out,
+        units: plan.unit_count(),
+        resumed: result.resumed_units,
+        threads: result.threads,
+        warnings: result.warnings,
+        seconds: t0.elapsed().as_secs_f64(),
+    })
+}
+
+fn timings_csv(t: &[run::Timing]) -> String {
+    let mut s = String::from("task,size,repeat,method,fit_ms\n");
+    for x in t {
+        s.push_str(&format!(
+            "{},{},{},{},{:.4}\n",
+            x.task, x.size, x.repeat, x.method, x.fit_ms
+        ));
+    }
+    s
+}
+
+/// Overrides for `plumbline report`.
+#[derive(Debug, Clone, Default)]
+pub struct ReportArgs {
+    pub dir: PathBuf,
+    pub reference: Option<String>,
+    pub primary_metric: Option<String>,
+    pub confidence: Option<f64>,
+}
+
+/// `plumbline report`: rebuild every table from `units.csv` (settings from
+/// `manifest.json` when present, else from the flags).
+pub fn report_dir(args: &ReportArgs) -> Result<String> {
+    let units_path = args.dir.join("units.csv");
+    let f = std::fs::File::open(&units_path)
+        .with_context(|| format!("cannot open {}", units_path.display()))?;
+    let table =
+        UnitTable::read_csv(f).with_context(|| format!("reading {}", units_path.display()))?;
+    let manifest_path = args.dir.join("manifest.json");
+    let manifest: Option<serde_json::Value> = std::fs::read(&manifest_path)
+        .ok()
+        .and_then(|b| serde_json::from_slice(&b).ok());
+    let from_manifest: Option<AnalysisSettings> = manifest
+        .as_ref()
+        .and_then(|m| m.get("analysis"))
+        .and_then(|a| serde_json::from_value(a.clone()).ok());
+    let reference = args
+        .reference
+        .clone()
+        .or(from_manifest.as_ref().map(|s| s.reference.clone()));
+    let Some(reference) = reference else {
+        bail!(
+            "{} has no manifest.json with the reference method: pass --reference",
+            args.dir.display()
+        )
+    };
+    if !table.rows.iter().any(|r| r.method == reference) {
+        bail!(
+            "--reference `{reference}`: no such method in {}",
+            units_path.display()
+        );
+    }
+    let primary = args
+        .primary_metric
+        .clone()
+        .or(from_manifest.as_ref().map(|s| s.primary_metric.clone()))
+        .or(table.metric_names.first().cloned())
+        .unwrap_or_default();
+    if table.metric_index(&primary).is_none() {
+        bail!(
+            "--primary-metric `{primary}`: {} has columns {}",
+            units_path.display(),
+            table.metric_names.join(", ")
+        );
+    }
+    let confidence = args
+        .confidence
+        .or(from_manifest.as_ref().map(|s| s.confidence))
+        .unwrap_or(suite::DEFAULT_CONFIDENCE);
+    if !(confidence > 0.5 && confidence < 1.0) {
+        bail!("--confidence {confidence}: expected a level between 0.5 and 1");
+    }
+    let settings = AnalysisSettings {
+        reference,
+        primary_metric: primary,
+        confidence,
+        interval: from_manifest
+            .as_ref()
+            .map(|s| s.interval.clone())
+            .unwrap_or_else(|| "paired-t".into()),
+    };
+    let a = analysis::analyse(&table, &settings);
+    let suite_info = manifest.as_ref().and_then(|m| m.get("suite"));
+    let ctx = summary::ReportContext {
+        suite_name: suite_info
+            .and_then(|s| s.get("name"))
+            .and_then(|v| v.as_str())
+            .unwrap_or("(unknown suite)")
+            .to_string(),
+        suite_file: suite_info
+            .and_then(|s| s.get("file"))
+            .and_then(|v| v.as_str())
+            .unwrap_or("(unknown)")
+            .to_string(),
+        suite_sha256: suite_info
+            .and_then(|s| s.get("sha256"))
+            .and_then(|v| v.as_str())
+            .unwrap_or("(unknown)")
+            .to_string(),
+        seed: suite_info
+            .and_then(|s| s.get("seed"))
+            .and_then(|v| v.as_u64()),
+        settings: settings.clone(),
+        warnings: Vec::new(),
+    };
+    for (name, bytes) in report::publish(&a, &ctx) {
+        output::write_file(&args.dir, &name, &bytes)?;
+    }
+    Ok(summary::terminal(&a, &settings))
+}

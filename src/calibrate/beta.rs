@@ -1,0 +1,391 @@
+//! Beta calibration (Kull, Silva Filho & Flach 2017, AISTATS, "Beta calibration:
+//! a well-founded and easily implemented improvement on logistic calibration for
+//! binary classifiers").
+//!
+//! Math: for a score s ∈ (0, 1) the full (three-parameter) map is
+//! logit p(s) = a·ln s − b·ln(1 − s) + c, the log-likelihood ratio of two beta
+//! densities. It is fitted by unregularised maximum-likelihood logistic
+//! regression on the two features x₁ = ln s and x₂ = −ln(1 − s) (see
+//! `logistic.rs`). The map is monotone non-decreasing in s when a, b ≥ 0; as in
+//! the paper, when a fitted a (or b) is negative the model is refitted with that
+//! feature removed (a = 0 or b = 0), and when the remaining coefficient is also
+//! negative (or both were negative) the map falls back to the constant base rate
+//! of the calibration sample. A refit is noted `refit` in the unit's status.
+//!
+//! The tied (two-parameter) form a = b is logit p = a·logit(s) + c, i.e. logistic
+//! calibration of the log-odds (the paper's comparison baseline); a negative a
+//! also falls back to the constant base rate (`refit`).
+//!
+//! Scores: probabilities are clipped to [ε, 1 − ε] with ε = `LOGIT_EPS` = 1e-12
+//! before the logarithms, so scores of exactly 0 or 1 give finite features
+//! (|x| ≤ 27.7). For margin tasks the score is read as s = σ(m) and the features
+//! are computed without clipping in the stable forms x₁ = ln σ(m) = −softplus(−m)
+//! and x₂ = −ln(1 − σ(m)) = softplus(m); then x₁ + x₂ = m, so the tied form is
+//! exactly Platt scaling of the margin.
+//!
+//! Separation: (x₁, x₂) lie on a strictly convex curve (dx₂/dx₁ = s/(1 − s)
+//! increases with s), so a line in the feature plane meets it at most twice. The
+//! unregularised likelihood has no maximum (Albert & Anderson 1984, Biometrika
+//! 71) exactly when some line puts all positives on one closed side and all
+//! negatives on the other: along the sorted scores, the classes form at most
+//! three runs A | B | A, with rows of both classes allowed only at the (at most
+//! two) tied scores where the line meets the curve. For one feature (the tied form
+//! or a refit) the condition is the usual threshold separation. When detected, the
+//! fit uses Platt's smoothed targets t₊ = (N₊ + 1)/(N₊ + 2), t₋ = 1/(N₋ + 2)
+//! (finite optimum) and notes `separable`, as Platt scaling does here. The note
+//! is kept when separation is found at any stage, even if the final map is a
+//! refit that needed no smoothing.
+
+use super::isotonic::merge_ties;
+use super::logistic::{fit_logistic, softplus};
+use super::platt::smoothed_targets;
+use super::{
+    check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, ScoreKind, LOGIT_EPS,
+};
+use serde::{Deserialize, Serialize};
+
+/// Which beta-calibration family to fit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum BetaShape {
+    /// a, b and c free (three parameters).
+    #[default]
+    Full,
+    /// a = b (two parameters): logistic calibration of the log-odds.
+    Tied,
+}
+
+impl BetaShape {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            BetaShape::Full => "full",
+            BetaShape::Tied => "tied",
+        }
+    }
+}
+
+pub struct Beta {
+    pub shape: BetaShape,
+    pub score_kind: ScoreKind,
+}
+
+/// The two features (ln s, −ln(1 − s)) of a score.
+pub fn beta_features(score: f64, kind: ScoreKind) -> (f64, f64) {
+    match kind {
+        ScoreKind::Probability => {
+            let s = score.clamp(LOGIT_EPS, 1.0 - LOGIT_EPS);
+            (s.ln(), -(-s).ln_1p())
+        }
+        ScoreKind::Margin => (-softplus(-score), softplus(score)),
+    }
+}
+
+/// Class of a tied group of rows: 1 all positive, −1 all negative, 0 mixed.
+fn group_class(weight: f64, positives: f64) -> i8 {
+    if positives == 0.0 {
+        -1
+    } else if positives == weight {
+        1
+    } else {
+        0
+    }
+}
+
+/// Quasi-separation along the sorted scores with at most `cuts` crossings: the
+/// classes form runs A | B (| A), and mixed tie groups may sit only at a crossing.
+/// `classes` are the group classes in score order.
+pub fn separable_with_cuts(classes: &[i8], cuts: usize) -> bool {
+    'outer: for a in [1i8, -1] {
+        // region 0: class a; 1: class −a; 2: class a again.
+        let mut region = 0usize;
+        for &c in classes {
+            let want = if region % 2 == 0 { a } else { -a };
+            if c == want {
+                continue;
+            }
+            // A mixed group is a crossing point; a group of the other class
+            // starts the next region after a crossing between groups.
+            region += 1;
+            if region > cuts {
+                continue 'outer;
+            }
+            if c == 0 {
+                continue;
+            }
+            let want = if region % 2 == 0 { a } else { -a };
+            debug_assert_eq!(c, want);
+        }
+        return true;
+    }
+    false
+}
+
+/// A fitted beta map: logit p = a·x₁ + b·x₂ + c.
+pub struct BetaMap {
+    pub a: f64,
+    pub b: f64,
+    pub c: f64,
+    pub shape: BetaShape,
+    pub score_kind: ScoreKind,
+    pub smoothed: bool,
+}
+
+impl FittedMap for BetaMap {
+    fn predict(&self, scores: &[f64], out: &mut [f64]) {
+        for (o, &s) in out.iter_mut().zip(scores) {
+            let z = match self.shape {
+                BetaShape::Tied => self.a * log_odds(s, self.score_kind) + self.c,
+                BetaShape::Full => {
+                    let (x1, x2) = beta_features(s, self.score_kind);
+                    self.a * x1 + self.b * x2 + self.c
+                }
+            };
+            *o = sigmoid(z);
+        }
+    }
+    fn describe(&self) -> serde_json::Value {
+        serde_json::json!({
+            "kind": "beta",
+            "shape": self.shape.as_str(),
+            "a": self.a,
+            "b": self.b,
+            "c": self.c,
+            "smoothed_targets": self.smoothed,
+        })
+    }
+}
+
+fn targets(labels: &[bool], smoothed: bool) -> Vec<f64> {
+    if smoothed {
+        smoothed_targets(labels)
+    } else {
+        labels.iter().map(|&l| if l { 1.0 } else { 0.0 }).collect()
+    }
+}
+
+/// (slope, intercept, smoothed targets used) of a one-feature fit.
+type OneFit = (f64, f64, bool);
+
+/// Fit a one-feature logistic model with the separation rule; returns
+/// (slope, intercept, smoothed), or `None` when the slope is negative, and
+/// whether the sample was separable for this model.
+fn fit_one(x: &[f64], labels: &[bool], classes: &[i8]) -> Result<(Option<OneFit>, bool), FitError> {
+    let sep = separable_with_cuts(classes, 1);
+    let m = fit_logistic(&[x], &targets(labels, sep))?;
+    if m.coef[0] < 0.0 {
+        return Ok((None, sep));
+    }
+    Ok((Some((m.coef[0], m.intercept, sep)), sep))
+}
+
+fn base_rate_intercept(labels: &[bool]) -> f64 {
+    let pos = labels.iter().filter(|&&l| l).count() as f64;
+    let neg = labels.len() as f64 - pos;
+    (pos / neg).ln()
+}
+
+impl Calibrator for Beta {
+    fn kind(&self) -> &'static str {
+        "beta"
+    }
+    fn fit(&self, scores: &[f64], labels: &[bool]) -> Result<Fitted, FitError> {
+        check_sample(scores, labels)?;
+        if scores.iter().any(|s| !s.is_finite()) {
+            return Err(FitError::Failed("beta: non-finite score".into()));
+        }
+        // Classes of tied groups in the order of the transformed scores (both
+        // features are increasing in the score, and the clip only merges ties).
+        let keyed: Vec<f64> = match self.score_kind {
+            ScoreKind::Probability => scores
+                .iter()
+                .map(|s| s.clamp(LOGIT_EPS, 1.0 - LOGIT_EPS))
+                .collect(),
+            ScoreKind::Margin => scores.to_vec(),
+        };
+        let groups = merge_ties(&keyed, labels);
+        let classes: Vec<i8> = groups.iter().map(|g| group_class(g.1, g.2)).collect();
+        let mut notes = Vec::new();
+        // Separation seen at any stage (the full fit or a refit).
+        let mut separation_seen: bool;
+        let (a, b, c, smoothed) = match self.shape {
+            BetaShape::Tied => {
+                if groups.len() < 2 {
+                    return Err(FitError::Failed(
+                        "beta (tied): needs at least 2 distinct scores".into(),
+                    ));
+                }
+                let z: Vec<f64> = scores
+                    .iter()
+                    .map(|&s| log_odds(s, self.score_kind))
+                    .collect();
+                let (fitted, sep) = fit_one(&z, labels, &classes)?;
+                separation_seen = sep;
+                match fitted {
+                    Some((a, c, sm)) => (a, a, c, sm),
+                    None => {
+                        notes.push("refit");
+                        (0.0, 0.0, base_rate_intercept(labels), false)
+                    }
+                }
+            }
+            BetaShape::Full => {
+                if groups.len() < 3 {
+                    return Err(FitError::Failed(
+                        "beta (full): needs at least 3 distinct scores".into(),
+                    ));
+                }
+                let (x1, x2): (Vec<f64>, Vec<f64>) = scores
+                    .iter()
+                    .map(|&s| beta_features(s, self.score_kind))
+                    .unzip();
+                let sep = separable_with_cuts(&classes, 2);
+                separation_seen = sep;
+                let m = fit_logistic(&[&x1, &x2], &targets(labels, sep))?;
+                let (fa, fb) = (m.coef[0], m.coef[1]);
+                if fa >= 0.0 && fb >= 0.0 {
+                    (fa, fb, m.intercept, sep)
+                } else {
+                    notes.push("refit");
+                    let reduced = if fa < 0.0 && fb < 0.0 {
+                        None
+                    } else {
+                        let x = if fa < 0.0 { &x2 } else { &x1 };
+                        let (fitted, sep1) = fit_one(x, labels, &classes)?;
+                        separation_seen |= sep1;
+                        fitted.map(|(s, c, sm)| {
+                            if fa < 0.0 {
+                                (0.0, s, c, sm)
+                            } else {
+                                (s, 0.0, c, sm)
+                            }
+                        })
+                    };
+                    reduced.unwrap_or((0.0, 0.0, base_rate_intercept(labels), false))
+                }
+            }
+        };
+        if smoothed || separation_seen {
+            notes.insert(0, "separable");
+        }
+        Ok(Fitted {
+            map: Box::new(BetaMap {
+                a,
+                b,
+                c,
+                shape: self.shape,
+                score_kind: self.score_kind,
+                smoothed,
+            }),
+            notes,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Derived by hand from the geometry above: threshold and interval patterns
+    /// are separable by a line on the convex feature curve, A|B|A|B is not.
+    #[test]
+    fn separation_patterns() {
+        assert!(separable_with_cuts(&[-1, -1, 1, 1], 1));
+        assert!(separable_with_cuts(&[1, 1, -1], 1));
+        assert!(separable_with_cuts(&[-1, 0, 1], 1));
+        assert!(!separable_with_cuts(&[-1, 1, -1], 1));
+        assert!(separable_with_cuts(&[-1, 1, -1], 2));
+        assert!(separable_with_cuts(&[-1, 0, 1, 0, -1], 2));
+        assert!(!separable_with_cuts(&[-1, 1, -1, 1], 2));
+        assert!(!separable_with_cuts(&[-1, 0, 0, 0, 1], 2));
+        assert!(!separable_with_cuts(&[0, 0, 0], 2));
+        assert!(separable_with_cuts(&[0, 0], 2));
+    }
+
+    fn fit(shape: BetaShape, s: &[f64], y: &[bool]) -> Fitted {
+        Beta {
+            shape,
+            score_kind: ScoreKind::Probability,
+        }
+        .fit(s, y)
+        .unwrap()
+    }
+
+    #[test]
+    fn separable_sample_is_noted_and_finite() {
+        let s = [0.1, 0.2, 0.3, 0.6, 0.7, 0.8];
+        let y = [false, false, false, true, true, true];
+        for shape in [BetaShape::Full, BetaShape::Tied] {
+            let f = fit(shape, &s, &y);
+            assert_eq!(f.notes[0], "separable");
+            let mut out = [0.0; 2];
+            f.map.predict(&[0.1, 0.8], &mut out);
+            assert!(out[0] > 0.0 && out[0] < 0.5 && out[1] > 0.5 && out[1] < 1.0);
+        }
+    }
+
+    /// Positives only in the middle: separable for the full model by a line that
+    /// crosses the curve twice, and the best finite fit bends down (a or b < 0),
+    /// which forces a monotone refit.
+    #[test]
+    fn interval_separation_is_detected_and_refit() {
+        let s = [0.05, 0.1, 0.4, 0.5, 0.6, 0.9, 0.95];
+        let y = [false, false, true, true, true, false, false];
+        let f = fit(BetaShape::Full, &s, &y);
+        assert!(f.notes.contains(&"separable"), "{:?}", f.notes);
+        assert!(f.notes.contains(&"refit"), "{:?}", f.notes);
+        let d = f.map.describe();
+        assert!(d["a"].as_f64().unwrap() >= 0.0 && d["b"].as_f64().unwrap() >= 0.0);
+    }
+
+    /// Labels drawn with P(y = 1) = 1 − s: the true map is logit p = −ln s +
+    /// ln(1 − s), so both a and b come out negative and the monotone fit is the
+    /// constant base rate (derived from the model family).
+    #[test]
+    fn decreasing_relation_falls_back_to_base_rate() {
+        use crate::split::splitmix64;
+        let unit = |h: u64| ((h >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
+        let n = 2000u64;
+        let s: Vec<f64> = (0..n).map(|i| unit(splitmix64(2 * i))).collect();
+        let y: Vec<bool> = (0..n)
+            .map(|i| unit(splitmix64(2 * i + 1)) < 1.0 - s[i as usize])
+            .collect();
+        let f = fit(BetaShape::Full, &s, &y);
+        assert_eq!(f.notes, vec!["refit"]);
+        let rate = y.iter().filter(|&&l| l).count() as f64 / n as f64;
+        let mut out = [0.0; 3];
+        f.map.predict(&[0.01, 0.5, 0.99], &mut out);
+        for p in out {
+            assert!((p - rate).abs() < 1e-12, "{p} vs {rate}");
+        }
+        let t = fit(BetaShape::Tied, &s, &y);
+        assert_eq!(t.notes, vec!["refit"]);
+    }
+
+    #[test]
+    fn too_few_distinct_scores_is_an_error() {
+        let r = Beta {
+            shape: BetaShape::Full,
+            score_kind: ScoreKind::Probability,
+        }
+        .fit(&[0.2, 0.2, 0.7, 0.7], &[true, false, true, false]);
+        assert!(matches!(r, Err(FitError::Failed(_))));
+    }
+
+    /// For margins the tied form is Platt scaling of the margin (x₁ + x₂ = m).
+    #[test]
+    fn tied_on_margins_equals_platt() {
+        let m = [-2.0, -0.5, 0.3, 1.1, -1.2, 2.5, 0.0, 0.7];
+        let y = [false, true, false, true, false, true, false, false];
+        let f = Beta {
+            shape: BetaShape::Tied,
+            score_kind: ScoreKind::Margin,
+        }
+        .fit(&m, &y)
+        .unwrap();
+        let t: Vec<f64> = y.iter().map(|&l| l as u8 as f64).collect();
+        let p = crate::calibrate::platt::fit_logistic_1d(&m, &t).unwrap();
+        let d = f.map.describe();
+        assert!((d["a"].as_f64().unwrap() - p.a).abs() < 1e-8);
+        assert!((d["c"].as_f64().unwrap() - p.b).abs() < 1e-8);
+    }
+}

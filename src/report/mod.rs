@@ -1,0 +1,219 @@
+//! Reports: format the plain structs of [`crate::analysis`] — never compute
+//! statistics here. One table model ([`Table`]) serves the terminal (comfy-table)
+//! and Markdown; each format only supplies how cells, rows and dividers look.
+
+pub mod csvout;
+pub mod figures;
+pub mod html;
+pub mod summary;
+
+use crate::analysis::Analysis;
+
+/// Every published file of a results folder except `units.csv`, `timings.csv`
+/// and `manifest.json`: (path inside the folder, bytes). The same function
+/// serves `plumbline run` and `plumbline report`, so both publish the same files.
+pub fn publish(a: &Analysis, ctx: &summary::ReportContext) -> Vec<(String, Vec<u8>)> {
+    let s = &ctx.settings;
+    let mut files = vec![
+        ("paired.csv".to_string(), csvout::paired_csv(a).into_bytes()),
+        (
+            "summary.md".to_string(),
+            summary::summary_md(a, ctx).into_bytes(),
+        ),
+    ];
+    let mut tex = String::from("% plumbline tables (requires \\usepackage{booktabs})\n");
+    for t in summary::task_tables(a, s, &s.primary_metric, false) {
+        tex.push_str(&t.to_latex());
+        tex.push('\n');
+    }
+    files.push(("tables.tex".to_string(), tex.into_bytes()));
+    let mut figs = Vec::new();
+    for task in &a.tasks {
+        if let Some(svg) = figures::diff_figure(a, task, &s.primary_metric, &s.reference) {
+            let name = figures::figure_name(task, &s.primary_metric);
+            figs.push(name.clone());
+            files.push((name, svg.into_bytes()));
+        }
+    }
+    files.push((
+        "index.html".to_string(),
+        html::index(a, ctx, &figs).into_bytes(),
+    ));
+    files
+}
+
+use comfy_table::{presets::UTF8_FULL_CONDENSED, Cell, CellAlignment, ContentArrangement};
+
+/// A rectangular table with a title; cells may hold several lines.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Table {
+    pub title: String,
+    pub header: Vec<String>,
+    pub rows: Vec<Vec<String>>,
+    /// Notes printed under the table.
+    pub notes: Vec<String>,
+}
+
+impl Table {
+    /// Terminal rendering with comfy-table.
+    pub fn to_terminal(&self, width: Option<u16>) -> String {
+        let mut t = comfy_table::Table::new();
+        t.load_style(UTF8_FULL_CONDENSED);
+        t.set_content_arrangement(ContentArrangement::Dynamic);
+        if let Some(w) = width {
+            t.set_width(w);
+        }
+        t.set_header(self.header.iter().map(Cell::new));
+        for r in &self.rows {
+            t.add_row(r.iter().enumerate().map(|(i, c)| {
+                let cell = Cell::new(c);
+                if i == 0 {
+                    cell
+                } else {
+                    cell.set_alignment(CellAlignment::Right)
+                }
+            }));
+        }
+        let mut s = format!("{}\n{t}\n", self.title);
+        for n in &self.notes {
+            s.push_str(&format!("  {n}\n"));
+        }
+        s
+    }
+
+    /// GitHub-flavoured Markdown; line breaks inside cells become `<br>`.
+    pub fn to_markdown(&self) -> String {
+        let esc = |c: &str| c.replace('|', "\\|").replace('\n', "<br>");
+        let mut s = String::new();
+        if !self.title.is_empty() {
+            s.push_str(&format!("**{}**\n\n", self.title));
+        }
+        s.push_str(&format!(
+            "| {} |\n",
+            self.header
+                .iter()
+                .map(|h| esc(h))
+                .collect::<Vec<_>>()
+                .join(" | ")
+        ));
+        s.push_str(&format!(
+            "|{}|\n",
+            self.header
+                .iter()
+                .enumerate()
+                .map(|(i, _)| if i == 0 { " --- " } else { " ---: " })
+                .collect::<Vec<_>>()
+                .join("|")
+        ));
+        for r in &self.rows {
+            s.push_str(&format!(
+                "| {} |\n",
+                r.iter().map(|c| esc(c)).collect::<Vec<_>>().join(" | ")
+            ));
+        }
+        if !self.notes.is_empty() {
+            s.push('\n');
+            for n in &self.notes {
+                s.push_str(&format!("{n}\n"));
+            }
+        }
+        s
+    }
+}
+
+impl Table {
+    /// A LaTeX `tabular` with booktabs rules; line breaks inside cells become `; `.
+    pub fn to_latex(&self) -> String {
+        let esc = |c: &str| {
+            c.replace('\\', "\\textbackslash{}")
+                .replace('&', "\\&")
+                .replace('%', "\\%")
+                .replace('_', "\\_")
+                .replace('#', "\\#")
+                .replace('−', "$-$")
+                .replace('✓', "$\\downarrow$")
+                .replace('✗', "$\\uparrow$")
+                .replace('↓', "$\\downarrow$")
+                .replace('↑', "$\\uparrow$")
+                .replace('\n', "; ")
+        };
+        let mut s = String::new();
+        s.push_str(&format!("% {}\n", self.title));
+        s.push_str(&format!(
+            "\\begin{{tabular}}{{l{}}}\n\\toprule\n",
+            "r".repeat(self.header.len().saturating_sub(1))
+        ));
+        s.push_str(&format!(
+            "{} \\\\\n\\midrule\n",
+            self.header
+                .iter()
+                .map(|h| esc(h))
+                .collect::<Vec<_>>()
+                .join(" & ")
+        ));
+        for r in &self.rows {
+            s.push_str(&format!(
+                "{} \\\\\n",
+                r.iter().map(|c| esc(c)).collect::<Vec<_>>().join(" & ")
+            ));
+        }
+        s.push_str("\\bottomrule\n\\end{tabular}\n");
+        s
+    }
+
+    /// An HTML table; line breaks inside cells become `<br>`.
+    pub fn to_html(&self) -> String {
+        let esc = |c: &str| {
+            c.replace('&', "&amp;")
+                .replace('<', "&lt;")
+                .replace('>', "&gt;")
+                .replace('\n', "<br>")
+        };
+        let mut s = format!("<h3>{}</h3>\n<table>\n<thead><tr>", esc(&self.title));
+        for h in &self.header {
+            s.push_str(&format!("<th>{}</th>", esc(h)));
+        }
+        s.push_str("</tr></thead>\n<tbody>\n");
+        for r in &self.rows {
+            s.push_str("<tr>");
+            for (i, c) in r.iter().enumerate() {
+                if i == 0 {
+                    s.push_str(&format!("<th>{}</th>", esc(c)));
+                } else {
+                    s.push_str(&format!("<td>{}</td>", esc(c)));
+                }
+            }
+            s.push_str("</tr>\n");
+        }
+        s.push_str("</tbody>\n</table>\n");
+        for n in &self.notes {
+            s.push_str(&format!("<p class=\"note\">{}</p>\n", esc(n)));
+        }
+        s
+    }
+}
+
+/// A loss value for display: four decimals (enough for log loss and Brier).
+pub fn fmt_value(v: f64) -> String {
+    if v.is_nan() {
+        "–".into()
+    } else if v.abs() >= 100.0 {
+        format!("{v:.1}")
+    } else {
+        format!("{v:.4}")
+    }
+}
+
+/// A signed difference with three significant digits (at least 4 decimals).
+pub fn fmt_diff(v: f64) -> String {
+    if v.is_nan() {
+        return "–".into();
+    }
+    if v == 0.0 {
+        return "0".into();
+    }
+    let mag = v.abs().log10().floor() as i32;
+    let decimals = (2 - mag).clamp(4, 8) as usize;
+    let s = format!("{:+.*}", decimals, v);
+    s.replace('-', "−")
+}

@@ -1,0 +1,392 @@
+//! The run engine: units = task × calibration size × repeat, run in parallel.
+//!
+//! Every unit draws its calibration sample from the task's reservoir with its
+//! own derived seed (`split::unit_seed`), fits every method on that same sample
+//! and scores them all on the task's fixed test set, so comparisons between
+//! methods are paired. A unit depends on nothing but the plan and its seed, so
+//! the results are identical for any thread count; rows are sorted before they
+//! are written.
+//!
+//! Finished units are appended to a journal as they complete (see
+//! [`journal`]); an interrupted run resumes from it, so a finished unit is
+//! never lost.
+
+pub mod journal;
+pub mod output;
+pub mod pools;
+pub mod table;
+
+use std::collections::{BTreeMap, BTreeSet};
+use std::io::IsTerminal;
+use std::sync::Mutex;
+use std::time::Instant;
+
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use rayon::prelude::*;
+
+use crate::calibrate::{Calibrator, FitError};
+use crate::metrics::scoring::clipped_count;
+use crate::split;
+use crate::suite::Plan;
+use table::{UnitRow, UnitTable};
+
+/// How to run.
+#[derive(Debug, Clone, Default)]
+pub struct RunOptions {
+    /// Worker threads; `None` = rayon's default (honours `RAYON_NUM_THREADS`).
+    pub threads: Option<usize>,
+    /// No progress bar.
+    pub quiet: bool,
+}
+
+/// One method's result in one unit, as kept in the journal.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct MethodOutcome {
+    pub method: String,
+    pub status: String,
+    pub metrics: Vec<Option<f64>>,
+    pub clipped: Option<usize>,
+    pub extras: BTreeMap<String, f64>,
+    pub fit_ms: f64,
+    #[serde(default)]
+    pub error: Option<String>,
+}
+
+/// A finished unit.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct UnitOutcome {
+    pub task: String,
+    pub size: usize,
+    pub repeat: usize,
+    pub positives: usize,
+    pub reservoir: usize,
+    pub test_rows: usize,
+    pub methods: Vec<MethodOutcome>,
+}
+
+/// Fit time of one method in one unit (kept apart from `units.csv`, whose bytes
+/// must not depend on the machine's speed).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Timing {
+    pub task: String,
+    pub size: usize,
+    pub repeat: usize,
+    pub method: String,
+    pub fit_ms: f64,
+}
+
+/// Everything a run produced.
+#[derive(Debug, Clone)]
+pub struct RunOutput {
+    pub table: UnitTable,
+    pub timings: Vec<Timing>,
+    pub warnings: Vec<String>,
+    pub threads: usize,
+    pub resumed_units: usize,
+}
+
+#[derive(Debug, thiserror::Error)]
+pub enum RunError {
+    #[error("method `{method}` for task `{task}`: {message}")]
+    Build {
+        task: String,
+        method: String,
+        message: String,
+    },
+    #[error("cannot start worker threads: {0}")]
+    Threads(String),
+    #[error("{0}")]
+    Journal(String),
+}
+
+struct TaskData {
+    test_scores: Vec<f64>,
+    test_labels: Vec<bool>,
+    calibrators: Vec<Box<dyn Calibrator>>,
+}
+
+/// The unit list in output order.
+pub fn unit_keys(plan: &Plan) -> Vec<(usize, usize, usize)> {
+    let mut keys = Vec::with_capacity(plan.unit_count());
+    for (ti, t) in plan.tasks.iter().enumerate() {
+        for &size in &t.sizes {
+            for r in 0..plan.repeats {
+                keys.push((ti, size, r));
+            }
+        }
+    }
+    keys
+}
+
+fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usize) -> UnitOutcome {
+    let task = &plan.tasks[ti];
+    let td = &data[ti];
+    let seed = split::unit_seed(plan.seed, &task.id, size, repeat);
+    let picks = split::draw_calibration(task.reservoir.len(), size, seed);
+    let mut cal_s = Vec::with_capacity(size);
+    let mut cal_y = Vec::with_capacity(size);
+    for &k in &picks {
+        let row = task.reservoir[k];
+        cal_s.push(task.pool.scores[row]);
+        cal_y.push(task.pool.labels[row]);
+    }
+    let positives = cal_y.iter().filter(|&&y| y).count();
+    let one_class = positives == 0 || positives == size;
+    let mut pred = vec![0.0; td.test_scores.len()];
+    let clip = plan.metric_settings.log_loss_clip;
+    let mut methods = Vec::with_capacity(plan.methods.len());
+    for (mi, m) in plan.methods.iter().enumerate() {
+        if one_class {
+            methods.push(MethodOutcome {
+                method: m.id.clone(),
+                status: "one_class".into(),
+                metrics: vec![None; plan.metrics.len()],
+                clipped: None,
+                extras: BTreeMap::new(),
+                fit_ms: 0.0,
+                error: None,
+            });
+            continue;
+        }
+        let t0 = Instant::now();
+        let fitted = td.calibrators[mi].fit(&cal_s, &cal_y);
+        let fit_ms = t0.elapsed().as_secs_f64() * 1e3;
+        match fitted {
+            Ok(f) => {
+                f.map.predict(&td.test_scores, &mut pred);
+                let metrics = plan
+                    .metrics
+                    .iter()
+                    .map(|mid| {
+                        let v = mid.compute(&pred, &td.test_labels, &plan.metric_settings);
+                        if v.is_finite() {
+                            Some(v)
+                        } else {
+                            None
+                        }
+                    })
+                    .collect();
+                let extras = f
+                    .map
+                    .extras(&td.test_scores)
+                    .into_iter()
+                    .map(|(k, v)| (k.to_string(), v))
+                    .collect();
+                let status = if f.notes.is_empty() {
+                    "ok".to_string()
+                } else {
+                    f.notes.join("+")
+                };
+                methods.push(MethodOutcome {
+                    method: m.id.clone(),
+                    status,
+                    metrics,
+                    clipped: Some(clipped_count(&pred, clip)),
+                    extras,
+                    fit_ms,
+                    error: None,
+                });
+            }
+            Err(e) => {
+                let status = if e == FitError::OneClass {
+                    "one_class"
+                } else {
+                    "failed"
+                };
+                methods.push(MethodOutcome {
+                    method: m.id.clone(),
+                    status: status.into(),
+                    metrics: vec![None; plan.metrics.len()],
+                    clipped: None,
+                    extras: BTreeMap::new(),
+                    fit_ms,
+                    error: Some(e.to_string()),
+                });
+            }
+        }
+    }
+    UnitOutcome {
+        task: task.id.clone(),
+        size,
+        repeat,
+        positives,
+        reservoir: task.reservoir.len(),
+        test_rows: task.test.len(),
+        methods,
+    }
+}
+
+/// Run every unit of the plan not already in `done`; `on_done` sees each newly
+/// finished unit (the journal writer).
+pub fn run(
+    plan: &Plan,
+    opts: &RunOptions,
+    done: Vec<UnitOutcome>,
+    on_done: &(dyn Fn(&UnitOutcome) -> Result<(), String> + Sync),
+) -> Result<RunOutput, RunError> {
+    let mut data = Vec::with_capacity(plan.tasks.len());
+    for t in &plan.tasks {
+        let calibrators = plan
+            .methods
+            .iter()
+            .map(|m| {
+                m.spec.build(t.score_kind).map_err(|e| RunError::Build {
+                    task: t.id.clone(),
+                    method: m.id.clone(),
+                    message: e.to_string(),
+                })
+            })
+            .collect::<Result<Vec<_>, _>>()?;
+        data.push(TaskData {
+            test_scores: t.test.iter().map(|&i| t.pool.scores[i]).collect(),
+            test_labels: t.test.iter().map(|&i| t.pool.labels[i]).collect(),
+            calibrators,
+        });
+    }
+    let keys = unit_keys(plan);
+    let done_keys: BTreeSet<(String, usize, usize)> = done
+        .iter()
+        .map(|u| (u.task.clone(), u.size, u.repeat))
+        .collect();
+    let todo: Vec<_> = keys
+        .iter()
+        .copied()
+        .filter(|&(ti, s, r)| !done_keys.contains(&(plan.tasks[ti].id.clone(), s, r)))
+        .collect();
+    let resumed_units = keys.len() - todo.len();
+
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(opts.threads.unwrap_or(0))
+        .build()
+        .map_err(|e| RunError::Threads(e.to_string()))?;
+    let threads = pool.current_num_threads();
+
+    let bar = if opts.quiet || !std::io::stderr().is_terminal() {
+        ProgressBar::with_draw_target(Some(keys.len() as u64), ProgressDrawTarget::hidden())
+    } else {
+        let b =
+            ProgressBar::with_draw_target(Some(keys.len() as u64), ProgressDrawTarget::stderr());
+        b.set_style(
+            ProgressStyle::with_template(
+                "{spinner} {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
+            )
+            .unwrap_or_else(|_| ProgressStyle::default_bar()),
+        );
+        b
+    };
+    bar.set_position(resumed_units as u64);
+
+    let finished: Mutex<Vec<UnitOutcome>> = Mutex::new(done);
+    let journal_error: Mutex<Option<String>> = Mutex::new(None);
+    pool.install(|| {
+        todo.par_iter().for_each(|&(ti, size, r)| {
+            if journal_error.lock().map(|e| e.is_some()).unwrap_or(true) {
+                return;
+            }
+            let u = run_unit(plan, &data, ti, size, r);
+            if let Err(e) = on_done(&u) {
+                if let Ok(mut j) = journal_error.lock() {
+                    j.get_or_insert(e);
+                }
+            }
+            if let Ok(mut f) = finished.lock() {
+                f.push(u);
+            }
+            bar.inc(1);
+        });
+    });
+    bar.finish_and_clear();
+    if let Some(e) = journal_error.into_inner().unwrap_or(None) {
+        return Err(RunError::Journal(e));
+    }
+    let finished = finished.into_inner().unwrap_or_default();
+    Ok(assemble(plan, finished, threads, resumed_units))
+}
+
+/// Sort finished units into the plan's order and build the unit table.
+pub fn assemble(
+    plan: &Plan,
+    mut units: Vec<UnitOutcome>,
+    threads: usize,
+    resumed_units: usize,
+) -> RunOutput {
+    let task_pos: BTreeMap<&str, usize> = plan
+        .tasks
+        .iter()
+        .enumerate()
+        .map(|(i, t)| (t.id.as_str(), i))
+        .collect();
+    units.sort_by_key(|u| {
+        (
+            task_pos.get(u.task.as_str()).copied().unwrap_or(usize::MAX),
+            u.size,
+            u.repeat,
+        )
+    });
+    let extra_names: Vec<String> = units
+        .iter()
+        .flat_map(|u| u.methods.iter().flat_map(|m| m.extras.keys().cloned()))
+        .collect::<BTreeSet<_>>()
+        .into_iter()
+        .collect();
+    let mut rows = Vec::new();
+    let mut timings = Vec::new();
+    let mut warnings = Vec::new();
+    let mut failures: BTreeMap<(String, String), (usize, String)> = BTreeMap::new();
+    for u in &units {
+        for m in &u.methods {
+            rows.push(UnitRow {
+                task: u.task.clone(),
+                size: u.size,
+                repeat: u.repeat,
+                method: m.method.clone(),
+                status: m.status.clone(),
+                metrics: m.metrics.clone(),
+                clipped: m.clipped,
+                positives: u.positives,
+                reservoir: u.reservoir,
+                test_rows: u.test_rows,
+                extras: extra_names
+                    .iter()
+                    .map(|n| m.extras.get(n).copied())
+                    .collect(),
+            });
+            timings.push(Timing {
+                task: u.task.clone(),
+                size: u.size,
+                repeat: u.repeat,
+                method: m.method.clone(),
+                fit_ms: m.fit_ms,
+            });
+            if let Some(e) = &m.error {
+                if m.status == "failed" {
+                    let entry = failures
+                        .entry((u.task.clone(), m.method.clone()))
+                        .or_insert((0, e.clone()));
+                    entry.0 += 1;
+                }
+            }
+        }
+    }
+    for ((task, method), (count, first)) in failures {
+        warnings.push(format!(
+            "task `{task}`, method `{method}`: {count} fit(s) failed; first error: {first}"
+        ));
+    }
+    let table = UnitTable {
+        metric_names: plan
+            .metrics
+            .iter()
+            .map(|m| m.as_str().to_string())
+            .collect(),
+        extra_names,
+        rows,
+    };
+    RunOutput {
+        table,
+        timings,
+        warnings,
+        threads,
+        resumed_units,
+    }
+}

@@ -1,0 +1,852 @@
+//! Suite files: the TOML that says what to compare, parsed into a validated
+//! [`Plan`] before any work starts.
+//!
+//! Parsing goes in two steps, in the spirit of checked parameters: the raw TOML
+//! is read into structs that reject unknown keys and wrong types (the TOML
+//! parser reports the line and column), then every cross-field rule is checked
+//! (reference method in the method list, primary metric among the metrics,
+//! sizes within each task's reservoir, unique ids) with the line of the
+//! offending key in the message. Score files are read and validated here too, so
+//! `plumbline check` catches bad data before a run.
+//!
+//! The schema is documented for users in `docs/suite-format.md`.
+
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
+
+use serde::Deserialize;
+use sha2::{Digest, Sha256};
+use toml::Spanned;
+
+use crate::calibrate::{MethodSpec, ScoreKind};
+use crate::data::open;
+use crate::models::{protocol::Protocol, ModelSpec};
+use crate::data::scorefile::{self, ScoreFileSpec};
+use crate::data::{ScorePool, Side};
+use crate::metrics::{MetricId, MetricSettings};
+use crate::split;
+
+/// A problem with a suite, located in its file.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("{file}:{line}:{column}: {key}: {message}")]
+pub struct SuiteError {
+    pub file: String,
+    pub line: usize,
+    pub column: usize,
+    pub key: String,
+    pub message: String,
+}
+
+/// Where a byte offset sits in a text: 1-based line and column.
+pub fn line_col(text: &str, offset: usize) -> (usize, usize) {
+    let offset = offset.min(text.len());
+    let before = &text[..offset];
+    let line = before.matches('\n').count() + 1;
+    let col = before.rfind('\n').map(|i| offset - i).unwrap_or(offset + 1);
+    (line, col)
+}
+
+struct Ctx<'a> {
+    file: String,
+    text: &'a str,
+}
+
+impl Ctx<'_> {
+    fn err(
+        &self,
+        span: std::ops::Range<usize>,
+        key: &str,
+        message: impl Into<String>,
+    ) -> SuiteError {
+        let (line, column) = line_col(self.text, span.start);
+        SuiteError {
+            file: self.file.clone(),
+            line,
+            column,
+            key: key.to_string(),
+            message: message.into(),
+        }
+    }
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawSuite {
+    name: Spanned<String>,
+    seed: Spanned<i64>,
+    repeats: Spanned<i64>,
+    sizes: Spanned<Vec<Spanned<i64>>>,
+    #[serde(default)]
+    too_large: Option<Spanned<String>>,
+    #[serde(default)]
+    confidence: Option<Spanned<f64>>,
+    #[serde(default)]
+    interval: Option<Spanned<String>>,
+    reference: Spanned<String>,
+    metrics: Spanned<Vec<Spanned<String>>>,
+    primary_metric: Spanned<String>,
+    #[serde(default)]
+    metric_settings: Option<Spanned<toml::Table>>,
+    #[serde(default)]
+    test_set: Option<Spanned<RawTestSet>>,
+    #[serde(default)]
+    method: Vec<Spanned<toml::Table>>,
+    #[serde(default)]
+    open_data: Option<Spanned<String>>,
+    #[serde(default)]
+    model: Vec<Spanned<toml::Table>>,
+    #[serde(default)]
+    task: Vec<Spanned<toml::Table>>,
+    #[serde(default)]
+    task_grid: Vec<Spanned<toml::Table>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawOpenTask {
+    id: String,
+    data: String,
+    model: String,
+    #[serde(default)]
+    protocol: Option<Protocol>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawGrid {
+    data: toml::Value,
+    models: Vec<String>,
+    #[serde(default)]
+    protocol: Option<Protocol>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawTestSet {
+    #[serde(default)]
+    fraction: Option<Spanned<f64>>,
+    #[serde(default)]
+    rows: Option<Spanned<i64>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawScoreTask {
+    id: String,
+    scores: String,
+    score_column: String,
+    label_column: String,
+    score_kind: ScoreKind,
+    #[serde(default)]
+    split_column: Option<String>,
+    #[serde(default)]
+    truth_column: Option<String>,
+}
+
+/// How the fixed test set is chosen when a task does not pin its rows.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum TestSetRule {
+    /// This share of the pool's rows (rounded to the nearest row).
+    Fraction(f64),
+    /// Exactly this many rows.
+    Rows(usize),
+}
+
+impl TestSetRule {
+    pub fn rows(&self, pool: usize) -> usize {
+        match *self {
+            TestSetRule::Fraction(f) => ((pool as f64) * f).round() as usize,
+            TestSetRule::Rows(r) => r,
+        }
+    }
+    pub fn describe(&self) -> String {
+        match *self {
+            TestSetRule::Fraction(f) => format!("fraction {f}"),
+            TestSetRule::Rows(r) => format!("{r} rows"),
+        }
+    }
+}
+
+/// What to do with a calibration size larger than a task's reservoir.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum TooLarge {
+    /// Reject the suite (the default: a typo in `sizes` should not pass silently).
+    Reject,
+    /// Skip that size for that task and say so in the plan.
+    Skip,
+}
+
+/// A method as used in a run: the suite's id and its checked spec.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MethodEntry {
+    pub id: String,
+    pub spec: MethodSpec,
+}
+
+/// Where a task's scores come from.
+#[derive(Debug, Clone)]
+pub enum TaskSource {
+    ScoreFile(ScoreFileSpec),
+    /// An open dataset task turned into scores by a base model.
+    Open {
+        data_dir: PathBuf,
+        data: String,
+        model_id: String,
+        model: ModelSpec,
+        protocol: Protocol,
+    },
+}
+
+/// The protocol used when a task names none.
+pub fn default_protocol() -> Protocol {
+    Protocol::HeldOut { train_fraction: 0.5 }
+}
+
+/// A task ready to run: its pool, partition and sizes.
+#[derive(Debug, Clone)]
+pub struct TaskPlan {
+    pub id: String,
+    pub source: TaskSource,
+    pub score_kind: ScoreKind,
+    /// SHA-256 of the task's input data (the score file's bytes, or the open
+    /// dataset's digest).
+    pub data_sha256: String,
+    /// The scores; empty for an open-data task until its pool is built
+    /// (`run::pools::resolve`).
+    pub pool: ScorePool,
+    /// Rows and positives of the task's data (known before the pool is built).
+    pub rows: usize,
+    pub positives: usize,
+    /// Reservoir and test-set sizes (known before the pool is built).
+    pub reservoir_rows: usize,
+    pub test_rows: usize,
+    pub truth: Option<Vec<f64>>,
+    /// Pool row indices of the calibration reservoir, ascending.
+    pub reservoir: Vec<usize>,
+    /// Pool row indices of the fixed test set, ascending.
+    pub test: Vec<usize>,
+    /// Calibration sizes run for this task, ascending.
+    pub sizes: Vec<usize>,
+    /// Sizes of the suite skipped here because they exceed the reservoir.
+    pub skipped_sizes: Vec<usize>,
+}
+
+/// A validated suite.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    pub suite_file: PathBuf,
+    pub suite_sha256: String,
+    pub name: String,
+    pub seed: u64,
+    pub repeats: usize,
+    pub confidence: f64,
+    pub interval: String,
+    pub reference: String,
+    pub metrics: Vec<MetricId>,
+    pub primary: MetricId,
+    pub metric_settings: MetricSettings,
+    pub test_set: TestSetRule,
+    pub methods: Vec<MethodEntry>,
+    pub tasks: Vec<TaskPlan>,
+}
+
+impl Plan {
+    /// Number of units (task × size × repeat).
+    pub fn unit_count(&self) -> usize {
+        self.tasks
+            .iter()
+            .map(|t| t.sizes.len() * self.repeats)
+            .sum()
+    }
+    /// Number of method fits (units × methods).
+    pub fn fit_count(&self) -> usize {
+        self.unit_count() * self.methods.len()
+    }
+}
+
+pub const DEFAULT_CONFIDENCE: f64 = 0.95;
+pub const DEFAULT_TEST_FRACTION: f64 = 0.3;
+
+/// Read, parse and validate a suite file.
+pub fn load(path: &Path) -> Result<Plan, SuiteError> {
+    let file = path.display().to_string();
+    let bytes = std::fs::read(path).map_err(|e| SuiteError {
+        file: file.clone(),
+        line: 0,
+        column: 0,
+        key: "(file)".into(),
+        message: format!("cannot read the suite: {e}"),
+    })?;
+    let text = String::from_utf8(bytes.clone()).map_err(|e| SuiteError {
+        file: file.clone(),
+        line: 0,
+        column: 0,
+        key: "(file)".into(),
+        message: format!("the suite is not UTF-8 text: {e}"),
+    })?;
+    let sha = hex(&Sha256::digest(&bytes));
+    parse(&text, path, sha)
+}
+
+pub fn hex(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+fn toml_err(ctx: &Ctx, e: &toml::de::Error, key_hint: &str) -> SuiteError {
+    let span = e.span().unwrap_or(0..0);
+    let msg = e.message().trim().to_string();
+    // Name the key written on the offending line (or its table header).
+    let start = ctx.text[..span.start.min(ctx.text.len())]
+        .rfind('\n')
+        .map(|i| i + 1)
+        .unwrap_or(0);
+    let line = ctx.text[start..].lines().next().unwrap_or("").trim();
+    let key = if line.starts_with('[') {
+        line.to_string()
+    } else if let Some((k, _)) = line.split_once('=') {
+        k.trim().to_string()
+    } else {
+        key_hint.to_string()
+    };
+    ctx.err(span, &key, msg)
+}
+
+/// Parse suite text; `path` locates relative data files (and names the file in errors).
+pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError> {
+    let ctx = Ctx {
+        file: path.display().to_string(),
+        text,
+    };
+    let raw: RawSuite = toml::from_str(text).map_err(|e| toml_err(&ctx, &e, "(suite)"))?;
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+
+    let name = raw.name.get_ref().trim().to_string();
+    if name.is_empty() {
+        return Err(ctx.err(raw.name.span(), "name", "the suite needs a non-empty name"));
+    }
+    let seed = *raw.seed.get_ref();
+    if seed < 0 {
+        return Err(ctx.err(
+            raw.seed.span(),
+            "seed",
+            format!("{seed}: the seed must be a non-negative integer"),
+        ));
+    }
+    let repeats = *raw.repeats.get_ref();
+    if !(2..=100_000).contains(&repeats) {
+        return Err(ctx.err(
+            raw.repeats.span(),
+            "repeats",
+            format!(
+                "{repeats}: need between 2 and 100000 repeats (a paired interval needs at least 2)"
+            ),
+        ));
+    }
+    let mut sizes: Vec<usize> = Vec::new();
+    let mut seen = BTreeSet::new();
+    if raw.sizes.get_ref().is_empty() {
+        return Err(ctx.err(
+            raw.sizes.span(),
+            "sizes",
+            "list at least one calibration size",
+        ));
+    }
+    for s in raw.sizes.get_ref() {
+        let v = *s.get_ref();
+        if v < 2 {
+            return Err(ctx.err(
+                s.span(),
+                "sizes",
+                format!("{v}: a calibration size must be at least 2"),
+            ));
+        }
+        if !seen.insert(v) {
+            return Err(ctx.err(s.span(), "sizes", format!("{v} is listed twice")));
+        }
+        sizes.push(v as usize);
+    }
+    sizes.sort_unstable();
+    let too_large = match &raw.too_large {
+        None => TooLarge::Reject,
+        Some(s) => match s.get_ref().as_str() {
+            "reject" => TooLarge::Reject,
+            "skip" => TooLarge::Skip,
+            other => {
+                return Err(ctx.err(
+                    s.span(),
+                    "too_large",
+                    format!("`{other}`: expected \"reject\" or \"skip\""),
+                ))
+            }
+        },
+    };
+    let confidence = match &raw.confidence {
+        None => DEFAULT_CONFIDENCE,
+        Some(c) => {
+            let v = *c.get_ref();
+            if !(v > 0.5 && v < 1.0) {
+                return Err(ctx.err(
+                    c.span(),
+                    "confidence",
+                    format!("{v}: expected a level between 0.5 and 1, e.g. 0.95"),
+                ));
+            }
+            v
+        }
+    };
+    let interval = match &raw.interval {
+        None => "paired-t".to_string(),
+        Some(s) => match s.get_ref().as_str() {
+            "paired-t" => s.get_ref().clone(),
+            other => {
+                return Err(ctx.err(
+                    s.span(),
+                    "interval",
+                    format!("`{other}`: known interval estimators: paired-t"),
+                ))
+            }
+        },
+    };
+
+    // Metrics.
+    let mut metrics = Vec::new();
+    for m in raw.metrics.get_ref() {
+        let id = MetricId::parse(m.get_ref()).ok_or_else(|| {
+            let known: Vec<_> = MetricId::ALL.iter().map(|m| m.as_str()).collect();
+            ctx.err(
+                m.span(),
+                "metrics",
+                format!(
+                    "`{}` is not a metric; known: {}",
+                    m.get_ref(),
+                    known.join(", ")
+                ),
+            )
+        })?;
+        if metrics.contains(&id) {
+            return Err(ctx.err(
+                m.span(),
+                "metrics",
+                format!("`{}` is listed twice", m.get_ref()),
+            ));
+        }
+        metrics.push(id);
+    }
+    if metrics.is_empty() {
+        return Err(ctx.err(raw.metrics.span(), "metrics", "list at least one metric"));
+    }
+    let primary = MetricId::parse(raw.primary_metric.get_ref())
+        .filter(|m| metrics.contains(m))
+        .ok_or_else(|| {
+            ctx.err(
+                raw.primary_metric.span(),
+                "primary_metric",
+                format!(
+                    "`{}` must be one of the suite's metrics ({})",
+                    raw.primary_metric.get_ref(),
+                    metrics
+                        .iter()
+                        .map(|m| m.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            )
+        })?;
+    let metric_settings = match &raw.metric_settings {
+        None => MetricSettings::default(),
+        Some(t) => {
+            let s: MetricSettings = toml::Value::Table(t.get_ref().clone()).try_into().map_err(
+                |e: toml::de::Error| {
+                    ctx.err(t.span(), "metric_settings", e.message().trim().to_string())
+                },
+            )?;
+            let c = s.log_loss_clip;
+            if !(c > 0.0 && c < 0.5) {
+                return Err(ctx.err(
+                    t.span(),
+                    "metric_settings.log_loss_clip",
+                    format!("{c}: the clip must lie in (0, 0.5), e.g. 1e-6"),
+                ));
+            }
+            s
+        }
+    };
+    let test_set = match &raw.test_set {
+        None => TestSetRule::Fraction(DEFAULT_TEST_FRACTION),
+        Some(t) => {
+            let ts = t.get_ref();
+            match (&ts.fraction, &ts.rows) {
+                (Some(f), None) => {
+                    let v = *f.get_ref();
+                    if !(v > 0.0 && v < 1.0) {
+                        return Err(ctx.err(
+                            f.span(),
+                            "test_set.fraction",
+                            format!("{v}: expected a share strictly between 0 and 1"),
+                        ));
+                    }
+                    TestSetRule::Fraction(v)
+                }
+                (None, Some(r)) => {
+                    let v = *r.get_ref();
+                    if v < 1 {
+                        return Err(ctx.err(
+                            r.span(),
+                            "test_set.rows",
+                            format!("{v}: need at least one test row"),
+                        ));
+                    }
+                    TestSetRule::Rows(v as usize)
+                }
+                _ => {
+                    return Err(ctx.err(
+                        t.span(),
+                        "test_set",
+                        "give exactly one of `fraction` or `rows`",
+                    ))
+                }
+            }
+        }
+    };
+
+    // Methods.
+    if raw.method.is_empty() {
+        return Err(ctx.err(0..0, "method", "the suite lists no [[method]] tables"));
+    }
+    let mut methods: Vec<(MethodEntry, std::ops::Range<usize>)> = Vec::new();
+    for (i, m) in raw.method.iter().enumerate() {
+        let mut table = m.get_ref().clone();
+        let label = format!("method #{}", i + 1);
+        let id = match table.remove("id") {
+            Some(toml::Value::String(s)) if valid_id(&s) => s,
+            Some(v) => {
+                return Err(ctx.err(
+                    m.span(),
+                    &format!("{label}.id"),
+                    format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"),
+                ))
+            }
+            None => return Err(ctx.err(m.span(), &label, "missing key `id`")),
+        };
+        if !table.contains_key("kind") {
+            return Err(ctx.err(
+                m.span(),
+                &format!("method `{id}`"),
+                "missing key `kind` (which method)",
+            ));
+        }
+        let spec: MethodSpec =
+            toml::Value::Table(table)
+                .try_into()
+                .map_err(|e: toml::de::Error| {
+                    ctx.err(
+                        m.span(),
+                        &format!("method `{id}`"),
+                        e.message().trim().to_string(),
+                    )
+                })?;
+        if methods.iter().any(|(e, _)| e.id == id) {
+            return Err(ctx.err(
+                m.span(),
+                &format!("method `{id}`"),
+                "this id is used by another method",
+            ));
+        }
+        methods.push((MethodEntry { id, spec }, m.span()));
+    }
+    if !methods
+        .iter()
+        .any(|(e, _)| &e.id == raw.reference.get_ref())
+    {
+        return Err(ctx.err(
+            raw.reference.span(),
+            "reference",
+            format!(
+                "`{}` is not one of the suite's methods ({})",
+                raw.reference.get_ref(),
+                methods
+                    .iter()
+                    .map(|(e, _)| e.id.as_str())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+        ));
+    }
+
+    // Tasks.
+    if raw.task.is_empty() && raw.task_grid.is_empty() {
+        return Err(ctx.err(0..0, "task", "the suite lists no [[task]] or [[task_grid]] tables"));
+    }
+    // Models (for open-data tasks).
+    let mut models: Vec<(String, ModelSpec)> = Vec::new();
+    for (i, m) in raw.model.iter().enumerate() {
+        let mut table = m.get_ref().clone();
+        let label = format!("model #{}", i + 1);
+        let id = match table.remove("id") {
+            Some(toml::Value::String(s)) if valid_id(&s) => s,
+            Some(v) => return Err(ctx.err(m.span(), &format!("{label}.id"), format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"))),
+            None => return Err(ctx.err(m.span(), &label, "missing key `id`")),
+        };
+        let spec: ModelSpec = toml::Value::Table(table)
+            .try_into()
+            .map_err(|e: toml::de::Error| ctx.err(m.span(), &format!("model `{id}`"), e.message().trim().to_string()))?;
+        spec.validate().map_err(|e| ctx.err(m.span(), &format!("model `{id}`"), e.to_string()))?;
+        if models.iter().any(|(x, _)| *x == id) {
+            return Err(ctx.err(m.span(), &format!("model `{id}`"), "this id is used by another model"));
+        }
+        models.push((id, spec));
+    }
+    let data_dir = match &raw.open_data {
+        Some(p) => base.join(p.get_ref()),
+        None => base.join("..").join(open::DEFAULT_DATA_DIR),
+    };
+    let open_span = raw.open_data.as_ref().map(|p| p.span()).unwrap_or(0..0);
+
+    // Expand [[task]] and [[task_grid]] into one list of specs.
+    enum Spec {
+        File(RawScoreTask),
+        Open(RawOpenTask),
+    }
+    let mut specs: Vec<(Spec, std::ops::Range<usize>, String)> = Vec::new();
+    for (i, t) in raw.task.iter().enumerate() {
+        let label = format!("task #{}", i + 1);
+        let table = t.get_ref();
+        let de_err = |e: toml::de::Error| ctx.err(t.span(), &label, e.message().trim().to_string());
+        let spec = if table.contains_key("scores") {
+            Spec::File(toml::Value::Table(table.clone()).try_into().map_err(de_err)?)
+        } else if table.contains_key("data") {
+            Spec::Open(toml::Value::Table(table.clone()).try_into().map_err(de_err)?)
+        } else {
+            return Err(ctx.err(t.span(), &label, "a task needs `scores` (a score file) or `data` (an open dataset task)"));
+        };
+        specs.push((spec, t.span(), label));
+    }
+    let mut open_tasks: Option<Vec<open::TaskSummary>> = None;
+    let mut list_open = |span: std::ops::Range<usize>| -> Result<Vec<open::TaskSummary>, SuiteError> {
+        if open_tasks.is_none() {
+            let l = open::list_tasks(&data_dir).map_err(|e| {
+                ctx.err(if open_span.is_empty() { span.clone() } else { open_span.clone() }, "open_data", format!("{} ({})", e, data_dir.display()))
+            })?;
+            open_tasks = Some(l);
+        }
+        Ok(open_tasks.clone().unwrap_or_default())
+    };
+    for (i, g) in raw.task_grid.iter().enumerate() {
+        let label = format!("task_grid #{}", i + 1);
+        let rg: RawGrid = toml::Value::Table(g.get_ref().clone())
+            .try_into()
+            .map_err(|e: toml::de::Error| ctx.err(g.span(), &label, e.message().trim().to_string()))?;
+        let data: Vec<String> = match &rg.data {
+            toml::Value::String(s) if s == "all" => list_open(g.span())?.iter().map(|t| t.id.clone()).collect(),
+            toml::Value::Array(a) => a
+                .iter()
+                .map(|v| v.as_str().map(str::to_string))
+                .collect::<Option<Vec<_>>>()
+                .ok_or_else(|| ctx.err(g.span(), &format!("{label}.data"), "expected a list of open-data task ids or \"all\""))?,
+            _ => return Err(ctx.err(g.span(), &format!("{label}.data"), "expected a list of open-data task ids or \"all\"")),
+        };
+        for d in &data {
+            for m in &rg.models {
+                specs.push((
+                    Spec::Open(RawOpenTask { id: format!("{d}.{m}"), data: d.clone(), model: m.clone(), protocol: rg.protocol.clone() }),
+                    g.span(),
+                    label.clone(),
+                ));
+            }
+        }
+    }
+
+    let mut tasks: Vec<TaskPlan> = Vec::new();
+    for (spec, span, label) in specs {
+        let id = match &spec {
+            Spec::File(r) => r.id.clone(),
+            Spec::Open(r) => r.id.clone(),
+        };
+        let tl = format!("task `{id}`");
+        if !valid_id(&id) {
+            return Err(ctx.err(span, &format!("{label}.id"), format!("`{id}`: an id is a non-empty word of letters, digits, '-', '_' or '.'")));
+        }
+        if tasks.iter().any(|x| x.id == id) {
+            return Err(ctx.err(span, &format!("{tl}.id"), "this id is used by another task"));
+        }
+        let score_kind = match &spec {
+            Spec::File(r) => r.score_kind,
+            Spec::Open(_) => ScoreKind::Probability,
+        };
+        for (m, mspan) in &methods {
+            m.spec.validate(score_kind).map_err(|e| {
+                ctx.err(mspan.clone(), &format!("method `{}`", m.id), format!("{e} (for {tl}, score_kind = \"{}\")", score_kind.as_str()))
+            })?;
+        }
+        let test_set_span = raw.test_set.as_ref().map(|s| s.span()).unwrap_or(span.clone());
+        let mut plan_task = match spec {
+            Spec::File(rt) => {
+                let fpath = base.join(&rt.scores);
+                let fspec = ScoreFileSpec {
+                    path: fpath.clone(),
+                    score_column: rt.score_column.clone(),
+                    label_column: rt.label_column.clone(),
+                    score_kind: rt.score_kind,
+                    split_column: rt.split_column.clone(),
+                    truth_column: rt.truth_column.clone(),
+                };
+                let bytes = std::fs::read(&fpath)
+                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), format!("{}: cannot read: {e}", fpath.display())))?;
+                let data_sha256 = hex(&Sha256::digest(&bytes));
+                let loaded = scorefile::load(&fspec).map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), e.to_string()))?;
+                let n = loaded.pool.scores.len();
+                let positives = loaded.pool.labels.iter().filter(|&&y| y).count();
+                let (reservoir, test) = match &loaded.pool.sides {
+                    Some(sides) => {
+                        let res = (0..n).filter(|&i| sides[i] == Side::Reservoir).collect();
+                        let te = (0..n).filter(|&i| sides[i] == Side::Test).collect();
+                        (res, te)
+                    }
+                    None => {
+                        let rows = test_set.rows(n);
+                        if rows == 0 || rows >= n {
+                            return Err(ctx.err(
+                                test_set_span,
+                                "test_set",
+                                format!("{}: gives {rows} test rows for {tl}, which has {n} rows", test_set.describe()),
+                            ));
+                        }
+                        split::partition(n, rows, split::task_seed(seed as u64, &rt.id))
+                    }
+                };
+                TaskPlan {
+                    id: rt.id.clone(),
+                    source: TaskSource::ScoreFile(fspec),
+                    score_kind: rt.score_kind,
+                    data_sha256,
+                    rows: n,
+                    positives,
+                    reservoir_rows: reservoir.len(),
+                    test_rows: test.len(),
+                    pool: loaded.pool,
+                    truth: loaded.truth,
+                    reservoir,
+                    test,
+                    sizes: Vec::new(),
+                    skipped_sizes: Vec::new(),
+                }
+            }
+            Spec::Open(ro) => {
+                let list = list_open(span.clone())?;
+                let summary = list.iter().find(|t| t.id == ro.data).ok_or_else(|| {
+                    ctx.err(
+                        span.clone(),
+                        &format!("{tl}.data"),
+                        format!("`{}` is not an open-data task in {}; known: {}", ro.data, data_dir.display(),
+                            list.iter().map(|t| t.id.as_str()).collect::<Vec<_>>().join(", ")),
+                    )
+                })?;
+                let model = models.iter().find(|(m, _)| *m == ro.model).map(|(_, s)| s.clone()).ok_or_else(|| {
+                    ctx.err(
+                        span.clone(),
+                        &format!("{tl}.model"),
+                        format!("`{}` is not one of the suite's [[model]] ids ({})", ro.model,
+                            models.iter().map(|(m, _)| m.as_str()).collect::<Vec<_>>().join(", ")),
+                    )
+                })?;
+                let protocol = ro.protocol.clone().unwrap_or_else(default_protocol);
+                protocol.validate().map_err(|e| ctx.err(span.clone(), &format!("{tl}.protocol"), e.to_string()))?;
+                let n = summary.rows;
+                let (reservoir_rows, test_rows) = match protocol {
+                    Protocol::HeldOut { train_fraction } => {
+                        let n_train = (train_fraction * n as f64).round() as usize;
+                        let pool_n = n.saturating_sub(n_train);
+                        let rows = test_set.rows(pool_n);
+                        if rows == 0 || rows >= pool_n {
+                            return Err(ctx.err(
+                                test_set_span,
+                                "test_set",
+                                format!("{}: gives {rows} test rows for {tl}, whose held-out pool has {pool_n} rows", test_set.describe()),
+                            ));
+                        }
+                        (pool_n - rows, rows)
+                    }
+                    Protocol::CrossFitted { train_fraction, .. } => {
+                        let n_train = (train_fraction * n as f64).round() as usize;
+                        (n_train, n - n_train)
+                    }
+                };
+                let data_sha256 = open::dataset_digest(&data_dir, &ro.data)
+                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.data"), e.to_string()))?;
+                TaskPlan {
+                    id: ro.id.clone(),
+                    source: TaskSource::Open { data_dir: data_dir.clone(), data: ro.data.clone(), model_id: ro.model.clone(), model, protocol },
+                    score_kind: ScoreKind::Probability,
+                    data_sha256,
+                    rows: n,
+                    positives: summary.positives,
+                    reservoir_rows,
+                    test_rows,
+                    pool: ScorePool { scores: Vec::new(), labels: Vec::new(), sides: None },
+                    truth: None,
+                    reservoir: Vec::new(),
+                    test: Vec::new(),
+                    sizes: Vec::new(),
+                    skipped_sizes: Vec::new(),
+                }
+            }
+        };
+        let reservoir_len = plan_task.reservoir_rows;
+        for &s in &sizes {
+            if s <= reservoir_len {
+                plan_task.sizes.push(s);
+            } else if too_large == TooLarge::Skip {
+                plan_task.skipped_sizes.push(s);
+            } else {
+                let sspan = raw.sizes.get_ref().iter().find(|x| *x.get_ref() as usize == s).map(|x| x.span()).unwrap_or(0..0);
+                return Err(ctx.err(
+                    sspan,
+                    "sizes",
+                    format!("{s} is larger than the calibration reservoir of {tl} ({reservoir_len} rows); lower it or set too_large = \"skip\""),
+                ));
+            }
+        }
+        if plan_task.sizes.is_empty() {
+            return Err(ctx.err(raw.sizes.span(), "sizes", format!("no size fits the reservoir of {tl} ({reservoir_len} rows)")));
+        }
+        tasks.push(plan_task);
+    }
+
+    Ok(Plan {
+        suite_file: path.to_path_buf(),
+        suite_sha256: sha256,
+        name,
+        seed: seed as u64,
+        repeats: repeats as usize,
+        confidence,
+        interval,
+        reference: raw.reference.get_ref().clone(),
+        metrics,
+        primary,
+        metric_settings,
+        test_set,
+        methods: methods.into_iter().map(|(m, _)| m).collect(),
+        tasks,
+    })
+}
+
+/// Ids are used in file names and CSV cells: keep them plain.
+pub fn valid_id(s: &str) -> bool {
+    !s.is_empty()
+        && s.len() <= 64
+        && s.chars()
+            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn line_col_counts_from_one() {
+        let t = "a = 1\nbb = 2\n";
+        assert_eq!(line_col(t, 0), (1, 1));
+        assert_eq!(line_col(t, 6), (2, 1));
+        assert_eq!(line_col(t, 8), (2, 3));
+    }
+}

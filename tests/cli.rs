@@ -1,0 +1,391 @@
+//! Integration tests through the real binary: a small suite end to end,
+//! determinism across thread counts, and every bad-input case exiting non-zero
+//! with a located message and no results folder.
+
+use std::fs;
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+use tempfile::TempDir;
+
+fn bin() -> Command {
+    Command::cargo_bin("plumbline").unwrap()
+}
+
+/// A deterministic score file: probability scores with a mild distortion.
+fn score_csv(rows: usize, seed: u64) -> String {
+    let mut s = String::from("id,score,label\n");
+    let mut x = seed;
+    for i in 0..rows {
+        // SplitMix-style integer hash for reproducible pseudo-random values.
+        x = x.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = x;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^= z >> 31;
+        let u = (z >> 11) as f64 / (1u64 << 53) as f64;
+        let v = ((z.rotate_left(17)) >> 11) as f64 / (1u64 << 53) as f64;
+        let q = 0.05 + 0.9 * u;
+        let score = q * q; // over-confident towards 0
+        let label = (v < q) as u8;
+        s.push_str(&format!("r{i},{score:.6},{label}\n"));
+    }
+    s
+}
+
+struct Fixture {
+    dir: TempDir,
+}
+
+impl Fixture {
+    fn new() -> Self {
+        let dir = TempDir::new().unwrap();
+        fs::write(dir.path().join("a.csv"), score_csv(600, 1)).unwrap();
+        fs::write(dir.path().join("b.csv"), score_csv(500, 2)).unwrap();
+        Fixture { dir }
+    }
+    fn path(&self, name: &str) -> PathBuf {
+        self.dir.path().join(name)
+    }
+    fn suite(&self, name: &str, text: &str) -> PathBuf {
+        let p = self.path(name);
+        fs::write(&p, text).unwrap();
+        p
+    }
+}
+
+const GOOD: &str = r#"name = "small"
+seed = 7
+repeats = 5
+sizes = [20, 60]
+reference = "platt"
+metrics = ["log_loss", "brier"]
+primary_metric = "log_loss"
+
+[test_set]
+rows = 200
+
+[[method]]
+id = "identity"
+kind = "identity"
+
+[[method]]
+id = "platt"
+kind = "platt"
+
+[[method]]
+id = "isotonic"
+kind = "isotonic"
+
+[[task]]
+id = "a"
+scores = "a.csv"
+score_column = "score"
+label_column = "label"
+score_kind = "probability"
+
+[[task]]
+id = "b"
+scores = "b.csv"
+score_column = "score"
+label_column = "label"
+score_kind = "probability"
+"#;
+
+fn run_ok(_fx: &Fixture, suite: &Path, out: &Path, threads: &str) {
+    bin()
+        .args([
+            "run",
+            suite.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--threads",
+            threads,
+            "--quiet",
+        ])
+        .assert()
+        .success();
+}
+
+#[test]
+fn small_suite_writes_the_documented_files() {
+    let fx = Fixture::new();
+    let suite = fx.suite("good.toml", GOOD);
+    let out = fx.path("out");
+    run_ok(&fx, &suite, &out, "2");
+    for f in [
+        "manifest.json",
+        "units.csv",
+        "paired.csv",
+        "summary.md",
+        "timings.csv",
+    ] {
+        assert!(out.join(f).exists(), "{f} missing");
+    }
+    let units = fs::read_to_string(out.join("units.csv")).unwrap();
+    let head = units.lines().next().unwrap();
+    assert_eq!(
+        head,
+        "task,size,repeat,method,status,log_loss,brier,clipped,positives,reservoir,test_rows"
+    );
+    // 2 tasks × 2 sizes × 5 repeats × 3 methods.
+    assert_eq!(units.lines().count() - 1, 60);
+    let paired = fs::read_to_string(out.join("paired.csv")).unwrap();
+    assert!(paired.starts_with("task,size,method,reference,metric,repeats,mean_method,mean_reference,mean_diff,ci_low,ci_high,se,wins,ties,losses"));
+    // 2 tasks × 2 sizes × 2 non-reference methods × 2 metrics.
+    assert_eq!(paired.lines().count() - 1, 16);
+    let manifest: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("manifest.json")).unwrap()).unwrap();
+    assert_eq!(manifest["suite"]["seed"], 7);
+    assert_eq!(manifest["tasks"][0]["test_rows"], 200);
+    assert_eq!(manifest["tasks"][1]["reservoir"], 300);
+    assert!(manifest["suite"]["sha256"].as_str().unwrap().len() == 64);
+    let summary = fs::read_to_string(out.join("summary.md")).unwrap();
+    assert!(summary.contains("Task `a`") && summary.contains("Caution"));
+    // No staging folder is left behind.
+    assert!(!fx.path(".out.partial").exists());
+}
+
+#[test]
+fn one_and_two_threads_give_identical_bytes() {
+    let fx = Fixture::new();
+    let suite = fx.suite("good.toml", GOOD);
+    let (o1, o2) = (fx.path("one"), fx.path("two"));
+    run_ok(&fx, &suite, &o1, "1");
+    run_ok(&fx, &suite, &o2, "2");
+    for f in ["units.csv", "paired.csv", "summary.md"] {
+        assert_eq!(
+            fs::read(o1.join(f)).unwrap(),
+            fs::read(o2.join(f)).unwrap(),
+            "{f} differs"
+        );
+    }
+}
+
+#[test]
+fn existing_results_need_force_and_report_rebuilds() {
+    let fx = Fixture::new();
+    let suite = fx.suite("good.toml", GOOD);
+    let out = fx.path("out");
+    run_ok(&fx, &suite, &out, "2");
+    let paired = fs::read(out.join("paired.csv")).unwrap();
+    bin()
+        .args([
+            "run",
+            suite.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--quiet",
+        ])
+        .assert()
+        .failure()
+        .stderr(predicates::str::contains("--force"));
+    // report rebuilds paired.csv byte for byte from units.csv.
+    fs::remove_file(out.join("paired.csv")).unwrap();
+    bin()
+        .args(["report", out.to_str().unwrap()])
+        .assert()
+        .success();
+    assert_eq!(fs::read(out.join("paired.csv")).unwrap(), paired);
+    bin()
+        .args([
+            "run",
+            suite.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--quiet",
+            "--force",
+        ])
+        .assert()
+        .success();
+}
+
+/// Run a suite that must fail; the message must contain every `needle`, and no
+/// results folder may appear.
+fn must_fail(fx: &Fixture, suite_text: &str, needles: &[&str]) {
+    let suite = fx.suite("bad.toml", suite_text);
+    let out = fx.path("bad-out");
+    let assert = bin()
+        .args([
+            "run",
+            suite.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--quiet",
+        ])
+        .assert()
+        .failure();
+    let err = String::from_utf8_lossy(&assert.get_output().stderr).to_string();
+    for n in needles {
+        assert!(err.contains(n), "message {err:?} lacks {n:?}");
+    }
+    assert!(
+        !out.exists(),
+        "a results folder was written for a bad suite"
+    );
+    assert!(!fx.path(".bad-out.partial").join("units.csv").exists());
+    // `check` fails the same way.
+    bin()
+        .args(["check", suite.to_str().unwrap()])
+        .assert()
+        .failure();
+}
+
+#[test]
+fn bad_suites_are_rejected_with_file_line_and_key() {
+    let fx = Fixture::new();
+    must_fail(
+        &fx,
+        &GOOD.replace("repeats = 5", "repeats = 5\nrepeets = 3"),
+        &["bad.toml:4", "repeets"],
+    );
+    must_fail(
+        &fx,
+        &GOOD.replace("repeats = 5", "repeats = \"five\""),
+        &["bad.toml:3", "repeats"],
+    );
+    must_fail(
+        &fx,
+        &GOOD.replace("sizes = [20, 60]", "sizes = [20, 5000]"),
+        &["bad.toml:4", "sizes", "5000", "reservoir"],
+    );
+    must_fail(
+        &fx,
+        &GOOD.replace("reference = \"platt\"", "reference = \"beta\""),
+        &["bad.toml:5", "reference", "beta"],
+    );
+    must_fail(
+        &fx,
+        &GOOD.replace("id = \"b\"", "id = \"a\""),
+        &["task `a`", "another task"],
+    );
+    must_fail(
+        &fx,
+        &GOOD.replace("kind = \"platt\"", "kind = \"platt\"\nsmoothing = true"),
+        &["method `platt`", "smoothing"],
+    );
+    must_fail(
+        &fx,
+        &GOOD.replace(
+            "primary_metric = \"log_loss\"",
+            "primary_metric = \"auc_roc\"",
+        ),
+        &["bad.toml:7", "primary_metric"],
+    );
+    must_fail(
+        &fx,
+        &GOOD.replace("sizes = [20, 60]", "sizes = [20, 20]"),
+        &["bad.toml:4", "twice"],
+    );
+    must_fail(
+        &fx,
+        &GOOD.replace(
+            "score_kind = \"probability\"\n\n[[task]]",
+            "score_kind = \"margin\"\n\n[[task]]",
+        ),
+        &["identity", "margin"],
+    );
+}
+
+#[test]
+fn bad_score_files_are_rejected_with_file_line_column_value() {
+    let fx = Fixture::new();
+    let good_a = fs::read_to_string(fx.path("a.csv")).unwrap();
+    let cases: Vec<(String, Vec<&str>)> = vec![
+        (
+            good_a.replacen("r3,", "r3,NaN,1\nx,", 1),
+            vec!["a.csv:5", "`score`", "NaN"],
+        ),
+        (
+            good_a.replacen("r3,", "r3,inf,1\nx,", 1),
+            vec!["a.csv:5", "finite", "inf"],
+        ),
+        (
+            good_a.replacen("r3,", "r3,1.5,1\nx,", 1),
+            vec!["a.csv:5", "[0, 1]", "1.5"],
+        ),
+        (
+            good_a.replacen("r3,", "r3,0.5,2\nx,", 1),
+            vec!["a.csv:5", "`label`", "`2`"],
+        ),
+        (
+            good_a.replacen("r3,", "r3,0.5,yes\nx,", 1),
+            vec!["a.csv:5", "`label`", "`yes`"],
+        ),
+        (
+            good_a.replacen("r3,", "r3,0.5\nx,", 1),
+            vec!["a.csv:5", "fields"],
+        ),
+        (
+            good_a.replacen("id,score,label", "id,prob,label", 1),
+            vec!["a.csv", "`score`", "prob"],
+        ),
+        (String::new(), vec!["a.csv", "empty"]),
+        ("id,score,label\n".into(), vec!["a.csv", "no data rows"]),
+        (
+            good_a.replace(",1\n", ",0\n"),
+            vec!["a.csv", "label 0", "both classes"],
+        ),
+    ];
+    for (text, needles) in cases {
+        fs::write(fx.path("a.csv"), &text).unwrap();
+        must_fail(&fx, GOOD, &needles);
+    }
+}
+
+#[test]
+fn labels_true_false_and_gzip_are_accepted() {
+    let fx = Fixture::new();
+    let a = fs::read_to_string(fx.path("a.csv"))
+        .unwrap()
+        .replace(",1\n", ",true\n")
+        .replace(",0\n", ",False\n");
+    {
+        use std::io::Write;
+        let f = fs::File::create(fx.path("a.csv.gz")).unwrap();
+        let mut gz = flate2::write::GzEncoder::new(f, flate2::Compression::fast());
+        gz.write_all(a.as_bytes()).unwrap();
+        gz.finish().unwrap();
+    }
+    let suite = fx.suite(
+        "gz.toml",
+        &GOOD.replace("scores = \"a.csv\"", "scores = \"a.csv.gz\""),
+    );
+    bin()
+        .args(["check", suite.to_str().unwrap()])
+        .assert()
+        .success()
+        .stdout(predicates::str::contains("units"));
+}
+
+#[test]
+fn split_column_pins_rows() {
+    let fx = Fixture::new();
+    let mut text = String::from("id,score,label,part\n");
+    for (i, line) in fs::read_to_string(fx.path("a.csv"))
+        .unwrap()
+        .lines()
+        .skip(1)
+        .enumerate()
+    {
+        text.push_str(&format!(
+            "{line},{}\n",
+            if i < 450 { "calibration" } else { "test" }
+        ));
+    }
+    fs::write(fx.path("a.csv"), text).unwrap();
+    let suite = fx.suite(
+        "pin.toml",
+        &GOOD.replacen(
+            "score_kind = \"probability\"",
+            "score_kind = \"probability\"\nsplit_column = \"part\"",
+            1,
+        ),
+    );
+    let out = fx.path("pin-out");
+    run_ok(&fx, &suite, &out, "2");
+    let manifest: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("manifest.json")).unwrap()).unwrap();
+    assert_eq!(manifest["tasks"][0]["reservoir"], 450);
+    assert_eq!(manifest["tasks"][0]["test_rows"], 150);
+}
