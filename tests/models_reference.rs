@@ -67,20 +67,30 @@ fn logistic_matches_scikit_learn_and_statsmodels() {
         let l2 = case["l2"].as_f64().unwrap();
         let source = case["source"].as_str().unwrap();
         let m = logistic::fit(&d, &train, l2, 100).unwrap();
+        // scikit-learn's lbfgs stops at about 1e-9 from the optimum here;
+        // statsmodels' Newton agrees with ours to rounding.
+        let tol = if l2 == 0.0 { 1e-10 } else { 1e-7 };
         let want = floats(&case["coef"]);
         assert_eq!(m.coef.len(), want.len(), "{source}");
         let b = case["intercept"].as_f64().unwrap();
         assert!(
-            (m.intercept - b).abs() < 1e-6,
+            (m.intercept - b).abs() < tol,
             "{source}: intercept {} vs {b}",
             m.intercept
         );
         for (j, (got, want)) in m.coef.iter().zip(&want).enumerate() {
             assert!(
-                (got - want).abs() < 1e-6,
+                (got - want).abs() < tol,
                 "{source}: coef {j}: {got} vs {want}"
             );
         }
+        let dmax = m
+            .coef
+            .iter()
+            .zip(&want)
+            .map(|(a, b)| (a - b).abs())
+            .fold((m.intercept - b).abs(), f64::max);
+        eprintln!("{source}: largest parameter difference {dmax:.2e}");
         let p = m.score(&d, &test).unwrap();
         for (got, want) in p.iter().zip(floats(&case["test_proba"])) {
             assert!((got - want).abs() < 1e-7, "{source}: P {got} vs {want}");

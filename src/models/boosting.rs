@@ -39,6 +39,8 @@ pub struct BoostingSettings {
 
 pub struct Boosting {
     booster: GradientBooster,
+    /// Number of dataset columns at fit time.
+    features: usize,
     /// Dataset columns used by the booster, in order.
     used: Vec<usize>,
     settings: BoostingSettings,
@@ -128,6 +130,7 @@ pub fn fit(
         .map_err(|e| fail(e.to_string()))?;
     Ok(Boosting {
         booster,
+        features: data.columns.len(),
         used,
         settings: *settings,
     })
@@ -137,13 +140,7 @@ impl Boosting {
     /// The ensemble's log-odds F(x) on `rows`.
     pub fn log_odds(&self, data: &Dataset, rows: &[usize]) -> Result<Vec<f64>, ModelError> {
         super::check_rows(data, rows)?;
-        if let Some(&j) = self.used.iter().find(|&&j| j >= data.columns.len()) {
-            return Err(ModelError::Fit {
-                dataset: data.id.clone(),
-                model: "boosting",
-                reason: format!("the dataset lacks feature column #{}", j + 1),
-            });
-        }
+        super::check_width(data, self.features)?;
         check_no_infinities(data, rows)?;
         if rows.is_empty() {
             return Ok(Vec::new());
@@ -176,5 +173,73 @@ impl Model for Boosting {
             "base_log_odds": self.booster.base_score,
             "features_used": self.used.len(),
         })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::FeatureKind;
+
+    fn settings() -> BoostingSettings {
+        BoostingSettings {
+            rounds: 50,
+            depth: 3,
+            eta: 0.1,
+            l2: 1.0,
+            min_child_hessian: 1.0,
+            bins: 64,
+            row_fraction: 1.0,
+        }
+    }
+
+    #[test]
+    fn score_is_the_sigmoid_of_rising_log_odds() {
+        // y = 1 exactly when x > 0.5: the log-odds must rise with x, so an
+        // inverted orientation fails.
+        let n = 400;
+        let x: Vec<f64> = (0..n).map(|i| i as f64 / n as f64).collect();
+        let labels: Vec<bool> = x.iter().map(|&v| v > 0.5).collect();
+        let d = Dataset {
+            id: "step".into(),
+            names: vec!["x".into(), "constant".into()],
+            columns: vec![x, vec![1.0; n]],
+            kinds: vec![FeatureKind::Numeric, FeatureKind::Numeric],
+            labels,
+        };
+        let rows: Vec<usize> = (0..n).collect();
+        let m = fit(&d, &rows, &settings(), 0).unwrap();
+        assert_eq!(m.used, vec![0], "the constant column is left out");
+        let f = m.log_odds(&d, &[0, 399]).unwrap();
+        assert!(f[0] < -1.0 && f[1] > 1.0, "{f:?}");
+        let p = m.score(&d, &[0, 399]).unwrap();
+        assert!((p[0] - sigmoid(f[0])).abs() < 1e-15);
+        assert!((p[1] - sigmoid(f[1])).abs() < 1e-15);
+    }
+
+    #[test]
+    fn missing_values_are_accepted_and_infinities_rejected() {
+        let n = 300;
+        let mut x: Vec<f64> = (0..n).map(|i| i as f64).collect();
+        let labels: Vec<bool> = (0..n).map(|i| i % 3 == 0 || i > 200).collect();
+        for v in x.iter_mut().step_by(7) {
+            *v = f64::NAN;
+        }
+        let mut d = Dataset {
+            id: "nan".into(),
+            names: vec!["x".into()],
+            columns: vec![x],
+            kinds: vec![FeatureKind::Numeric],
+            labels,
+        };
+        let rows: Vec<usize> = (0..n).collect();
+        let m = fit(&d, &rows, &settings(), 0).unwrap();
+        let p = m.score(&d, &rows).unwrap();
+        assert!(p.iter().all(|v| (0.0..=1.0).contains(v)));
+        d.columns[0][5] = f64::INFINITY;
+        assert!(matches!(
+            fit(&d, &rows, &settings(), 0),
+            Err(ModelError::NonFinite { row: 5, .. })
+        ));
     }
 }

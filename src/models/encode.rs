@@ -35,6 +35,8 @@ pub struct DesignCol {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Design {
     pub cols: Vec<DesignCol>,
+    /// Number of dataset columns the design was built for.
+    pub source_columns: usize,
 }
 
 impl Design {
@@ -67,7 +69,10 @@ impl Design {
                 }
             }
         }
-        Design { cols }
+        Design {
+            cols,
+            source_columns: data.columns.len(),
+        }
     }
 
     pub fn width(&self) -> usize {
@@ -109,7 +114,7 @@ pub struct Standardizer {
 impl Standardizer {
     /// Statistics of a row-major `n × p` matrix.
     pub fn fit(x: &[f64], p: usize) -> Self {
-        let n = if p == 0 { 0 } else { x.len() / p };
+        let n = x.len().checked_div(p).unwrap_or(0);
         let mut mean = vec![0.0; p];
         for row in x.chunks_exact(p.max(1)) {
             for (m, v) in mean.iter_mut().zip(row) {

@@ -134,18 +134,8 @@ pub fn fit(
 impl Model for Forest {
     fn score(&self, data: &Dataset, rows: &[usize]) -> Result<Vec<f64>, ModelError> {
         super::check_rows(data, rows)?;
+        super::check_width(data, self.features)?;
         check_values(data, rows)?;
-        if data.columns.len() != self.features {
-            return Err(ModelError::Fit {
-                dataset: data.id.clone(),
-                model: "forest",
-                reason: format!(
-                    "fitted on {} feature columns, asked to score {}",
-                    self.features,
-                    data.columns.len()
-                ),
-            });
-        }
         if rows.is_empty() {
             return Ok(Vec::new());
         }
@@ -181,5 +171,70 @@ impl Model for Forest {
                 .unwrap_or((self.features as f64).sqrt().floor() as usize),
             "seeded_chunks": self.chunks.len(),
         })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::FeatureKind;
+
+    /// One feature x = i/n; P(y = 1 | x) = x (labels drawn with a fixed
+    /// generator), so the true probability rises with x.
+    fn ramp(n: usize) -> Dataset {
+        let mut r = crate::split::rng(3);
+        let x: Vec<f64> = (0..n).map(|i| i as f64 / n as f64).collect();
+        let labels = x
+            .iter()
+            .map(|&v| (crate::split::below(&mut r, 1_000_000) as f64) < v * 1e6)
+            .collect();
+        Dataset {
+            id: "ramp".into(),
+            names: vec!["x".into()],
+            columns: vec![x],
+            kinds: vec![FeatureKind::Numeric],
+            labels,
+        }
+    }
+
+    #[test]
+    fn leaf_frequencies_not_votes_and_rising_with_the_truth() {
+        let d = ramp(2000);
+        let rows: Vec<usize> = (0..d.rows()).collect();
+        let s = ForestSettings {
+            trees: 30,
+            min_leaf: 20,
+            max_depth: None,
+            split_features: None,
+        };
+        let m = fit(&d, &rows, &s, 1).unwrap();
+        let p = m.score(&d, &rows).unwrap();
+        // With leaves of ≥ 20 noisy rows, scores are frequencies strictly inside (0, 1)
+        // for most rows (hard votes would give mostly 0 or 1).
+        let inner = p.iter().filter(|&&v| v > 0.02 && v < 0.98).count();
+        assert!(inner > 1800, "{inner}");
+        // Orientation: mean score on the top tenth of x well above the bottom tenth,
+        // close to the true means 0.95 and 0.05 (definition of the ramp).
+        let lo = p[..200].iter().sum::<f64>() / 200.0;
+        let hi = p[1800..].iter().sum::<f64>() / 200.0;
+        assert!(lo < 0.15 && hi > 0.85, "{lo} {hi}");
+    }
+
+    #[test]
+    fn chunked_seeds_give_distinct_trees() {
+        // Two chunks with their own seeds: a 20-tree forest differs from a
+        // 10-tree one on the same seed (else the chunks would repeat each other).
+        let d = ramp(500);
+        let rows: Vec<usize> = (0..d.rows()).collect();
+        let s10 = ForestSettings {
+            trees: 10,
+            min_leaf: 5,
+            max_depth: None,
+            split_features: None,
+        };
+        let s20 = ForestSettings { trees: 20, ..s10 };
+        let a = fit(&d, &rows, &s10, 4).unwrap().score(&d, &rows).unwrap();
+        let b = fit(&d, &rows, &s20, 4).unwrap().score(&d, &rows).unwrap();
+        assert_ne!(a, b);
     }
 }

@@ -46,7 +46,7 @@ fn cholesky(a: &mut [f64], m: usize) -> bool {
         for k in 0..j {
             d -= a[j * m + k] * a[j * m + k];
         }
-        if !(d > 0.0) || !d.is_finite() {
+        if d.is_nan() || d <= 0.0 || d.is_infinite() {
             return false;
         }
         let d = d.sqrt();
@@ -261,6 +261,7 @@ impl Logistic {
     /// Linear predictors b + wᵀx̃ on `rows`.
     pub fn margins(&self, data: &Dataset, rows: &[usize]) -> Result<Vec<f64>, ModelError> {
         super::check_rows(data, rows)?;
+        super::check_width(data, self.design.source_columns)?;
         check_values(data, rows)?;
         let p = self.design.width();
         let mut x = self.design.row_major(data, rows);
@@ -328,10 +329,30 @@ mod tests {
             }
             g[p] += res;
         }
-        for j in 0..p {
-            g[j] += 2.5 * m.coef[j];
+        for (gj, w) in g.iter_mut().zip(&m.coef) {
+            *gj += 2.5 * w;
         }
         assert!(g.iter().all(|v| v.abs() < 1e-6), "{g:?}");
+    }
+
+    #[test]
+    fn standardisation_uses_training_rows_only() {
+        // Changing feature values of rows outside the training set must not
+        // change the fitted coefficients.
+        let d = crate::models::testdata::two_gaussians(300, 3, 9);
+        let train: Vec<usize> = (0..200).collect();
+        let a = fit(&d, &train, 1.0, 100).unwrap();
+        let mut e = d.clone();
+        for v in &mut e.columns[0][200..] {
+            *v = *v * 100.0 + 50.0;
+        }
+        let b = fit(&e, &train, 1.0, 100).unwrap();
+        assert_eq!(a.coef, b.coef);
+        assert_eq!(a.scaler, b.scaler);
+        // ... while the training rows' statistics are what the scaler holds.
+        let x0: Vec<f64> = train.iter().map(|&r| d.columns[0][r]).collect();
+        let mean = x0.iter().sum::<f64>() / 200.0;
+        assert!((a.scaler.mean[0] - mean).abs() < 1e-12);
     }
 
     #[test]

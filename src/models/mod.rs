@@ -67,6 +67,8 @@ pub enum ModelError {
         value: f64,
         levels: usize,
     },
+    #[error("dataset {dataset}: {reason}")]
+    Shape { dataset: String, reason: String },
     #[error("dataset {dataset}: {model} fit failed: {reason}")]
     Fit {
         dataset: String,
@@ -384,9 +386,30 @@ pub fn check_training_rows(data: &Dataset, rows: &[usize]) -> Result<(), ModelEr
     Ok(())
 }
 
-/// Every row index is within the dataset.
+/// The dataset's columns all have one value per label and one kind each, and
+/// every row index is within the dataset.
 pub fn check_rows(data: &Dataset, rows: &[usize]) -> Result<(), ModelError> {
     let n = data.rows();
+    if let Some((j, col)) = data.columns.iter().enumerate().find(|(_, c)| c.len() != n) {
+        return Err(ModelError::Shape {
+            dataset: data.id.clone(),
+            reason: format!(
+                "column `{}` has {} values for {n} labels",
+                column_name(data, j),
+                col.len()
+            ),
+        });
+    }
+    if data.kinds.len() != data.columns.len() {
+        return Err(ModelError::Shape {
+            dataset: data.id.clone(),
+            reason: format!(
+                "{} column kinds for {} columns",
+                data.kinds.len(),
+                data.columns.len()
+            ),
+        });
+    }
     if let Some(&row) = rows.iter().find(|&&r| r >= n) {
         return Err(ModelError::RowOutOfRange {
             dataset: data.id.clone(),
@@ -424,6 +447,20 @@ pub fn check_values(data: &Dataset, rows: &[usize]) -> Result<(), ModelError> {
                 }
             }
         }
+    }
+    Ok(())
+}
+
+/// The dataset has the `features` columns a model was fitted on.
+pub fn check_width(data: &Dataset, features: usize) -> Result<(), ModelError> {
+    if data.columns.len() != features {
+        return Err(ModelError::Shape {
+            dataset: data.id.clone(),
+            reason: format!(
+                "the model was fitted on {features} feature columns, this dataset has {}",
+                data.columns.len()
+            ),
+        });
     }
     Ok(())
 }
@@ -502,6 +539,28 @@ mod tests {
         let e = spec.fit(&d, &rows, 1).err().unwrap();
         assert!(matches!(e, ModelError::NonFinite { row: 3, .. }), "{e}");
         d.columns[0][3] = 0.0;
+        let mut short = d.clone();
+        short.columns[1].pop();
+        let e = spec.fit(&short, &rows, 1).err().unwrap();
+        assert!(matches!(e, ModelError::Shape { .. }), "{e}");
+        let mut narrow = d.clone();
+        narrow.columns.pop();
+        narrow.kinds.pop();
+        narrow.names.pop();
+        for spec in [
+            ModelSpec::logistic(),
+            ModelSpec::naive_bayes(),
+            ModelSpec::forest(),
+            ModelSpec::boosting(),
+        ] {
+            let m = spec.fit(&d, &rows, 1).unwrap();
+            let e = m.score(&narrow, &[0, 1]).err().unwrap();
+            assert!(
+                matches!(e, ModelError::Shape { .. }),
+                "{}: {e}",
+                spec.kind()
+            );
+        }
         d.columns[2][4] = 7.0; // column 2 is categorical with 3 levels
         let e = ModelSpec::naive_bayes().fit(&d, &rows, 1).err().unwrap();
         assert!(matches!(e, ModelError::BadLevel { row: 4, .. }), "{e}");

@@ -83,10 +83,10 @@ pub fn fit(data: &Dataset, rows: &[usize], var_smoothing: f64) -> Result<NaiveBa
     }
     let max_var = all_var.iter().map(|s| s / n as f64).fold(0.0f64, f64::max);
     let epsilon = var_smoothing * max_var;
-    for c in 0..2 {
-        for j in 0..p {
-            var[c][j] = var[c][j] / counts[c] as f64 + epsilon;
-            if !(var[c][j] > 0.0) {
+    for (c, var_c) in var.iter_mut().enumerate() {
+        for (j, v) in var_c.iter_mut().enumerate() {
+            *v = *v / counts[c] as f64 + epsilon;
+            if v.is_nan() || *v <= 0.0 {
                 return Err(fail(format!(
                     "feature `{}` has zero variance in class {} and var_smoothing \
                      adds nothing (all features constant, or var_smoothing = 0)",
@@ -113,6 +113,7 @@ impl NaiveBayes {
     /// ln P(x, 1) − ln P(x, 0) on `rows`.
     pub fn log_odds(&self, data: &Dataset, rows: &[usize]) -> Result<Vec<f64>, ModelError> {
         super::check_rows(data, rows)?;
+        super::check_width(data, self.design.source_columns)?;
         check_values(data, rows)?;
         let p = self.design.width();
         let x = self.design.row_major(data, rows);
@@ -120,16 +121,17 @@ impl NaiveBayes {
         Ok((0..rows.len())
             .map(|i| {
                 let xi = &x[i * p..(i + 1) * p];
-                let mut jl = [0.0; 2];
-                for c in 0..2 {
-                    let mut s = self.log_prior[c];
-                    for j in 0..p {
-                        let v = self.var[c][j];
-                        let d = xi[j] - self.mean[c][j];
-                        s -= 0.5 * ((two_pi * v).ln() + d * d / v);
-                    }
-                    jl[c] = s;
-                }
+                let jl: Vec<f64> = (0..2)
+                    .map(|c| {
+                        let terms = xi.iter().zip(&self.mean[c]).zip(&self.var[c]);
+                        self.log_prior[c]
+                            - terms
+                                .map(|((x, m), v)| {
+                                    0.5 * ((two_pi * v).ln() + (x - m) * (x - m) / v)
+                                })
+                                .sum::<f64>()
+                    })
+                    .collect();
                 jl[1] - jl[0]
             })
             .collect())

@@ -36,9 +36,9 @@ use crate::calibrate::ParamError;
 use crate::data::{Dataset, ScorePool, Side};
 use crate::split::{mix, partition, rng, sample_indices};
 
-const TAG_SPLIT: u64 = 0x7370_6c69_74; // "split"
-const TAG_MODEL: u64 = 0x6d6f_6465_6c; // "model"
-const TAG_FOLDS: u64 = 0x666f_6c64_73; // "folds"
+const TAG_SPLIT: u64 = 0x0073_706c_6974; // "split"
+const TAG_MODEL: u64 = 0x006d_6f64_656c; // "model"
+const TAG_FOLDS: u64 = 0x0066_6f6c_6473; // "folds"
 const TAG_BUDGET: u64 = 0x6275_6467_6574; // "budget"
 
 fn d_train_fraction() -> f64 {
@@ -77,6 +77,17 @@ impl Protocol {
             Protocol::HeldOut { .. } => "held-out",
             Protocol::CrossFitted { .. } => "cross-fitted",
         }
+    }
+
+    /// Rows that train the base model out of a dataset of `n` rows:
+    /// ⌊train_fraction·n⌉. Held-out pools hold the other n − that rows;
+    /// cross-fitted pools hold that many reservoir rows and the rest as test set.
+    pub fn train_rows(&self, n: usize) -> usize {
+        let tf = match *self {
+            Protocol::HeldOut { train_fraction } => train_fraction,
+            Protocol::CrossFitted { train_fraction, .. } => train_fraction,
+        };
+        (tf * n as f64).round() as usize
     }
 
     pub fn validate(&self) -> Result<(), ParamError> {
@@ -226,21 +237,11 @@ pub fn cross_fit(
     let trained_on: Vec<Vec<usize>> = parts.into_iter().map(|(t, _)| t).collect();
     // By construction no row is scored by a model that saw it; check anyway, so
     // a future change to the fold logic cannot silently leak.
-    for (k, train) in trained_on.iter().enumerate() {
-        let mut seen = vec![false; data.rows()];
-        for &r in train {
-            seen[r] = true;
-        }
-        if let Some((_, &r)) = rows
-            .iter()
-            .enumerate()
-            .find(|&(i, &r)| fold_of[i] == k && seen[r])
-        {
-            return Err(protocol_error(
-                data,
-                format!("row {r} was scored by a model trained on it"),
-            ));
-        }
+    if let Some(r) = first_leak(data.rows(), rows, &fold_of, &trained_on) {
+        return Err(protocol_error(
+            data,
+            format!("row {r} was scored by a model trained on it"),
+        ));
     }
     Ok(CrossFit {
         rows: rows.to_vec(),
@@ -252,19 +253,44 @@ pub fn cross_fit(
     })
 }
 
+/// The first row scored by a fold model whose training rows contain it, if any
+/// (`n` = dataset rows).
+pub fn first_leak(
+    n: usize,
+    rows: &[usize],
+    fold_of: &[usize],
+    trained_on: &[Vec<usize>],
+) -> Option<usize> {
+    for (k, train) in trained_on.iter().enumerate() {
+        let mut seen = vec![false; n];
+        for &r in train {
+            seen[r] = true;
+        }
+        if let Some((_, &r)) = rows
+            .iter()
+            .enumerate()
+            .find(|&(i, &r)| fold_of[i] == k && seen[r])
+        {
+            return Some(r);
+        }
+    }
+    None
+}
+
 /// Training rows and unseen rows of a protocol's split.
 fn split_rows(
     data: &Dataset,
-    train_fraction: f64,
+    protocol: &Protocol,
     seed: u64,
 ) -> Result<(Vec<usize>, Vec<usize>), ModelError> {
     let n = data.rows();
-    let n_train = (train_fraction * n as f64).round() as usize;
+    let n_train = protocol.train_rows(n);
     if n_train < 2 || n_train >= n {
         return Err(protocol_error(
             data,
             format!(
-                "train_fraction = {train_fraction} of {n} rows leaves {n_train} training and {} other rows",
+                "{} splits {n} rows into {n_train} training and {} other rows",
+                protocol.kind(),
                 n.saturating_sub(n_train)
             ),
         ));
@@ -323,8 +349,8 @@ fn build_pool(
     seed: u64,
 ) -> Result<(ScorePool, PoolInfo), ModelError> {
     match *protocol {
-        Protocol::HeldOut { train_fraction } => {
-            let (train, unseen) = split_rows(data, train_fraction, seed)?;
+        Protocol::HeldOut { .. } => {
+            let (train, unseen) = split_rows(data, protocol, seed)?;
             let t0 = Instant::now();
             let m = model.fit(data, &train, mix(seed, &[TAG_MODEL, 0]))?;
             let fit_seconds = t0.elapsed().as_secs_f64();
@@ -347,11 +373,8 @@ fn build_pool(
             };
             Ok((pool, info))
         }
-        Protocol::CrossFitted {
-            train_fraction,
-            folds,
-        } => {
-            let (train, unseen) = split_rows(data, train_fraction, seed)?;
+        Protocol::CrossFitted { folds, .. } => {
+            let (train, unseen) = split_rows(data, protocol, seed)?;
             let cf = cross_fit(data, model, &train, folds, seed)?;
             let t0 = Instant::now();
             let m = model.fit(data, &train, mix(seed, &[TAG_MODEL, folds as u64]))?;
@@ -364,7 +387,7 @@ fn build_pool(
             let mut rows = train.clone();
             rows.extend(&unseen);
             let mut sides = vec![Side::Reservoir; train.len()];
-            sides.extend(std::iter::repeat_n(Side::Test, unseen.len()));
+            sides.extend(std::iter::repeat(Side::Test).take(unseen.len()));
             let pool = ScorePool {
                 scores,
                 labels: rows.iter().map(|&r| data.labels[r]).collect(),
@@ -469,15 +492,15 @@ pub fn protocol_study_unit(
         let mut labels: Vec<bool> = cal_rows.iter().map(|&r| data.labels[r]).collect();
         labels.extend(&test_labels);
         let mut sides = vec![Side::Reservoir; cal_rows.len()];
-        sides.extend(std::iter::repeat_n(Side::Test, test_rows.len()));
+        sides.extend(std::iter::repeat(Side::Test).take(test_rows.len()));
         ScorePool {
             scores,
             labels,
             sides: Some(sides),
         }
     };
-    let mut out = Vec::new();
-    for (v, &f) in settings.fractions.iter().enumerate() {
+    // Check every variant before fitting any.
+    for &f in &settings.fractions {
         if !(f > 0.0 && f < 1.0) {
             return Err(ParamError::new("fraction", f, "must lie strictly between 0 and 1").into());
         }
@@ -488,6 +511,10 @@ pub fn protocol_study_unit(
                 format!("calibration fraction {f} of budget {budget} leaves {n_cal} rows"),
             ));
         }
+    }
+    let mut out = Vec::new();
+    for (v, &f) in settings.fractions.iter().enumerate() {
+        let n_cal = (f * budget as f64).round() as usize;
         let (cal, train) = drawn.split_at(n_cal);
         let mut train = train.to_vec();
         train.sort_unstable();
@@ -578,24 +605,29 @@ mod tests {
     }
 
     #[test]
-    fn cross_fit_rejects_duplicate_rows_as_a_leak() {
-        let d = two_gaussians(100, 3, 2);
-        let mut rows: Vec<usize> = (0..60).collect();
-        rows.push(5);
-        let e = cross_fit(&d, &ModelSpec::logistic(), &rows, 3, 1);
-        // Row 5 appears twice: unless both copies land in one fold, one copy is
-        // scored by a model that trained on the other.
-        if let Ok(cf) = &e {
-            let folds: Vec<usize> = rows
-                .iter()
-                .enumerate()
-                .filter(|&(_, &r)| r == 5)
-                .map(|(i, _)| cf.fold_of[i])
-                .collect();
-            assert_eq!(folds[0], folds[1]);
-        } else {
-            assert!(matches!(e, Err(ModelError::Protocol { .. })));
-        }
+    fn leak_check_finds_a_row_in_its_own_fold_model() {
+        // Rows 0..6 in folds 0, 1, 2, 0, 1, 2; fold k's model trained on the rest.
+        let rows: Vec<usize> = (0..6).collect();
+        let fold_of = vec![0, 1, 2, 0, 1, 2];
+        let mut trained_on: Vec<Vec<usize>> = (0..3)
+            .map(|k| (0..6).filter(|&r| fold_of[r] != k).collect())
+            .collect();
+        assert_eq!(first_leak(6, &rows, &fold_of, &trained_on), None);
+        trained_on[2].push(5); // fold 2's model saw row 5, which it scores
+        assert_eq!(first_leak(6, &rows, &fold_of, &trained_on), Some(5));
+        // A row listed twice in different folds is a leak too.
+        let rows = vec![0, 1, 2, 3, 4, 5, 1];
+        let fold_of = vec![0, 1, 2, 0, 1, 2, 0];
+        let trained_on: Vec<Vec<usize>> = (0..3)
+            .map(|k| {
+                rows.iter()
+                    .zip(&fold_of)
+                    .filter(|&(_, &f)| f != k)
+                    .map(|(&r, _)| r)
+                    .collect()
+            })
+            .collect();
+        assert_eq!(first_leak(6, &rows, &fold_of, &trained_on), Some(1));
     }
 
     #[test]
@@ -607,6 +639,7 @@ mod tests {
         let (pool, info) = score_pool(&d, &ModelSpec::logistic(), &proto, 9, None).unwrap();
         assert!(pool.sides.is_none());
         assert_eq!(info.train_rows, 120); // round(0.4 · 301)
+        assert_eq!(proto.train_rows(301), 120);
         assert_eq!(pool.scores.len(), 181);
         assert!(info.pool_rows.windows(2).all(|w| w[0] < w[1]));
         for (i, &r) in info.pool_rows.iter().enumerate() {
