@@ -10,3 +10,4 @@ pub mod calibrate;
 pub mod data;
 pub mod metrics;
 pub mod split;
+pub mod stats;
