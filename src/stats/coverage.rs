@@ -158,6 +158,13 @@ pub struct CoverageRow {
     pub mean_half_width: f64,
     /// Mean of d̄ over replicates (compare with `truth` for bias).
     pub mean_estimate: f64,
+    /// Root mean square of the interval's standard error.
+    pub rms_se: f64,
+    /// Root mean square error of d̄ around θ(n): what `rms_se` should match.
+    pub rmse: f64,
+    /// Mean draws, reservoir (second order) and test variance terms of the
+    /// decomposed interval on the same data (the same for every kind).
+    pub mean_parts: [f64; 3],
 }
 
 /// Result of [`coverage_study`].
@@ -266,7 +273,7 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
 
     // Replicates of the harness protocol.
     let nk = IntervalKind::ALL.len();
-    type Out = Vec<(usize, usize, usize, bool, f64, f64)>;
+    type Out = Vec<(usize, usize, usize, bool, f64, f64, f64, [f64; 3])>;
     let per_rep: Vec<(Out, usize)> = (0..cfg.replicates)
         .into_par_iter()
         .map(|rep| {
@@ -320,7 +327,20 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                     for (ki, &kind) in IntervalKind::ALL.iter().enumerate() {
                         if let Ok(iv) = paired::interval(kind, &input, cfg.confidence) {
                             let th = truth[si][mi].0;
-                            out.push((si, mi, ki, iv.covers(th), iv.high - iv.mean, iv.mean));
+                            let parts = match paired::decompose(&input, 2) {
+                                Ok((p, _)) => [p.draws, p.reservoir, p.test.unwrap_or(0.0)],
+                                Err(_) => [f64::NAN; 3],
+                            };
+                            out.push((
+                                si,
+                                mi,
+                                ki,
+                                iv.covers(th),
+                                iv.high - iv.mean,
+                                iv.mean,
+                                iv.se,
+                                parts,
+                            ));
                         }
                     }
                 }
@@ -334,14 +354,22 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
     let mut count = vec![0usize; cells];
     let mut half = vec![0.0f64; cells];
     let mut est = vec![0.0f64; cells];
+    let mut se2 = vec![0.0f64; cells];
+    let mut err2 = vec![0.0f64; cells];
+    let mut parts = vec![[0.0f64; 3]; cells];
     for (out, fails) in &per_rep {
         failed += fails;
-        for &(si, mi, ki, c, h, e) in out {
+        for &(si, mi, ki, c, h, e, se, p) in out {
             let idx = (mi * cfg.sizes.len() + si) * nk + ki;
             covered[idx] += c as usize;
             count[idx] += 1;
             half[idx] += h;
             est[idx] += e;
+            se2[idx] += se * se;
+            err2[idx] += (e - truth[si][mi].0).powi(2);
+            for k in 0..3 {
+                parts[idx][k] += p[k];
+            }
         }
     }
     let mut rows = Vec::with_capacity(cells);
@@ -363,6 +391,9 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                     coverage_se: (cov * (1.0 - cov) / c).sqrt(),
                     mean_half_width: half[idx] / c,
                     mean_estimate: est[idx] / c,
+                    rms_se: (se2[idx] / c).sqrt(),
+                    rmse: (err2[idx] / c).sqrt(),
+                    mean_parts: parts[idx].map(|x| x / c),
                 });
             }
         }
@@ -392,7 +423,7 @@ impl CoverageTable {
         ));
         for r in &self.rows {
             s.push_str(&format!(
-                "{:<9} {:>6} {:<12} {:>11.6} {:>9.6} {:>10.1}% {:>8.1}% {:>11.6} {:>10.6}\n",
+                "{:<9} {:>6} {:<12} {:>10.6} {:>9.6} {:>8.1}% {:>6.1}% {:>10.6} {:>10.6} {:>10.6} {:>10.6}\n",
                 r.metric.as_str(),
                 r.size,
                 r.kind.as_str(),
@@ -401,7 +432,28 @@ impl CoverageTable {
                 100.0 * r.coverage,
                 100.0 * r.coverage_se,
                 r.mean_half_width,
-                r.mean_estimate - r.truth
+                r.mean_estimate - r.truth,
+                r.rms_se,
+                r.rmse
+            ));
+        }
+        s.push_str(
+            "\nmean variance terms of the decomposed interval (draws, second-order reservoir, test) vs rmse²\n",
+        );
+        for r in self
+            .rows
+            .iter()
+            .filter(|r| r.kind == IntervalKind::Decomposed)
+        {
+            s.push_str(&format!(
+                "{:<9} {:>6} draws {:.3e} reservoir {:.3e} test {:.3e} sum {:.3e} rmse² {:.3e}\n",
+                r.metric.as_str(),
+                r.size,
+                r.mean_parts[0],
+                r.mean_parts[1],
+                r.mean_parts[2],
+                r.mean_parts.iter().sum::<f64>(),
+                r.rmse * r.rmse
             ));
         }
         s

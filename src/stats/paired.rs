@@ -27,15 +27,22 @@
 //! * [`IntervalKind::Decomposed`] (default, plumbline's own): a sum of three
 //!   variance terms, one per source of spread of d̄ around θ(n):
 //!   - draws: s_d²/R, the spread of calibration draws within the reservoir;
-//!   - reservoir: s_d² · n/(M − n). Write the calibration effect of a sample as
-//!     its first-order (Hájek) projection c(S) ≈ (1/n) Σ_{j∈S} h(z_j) with
-//!     Var h = σ_h². Over population samples Var c = σ_h²/n; within a reservoir
-//!     of M rows, sampling without replacement gives σ_h²/n · (1 − n/M) (finite
-//!     population correction, Cochran 1977, "Sampling Techniques", §2.5), which is
-//!     what s_d² estimates; and the reservoir's own mean effect, common to all
-//!     repeats, has variance σ_h²/M. Hence σ_h²/M = s_d² · n/(M − n). It grows as
-//!     n approaches M (draws overlap, repeats become dependent) and is undefined
-//!     at n = M.
+//!   - reservoir: the reservoir is itself a finite sample, and its own effect
+//!     on the fits is common to all repeats. Let ρ = n/M. Write the calibration
+//!     effect of a sample through its Hoeffding decomposition (Hoeffding 1948,
+//!     Ann. Math. Statist. 19): a component of degree k with population variance
+//!     V_k splits, for samples drawn without replacement from a reservoir, into
+//!     a reservoir-level part ≈ V_k ρ^k (the same statistic on all M rows) and a
+//!     within-reservoir part ≈ V_k (1 − ρ^k), which is what s_d² sees. The
+//!     reservoir term is therefore s_d² · ρ^k/(1 − ρ^k).
+//!     [`IntervalKind::Decomposed`] takes k = 2: a loss difference of two
+//!     consistent fits is a difference of excess risks, which are second order
+//!     in the estimation error; components of degree ≥ 2 have ratios ≤
+//!     ρ²/(1 − ρ²), so k = 2 is conservative for them. It is not conservative
+//!     when a first-order term dominates (a strongly biased method with large
+//!     n). [`IntervalKind::DecomposedLinear`] takes k = 1, the bound over all
+//!     degrees, s_d² · n/(M − n). Both grow as n approaches M (draws overlap,
+//!     repeats become dependent) and are undefined at n = M.
 //!   - test set: the test rows are split into B fixed batches (a pseudo-random
 //!     assignment that depends only on m; see [`row_summary`]). Per unit the
 //!     engine records the B batch means of e_{r,·}. On the R × B table x_{r,b} a
@@ -65,9 +72,12 @@ pub enum IntervalKind {
     PairedT,
     /// Nadeau & Bengio's corrected resampled t.
     CorrectedT,
-    /// Draws + reservoir + test-set variance decomposition (default).
+    /// Draws + reservoir + test-set variance decomposition with a second-order
+    /// reservoir term (default).
     #[default]
     Decomposed,
+    /// The same with the first-order (conservative) reservoir term.
+    DecomposedLinear,
 }
 
 impl IntervalKind {
@@ -75,6 +85,7 @@ impl IntervalKind {
         IntervalKind::PairedT,
         IntervalKind::CorrectedT,
         IntervalKind::Decomposed,
+        IntervalKind::DecomposedLinear,
     ];
 
     pub fn as_str(self) -> &'static str {
@@ -82,6 +93,7 @@ impl IntervalKind {
             IntervalKind::PairedT => "paired-t",
             IntervalKind::CorrectedT => "corrected-t",
             IntervalKind::Decomposed => "decomposed",
+            IntervalKind::DecomposedLinear => "decomposed-linear",
         }
     }
 }
@@ -232,8 +244,9 @@ fn two_way(x: &[Vec<f64>], cols: &[usize]) -> TwoWay {
     }
 }
 
-/// The variance terms of the decomposed interval and their Satterthwaite df.
-pub fn decompose(input: &PairedInput) -> Result<(VarianceParts, f64), StatsError> {
+/// The variance terms of the decomposed interval and their Satterthwaite df;
+/// `order` is the Hoeffding degree k of the reservoir term (1 or 2).
+pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64), StatsError> {
     check(input)?;
     let r = input.diffs.len();
     let (_, s2) = mean_var(input.diffs);
@@ -243,7 +256,9 @@ pub fn decompose(input: &PairedInput) -> Result<(VarianceParts, f64), StatsError
             reservoir: input.reservoir,
         });
     }
-    let f = input.size as f64 / (input.reservoir - input.size) as f64;
+    let rho = input.size as f64 / input.reservoir as f64;
+    let rk = rho.powi(order.clamp(1, 2) as i32);
+    let f = rk / (1.0 - rk);
     let c1 = 1.0 / r as f64 + f;
     let draws = s2 / r as f64;
     let reservoir = s2 * f;
@@ -330,8 +345,13 @@ pub fn interval(
             let ratio = input.test_rows as f64 / input.size as f64;
             (s2 * (1.0 / r as f64 + ratio), (r - 1) as f64, None)
         }
-        IntervalKind::Decomposed => {
-            let (p, df) = decompose(input)?;
+        IntervalKind::Decomposed | IntervalKind::DecomposedLinear => {
+            let order = if kind == IntervalKind::Decomposed {
+                2
+            } else {
+                1
+            };
+            let (p, df) = decompose(input, order)?;
             (p.draws + p.reservoir + p.test.unwrap_or(0.0), df, p.test)
         }
     };
@@ -407,9 +427,12 @@ mod tests {
     #[test]
     fn decomposed_without_rows_adds_reservoir_term() {
         let d = [1.0, 2.0, 3.0, 4.0, 5.0];
-        let iv = interval(IntervalKind::Decomposed, &input(&d, None), 0.95).unwrap();
+        let iv = interval(IntervalKind::DecomposedLinear, &input(&d, None), 0.95).unwrap();
         // s² (1/R + n/(M − n)) = 2.5 (0.2 + 100/900).
         assert!((iv.se * iv.se - 2.5 * (0.2 + 100.0 / 900.0)).abs() < 1e-12);
+        let q = interval(IntervalKind::Decomposed, &input(&d, None), 0.95).unwrap();
+        // s² (1/R + ρ²/(1 − ρ²)) with ρ = 0.1: 2.5 (0.2 + 0.01/0.99).
+        assert!((q.se * q.se - 2.5 * (0.2 + 0.01 / 0.99)).abs() < 1e-12);
         assert_eq!(iv.df, 4.0);
         assert!(iv.test_term.is_none());
         let mut bad = input(&d, None);
@@ -463,7 +486,7 @@ mod tests {
         // MS_E = 1 / ((3 − 1)(2 − 1)) = 0.5. Test term = (13.5 − 0.5) / (3·2).
         let rows = vec![vec![1.0, 3.0], vec![2.0, 6.0], vec![3.0, 6.0]];
         let d: Vec<f64> = rows.iter().map(|r| (r[0] + r[1]) / 2.0).collect();
-        let (p, _) = decompose(&input(&d, Some(&rows))).unwrap();
+        let (p, _) = decompose(&input(&d, Some(&rows)), 2).unwrap();
         assert!((p.test.unwrap() - 13.0 / 6.0).abs() < 1e-12, "{p:?}");
     }
 
@@ -494,8 +517,8 @@ mod tests {
             let moved: Vec<Vec<f64>> = rows.iter().zip(&shift).map(|(row, s)| row.iter().map(|x| x + s).collect()).collect();
             let d1: Vec<f64> = rows.iter().map(|r| r.iter().sum::<f64>() / 8.0).collect();
             let d2: Vec<f64> = moved.iter().map(|r| r.iter().sum::<f64>() / 8.0).collect();
-            let (a, _) = decompose(&input(&d1, Some(&rows))).unwrap();
-            let (b, _) = decompose(&input(&d2, Some(&moved))).unwrap();
+            let (a, _) = decompose(&input(&d1, Some(&rows)), 1).unwrap();
+            let (b, _) = decompose(&input(&d2, Some(&moved)), 1).unwrap();
             prop_assert!((a.test.unwrap() - b.test.unwrap()).abs() < 1e-9);
         }
     }
