@@ -490,6 +490,70 @@ mod tests {
         assert!((p.test.unwrap() - 13.0 / 6.0).abs() < 1e-12, "{p:?}");
     }
 
+    /// Standard normal by Box–Muller (Box & Muller 1958).
+    fn normal(r: &mut rand_chacha::ChaCha8Rng) -> f64 {
+        use rand_chacha::rand_core::Rng;
+        let u1 = ((r.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
+        let u2 = (r.next_u64() >> 11) as f64 / (1u64 << 53) as f64;
+        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+    }
+
+    #[test]
+    fn decomposition_is_unbiased_on_crossed_random_effects() {
+        // x_rb = C_r + A_b + AC_rb with known variances (the model the ANOVA
+        // assumes, Searle, Casella & McCulloch 1992, ch. 4): the draws and test
+        // terms must average to σ_C²/R + σ_AC²/(RB) and σ_A²/B; their sum must
+        // match the empirical variance of the grand mean. ρ is tiny so the
+        // reservoir term is negligible.
+        let (r_n, b_n) = (10usize, TEST_BATCHES);
+        let (sc, sa, sac) = (1.0f64, 2.0f64, 1.5f64);
+        let mut rng = split::rng(99);
+        let sims = 4000;
+        let (mut draws, mut test, mut means) = (0.0, 0.0, Vec::with_capacity(sims));
+        for _ in 0..sims {
+            let a: Vec<f64> = (0..b_n).map(|_| sa * normal(&mut rng)).collect();
+            let rows: Vec<Vec<f64>> = (0..r_n)
+                .map(|_| {
+                    let c = sc * normal(&mut rng);
+                    a.iter()
+                        .map(|&ab| c + ab + sac * normal(&mut rng))
+                        .collect()
+                })
+                .collect();
+            let d: Vec<f64> = rows
+                .iter()
+                .map(|v| v.iter().sum::<f64>() / b_n as f64)
+                .collect();
+            let inp = PairedInput {
+                diffs: &d,
+                row_stats: Some(&rows),
+                size: 1,
+                reservoir: 1_000_000,
+                test_rows: 1000,
+            };
+            let (p, _) = decompose(&inp, 2).unwrap();
+            draws += p.draws / sims as f64;
+            test += p.test.unwrap() / sims as f64;
+            means.push(d.iter().sum::<f64>() / r_n as f64);
+        }
+        let want_draws = (sc * sc + sac * sac / b_n as f64) / r_n as f64;
+        let want_test = sa * sa / b_n as f64;
+        assert!(
+            (draws / want_draws - 1.0).abs() < 0.05,
+            "{draws} vs {want_draws}"
+        );
+        assert!(
+            (test / want_test - 1.0).abs() < 0.05,
+            "{test} vs {want_test}"
+        );
+        let (_, v) = mean_var(&means);
+        assert!(
+            ((draws + test) / v - 1.0).abs() < 0.08,
+            "{} vs {v}",
+            draws + test
+        );
+    }
+
     proptest! {
         #[test]
         fn intervals_nest_and_shift(d in proptest::collection::vec(-1.0f64..1.0, 2..30), c in -5.0f64..5.0) {
