@@ -410,7 +410,7 @@ impl CoverageTable {
     pub fn render(&self) -> String {
         let mut s = String::new();
         s.push_str(&format!(
-            "{:<9} {:>6} {:<12} {:>11} {:>9} {:>11} {:>9} {:>11} {:>10}\n",
+            "{:<9} {:>6} {:<17} {:>10} {:>9} {:>9} {:>7} {:>10} {:>10} {:>10} {:>10}\n",
             "metric",
             "size",
             "interval",
@@ -419,11 +419,13 @@ impl CoverageTable {
             "coverage",
             "cov_se",
             "half_width",
-            "bias"
+            "bias",
+            "rms_se",
+            "rmse"
         ));
         for r in &self.rows {
             s.push_str(&format!(
-                "{:<9} {:>6} {:<12} {:>10.6} {:>9.6} {:>8.1}% {:>6.1}% {:>10.6} {:>10.6} {:>10.6} {:>10.6}\n",
+                "{:<9} {:>6} {:<17} {:>10.6} {:>9.6} {:>8.1}% {:>6.1}% {:>10.6} {:>10.6} {:>10.6} {:>10.6}\n",
                 r.metric.as_str(),
                 r.size,
                 r.kind.as_str(),
