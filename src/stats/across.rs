@@ -293,7 +293,7 @@ pub fn wilcoxon(d: &[f64]) -> Result<Wilcoxon, StatsError> {
     }
     let n = d.len();
     let nf = n as f64;
-    let has_zero = d.iter().any(|&x| x == 0.0);
+    let has_zero = d.contains(&0.0);
     let ties = tie_sum(&abs);
     let var = nf * (nf + 1.0) * (2.0 * nf + 1.0) / 24.0 - ties / 48.0;
     let z = if var > 0.0 {

@@ -186,7 +186,7 @@ pub enum CoverageError {
     Stats(#[from] super::StatsError),
 }
 
-const TAG_TRUTH: u64 = 0x7472_7574_68;
+const TAG_TRUTH: u64 = 0x0074_7275_7468;
 const TAG_REPL: u64 = 0x7265_706c;
 
 struct Fitters {

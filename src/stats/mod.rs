@@ -53,7 +53,7 @@ pub enum StatsError {
 /// Two-sided Student t quantile: the `p` quantile with `df` degrees of freedom
 /// (fractional df allowed).
 pub fn t_quantile(p: f64, df: f64) -> Result<f64, StatsError> {
-    if !(df > 0.0) || !df.is_finite() {
+    if df.is_nan() || df <= 0.0 || !df.is_finite() {
         return Err(StatsError::Distribution(format!(
             "t distribution needs positive finite degrees of freedom, got {df}"
         )));
