@@ -16,4 +16,5 @@ pub mod report;
 pub mod run;
 pub mod simulate;
 pub mod split;
+pub mod stats;
 pub mod suite;

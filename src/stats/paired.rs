@@ -1,0 +1,589 @@
+//! Paired intervals for the mean loss difference of a method against a
+//! reference within one task and calibration size.
+//!
+//! # Protocol and estimand
+//! A task's pool is split once into a fixed test set T (m = `test_rows` rows)
+//! and a calibration reservoir (M = `reservoir` rows). Repeat r = 0..R−1 draws a
+//! calibration sample S_r of n = `size` rows from the reservoir without
+//! replacement, fits both methods on S_r and scores them on T. With per-row loss
+//! terms ℓ, the row differences are e_{r,i} = ℓ_A(S_r, i) − ℓ_B(S_r, i) and the
+//! unit value is d_r = (1/m) Σ_{i∈T} e_{r,i}. The point estimate is d̄ = (1/R) Σ d_r.
+//!
+//! The estimand of the default interval is the population quantity
+//! θ(n) = E_S E_{(s,y)} [ℓ_A(S; s, y) − ℓ_B(S; s, y)]: the expected loss
+//! difference over calibration samples S of size n drawn from the population
+//! and over new rows (s, y) from the same population.
+//!
+//! # Intervals
+//! All are d̄ ± t_{1−α/2, ν} · se, with s_d² the sample variance of the d_r.
+//! * [`IntervalKind::PairedT`]: se² = s_d²/R, ν = R − 1 (Student 1908). It covers
+//!   only the mean over draws *given* the reservoir and the test set: it ignores
+//!   the test set's sampling error (common to all repeats) and the reservoir's.
+//! * [`IntervalKind::CorrectedT`]: the corrected resampled t of Nadeau & Bengio
+//!   (2003, Machine Learning 52, eq. for the "corrected resampled t-test"):
+//!   se² = s_d² (1/R + n₂/n₁), ν = R − 1. In their protocol each repeat trains on
+//!   n₁ rows and tests on n₂ rows; we map n₁ = calibration size n and
+//!   n₂ = test rows m, the literal roles of the two sets in a unit.
+//! * [`IntervalKind::Decomposed`] (default, plumbline's own): a sum of three
+//!   variance terms, one per source of spread of d̄ around θ(n):
+//!   - draws: s_d²/R, the spread of calibration draws within the reservoir;
+//!   - reservoir: the reservoir is itself a finite sample, and its own effect
+//!     on the fits is common to all repeats. Let ρ = n/M. Write the calibration
+//!     effect of a sample through its Hoeffding decomposition (Hoeffding 1948,
+//!     Ann. Math. Statist. 19): a component of degree k with population variance
+//!     V_k splits, for samples drawn without replacement from a reservoir, into
+//!     a reservoir-level part ≈ V_k ρ^k (the same statistic on all M rows) and a
+//!     within-reservoir part ≈ V_k (1 − ρ^k), which is what s_d² sees. The
+//!     reservoir term is therefore s_d² · ρ^k/(1 − ρ^k).
+//!     [`IntervalKind::Decomposed`] takes k = 2: a loss difference of two
+//!     consistent fits is a difference of excess risks, which are second order
+//!     in the estimation error; components of degree ≥ 2 have ratios ≤
+//!     ρ²/(1 − ρ²), so k = 2 is conservative for them. It is not conservative
+//!     when a first-order term dominates (a strongly biased method with large
+//!     n). [`IntervalKind::DecomposedLinear`] takes k = 1, the bound over all
+//!     degrees, s_d² · n/(M − n). Both grow as n approaches M (draws overlap,
+//!     repeats become dependent) and are undefined at n = M.
+//!   - test set: the test rows are split into B fixed batches (a pseudo-random
+//!     assignment that depends only on m; see [`row_summary`]). Per unit the
+//!     engine records the B batch means of e_{r,·}. On the R × B table x_{r,b} a
+//!     two-way crossed random-effects analysis of variance (repeats × batches;
+//!     Searle, Casella & McCulloch 1992, "Variance Components", ch. 4) gives the
+//!     mean squares MS_R, MS_B and MS_E, and (MS_B − MS_E)/(R·B) is an unbiased
+//!     estimate of the variance of d̄ due to the test rows alone (truncated at 0).
+//!
+//!   ν comes from the Welch–Satterthwaite formula (Satterthwaite 1946,
+//!   Biometrics Bulletin 2) over the mean squares involved.
+//!   Without batch means (a metric that is not a mean of row terms) the test term
+//!   is left out and [`Interval::test_term`] is `None`.
+//!
+//! Per-repeat wins, ties and losses count d_r < −tol, |d_r| ≤ tol and d_r > tol
+//! for a tiny tolerance ([`TIE_TOLERANCE`]); see [`repeat_record`].
+
+use serde::{Deserialize, Serialize};
+
+use super::{mean_var, t_quantile, StatsError};
+use crate::split;
+
+/// Which paired interval to compute.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum IntervalKind {
+    /// Student's paired t over repeats.
+    PairedT,
+    /// Nadeau & Bengio's corrected resampled t.
+    CorrectedT,
+    /// Draws + reservoir + test-set variance decomposition with a second-order
+    /// reservoir term (default).
+    #[default]
+    Decomposed,
+    /// The same with the first-order (conservative) reservoir term.
+    DecomposedLinear,
+}
+
+impl IntervalKind {
+    pub const ALL: &'static [IntervalKind] = &[
+        IntervalKind::PairedT,
+        IntervalKind::CorrectedT,
+        IntervalKind::Decomposed,
+        IntervalKind::DecomposedLinear,
+    ];
+
+    pub fn as_str(self) -> &'static str {
+        match self {
+            IntervalKind::PairedT => "paired-t",
+            IntervalKind::CorrectedT => "corrected-t",
+            IntervalKind::Decomposed => "decomposed",
+            IntervalKind::DecomposedLinear => "decomposed-linear",
+        }
+    }
+}
+
+/// Number of fixed test-row batches whose mean row difference is recorded per unit.
+pub const TEST_BATCHES: usize = 20;
+
+/// Column names of [`row_summary`], in order.
+pub const ROW_SUMMARY_NAMES: [&str; TEST_BATCHES] = [
+    "dbatch00", "dbatch01", "dbatch02", "dbatch03", "dbatch04", "dbatch05", "dbatch06", "dbatch07",
+    "dbatch08", "dbatch09", "dbatch10", "dbatch11", "dbatch12", "dbatch13", "dbatch14", "dbatch15",
+    "dbatch16", "dbatch17", "dbatch18", "dbatch19",
+];
+
+/// Seed of the fixed assignment of test-row positions to batches.
+const BATCH_SEED: u64 = 0x6261_7463_6865_7321;
+
+/// Batch of each test-row position for a test set of `m` rows: a pseudo-random
+/// permutation (fixed for a given m) cut into [`TEST_BATCHES`] contiguous runs
+/// whose sizes differ by at most one. The permutation guards against pools
+/// stored in a meaningful order (for example sorted by label).
+pub fn test_batches(m: usize) -> Vec<usize> {
+    let mut r = split::rng(split::mix(BATCH_SEED, &[m as u64]));
+    let perm = split::sample_indices(m, m, &mut r);
+    let mut batch = vec![0usize; m];
+    for (j, &pos) in perm.iter().enumerate() {
+        batch[pos] = j * TEST_BATCHES / m.max(1);
+    }
+    batch
+}
+
+/// Per-unit summaries of the per-test-row difference vector e (method minus
+/// reference, in test-row order): the mean of e over each fixed batch of
+/// [`test_batches`], named by [`ROW_SUMMARY_NAMES`]. A batch with no rows (when
+/// m < [`TEST_BATCHES`]) is NaN and is ignored by [`interval`].
+pub fn row_summary(e: &[f64]) -> Vec<(&'static str, f64)> {
+    let batch = test_batches(e.len());
+    let mut sum = [0.0f64; TEST_BATCHES];
+    let mut count = [0usize; TEST_BATCHES];
+    for (&b, &v) in batch.iter().zip(e) {
+        sum[b] += v;
+        count[b] += 1;
+    }
+    ROW_SUMMARY_NAMES
+        .iter()
+        .enumerate()
+        .map(|(b, &name)| {
+            let v = if count[b] > 0 {
+                sum[b] / count[b] as f64
+            } else {
+                f64::NAN
+            };
+            (name, v)
+        })
+        .collect()
+}
+
+/// Everything an interval needs for one (task, size, method, metric).
+#[derive(Debug, Clone, Copy)]
+pub struct PairedInput<'a> {
+    /// d_r, one per repeat.
+    pub diffs: &'a [f64],
+    /// Per repeat, the values of [`ROW_SUMMARY_NAMES`] in that order (as
+    /// written by the engine), or `None` for metrics without row terms.
+    pub row_stats: Option<&'a [Vec<f64>]>,
+    /// Calibration size n.
+    pub size: usize,
+    /// Reservoir rows M.
+    pub reservoir: usize,
+    /// Test rows m.
+    pub test_rows: usize,
+}
+
+/// The variance terms of a [`IntervalKind::Decomposed`] interval (squared standard errors).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct VarianceParts {
+    pub draws: f64,
+    pub reservoir: f64,
+    /// `None` when no batch means were given.
+    pub test: Option<f64>,
+}
+
+/// A two-sided interval for the mean paired difference.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Interval {
+    pub kind: IntervalKind,
+    pub mean: f64,
+    pub low: f64,
+    pub high: f64,
+    pub se: f64,
+    pub df: f64,
+    pub confidence: f64,
+    /// The test-set variance term (decomposed interval with batch means only).
+    pub test_term: Option<f64>,
+}
+
+impl Interval {
+    /// True when the interval contains `x` (ends included).
+    pub fn covers(&self, x: f64) -> bool {
+        self.low <= x && x <= self.high
+    }
+
+    /// −1 when the interval lies entirely below 0, +1 entirely above, 0 when it covers 0.
+    pub fn sign(&self) -> i8 {
+        if self.high < 0.0 {
+            -1
+        } else if self.low > 0.0 {
+            1
+        } else {
+            0
+        }
+    }
+}
+
+/// Column and error mean squares of a two-way table without replication,
+/// rows (repeats) × columns (batches).
+struct TwoWay {
+    ms_cols: f64,
+    ms_err: f64,
+    rows: usize,
+    cols: usize,
+}
+
+fn two_way(x: &[Vec<f64>], cols: &[usize]) -> TwoWay {
+    let r = x.len();
+    let c = cols.len();
+    let row_mean: Vec<f64> = x
+        .iter()
+        .map(|row| cols.iter().map(|&b| row[b]).sum::<f64>() / c as f64)
+        .collect();
+    let col_mean: Vec<f64> = cols
+        .iter()
+        .map(|&b| x.iter().map(|row| row[b]).sum::<f64>() / r as f64)
+        .collect();
+    let grand = row_mean.iter().sum::<f64>() / r as f64;
+    let ss_cols: f64 = col_mean.iter().map(|m| (m - grand).powi(2)).sum::<f64>() * r as f64;
+    let mut ss_err = 0.0;
+    for (i, row) in x.iter().enumerate() {
+        for (k, &b) in cols.iter().enumerate() {
+            ss_err += (row[b] - row_mean[i] - col_mean[k] + grand).powi(2);
+        }
+    }
+    TwoWay {
+        ms_cols: ss_cols / (c - 1) as f64,
+        ms_err: ss_err / ((r - 1) * (c - 1)) as f64,
+        rows: r,
+        cols: c,
+    }
+}
+
+/// The variance terms of the decomposed interval and their Satterthwaite df;
+/// `order` is the Hoeffding degree k of the reservoir term (1 or 2).
+pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64), StatsError> {
+    check(input)?;
+    let r = input.diffs.len();
+    let (_, s2) = mean_var(input.diffs);
+    if input.size >= input.reservoir {
+        return Err(StatsError::SizeNotBelowReservoir {
+            size: input.size,
+            reservoir: input.reservoir,
+        });
+    }
+    let rho = input.size as f64 / input.reservoir as f64;
+    let rk = rho.powi(order.clamp(1, 2) as i32);
+    let f = rk / (1.0 - rk);
+    let c1 = 1.0 / r as f64 + f;
+    let draws = s2 / r as f64;
+    let reservoir = s2 * f;
+    let mut test = None;
+    // Satterthwaite: V = Σ c_k MS_k, ν = V² / Σ (c_k MS_k)² / ν_k.
+    let mut terms: Vec<(f64, f64)> = vec![(c1 * s2, (r - 1) as f64)];
+    if let Some(rows) = input.row_stats {
+        if rows.len() != r {
+            return Err(StatsError::Shape(format!(
+                "{} repeats of differences but {} rows of batch means",
+                r,
+                rows.len()
+            )));
+        }
+        let width = rows.first().map(|v| v.len()).unwrap_or(0);
+        if rows.iter().any(|v| v.len() != width) {
+            return Err(StatsError::Shape(
+                "rows of batch means differ in length".into(),
+            ));
+        }
+        // Batches with a value in every repeat (empty batches are NaN throughout).
+        let cols: Vec<usize> = (0..width)
+            .filter(|&b| rows.iter().all(|v| !v[b].is_nan()))
+            .collect();
+        if rows.iter().any(|v| v.iter().any(|x| x.is_infinite())) {
+            return Err(StatsError::NonFinite("batch mean"));
+        }
+        if cols.len() >= 2 {
+            let tw = two_way(rows, &cols);
+            let denom = (tw.rows * tw.cols) as f64;
+            let t = ((tw.ms_cols - tw.ms_err) / denom).max(0.0);
+            test = Some(t);
+            if t > 0.0 {
+                terms.push((tw.ms_cols / denom, (tw.cols - 1) as f64));
+                terms.push((-tw.ms_err / denom, ((tw.rows - 1) * (tw.cols - 1)) as f64));
+            }
+        }
+    }
+    let v: f64 = terms.iter().map(|t| t.0).sum();
+    let den: f64 = terms.iter().map(|(x, nu)| x * x / nu).sum();
+    let df = if v > 0.0 && den > 0.0 {
+        (v * v / den).max(1.0)
+    } else {
+        (r - 1) as f64
+    };
+    Ok((
+        VarianceParts {
+            draws,
+            reservoir,
+            test,
+        },
+        df,
+    ))
+}
+
+fn check(input: &PairedInput) -> Result<(), StatsError> {
+    if input.diffs.len() < 2 {
+        return Err(StatsError::TooFewRepeats(input.diffs.len()));
+    }
+    if input.diffs.iter().any(|d| !d.is_finite()) {
+        return Err(StatsError::NonFinite("paired difference"));
+    }
+    Ok(())
+}
+
+/// A two-sided interval of the given kind at `confidence` (e.g. 0.95).
+pub fn interval(
+    kind: IntervalKind,
+    input: &PairedInput,
+    confidence: f64,
+) -> Result<Interval, StatsError> {
+    if !(confidence > 0.0 && confidence < 1.0) {
+        return Err(StatsError::BadConfidence(confidence));
+    }
+    check(input)?;
+    let r = input.diffs.len();
+    let (mean, s2) = mean_var(input.diffs);
+    let (var, df, test_term) = match kind {
+        IntervalKind::PairedT => (s2 / r as f64, (r - 1) as f64, None),
+        IntervalKind::CorrectedT => {
+            if input.size == 0 {
+                return Err(StatsError::Shape("calibration size is 0".into()));
+            }
+            let ratio = input.test_rows as f64 / input.size as f64;
+            (s2 * (1.0 / r as f64 + ratio), (r - 1) as f64, None)
+        }
+        IntervalKind::Decomposed | IntervalKind::DecomposedLinear => {
+            let order = if kind == IntervalKind::Decomposed {
+                2
+            } else {
+                1
+            };
+            let (p, df) = decompose(input, order)?;
+            (p.draws + p.reservoir + p.test.unwrap_or(0.0), df, p.test)
+        }
+    };
+    let se = var.sqrt();
+    let q = t_quantile(0.5 + confidence / 2.0, df)?;
+    Ok(Interval {
+        kind,
+        mean,
+        low: mean - q * se,
+        high: mean + q * se,
+        se,
+        df,
+        confidence,
+        test_term,
+    })
+}
+
+/// Absolute tolerance under which a per-repeat difference counts as a tie.
+pub const TIE_TOLERANCE: f64 = 1e-12;
+
+/// Wins, ties and losses of a method against the reference.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
+pub struct Record {
+    pub wins: usize,
+    pub ties: usize,
+    pub losses: usize,
+}
+
+/// Per-repeat record for a loss (lower is better): a win is d_r < −tol, a loss
+/// d_r > tol, a tie |d_r| ≤ tol. Non-finite differences are not counted.
+pub fn repeat_record(diffs: &[f64], tol: f64) -> Record {
+    let mut rec = Record::default();
+    for &d in diffs.iter().filter(|d| d.is_finite()) {
+        if d < -tol {
+            rec.wins += 1;
+        } else if d > tol {
+            rec.losses += 1;
+        } else {
+            rec.ties += 1;
+        }
+    }
+    rec
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    fn input<'a>(d: &'a [f64], rows: Option<&'a [Vec<f64>]>) -> PairedInput<'a> {
+        PairedInput {
+            diffs: d,
+            row_stats: rows,
+            size: 100,
+            reservoir: 1000,
+            test_rows: 500,
+        }
+    }
+
+    #[test]
+    fn paired_t_by_hand() {
+        // d = 1..5: mean 3, s² = 2.5, se = sqrt(0.5); t(0.975, 4) = 2.776
+        // (Abramowitz & Stegun Table 26.10).
+        let d = [1.0, 2.0, 3.0, 4.0, 5.0];
+        let iv = interval(IntervalKind::PairedT, &input(&d, None), 0.95).unwrap();
+        assert!((iv.se - 0.5f64.sqrt()).abs() < 1e-12);
+        assert!((iv.high - 3.0 - 2.776 * 0.5f64.sqrt()).abs() < 1e-3);
+        // Corrected: se² = 2.5 (1/5 + 500/100).
+        let c = interval(IntervalKind::CorrectedT, &input(&d, None), 0.95).unwrap();
+        assert!((c.se * c.se - 2.5 * 5.2).abs() < 1e-12);
+    }
+
+    #[test]
+    fn decomposed_without_rows_adds_reservoir_term() {
+        let d = [1.0, 2.0, 3.0, 4.0, 5.0];
+        let iv = interval(IntervalKind::DecomposedLinear, &input(&d, None), 0.95).unwrap();
+        // s² (1/R + n/(M − n)) = 2.5 (0.2 + 100/900).
+        assert!((iv.se * iv.se - 2.5 * (0.2 + 100.0 / 900.0)).abs() < 1e-12);
+        let q = interval(IntervalKind::Decomposed, &input(&d, None), 0.95).unwrap();
+        // s² (1/R + ρ²/(1 − ρ²)) with ρ = 0.1: 2.5 (0.2 + 0.01/0.99).
+        assert!((q.se * q.se - 2.5 * (0.2 + 0.01 / 0.99)).abs() < 1e-12);
+        assert_eq!(iv.df, 4.0);
+        assert!(iv.test_term.is_none());
+        let mut bad = input(&d, None);
+        bad.size = 1000;
+        assert!(matches!(
+            interval(IntervalKind::Decomposed, &bad, 0.95),
+            Err(StatsError::SizeNotBelowReservoir { .. })
+        ));
+    }
+
+    #[test]
+    fn errors_instead_of_panics() {
+        assert!(matches!(
+            interval(IntervalKind::PairedT, &input(&[1.0], None), 0.95),
+            Err(StatsError::TooFewRepeats(1))
+        ));
+        assert!(interval(IntervalKind::PairedT, &input(&[1.0, f64::NAN], None), 0.95).is_err());
+        assert!(interval(IntervalKind::PairedT, &input(&[1.0, 2.0], None), 1.0).is_err());
+        let rows = vec![vec![0.0; 3]];
+        assert!(interval(
+            IntervalKind::Decomposed,
+            &input(&[1.0, 2.0], Some(&rows)),
+            0.95
+        )
+        .is_err());
+    }
+
+    #[test]
+    fn batches_are_balanced_and_fixed() {
+        let b = test_batches(1003);
+        let mut count = [0usize; TEST_BATCHES];
+        for &x in &b {
+            count[x] += 1;
+        }
+        assert!(count.iter().all(|&c| c == 50 || c == 51), "{count:?}");
+        assert_eq!(b, test_batches(1003));
+        let s = row_summary(&[1.0, 2.0, 3.0]);
+        assert_eq!(s.len(), TEST_BATCHES);
+        assert_eq!(
+            s.iter().filter(|(_, v)| v.is_nan()).count(),
+            TEST_BATCHES - 3
+        );
+    }
+
+    #[test]
+    fn test_term_matches_anova_by_hand() {
+        // 3 repeats × 2 batches, x = [[1, 3], [2, 6], [3, 6]] (worked by hand):
+        // grand mean 3.5; row means 2, 4, 4.5; column means 2, 5.
+        // MS_B = 3·[(2 − 3.5)² + (5 − 3.5)²] / 1 = 13.5.
+        // Residuals x − row − col + grand: 0.5, −0.5, −0.5, 0.5, 0, 0 → SS_E = 1,
+        // MS_E = 1 / ((3 − 1)(2 − 1)) = 0.5. Test term = (13.5 − 0.5) / (3·2).
+        let rows = vec![vec![1.0, 3.0], vec![2.0, 6.0], vec![3.0, 6.0]];
+        let d: Vec<f64> = rows.iter().map(|r| (r[0] + r[1]) / 2.0).collect();
+        let (p, _) = decompose(&input(&d, Some(&rows)), 2).unwrap();
+        assert!((p.test.unwrap() - 13.0 / 6.0).abs() < 1e-12, "{p:?}");
+    }
+
+    /// Standard normal by Box–Muller (Box & Muller 1958).
+    fn normal(r: &mut rand_chacha::ChaCha8Rng) -> f64 {
+        use rand_chacha::rand_core::Rng;
+        let u1 = ((r.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
+        let u2 = (r.next_u64() >> 11) as f64 / (1u64 << 53) as f64;
+        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+    }
+
+    #[test]
+    fn decomposition_is_unbiased_on_crossed_random_effects() {
+        // x_rb = C_r + A_b + AC_rb with known variances (the model the ANOVA
+        // assumes, Searle, Casella & McCulloch 1992, ch. 4): the draws and test
+        // terms must average to σ_C²/R + σ_AC²/(RB) and σ_A²/B; their sum must
+        // match the empirical variance of the grand mean. ρ is tiny so the
+        // reservoir term is negligible.
+        let (r_n, b_n) = (10usize, TEST_BATCHES);
+        let (sc, sa, sac) = (1.0f64, 2.0f64, 1.5f64);
+        let mut rng = split::rng(99);
+        let sims = 4000;
+        let (mut draws, mut test, mut means) = (0.0, 0.0, Vec::with_capacity(sims));
+        for _ in 0..sims {
+            let a: Vec<f64> = (0..b_n).map(|_| sa * normal(&mut rng)).collect();
+            let rows: Vec<Vec<f64>> = (0..r_n)
+                .map(|_| {
+                    let c = sc * normal(&mut rng);
+                    a.iter()
+                        .map(|&ab| c + ab + sac * normal(&mut rng))
+                        .collect()
+                })
+                .collect();
+            let d: Vec<f64> = rows
+                .iter()
+                .map(|v| v.iter().sum::<f64>() / b_n as f64)
+                .collect();
+            let inp = PairedInput {
+                diffs: &d,
+                row_stats: Some(&rows),
+                size: 1,
+                reservoir: 1_000_000,
+                test_rows: 1000,
+            };
+            let (p, _) = decompose(&inp, 2).unwrap();
+            draws += p.draws / sims as f64;
+            test += p.test.unwrap() / sims as f64;
+            means.push(d.iter().sum::<f64>() / r_n as f64);
+        }
+        let want_draws = (sc * sc + sac * sac / b_n as f64) / r_n as f64;
+        let want_test = sa * sa / b_n as f64;
+        assert!(
+            (draws / want_draws - 1.0).abs() < 0.05,
+            "{draws} vs {want_draws}"
+        );
+        assert!(
+            (test / want_test - 1.0).abs() < 0.05,
+            "{test} vs {want_test}"
+        );
+        let (_, v) = mean_var(&means);
+        assert!(
+            ((draws + test) / v - 1.0).abs() < 0.08,
+            "{} vs {v}",
+            draws + test
+        );
+    }
+
+    proptest! {
+        #[test]
+        fn intervals_nest_and_shift(d in proptest::collection::vec(-1.0f64..1.0, 2..30), c in -5.0f64..5.0) {
+            let plain = interval(IntervalKind::PairedT, &input(&d, None), 0.95).unwrap();
+            let corr = interval(IntervalKind::CorrectedT, &input(&d, None), 0.95).unwrap();
+            let dec = interval(IntervalKind::Decomposed, &input(&d, None), 0.95).unwrap();
+            prop_assert!(plain.low <= plain.mean && plain.mean <= plain.high);
+            prop_assert!(corr.se >= plain.se && dec.se >= plain.se);
+            // Shifting every difference shifts the interval and keeps its width.
+            let shifted: Vec<f64> = d.iter().map(|x| x + c).collect();
+            let s = interval(IntervalKind::PairedT, &input(&shifted, None), 0.95).unwrap();
+            prop_assert!((s.mean - plain.mean - c).abs() < 1e-9);
+            prop_assert!(((s.high - s.low) - (plain.high - plain.low)).abs() < 1e-9);
+            let rec = repeat_record(&d, TIE_TOLERANCE);
+            prop_assert_eq!(rec.wins + rec.ties + rec.losses, d.len());
+        }
+
+        #[test]
+        fn test_term_is_invariant_to_repeat_shifts(
+            base in proptest::collection::vec(-1.0f64..1.0, 8),
+            shift in proptest::collection::vec(-1.0f64..1.0, 4),
+        ) {
+            // A repeat effect common to all batches changes MS_R only, never the test term.
+            let rows: Vec<Vec<f64>> = (0..4).map(|r| base.iter().enumerate().map(|(b, x)| x + 0.1 * ((r * b) % 3) as f64).collect()).collect();
+            let moved: Vec<Vec<f64>> = rows.iter().zip(&shift).map(|(row, s)| row.iter().map(|x| x + s).collect()).collect();
+            let d1: Vec<f64> = rows.iter().map(|r| r.iter().sum::<f64>() / 8.0).collect();
+            let d2: Vec<f64> = moved.iter().map(|r| r.iter().sum::<f64>() / 8.0).collect();
+            let (a, _) = decompose(&input(&d1, Some(&rows)), 1).unwrap();
+            let (b, _) = decompose(&input(&d2, Some(&moved)), 1).unwrap();
+            prop_assert!((a.test.unwrap() - b.test.unwrap()).abs() < 1e-9);
+        }
+    }
+}
