@@ -109,7 +109,9 @@ fn main() {
         black_box(&pairs);
         let c = thread_cpu();
         let t = Instant::now();
-        let f = Isotonic { pseudo_count: 0.0 }.fit(black_box(&s), black_box(&y)).unwrap();
+        let f = Isotonic { pseudo_count: 0.0 }
+            .fit(black_box(&s), black_box(&y))
+            .unwrap();
         fit_t.push(t.elapsed());
         fit_cpu += thread_cpu().zip(c).map_or(f64::NAN, |(b, a)| b - a);
         black_box(f);

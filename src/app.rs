@@ -10,6 +10,7 @@ use sha2::{Digest, Sha256};
 use crate::analysis::{self, AnalysisSettings};
 use crate::report::{self, summary};
 use crate::run::{self, journal::Journal, output, table::UnitTable, RunOptions};
+use crate::stats::paired::IntervalKind;
 use crate::suite::{self, hex, Plan, TaskSource};
 
 /// The suite `plumbline run` uses when none is given.
@@ -178,6 +179,7 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
         primary_metric: plan.primary.as_str().to_string(),
         confidence: plan.confidence,
         interval: plan.interval.clone(),
+        pairs: plan.pairs.clone(),
     }
 }
 
@@ -320,6 +322,7 @@ pub struct ReportArgs {
     pub reference: Option<String>,
     pub primary_metric: Option<String>,
     pub confidence: Option<f64>,
+    pub interval: Option<String>,
 }
 
 /// `plumbline report`: rebuild every table from `units.csv` (settings from
@@ -378,10 +381,23 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         reference,
         primary_metric: primary,
         confidence,
-        interval: from_manifest
+        interval: match &args.interval {
+            Some(k) => {
+                if !IntervalKind::ALL.iter().any(|x| x.as_str() == k) {
+                    let known: Vec<_> = IntervalKind::ALL.iter().map(|x| x.as_str()).collect();
+                    bail!("--interval `{k}`: known estimators: {}", known.join(", "));
+                }
+                k.clone()
+            }
+            None => from_manifest
+                .as_ref()
+                .map(|s| s.interval.clone())
+                .unwrap_or_else(|| IntervalKind::default().as_str().to_string()),
+        },
+        pairs: from_manifest
             .as_ref()
-            .map(|s| s.interval.clone())
-            .unwrap_or_else(|| "paired-t".into()),
+            .map(|s| s.pairs.clone())
+            .unwrap_or_default(),
     };
     let a = analysis::analyse(&table, &settings);
     let suite_info = manifest.as_ref().and_then(|m| m.get("suite"));

@@ -76,6 +76,10 @@ unless --force is given.")]
         /// Confidence level of the intervals [default: as recorded, else 0.95].
         #[arg(long)]
         confidence: Option<f64>,
+        /// Interval estimator: paired-t, corrected-t, decomposed or
+        /// decomposed-linear [default: as recorded, else decomposed].
+        #[arg(long)]
+        interval: Option<String>,
     },
     /// Write the demo score files (an invented courier's late-delivery models with
     /// known true calibration maps).
@@ -152,12 +156,14 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
             reference,
             primary_metric,
             confidence,
+            interval,
         } => {
             let t = app::report_dir(&app::ReportArgs {
                 dir,
                 reference,
                 primary_metric,
                 confidence,
+                interval,
             })?;
             println!("{t}");
         }

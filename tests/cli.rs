@@ -119,14 +119,24 @@ fn small_suite_writes_the_documented_files() {
         "paired.csv",
         "summary.md",
         "timings.csv",
+        "thresholds.csv",
+        "index.html",
+        "tables.tex",
     ] {
         assert!(out.join(f).exists(), "{f} missing");
     }
     let units = fs::read_to_string(out.join("units.csv")).unwrap();
     let head = units.lines().next().unwrap();
-    assert_eq!(
-        head,
-        "task,size,repeat,method,status,log_loss,brier,clipped,positives,reservoir,test_rows"
+    assert!(
+        head.starts_with(
+            "task,size,repeat,method,status,log_loss,brier,clipped,positives,reservoir,test_rows,"
+        ),
+        "{head}"
+    );
+    // Per-unit test-batch summaries for the interval estimator.
+    assert!(
+        head.contains(",brier_dbatch00,") && head.ends_with("log_loss_dbatch19"),
+        "{head}"
     );
     // 2 tasks × 2 sizes × 5 repeats × 3 methods.
     assert_eq!(units.lines().count() - 1, 60);
@@ -153,7 +163,13 @@ fn one_and_two_threads_give_identical_bytes() {
     let (o1, o2) = (fx.path("one"), fx.path("two"));
     run_ok(&fx, &suite, &o1, "1");
     run_ok(&fx, &suite, &o2, "2");
-    for f in ["units.csv", "paired.csv", "summary.md"] {
+    for f in [
+        "units.csv",
+        "paired.csv",
+        "summary.md",
+        "thresholds.csv",
+        "index.html",
+    ] {
         assert_eq!(
             fs::read(o1.join(f)).unwrap(),
             fs::read(o2.join(f)).unwrap(),

@@ -173,7 +173,10 @@ fn predict(f: &Fitted, s: &[f64]) -> Vec<f64> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig::with_cases(96))]
+    // 96 cases by default; `PROPTEST_CASES` raises or lowers it.
+    #![proptest_config(ProptestConfig::with_cases(
+        std::env::var("PROPTEST_CASES").ok().and_then(|v| v.parse().ok()).unwrap_or(96)
+    ))]
 
     #[test]
     fn maps_are_probabilities_monotone_and_order_free((s01, y, keys) in sample()) {

@@ -6,6 +6,12 @@ use std::collections::BTreeMap;
 
 use crate::metrics::{Goal, MetricId};
 use crate::run::table::UnitTable;
+use crate::stats::across::{across_tasks, task_record, AcrossTasks};
+use crate::stats::paired::Record;
+use crate::stats::paired::{interval, Interval, IntervalKind, PairedInput, ROW_SUMMARY_NAMES};
+use crate::stats::thresholds::{
+    summarize, thresholds as stats_thresholds, ThresholdSummary, Thresholds,
+};
 
 /// Settings the analysis needs (recorded in `manifest.json`, or given to
 /// `plumbline report` as flags).
@@ -15,6 +21,36 @@ pub struct AnalysisSettings {
     pub primary_metric: String,
     pub confidence: f64,
     pub interval: String,
+    /// (flexible, parametric) method pairs whose data-size thresholds are
+    /// reported, e.g. (isotonic, platt).
+    #[serde(default)]
+    pub pairs: Vec<(String, String)>,
+}
+
+/// Across-task statistics of the primary metric at one calibration size.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AcrossRow {
+    pub size: usize,
+    pub metric: String,
+    /// Tasks with a value for every method at this size.
+    pub tasks: Vec<String>,
+    pub methods: Vec<String>,
+    pub result: Result<AcrossTasks, String>,
+    /// Per method (not the reference): tasks where its interval against the
+    /// reference is below / covers / above zero.
+    pub vs_reference: Vec<(String, Record)>,
+}
+
+/// Data-size thresholds of one (flexible, parametric) pair on one task.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ThresholdRow {
+    pub task: String,
+    pub flexible: String,
+    pub parametric: String,
+    pub metric: String,
+    /// (size, mean of flexible − parametric, low, high).
+    pub points: Vec<(usize, f64, f64, f64)>,
+    pub result: Result<Thresholds, String>,
 }
 
 /// Mean of one metric for one method at one (task, size).
@@ -90,6 +126,10 @@ pub struct Analysis {
     pub paired: Vec<Paired>,
     /// Units per (task, size, method) with each non-`ok` status.
     pub status_counts: BTreeMap<(String, usize, String), BTreeMap<String, usize>>,
+    pub across: Vec<AcrossRow>,
+    pub thresholds: Vec<ThresholdRow>,
+    /// Per pair: the summary over tasks.
+    pub threshold_summaries: Vec<((String, String), ThresholdSummary)>,
 }
 
 /// Differences within this tolerance count as ties.
@@ -143,6 +183,113 @@ pub fn paired_t(diffs: &[f64], confidence: f64) -> (f64, f64, f64) {
         .map(|d| d.inverse_cdf(0.5 + confidence / 2.0))
         .unwrap_or(f64::NAN);
     (m - t * se, m + t * se, se)
+}
+
+/// Paired values of two methods over the repeats where both have a value.
+pub struct PairRows {
+    pub a: Vec<f64>,
+    pub b: Vec<f64>,
+    pub diffs: Vec<f64>,
+    /// Row indices in the unit table of (a, b) per kept repeat.
+    pub rows: Vec<(usize, usize)>,
+}
+
+fn pair_up(
+    table: &UnitTable,
+    a: &BTreeMap<usize, usize>,
+    b: &BTreeMap<usize, usize>,
+    mi: usize,
+    metric: &str,
+) -> PairRows {
+    let mut out = PairRows {
+        a: Vec::new(),
+        b: Vec::new(),
+        diffs: Vec::new(),
+        rows: Vec::new(),
+    };
+    for (rep, &i) in a {
+        let Some(&j) = b.get(rep) else { continue };
+        let (Some(x), Some(y)) = (table.rows[i].metrics[mi], table.rows[j].metrics[mi]) else {
+            continue;
+        };
+        let (Some(x), Some(y)) = (compared_value(metric, x), compared_value(metric, y)) else {
+            continue;
+        };
+        out.a.push(x);
+        out.b.push(y);
+        out.diffs.push(x - y);
+        out.rows.push((i, j));
+    }
+    out
+}
+
+/// The interval of the suite's estimator for paired rows. Row summaries
+/// (`<metric>_dbatchNN` columns, each against the reference) are used when both
+/// rows have them; for a pair of non-reference methods the per-batch
+/// difference is their difference (both are taken against the same reference
+/// on the same test rows).
+pub fn paired_interval(
+    table: &UnitTable,
+    pr: &PairRows,
+    metric: &str,
+    settings: &AnalysisSettings,
+) -> Interval {
+    let kind = IntervalKind::ALL
+        .iter()
+        .copied()
+        .find(|k| k.as_str() == settings.interval)
+        .unwrap_or_default();
+    let cols: Vec<Option<usize>> = ROW_SUMMARY_NAMES
+        .iter()
+        .map(|n| table.extra_index(&format!("{metric}_{n}")))
+        .collect();
+    let row_stats: Option<Vec<Vec<f64>>> =
+        if cols.iter().all(|c| c.is_some()) && !pr.rows.is_empty() {
+            let get = |row: usize, reference_row: bool| -> Vec<f64> {
+                if reference_row && table.rows[row].method == settings.reference {
+                    return vec![0.0; cols.len()];
+                }
+                cols.iter()
+                    .map(|c| table.rows[row].extras[c.unwrap_or(0)].unwrap_or(f64::NAN))
+                    .collect()
+            };
+            let v: Vec<Vec<f64>> = pr
+                .rows
+                .iter()
+                .map(|&(i, j)| {
+                    get(i, true)
+                        .iter()
+                        .zip(get(j, true))
+                        .map(|(x, y)| x - y)
+                        .collect()
+                })
+                .collect();
+            if v.iter().all(|r| r.iter().any(|x| x.is_finite())) {
+                Some(v)
+            } else {
+                None
+            }
+        } else {
+            None
+        };
+    let first = pr.rows.first().map(|&(i, _)| &table.rows[i]);
+    let input = PairedInput {
+        diffs: &pr.diffs,
+        row_stats: row_stats.as_deref(),
+        size: first.map(|r| r.size).unwrap_or(0),
+        reservoir: first.map(|r| r.reservoir).unwrap_or(0),
+        test_rows: first.map(|r| r.test_rows).unwrap_or(0),
+    };
+    interval(kind, &input, settings.confidence).unwrap_or(Interval {
+        kind,
+        mean: f64::NAN,
+        low: f64::NAN,
+        high: f64::NAN,
+        se: f64::NAN,
+        df: f64::NAN,
+        confidence: settings.confidence,
+        test_term: None,
+    })
 }
 
 /// Build summaries and paired comparisons from the unit table.
@@ -231,23 +378,10 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         continue;
                     }
                     let Some(rc) = reference else { continue };
-                    let mut dm = Vec::new();
-                    let mut dr = Vec::new();
-                    for (rep, &i) in c {
-                        if let (Some(a), Some(&j)) = (table.rows[i].metrics[mi], rc.get(rep)) {
-                            if let Some(b) = table.rows[j].metrics[mi] {
-                                if let (Some(a), Some(b)) =
-                                    (compared_value(metric, a), compared_value(metric, b))
-                                {
-                                    dm.push(a);
-                                    dr.push(b);
-                                }
-                            }
-                        }
-                    }
-                    let diffs: Vec<f64> = dm.iter().zip(&dr).map(|(a, b)| a - b).collect();
+                    let pr = pair_up(table, c, rc, mi, metric);
+                    let (dm, dr, diffs) = (&pr.a, &pr.b, &pr.diffs);
                     let (mut wins, mut ties, mut losses) = (0, 0, 0);
-                    for &d in &diffs {
+                    for &d in diffs {
                         if d.abs() <= TIE_TOLERANCE {
                             ties += 1;
                         } else if (d < 0.0) != hib {
@@ -256,7 +390,8 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                             losses += 1;
                         }
                     }
-                    let (lo, hi, se) = paired_t(&diffs, settings.confidence);
+                    let iv = paired_interval(table, &pr, metric, settings);
+                    let (lo, hi, se) = (iv.low, iv.high, iv.se);
                     let mean_of = |v: &[f64]| {
                         if v.is_empty() {
                             f64::NAN
@@ -271,9 +406,9 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         reference: settings.reference.clone(),
                         metric: metric.clone(),
                         repeats: diffs.len(),
-                        mean_method: mean_of(&dm),
-                        mean_reference: mean_of(&dr),
-                        mean_diff: mean_of(&diffs),
+                        mean_method: mean_of(dm),
+                        mean_reference: mean_of(dr),
+                        mean_diff: mean_of(diffs),
                         ci_low: lo,
                         ci_high: hi,
                         se,
@@ -287,6 +422,138 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
             }
         }
     }
+    // Across tasks, primary metric, per size.
+    let primary = settings.primary_metric.clone();
+    let mut across = Vec::new();
+    let mut thresholds = Vec::new();
+    let mut threshold_summaries = Vec::new();
+    if let Some(mi) = table.metric_index(&primary) {
+        let hib = higher_is_better(&primary);
+        let all_sizes: std::collections::BTreeSet<usize> =
+            sizes.values().flatten().copied().collect();
+        for &size in &all_sizes {
+            let mut rows = Vec::new();
+            let mut used = Vec::new();
+            for task in &tasks {
+                let vals: Option<Vec<f64>> = methods
+                    .iter()
+                    .map(|m| {
+                        summaries
+                            .iter()
+                            .find(|x| {
+                                x.task == *task
+                                    && x.size == size
+                                    && x.method == *m
+                                    && x.metric == primary
+                            })
+                            .and_then(|x| compared_value(&primary, x.mean))
+                            .filter(|v| v.is_finite())
+                            .map(|v| if hib { -v } else { v })
+                    })
+                    .collect();
+                if let Some(v) = vals {
+                    rows.push(v);
+                    used.push(task.clone());
+                }
+            }
+            if used.is_empty() {
+                continue;
+            }
+            let result = across_tasks(&rows, 0.05).map_err(|e| e.to_string());
+            let vs_reference = methods
+                .iter()
+                .filter(|m| **m != settings.reference)
+                .map(|m| {
+                    let ivs: Vec<Interval> = paired
+                        .iter()
+                        .filter(|p| {
+                            p.size == size
+                                && p.method == *m
+                                && p.metric == primary
+                                && used.contains(&p.task)
+                        })
+                        .filter(|p| p.ci_low.is_finite())
+                        .map(|p| {
+                            // Orient so that "below zero" means better.
+                            let (lo, hi, mean) = if hib {
+                                (-p.ci_high, -p.ci_low, -p.mean_diff)
+                            } else {
+                                (p.ci_low, p.ci_high, p.mean_diff)
+                            };
+                            Interval {
+                                kind: IntervalKind::default(),
+                                mean,
+                                low: lo,
+                                high: hi,
+                                se: p.se,
+                                df: f64::NAN,
+                                confidence: p.confidence,
+                                test_term: None,
+                            }
+                        })
+                        .collect();
+                    (m.clone(), task_record(&ivs))
+                })
+                .collect();
+            across.push(AcrossRow {
+                size,
+                metric: primary.clone(),
+                tasks: used,
+                methods: methods.clone(),
+                result,
+                vs_reference,
+            });
+        }
+        // Thresholds for each pair on each task.
+        for (flex, para) in &settings.pairs {
+            let mut per_task = Vec::new();
+            for task in &tasks {
+                let mut pts = Vec::new();
+                let mut ivs = Vec::new();
+                for &size in &sizes[task] {
+                    let (Some(a), Some(b)) = (
+                        cells.get(&(task.clone(), size, flex.clone())),
+                        cells.get(&(task.clone(), size, para.clone())),
+                    ) else {
+                        continue;
+                    };
+                    let pr = pair_up(table, a, b, mi, &primary);
+                    if pr.diffs.len() < 2 {
+                        continue;
+                    }
+                    let mut iv = paired_interval(table, &pr, &primary, settings);
+                    if hib {
+                        iv = Interval {
+                            mean: -iv.mean,
+                            low: -iv.high,
+                            high: -iv.low,
+                            ..iv
+                        };
+                    }
+                    pts.push((size, iv.mean, iv.low, iv.high));
+                    if iv.low.is_finite() {
+                        ivs.push((size, iv));
+                    }
+                }
+                if pts.is_empty() {
+                    continue;
+                }
+                let result = stats_thresholds(&ivs).map_err(|e| e.to_string());
+                if let Ok(t) = &result {
+                    per_task.push(t.clone());
+                }
+                thresholds.push(ThresholdRow {
+                    task: task.clone(),
+                    flexible: flex.clone(),
+                    parametric: para.clone(),
+                    metric: primary.clone(),
+                    points: pts,
+                    result,
+                });
+            }
+            threshold_summaries.push(((flex.clone(), para.clone()), summarize(&per_task)));
+        }
+    }
     Analysis {
         tasks,
         methods,
@@ -295,5 +562,8 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         summaries,
         paired,
         status_counts,
+        across,
+        thresholds,
+        threshold_summaries,
     }
 }

@@ -32,17 +32,23 @@ pub struct Temperature {
 
 /// Maximum-likelihood inverse temperature β ≥ 0 for log-odds `z` and targets
 /// `t`; returns (β, iterations). The caller handles separation.
+///
+/// The rows are summed in a canonical (sorted) order, so the result does not
+/// depend on the order of the rows, and a gradient within the rounding
+/// tolerance at β = 0 counts as stationary: β = 0 is then the optimum.
 pub fn fit_inverse_temperature(z: &[f64], t: &[f64]) -> (f64, usize) {
+    let mut rows: Vec<(f64, f64)> = z.iter().copied().zip(t.iter().copied()).collect();
+    // rows.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
     let grad_hess = |beta: f64| -> (f64, f64) {
         let (mut g, mut h) = (0.0, 0.0);
-        for (&zi, &ti) in z.iter().zip(t) {
+        for &(zi, ti) in &rows {
             let p = sigmoid(beta * zi);
             g += (p - ti) * zi;
             h += p * (1.0 - p) * zi * zi;
         }
         (g, h)
     };
-    let zsum: f64 = z.iter().map(|v| v.abs()).sum();
+    let zsum: f64 = rows.iter().map(|r| r.0.abs()).sum();
     if zsum == 0.0 {
         return (1.0, 0);
     }
@@ -175,6 +181,45 @@ mod tests {
         let mut out = [0.0; 1];
         f.map.predict(&[5.0], &mut out);
         assert_eq!(out[0], 0.5);
+    }
+
+    /// Each score appears once with each label, so F′(0) = 0 exactly and
+    /// F′(β) > 0 for β > 0: the optimum is β = 0 whatever the row order, even
+    /// though the floating-point sum F′(0) need not round to exactly zero.
+    #[test]
+    fn balanced_ties_are_flat_in_every_row_order() {
+        let s = [0.625, 1.0, 1.0, 0.625, 0.125, 0.125];
+        let y = [true, false, true, false, false, true];
+        let cal = Temperature {
+            score_kind: ScoreKind::Probability,
+        };
+        // Every row order (Heap's algorithm over the 6! permutations).
+        let n = s.len();
+        let mut order: Vec<usize> = (0..n).collect();
+        let mut c = vec![0usize; n];
+        let check = |o: &[usize]| {
+            let s2: Vec<f64> = o.iter().map(|&i| s[i]).collect();
+            let y2: Vec<bool> = o.iter().map(|&i| y[i]).collect();
+            let f = cal.fit(&s2, &y2).unwrap();
+            assert_eq!(f.notes, vec!["flat"], "order {o:?}");
+            let b = f.map.describe()["inverse_temperature"].as_f64().unwrap();
+            assert_eq!(b, 0.0, "order {o:?}");
+        };
+        check(&order);
+        let (mut i, mut seen) = (1, 1);
+        while i < n {
+            if c[i] < i {
+                order.swap(if i % 2 == 0 { 0 } else { c[i] }, i);
+                check(&order);
+                seen += 1;
+                c[i] += 1;
+                i = 1;
+            } else {
+                c[i] = 0;
+                i += 1;
+            }
+        }
+        assert_eq!(seen, 720);
     }
 
     #[test]

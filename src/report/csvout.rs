@@ -41,3 +41,42 @@ pub fn paired_csv(a: &Analysis) -> String {
     }
     s
 }
+
+pub const THRESHOLDS_HEADER: &str =
+    "task,flexible,parametric,metric,better_from,worse_until,crossover,sizes,note";
+
+/// `thresholds.csv`: per task and (flexible, parametric) pair, the smallest
+/// size from which the flexible method is reliably better at every larger
+/// tested size, the largest size at which it is reliably worse, and the
+/// interpolated crossover of the mean difference on log size.
+pub fn thresholds_csv(a: &Analysis) -> String {
+    let mut s = String::from(THRESHOLDS_HEADER);
+    s.push('\n');
+    for t in &a.thresholds {
+        let sizes = t
+            .points
+            .iter()
+            .map(|p| p.0.to_string())
+            .collect::<Vec<_>>()
+            .join(" ");
+        let (bf, wu, co, note) = match &t.result {
+            Ok(r) => (
+                r.better_from.map(|x| x.to_string()).unwrap_or_default(),
+                r.worse_until.map(|x| x.to_string()).unwrap_or_default(),
+                r.crossover.map(num).unwrap_or_default(),
+                String::new(),
+            ),
+            Err(e) => (
+                String::new(),
+                String::new(),
+                String::new(),
+                e.replace(',', ";"),
+            ),
+        };
+        s.push_str(&format!(
+            "{},{},{},{},{bf},{wu},{co},{sizes},{note}\n",
+            t.task, t.flexible, t.parametric, t.metric
+        ));
+    }
+    s
+}

@@ -20,6 +20,10 @@ pub fn publish(a: &Analysis, ctx: &summary::ReportContext) -> Vec<(String, Vec<u
             "summary.md".to_string(),
             summary::summary_md(a, ctx).into_bytes(),
         ),
+        (
+            "thresholds.csv".to_string(),
+            csvout::thresholds_csv(a).into_bytes(),
+        ),
     ];
     let mut tex = String::from("% plumbline tables (requires \\usepackage{booktabs})\n");
     for t in summary::task_tables(a, s, &s.primary_metric, false) {

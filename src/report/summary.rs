@@ -139,6 +139,9 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
             a.tasks.len()
         ));
     }
+    out.push_str(&decision_md(a, s));
+    out.push_str(&across_md(a, s));
+    out.push_str(&thresholds_md(a));
     out.push_str("## Results per task\n\n");
     for t in task_tables(a, s, &s.primary_metric, true) {
         out.push_str(&t.to_markdown());
@@ -173,5 +176,200 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
         "Run `plumbline run {}` with the same suite file (check its SHA-256 above) to get byte-identical `units.csv`, `paired.csv` and `summary.md`; `plumbline report <folder>` rebuilds the tables from `units.csv`.\n",
         ctx.suite_file
     ));
+    out
+}
+
+fn fmt_p(p: f64) -> String {
+    if !p.is_finite() {
+        "–".into()
+    } else if p < 0.001 {
+        "< 0.001".into()
+    } else {
+        format!("{p:.3}")
+    }
+}
+
+/// The recommendation, with its evidence and caveats.
+fn decision_md(a: &Analysis, s: &AnalysisSettings) -> String {
+    let mut out = String::from("## Decision\n\n");
+    let ok: Vec<_> = a
+        .across
+        .iter()
+        .filter_map(|r| r.result.as_ref().ok().map(|x| (r, x)))
+        .collect();
+    if ok.is_empty() {
+        out.push_str("Too few tasks share a calibration size for a comparison across tasks (it needs at least two tasks with every method).\n\n");
+        return out;
+    }
+    let mut wins: std::collections::BTreeMap<&str, usize> = std::collections::BTreeMap::new();
+    for (r, x) in &ok {
+        *wins.entry(r.methods[x.best].as_str()).or_default() += 1;
+    }
+    let (top, n_top) = wins
+        .iter()
+        .max_by_key(|(_, n)| **n)
+        .map(|(m, n)| (*m, *n))
+        .unwrap_or(("", 0));
+    out.push_str(&format!(
+        "By average rank of mean `{}` across tasks, `{top}` ranks first at {n_top} of {} calibration sizes:\n\n",
+        s.primary_metric,
+        ok.len()
+    ));
+    for (r, x) in &ok {
+        let tied: Vec<&str> = x
+            .versus_best
+            .iter()
+            .filter(|v| !v.differs)
+            .map(|v| r.methods[v.method].as_str())
+            .collect();
+        out.push_str(&format!(
+            "- n = {}: best `{}` over {} task(s){}.\n",
+            r.size,
+            r.methods[x.best],
+            r.tasks.len(),
+            if tied.is_empty() {
+                "; every other method is reliably worse (Holm-corrected Wilcoxon, α = 0.05)"
+                    .to_string()
+            } else {
+                format!(
+                    "; not distinguishable from it (Holm-corrected Wilcoxon, α = 0.05): {}",
+                    tied.iter()
+                        .map(|m| format!("`{m}`"))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )
+            }
+        ));
+    }
+    let max_tasks = ok.iter().map(|(r, _)| r.tasks.len()).max().unwrap_or(0);
+    out.push('\n');
+    if max_tasks < 10 {
+        out.push_str(&format!(
+            "**Read with care:** at most {max_tasks} task(s) enter any size. Tests across so few tasks have little power, and tasks that share a dataset (one dataset under several base models) are not independent evidence; treat this as a hypothesis to check on your own data, not as a settled default.\n\n"
+        ));
+    } else {
+        out.push_str("Tasks that share a dataset (one dataset under several base models) are not independent evidence; the tests across tasks treat them as if they were, so their p-values are optimistic.\n\n");
+    }
+    out
+}
+
+/// Average ranks, Friedman / Iman–Davenport, Nemenyi CD per size.
+fn across_md(a: &Analysis, s: &AnalysisSettings) -> String {
+    let mut out = String::from("## Across tasks\n\n");
+    if a.across.is_empty() {
+        out.push_str("No calibration size has values for every method on any task.\n\n");
+        return out;
+    }
+    out.push_str(&format!(
+        "Average rank of each method's mean `{}` over tasks (1 = best; ties share ranks), the Friedman test with the Iman–Davenport F, and the Nemenyi critical difference at α = 0.05 (Demšar 2006). Two methods whose average ranks differ by less than the CD are not distinguishable.\n\n",
+        s.primary_metric
+    ));
+    let methods = &a.methods;
+    out.push_str(&format!(
+        "| n | tasks | {} | F_F | p | CD 0.05 |\n",
+        methods
+            .iter()
+            .map(|m| format!("`{m}`"))
+            .collect::<Vec<_>>()
+            .join(" | ")
+    ));
+    out.push_str(&format!(
+        "| ---: | ---: | {} | ---: | ---: | ---: |\n",
+        methods
+            .iter()
+            .map(|_| "---:")
+            .collect::<Vec<_>>()
+            .join(" | ")
+    ));
+    for r in &a.across {
+        match &r.result {
+            Ok(x) => out.push_str(&format!(
+                "| {} | {} | {} | {:.2} | {} | {} |\n",
+                r.size,
+                r.tasks.len(),
+                x.friedman
+                    .avg_ranks
+                    .iter()
+                    .enumerate()
+                    .map(|(i, v)| if i == x.best {
+                        format!("**{v:.2}**")
+                    } else {
+                        format!("{v:.2}")
+                    })
+                    .collect::<Vec<_>>()
+                    .join(" | "),
+                x.friedman.ff,
+                fmt_p(x.friedman.ff_p),
+                x.cd_05
+                    .map(|c| format!("{c:.2}"))
+                    .unwrap_or_else(|| "–".into())
+            )),
+            Err(e) => out.push_str(&format!(
+                "| {} | {} | {} | – | – | – |\n",
+                r.size,
+                r.tasks.len(),
+                format!("({e})") + &" | –".repeat(methods.len().saturating_sub(1))
+            )),
+        }
+    }
+    out.push_str(&format!(
+        "\nWins / ties / losses against `{}` over tasks (a tie is an interval covering zero):\n\n",
+        s.reference
+    ));
+    let others: Vec<&String> = methods.iter().filter(|m| **m != s.reference).collect();
+    out.push_str(&format!(
+        "| n | {} |\n| ---: | {} |\n",
+        others
+            .iter()
+            .map(|m| format!("`{m}`"))
+            .collect::<Vec<_>>()
+            .join(" | "),
+        others
+            .iter()
+            .map(|_| "---:")
+            .collect::<Vec<_>>()
+            .join(" | ")
+    ));
+    for r in &a.across {
+        let cells: Vec<String> = others
+            .iter()
+            .map(|m| {
+                r.vs_reference
+                    .iter()
+                    .find(|(x, _)| x == *m)
+                    .map(|(_, rec)| format!("{}/{}/{}", rec.wins, rec.ties, rec.losses))
+                    .unwrap_or_else(|| "–".into())
+            })
+            .collect();
+        out.push_str(&format!("| {} | {} |\n", r.size, cells.join(" | ")));
+    }
+    out.push('\n');
+    out
+}
+
+/// The data-size thresholds of flexible against parametric methods.
+fn thresholds_md(a: &Analysis) -> String {
+    let mut out =
+        String::from("## How much calibration data before a flexible method pays off\n\n");
+    if a.threshold_summaries.is_empty() {
+        out.push_str("No (flexible, parametric) method pair in this suite.\n\n");
+        return out;
+    }
+    out.push_str("Per task, *better from* is the smallest tested size from which the flexible method is reliably better than the parametric one at every larger tested size; *worse up to* is the largest size at which it is reliably worse; the crossover interpolates the mean difference linearly on log size. Medians and ranges over the tasks where each exists; per-task values are in `thresholds.csv`.\n\n");
+    out.push_str("| flexible | parametric | tasks | better from: tasks, median [range] | worse up to: tasks, median [range] | crossover: tasks, median [range] |\n| --- | --- | ---: | --- | --- | --- |\n");
+    let sp = |x: &Option<crate::stats::thresholds::Spread>| match x {
+        Some(s) => format!("{}, {:.0} [{:.0}, {:.0}]", s.tasks, s.median, s.min, s.max),
+        None => "0".into(),
+    };
+    for ((f, p), sum) in &a.threshold_summaries {
+        out.push_str(&format!(
+            "| `{f}` | `{p}` | {} | {} | {} | {} |\n",
+            sum.tasks,
+            sp(&sum.better_from),
+            sp(&sum.worse_until),
+            sp(&sum.crossover)
+        ));
+    }
+    out.push_str("\nA size is only as good as the sizes tested: \"better from 800\" means better at 800 and at every larger size in the sweep, not at 700.\n\n");
     out
 }

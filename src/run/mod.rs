@@ -27,6 +27,7 @@ use rayon::prelude::*;
 use crate::calibrate::{Calibrator, FitError};
 use crate::metrics::scoring::clipped_count;
 use crate::split;
+use crate::stats::paired;
 use crate::suite::Plan;
 use table::{UnitRow, UnitTable};
 
@@ -132,10 +133,11 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
     }
     let positives = cal_y.iter().filter(|&&y| y).count();
     let one_class = positives == 0 || positives == size;
-    let mut pred = vec![0.0; td.test_scores.len()];
     let clip = plan.metric_settings.log_loss_clip;
     let mut methods = Vec::with_capacity(plan.methods.len());
+    let mut preds: Vec<Option<Vec<f64>>> = Vec::with_capacity(plan.methods.len());
     for (mi, m) in plan.methods.iter().enumerate() {
+        preds.push(None);
         if one_class {
             methods.push(MethodOutcome {
                 method: m.id.clone(),
@@ -153,6 +155,7 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
         let fit_ms = t0.elapsed().as_secs_f64() * 1e3;
         match fitted {
             Ok(f) => {
+                let mut pred = vec![0.0; td.test_scores.len()];
                 f.map.predict(&td.test_scores, &mut pred);
                 let metrics = plan
                     .metrics
@@ -186,6 +189,7 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
                     fit_ms,
                     error: None,
                 });
+                preds[mi] = Some(pred);
             }
             Err(e) => {
                 let status = if e == FitError::OneClass {
@@ -205,6 +209,7 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
             }
         }
     }
+    add_row_summaries(plan, &td.test_labels, &preds, &mut methods);
     UnitOutcome {
         task: task.id.clone(),
         size,
@@ -213,6 +218,48 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
         reservoir: task.reservoir.len(),
         test_rows: task.test.len(),
         methods,
+    }
+}
+
+/// For each row-decomposable metric, summarise the per-test-row difference of
+/// each method to the reference (`stats::paired::row_summary`) into extra
+/// columns `<metric>_<summary>`; the interval estimators use them to measure
+/// the shared test set's part of the uncertainty.
+fn add_row_summaries(
+    plan: &Plan,
+    labels: &[bool],
+    preds: &[Option<Vec<f64>>],
+    methods: &mut [MethodOutcome],
+) {
+    let Some(ri) = plan.methods.iter().position(|m| m.id == plan.reference) else {
+        return;
+    };
+    let Some(rp) = &preds[ri] else { return };
+    let s = &plan.metric_settings;
+    for mid in plan.metrics.iter().filter(|m| m.row_terms()) {
+        let rterms: Vec<f64> = rp
+            .iter()
+            .zip(labels)
+            .map(|(&p, &y)| mid.row_term(p, y, s))
+            .collect();
+        for (mi, pm) in preds.iter().enumerate() {
+            let (true, Some(pm)) = (mi != ri, pm) else {
+                continue;
+            };
+            let e: Vec<f64> = pm
+                .iter()
+                .zip(labels)
+                .zip(&rterms)
+                .map(|((&p, &y), &r)| mid.row_term(p, y, s) - r)
+                .collect();
+            for (name, v) in paired::row_summary(&e) {
+                if v.is_finite() {
+                    methods[mi]
+                        .extras
+                        .insert(format!("{}_{name}", mid.as_str()), v);
+                }
+            }
+        }
     }
 }
 

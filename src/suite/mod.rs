@@ -25,6 +25,7 @@ use crate::data::{ScorePool, Side};
 use crate::metrics::{MetricId, MetricSettings};
 use crate::models::{protocol::Protocol, ModelSpec};
 use crate::split;
+use crate::stats::paired::IntervalKind;
 
 /// A problem with a suite, located in its file.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -91,6 +92,8 @@ struct RawSuite {
     test_set: Option<Spanned<RawTestSet>>,
     #[serde(default)]
     method: Vec<Spanned<toml::Table>>,
+    #[serde(default)]
+    threshold_pairs: Option<Spanned<Vec<(String, String)>>>,
     #[serde(default)]
     open_data: Option<Spanned<String>>,
     #[serde(default)]
@@ -249,7 +252,37 @@ pub struct Plan {
     pub metric_settings: MetricSettings,
     pub test_set: TestSetRule,
     pub methods: Vec<MethodEntry>,
+    /// (flexible, parametric) method pairs whose data-size thresholds are reported.
+    pub pairs: Vec<(String, String)>,
     pub tasks: Vec<TaskPlan>,
+}
+
+/// Method kinds that adapt their shape to the data.
+pub const FLEXIBLE_KINDS: &[&str] = &[
+    "isotonic",
+    "centered-isotonic",
+    "binning",
+    "venn-abers",
+    "spline",
+];
+/// Method kinds with a fixed parametric shape that the threshold pairs use by default.
+pub const PARAMETRIC_KINDS: &[&str] = &["platt", "beta"];
+
+/// Default threshold pairs: every flexible method against every Platt or beta method.
+pub fn default_pairs(methods: &[MethodEntry]) -> Vec<(String, String)> {
+    let mut out = Vec::new();
+    for f in methods
+        .iter()
+        .filter(|m| FLEXIBLE_KINDS.contains(&m.spec.kind()))
+    {
+        for p in methods
+            .iter()
+            .filter(|m| PARAMETRIC_KINDS.contains(&m.spec.kind()))
+        {
+            out.push((f.id.clone(), p.id.clone()));
+        }
+    }
+    out
 }
 
 impl Plan {
@@ -397,15 +430,20 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         }
     };
     let interval = match &raw.interval {
-        None => "paired-t".to_string(),
-        Some(s) => match s.get_ref().as_str() {
-            "paired-t" => s.get_ref().clone(),
-            other => {
+        None => IntervalKind::default().as_str().to_string(),
+        Some(s) => match IntervalKind::ALL.iter().find(|k| k.as_str() == s.get_ref()) {
+            Some(k) => k.as_str().to_string(),
+            None => {
+                let known: Vec<_> = IntervalKind::ALL.iter().map(|k| k.as_str()).collect();
                 return Err(ctx.err(
                     s.span(),
                     "interval",
-                    format!("`{other}`: known interval estimators: paired-t"),
-                ))
+                    format!(
+                        "`{}`: known interval estimators: {}",
+                        s.get_ref(),
+                        known.join(", ")
+                    ),
+                ));
             }
         },
     };
@@ -573,6 +611,32 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
             ),
         ));
     }
+
+    let method_entries: Vec<MethodEntry> = methods.iter().map(|(m, _)| m.clone()).collect();
+    let pairs = match &raw.threshold_pairs {
+        None => default_pairs(&method_entries),
+        Some(p) => {
+            for (a, b) in p.get_ref() {
+                for id in [a, b] {
+                    if !method_entries.iter().any(|m| &m.id == id) {
+                        return Err(ctx.err(
+                            p.span(),
+                            "threshold_pairs",
+                            format!("`{id}` is not one of the suite's methods"),
+                        ));
+                    }
+                }
+                if a == b {
+                    return Err(ctx.err(
+                        p.span(),
+                        "threshold_pairs",
+                        format!("[\"{a}\", \"{b}\"] compares a method with itself"),
+                    ));
+                }
+            }
+            p.get_ref().clone()
+        }
+    };
 
     // Tasks.
     if raw.task.is_empty() && raw.task_grid.is_empty() {
@@ -952,7 +1016,8 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         primary,
         metric_settings,
         test_set,
-        methods: methods.into_iter().map(|(m, _)| m).collect(),
+        methods: method_entries,
+        pairs,
         tasks,
     })
 }
