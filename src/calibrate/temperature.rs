@@ -38,7 +38,7 @@ pub struct Temperature {
 /// tolerance at β = 0 counts as stationary: β = 0 is then the optimum.
 pub fn fit_inverse_temperature(z: &[f64], t: &[f64]) -> (f64, usize) {
     let mut rows: Vec<(f64, f64)> = z.iter().copied().zip(t.iter().copied()).collect();
-    // rows.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
+    rows.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
     let grad_hess = |beta: f64| -> (f64, f64) {
         let (mut g, mut h) = (0.0, 0.0);
         for &(zi, ti) in &rows {
@@ -54,7 +54,7 @@ pub fn fit_inverse_temperature(z: &[f64], t: &[f64]) -> (f64, usize) {
     }
     let tol = 1e-13 * zsum;
     let (g0, _) = grad_hess(0.0);
-    if g0 >= 0.0 {
+    if g0 >= -tol {
         return (0.0, 0);
     }
     let (mut lo, mut hi) = (0.0f64, f64::INFINITY);
