@@ -14,7 +14,7 @@ use crate::stats::paired::IntervalKind;
 use crate::suite::{self, hex, Plan, TaskSource};
 
 /// The suite `plumbline run` uses when none is given.
-pub const DEFAULT_SUITE: &str = "suites/courier-demo.toml";
+pub const DEFAULT_SUITE: &str = "suites/open-uci.toml";
 
 /// A resolved plan as text (what `plumbline check` prints).
 pub fn describe_plan(plan: &Plan) -> String {

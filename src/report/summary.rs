@@ -210,11 +210,24 @@ fn decision_md(a: &Analysis, s: &AnalysisSettings) -> String {
         .max_by_key(|(_, n)| **n)
         .map(|(m, n)| (*m, *n))
         .unwrap_or(("", 0));
-    out.push_str(&format!(
-        "By average rank of mean `{}` across tasks, `{top}` ranks first at {n_top} of {} calibration sizes:\n\n",
-        s.primary_metric,
-        ok.len()
-    ));
+    let tally = {
+        let mut w: Vec<_> = wins.iter().collect();
+        w.sort_by(|a, b| b.1.cmp(a.1).then(a.0.cmp(b.0)));
+        w.iter().map(|(m, n)| format!("`{m}` {n}")).collect::<Vec<_>>().join(", ")
+    };
+    if 2 * n_top > ok.len() {
+        out.push_str(&format!(
+            "By average rank of mean `{}` across tasks, `{top}` ranks first at {n_top} of {} calibration sizes (first places: {tally}):\n\n",
+            s.primary_metric,
+            ok.len()
+        ));
+    } else {
+        out.push_str(&format!(
+            "No method ranks first (by average rank of mean `{}` across tasks) at a majority of the {} calibration sizes — the best choice depends on how much calibration data there is (first places: {tally}):\n\n",
+            s.primary_metric,
+            ok.len()
+        ));
+    }
     for (r, x) in &ok {
         let tied: Vec<&str> = x
             .versus_best
