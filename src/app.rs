@@ -215,8 +215,12 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         .parent()
         .map(|p| p.join(".cache").join("pools"))
         .unwrap_or_else(|| PathBuf::from(".cache/pools"));
-    let pool_reports = run::pools::resolve(&mut plan, Some(&cache), args.threads, args.quiet)
-        .map_err(anyhow::Error::msg)?;
+    let pool_reports = if plan.study.is_some() {
+        Vec::new()
+    } else {
+        run::pools::resolve(&mut plan, Some(&cache), args.threads, args.quiet)
+            .map_err(anyhow::Error::msg)?
+    };
     let staging = output::prepare(&out, args.force)?;
     let fp = fingerprint(&plan);
     let (journal, done) = Journal::open(&staging, &fp).map_err(anyhow::Error::msg)?;
@@ -232,7 +236,10 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         threads: args.threads,
         quiet: args.quiet,
     };
-    let result = run::run(&plan, &opts, done, &|u| journal.append(u))?;
+    let result = match &plan.study {
+        Some(st) => run::study::run_study(&plan, st, &opts, done, &|u| journal.append(u))?,
+        None => run::run(&plan, &opts, done, &|u| journal.append(u))?,
+    };
     drop(journal);
 
     let settings = settings_of(&plan);

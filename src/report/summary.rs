@@ -139,6 +139,12 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
             a.tasks.len()
         ));
     }
+    if s.reference.starts_with("cross-fitted-") {
+        out.push_str(&format!(
+            "This is a protocol study. The compared \"methods\" are ways of getting calibration data at an equal labelled budget n: `held-out-f` keeps a fraction f of the n rows away from the base model and calibrates on its scores there; `{}` trains on all n rows and calibrates on out-of-fold scores. Each task is a dataset, a base model and a calibrator (`task@calibrator`). A difference below zero means the held-out variant beats cross-fitting.\n\n",
+            s.reference
+        ));
+    }
     out.push_str(&decision_md(a, s));
     out.push_str(&across_md(a, s));
     out.push_str(&thresholds_md(a));
@@ -213,7 +219,10 @@ fn decision_md(a: &Analysis, s: &AnalysisSettings) -> String {
     let tally = {
         let mut w: Vec<_> = wins.iter().collect();
         w.sort_by(|a, b| b.1.cmp(a.1).then(a.0.cmp(b.0)));
-        w.iter().map(|(m, n)| format!("`{m}` {n}")).collect::<Vec<_>>().join(", ")
+        w.iter()
+            .map(|(m, n)| format!("`{m}` {n}"))
+            .collect::<Vec<_>>()
+            .join(", ")
     };
     if 2 * n_top > ok.len() {
         out.push_str(&format!(

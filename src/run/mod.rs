@@ -14,6 +14,7 @@
 pub mod journal;
 pub mod output;
 pub mod pools;
+pub mod study;
 pub mod table;
 
 use std::collections::{BTreeMap, BTreeSet};
@@ -133,83 +134,27 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
     }
     let positives = cal_y.iter().filter(|&&y| y).count();
     let one_class = positives == 0 || positives == size;
-    let clip = plan.metric_settings.log_loss_clip;
     let mut methods = Vec::with_capacity(plan.methods.len());
     let mut preds: Vec<Option<Vec<f64>>> = Vec::with_capacity(plan.methods.len());
     for (mi, m) in plan.methods.iter().enumerate() {
-        preds.push(None);
-        if one_class {
-            methods.push(MethodOutcome {
-                method: m.id.clone(),
-                status: "one_class".into(),
-                metrics: vec![None; plan.metrics.len()],
-                clipped: None,
-                extras: BTreeMap::new(),
-                fit_ms: 0.0,
-                error: None,
-            });
-            continue;
-        }
-        let t0 = Instant::now();
-        let fitted = td.calibrators[mi].fit(&cal_s, &cal_y);
-        let fit_ms = t0.elapsed().as_secs_f64() * 1e3;
-        match fitted {
-            Ok(f) => {
-                let mut pred = vec![0.0; td.test_scores.len()];
-                f.map.predict(&td.test_scores, &mut pred);
-                let metrics = plan
-                    .metrics
-                    .iter()
-                    .map(|mid| {
-                        let v = mid.compute(&pred, &td.test_labels, &plan.metric_settings);
-                        if v.is_finite() {
-                            Some(v)
-                        } else {
-                            None
-                        }
-                    })
-                    .collect();
-                let extras = f
-                    .map
-                    .extras(&td.test_scores)
-                    .into_iter()
-                    .map(|(k, v)| (k.to_string(), v))
-                    .collect();
-                let status = if f.notes.is_empty() {
-                    "ok".to_string()
-                } else {
-                    f.notes.join("+")
-                };
-                methods.push(MethodOutcome {
-                    method: m.id.clone(),
-                    status,
-                    metrics,
-                    clipped: Some(clipped_count(&pred, clip)),
-                    extras,
-                    fit_ms,
-                    error: None,
-                });
-                preds[mi] = Some(pred);
-            }
-            Err(e) => {
-                let status = if e == FitError::OneClass {
-                    "one_class"
-                } else {
-                    "failed"
-                };
-                methods.push(MethodOutcome {
-                    method: m.id.clone(),
-                    status: status.into(),
-                    metrics: vec![None; plan.metrics.len()],
-                    clipped: None,
-                    extras: BTreeMap::new(),
-                    fit_ms,
-                    error: Some(e.to_string()),
-                });
-            }
-        }
+        let (o, p) = if one_class {
+            (one_class_outcome(plan, &m.id), None)
+        } else {
+            fit_score(
+                plan,
+                td.calibrators[mi].as_ref(),
+                &m.id,
+                &cal_s,
+                &cal_y,
+                &td.test_scores,
+                &td.test_labels,
+            )
+        };
+        methods.push(o);
+        preds.push(p);
     }
-    add_row_summaries(plan, &td.test_labels, &preds, &mut methods);
+    let ri = plan.methods.iter().position(|m| m.id == plan.reference);
+    add_row_summaries(plan, &td.test_labels, &preds, &mut methods, ri);
     UnitOutcome {
         task: task.id.clone(),
         size,
@@ -225,13 +170,99 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
 /// each method to the reference (`stats::paired::row_summary`) into extra
 /// columns `<metric>_<summary>`; the interval estimators use them to measure
 /// the shared test set's part of the uncertainty.
-fn add_row_summaries(
+/// The outcome of a method in a unit whose calibration sample has one class.
+pub(crate) fn one_class_outcome(plan: &Plan, name: &str) -> MethodOutcome {
+    MethodOutcome {
+        method: name.to_string(),
+        status: "one_class".into(),
+        metrics: vec![None; plan.metrics.len()],
+        clipped: None,
+        extras: BTreeMap::new(),
+        fit_ms: 0.0,
+        error: None,
+    }
+}
+
+/// Fit one calibrator on a calibration sample and score it on the test set.
+pub(crate) fn fit_score(
+    plan: &Plan,
+    cal: &dyn Calibrator,
+    name: &str,
+    cal_s: &[f64],
+    cal_y: &[bool],
+    test_s: &[f64],
+    test_y: &[bool],
+) -> (MethodOutcome, Option<Vec<f64>>) {
+    let t0 = Instant::now();
+    let fitted = cal.fit(cal_s, cal_y);
+    let fit_ms = t0.elapsed().as_secs_f64() * 1e3;
+    match fitted {
+        Ok(f) => {
+            let mut pred = vec![0.0; test_s.len()];
+            f.map.predict(test_s, &mut pred);
+            let metrics = plan
+                .metrics
+                .iter()
+                .map(|mid| {
+                    Some(mid.compute(&pred, test_y, &plan.metric_settings))
+                        .filter(|v| v.is_finite())
+                })
+                .collect();
+            let extras = f
+                .map
+                .extras(test_s)
+                .into_iter()
+                .map(|(k, v)| (k.to_string(), v))
+                .collect();
+            let status = if f.notes.is_empty() {
+                "ok".to_string()
+            } else {
+                f.notes.join("+")
+            };
+            let clipped = Some(clipped_count(&pred, plan.metric_settings.log_loss_clip));
+            (
+                MethodOutcome {
+                    method: name.to_string(),
+                    status,
+                    metrics,
+                    clipped,
+                    extras,
+                    fit_ms,
+                    error: None,
+                },
+                Some(pred),
+            )
+        }
+        Err(e) => {
+            let status = if e == FitError::OneClass {
+                "one_class"
+            } else {
+                "failed"
+            };
+            (
+                MethodOutcome {
+                    method: name.to_string(),
+                    status: status.into(),
+                    metrics: vec![None; plan.metrics.len()],
+                    clipped: None,
+                    extras: BTreeMap::new(),
+                    fit_ms,
+                    error: Some(e.to_string()),
+                },
+                None,
+            )
+        }
+    }
+}
+
+pub(crate) fn add_row_summaries(
     plan: &Plan,
     labels: &[bool],
     preds: &[Option<Vec<f64>>],
     methods: &mut [MethodOutcome],
+    reference: Option<usize>,
 ) {
-    let Some(ri) = plan.methods.iter().position(|m| m.id == plan.reference) else {
+    let Some(ri) = reference else {
         return;
     };
     let Some(rp) = &preds[ri] else { return };
@@ -363,9 +394,18 @@ pub fn assemble(
         .enumerate()
         .map(|(i, t)| (t.id.as_str(), i))
         .collect();
+    // A protocol study's rows are `<task>@<method>`: order by task, then method.
+    let method_pos = |m: &str| {
+        plan.methods
+            .iter()
+            .position(|x| x.id == m)
+            .unwrap_or(usize::MAX)
+    };
     units.sort_by_key(|u| {
+        let (base, method) = u.task.split_once('@').unwrap_or((u.task.as_str(), ""));
         (
-            task_pos.get(u.task.as_str()).copied().unwrap_or(usize::MAX),
+            task_pos.get(base).copied().unwrap_or(usize::MAX),
+            method_pos(method),
             u.size,
             u.repeat,
         )

@@ -83,7 +83,10 @@ struct RawSuite {
     confidence: Option<Spanned<f64>>,
     #[serde(default)]
     interval: Option<Spanned<String>>,
-    reference: Spanned<String>,
+    #[serde(default)]
+    reference: Option<Spanned<String>>,
+    #[serde(default)]
+    protocol_study: Option<Spanned<RawStudy>>,
     metrics: Spanned<Vec<Spanned<String>>>,
     primary_metric: Spanned<String>,
     #[serde(default)]
@@ -102,6 +105,33 @@ struct RawSuite {
     task: Vec<Spanned<toml::Table>>,
     #[serde(default)]
     task_grid: Vec<Spanned<toml::Table>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawStudy {
+    test_rows: i64,
+    #[serde(default)]
+    fractions: Option<Vec<f64>>,
+    #[serde(default)]
+    folds: Option<i64>,
+}
+
+/// A protocol study: at each labelled budget N (the suite's `sizes`), held-out
+/// calibration with each fraction f against cross-fitting with K folds, all on
+/// one fixed test set per dataset.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StudyPlan {
+    pub test_rows: usize,
+    pub fractions: Vec<f64>,
+    pub folds: usize,
+}
+
+impl StudyPlan {
+    /// The variant every other one is compared with.
+    pub fn reference(&self) -> String {
+        format!("cross-fitted-{}", self.folds)
+    }
 }
 
 #[derive(Debug, Deserialize)]
@@ -254,6 +284,8 @@ pub struct Plan {
     pub methods: Vec<MethodEntry>,
     /// (flexible, parametric) method pairs whose data-size thresholds are reported.
     pub pairs: Vec<(String, String)>,
+    /// Set for a protocol study (then `sizes` are labelled budgets).
+    pub study: Option<StudyPlan>,
     pub tasks: Vec<TaskPlan>,
 }
 
@@ -593,24 +625,64 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         }
         methods.push((MethodEntry { id, spec }, m.span()));
     }
-    if !methods
-        .iter()
-        .any(|(e, _)| &e.id == raw.reference.get_ref())
-    {
-        return Err(ctx.err(
-            raw.reference.span(),
-            "reference",
-            format!(
-                "`{}` is not one of the suite's methods ({})",
-                raw.reference.get_ref(),
-                methods
-                    .iter()
-                    .map(|(e, _)| e.id.as_str())
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            ),
-        ));
-    }
+    let study = match &raw.protocol_study {
+        None => None,
+        Some(st) => {
+            let r = st.get_ref();
+            if r.test_rows < 10 {
+                return Err(ctx.err(
+                    st.span(),
+                    "protocol_study.test_rows",
+                    format!("{}: need at least 10 test rows", r.test_rows),
+                ));
+            }
+            let fractions = r
+                .fractions
+                .clone()
+                .unwrap_or_else(|| vec![0.05, 0.1, 0.2, 0.3]);
+            if fractions.is_empty() || fractions.iter().any(|f| !(*f > 0.0 && *f < 1.0)) {
+                return Err(ctx.err(st.span(), "protocol_study.fractions", format!("{fractions:?}: each calibration fraction must lie strictly between 0 and 1")));
+            }
+            let folds = r.folds.unwrap_or(5);
+            if !(2..=50).contains(&folds) {
+                return Err(ctx.err(
+                    st.span(),
+                    "protocol_study.folds",
+                    format!("{folds}: need between 2 and 50 folds"),
+                ));
+            }
+            Some(StudyPlan {
+                test_rows: r.test_rows as usize,
+                fractions,
+                folds: folds as usize,
+            })
+        }
+    };
+    let reference = match (&raw.reference, &study) {
+        (Some(r), Some(st)) => {
+            return Err(ctx.err(
+                r.span(),
+                "reference",
+                format!("in a protocol study the reference is the cross-fitted variant (`{}`); remove `reference`", st.reference()),
+            ))
+        }
+        (None, Some(st)) => st.reference(),
+        (None, None) => return Err(ctx.err(0..0, "reference", "missing key `reference` (the method paired differences are taken against)")),
+        (Some(r), None) => {
+            if !methods.iter().any(|(e, _)| &e.id == r.get_ref()) {
+                return Err(ctx.err(
+                    r.span(),
+                    "reference",
+                    format!(
+                        "`{}` is not one of the suite's methods ({})",
+                        r.get_ref(),
+                        methods.iter().map(|(e, _)| e.id.as_str()).collect::<Vec<_>>().join(", ")
+                    ),
+                ));
+            }
+            r.get_ref().clone()
+        }
+    };
 
     let method_entries: Vec<MethodEntry> = methods.iter().map(|(m, _)| m.clone()).collect();
     let pairs = match &raw.threshold_pairs {
@@ -823,6 +895,9 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
             .unwrap_or(span.clone());
         let mut plan_task = match spec {
             Spec::File(rt) => {
+                if study.is_some() {
+                    return Err(ctx.err(span.clone(), &tl, "a protocol study needs open-data tasks (`data` and `model`), not score files"));
+                }
                 let fpath = base.join(&rt.scores);
                 let fspec = ScoreFileSpec {
                     path: fpath.clone(),
@@ -923,24 +998,46 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                     .validate()
                     .map_err(|e| ctx.err(span.clone(), &format!("{tl}.protocol"), e.to_string()))?;
                 let n = summary.rows;
-                let (reservoir_rows, test_rows) = match protocol {
-                    Protocol::HeldOut { train_fraction } => {
-                        let n_train = (train_fraction * n as f64).round() as usize;
-                        let pool_n = n.saturating_sub(n_train);
-                        let rows = test_set.rows(pool_n);
-                        if rows == 0 || rows >= pool_n {
+                if let (Some(_), Some(_)) = (&study, &ro.protocol) {
+                    return Err(ctx.err(
+                        span.clone(),
+                        &format!("{tl}.protocol"),
+                        "a protocol study compares the protocols itself; remove `protocol`",
+                    ));
+                }
+                let (reservoir_rows, test_rows) = match (&study, protocol.clone()) {
+                    (Some(st), _) => {
+                        if st.test_rows + 4 > n {
                             return Err(ctx.err(
+                                span.clone(),
+                                "protocol_study.test_rows",
+                                format!(
+                                    "{} test rows leave too few of the {n} rows of {tl}",
+                                    st.test_rows
+                                ),
+                            ));
+                        }
+                        (n - st.test_rows, st.test_rows)
+                    }
+                    (None, protocol) => match protocol {
+                        Protocol::HeldOut { train_fraction } => {
+                            let n_train = (train_fraction * n as f64).round() as usize;
+                            let pool_n = n.saturating_sub(n_train);
+                            let rows = test_set.rows(pool_n);
+                            if rows == 0 || rows >= pool_n {
+                                return Err(ctx.err(
                                 test_set_span,
                                 "test_set",
                                 format!("{}: gives {rows} test rows for {tl}, whose held-out pool has {pool_n} rows", test_set.describe()),
                             ));
+                            }
+                            (pool_n - rows, rows)
                         }
-                        (pool_n - rows, rows)
-                    }
-                    Protocol::CrossFitted { train_fraction, .. } => {
-                        let n_train = (train_fraction * n as f64).round() as usize;
-                        (n_train, n - n_train)
-                    }
+                        Protocol::CrossFitted { train_fraction, .. } => {
+                            let n_train = (train_fraction * n as f64).round() as usize;
+                            (n_train, n - n_train)
+                        }
+                    },
                 };
                 let data_sha256 = open::dataset_digest(&data_dir, &ro.data)
                     .map_err(|e| ctx.err(span.clone(), &format!("{tl}.data"), e.to_string()))?;
@@ -1003,6 +1100,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         tasks.push(plan_task);
     }
 
+    let pairs = if study.is_some() { Vec::new() } else { pairs };
     Ok(Plan {
         suite_file: path.to_path_buf(),
         suite_sha256: sha256,
@@ -1011,7 +1109,8 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         repeats: repeats as usize,
         confidence,
         interval,
-        reference: raw.reference.get_ref().clone(),
+        reference,
+        study,
         metrics,
         primary,
         metric_settings,
