@@ -66,7 +66,11 @@ pub fn describe_plan(plan: &Plan) -> String {
                 format!(
                     "open data `{data}` · model `{model_id}` ({}) · protocol {}",
                     model.kind(),
-                    protocol.kind()
+                    if plan.study.is_some() {
+                        "study (all variants)"
+                    } else {
+                        protocol.kind()
+                    }
                 ),
                 if matches!(
                     protocol,
