@@ -13,6 +13,14 @@ fn main() {
     let args: Vec<String> = std::env::args().collect();
     let mut i = 1;
     while i < args.len() {
+        if args[i] == "--pseudo-count" {
+            // Compare bounded isotonic regression (pseudo-rows at the base rate) instead.
+            if let Some(m) = args.get(i + 1).and_then(|v| v.parse::<f64>().ok()) {
+                cfg.method = plumbline::calibrate::MethodSpec::Isotonic { pseudo_count: m };
+            }
+            i += 2;
+            continue;
+        }
         let val = args.get(i + 1).and_then(|v| v.parse::<u64>().ok());
         match (args[i].as_str(), val) {
             ("--replicates", Some(v)) => cfg.replicates = v as usize,
