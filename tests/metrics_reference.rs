@@ -40,7 +40,7 @@ fn tolerance(id: &str) -> f64 {
         // scikit-learn log_loss / brier_score_loss / roc_auc_score: same
         // closed forms, only summation order differs.
         "log_loss" | "brier" | "auc" => 1e-12,
-        // numpy transcriptions of Murphy (1973), the ECE formulas and
+        // numpy implementations of Murphy (1973), the ECE formulas and
         // Spiegelhalter (1986): closed forms.
         "murphy_rel" | "murphy_res" | "murphy_unc" | "ece_width" | "ece_mass" => 1e-12,
         "spiegelhalter_z" => 1e-10,

@@ -87,7 +87,7 @@ fn magic_file_matches_published_counts() {
 }
 
 #[test]
-fn auc_helper_on_a_hand_example() {
+fn auc_on_a_hand_example() {
     // Pairs (pos, neg): (0.8 > 0.3), (0.8 > 0.5), (0.4 > 0.3), (0.4 < 0.5) → 3/4.
     assert_eq!(
         auc(&[0.8, 0.4, 0.3, 0.5], &[true, true, false, false]),
