@@ -167,6 +167,12 @@ pub fn diff_figure(a: &Analysis, task: &str, metric: &str, reference: &str) -> O
     s.push_str(&format!("<rect x=\"{ml}\" y=\"{mt}\" width=\"{pw}\" height=\"{ph}\" fill=\"none\" stroke=\"#999\"/>\n"));
     for (i, (m, pts)) in series.iter().enumerate() {
         let c = COLOURS[i % COLOURS.len()];
+        // Past eight series the colours repeat: tell them apart by dashes.
+        let dash = match i / COLOURS.len() {
+            0 => "",
+            1 => " stroke-dasharray=\"7 3\"",
+            _ => " stroke-dasharray=\"2 3\"",
+        };
         let band: Vec<String> = pts
             .iter()
             .filter(|p| p.2.is_finite())
@@ -189,7 +195,7 @@ pub fn diff_figure(a: &Analysis, task: &str, metric: &str, reference: &str) -> O
             .map(|p| format!("{},{}", f(x(p.0)), f(y(p.1))))
             .collect();
         s.push_str(&format!(
-            "<polyline points=\"{}\" fill=\"none\" stroke=\"{c}\" stroke-width=\"2\"/>\n",
+            "<polyline points=\"{}\" fill=\"none\" stroke=\"{c}\" stroke-width=\"2\"{dash}/>\n",
             line.join(" ")
         ));
         for p in pts {
@@ -201,7 +207,7 @@ pub fn diff_figure(a: &Analysis, task: &str, metric: &str, reference: &str) -> O
         }
         let ly = mt + 14.0 + 18.0 * i as f64;
         s.push_str(&format!(
-            "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"{c}\" stroke-width=\"3\"/>\n",
+            "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"{c}\" stroke-width=\"3\"{dash}/>\n",
             ml + pw + 12.0,
             ml + pw + 32.0,
             f(ly - 4.0),
