@@ -285,6 +285,11 @@ pub(crate) fn add_row_summaries(
                 .collect();
             for (name, v) in paired::row_summary(&e) {
                 if v.is_finite() {
+                    // Seven significant digits are plenty for a variance
+                    // estimate and keep units.csv a third smaller; the value is
+                    // rounded here, so statistics from memory and from the
+                    // file agree exactly.
+                    let v: f64 = format!("{v:.6e}").parse().unwrap_or(v);
                     methods[mi]
                         .extras
                         .insert(format!("{}_{name}", mid.as_str()), v);
