@@ -169,22 +169,6 @@ fn mean_sd(v: &[f64]) -> (f64, f64) {
     (m, sd)
 }
 
-/// The paired t interval: mean ± t(1 − α/2, R − 1) · s_d / √R. Treats repeats as
-/// independent and the test set as fixed.
-pub fn paired_t(diffs: &[f64], confidence: f64) -> (f64, f64, f64) {
-    use statrs::distribution::{ContinuousCDF, StudentsT};
-    let r = diffs.len();
-    let (m, sd) = mean_sd(diffs);
-    if r < 2 {
-        return (f64::NAN, f64::NAN, f64::NAN);
-    }
-    let se = sd / (r as f64).sqrt();
-    let t = StudentsT::new(0.0, 1.0, (r - 1) as f64)
-        .map(|d| d.inverse_cdf(0.5 + confidence / 2.0))
-        .unwrap_or(f64::NAN);
-    (m - t * se, m + t * se, se)
-}
-
 /// Paired values of two methods over the repeats where both have a value.
 pub struct PairRows {
     pub a: Vec<f64>,

@@ -338,25 +338,13 @@ pub fn run(
         .collect();
     let resumed_units = keys.len() - todo.len();
 
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(opts.threads.unwrap_or(0))
-        .build()
-        .map_err(|e| RunError::Threads(e.to_string()))?;
+    let pool = thread_pool(opts.threads)?;
     let threads = pool.current_num_threads();
-
-    let bar = if opts.quiet || !std::io::stderr().is_terminal() {
-        ProgressBar::with_draw_target(Some(keys.len() as u64), ProgressDrawTarget::hidden())
-    } else {
-        let b =
-            ProgressBar::with_draw_target(Some(keys.len() as u64), ProgressDrawTarget::stderr());
-        b.set_style(
-            ProgressStyle::with_template(
-                "{spinner} {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
-            )
-            .unwrap_or_else(|_| ProgressStyle::default_bar()),
-        );
-        b
-    };
+    let bar = progress_bar(
+        keys.len() as u64,
+        "{spinner} {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
+        opts.quiet,
+    );
     bar.set_position(resumed_units as u64);
 
     let finished: Mutex<Vec<UnitOutcome>> = Mutex::new(done);
@@ -384,6 +372,27 @@ pub fn run(
     }
     let finished = finished.into_inner().unwrap_or_default();
     Ok(assemble(plan, finished, threads, resumed_units))
+}
+
+/// A worker pool of `threads` threads (`None` = rayon's default, which honours
+/// `RAYON_NUM_THREADS`).
+pub(crate) fn thread_pool(threads: Option<usize>) -> Result<rayon::ThreadPool, RunError> {
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(threads.unwrap_or(0))
+        .build()
+        .map_err(|e| RunError::Threads(e.to_string()))
+}
+
+/// A progress bar on stderr, hidden with `quiet` or when stderr is not a terminal.
+pub(crate) fn progress_bar(len: u64, template: &str, quiet: bool) -> ProgressBar {
+    if quiet || !std::io::stderr().is_terminal() {
+        return ProgressBar::with_draw_target(Some(len), ProgressDrawTarget::hidden());
+    }
+    let b = ProgressBar::with_draw_target(Some(len), ProgressDrawTarget::stderr());
+    b.set_style(
+        ProgressStyle::with_template(template).unwrap_or_else(|_| ProgressStyle::default_bar()),
+    );
+    b
 }
 
 /// Sort finished units into the plan's order and build the unit table.

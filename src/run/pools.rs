@@ -9,10 +9,8 @@
 //! tested on the same rows, which keeps comparisons across base models fair.
 
 use std::collections::BTreeMap;
-use std::io::IsTerminal;
 use std::path::Path;
 
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
 use crate::data::{open, Dataset, Side};
@@ -59,25 +57,12 @@ pub fn resolve(
             }
         }
     }
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads.unwrap_or(0))
-        .build()
-        .map_err(|e| e.to_string())?;
-    let bar = if quiet || !std::io::stderr().is_terminal() {
-        ProgressBar::with_draw_target(Some(open_ids.len() as u64), ProgressDrawTarget::hidden())
-    } else {
-        let b = ProgressBar::with_draw_target(
-            Some(open_ids.len() as u64),
-            ProgressDrawTarget::stderr(),
-        );
-        b.set_style(
-            ProgressStyle::with_template(
-                "{spinner} score pools {wide_bar} {pos}/{len} tasks · {elapsed} · {msg}",
-            )
-            .unwrap_or_else(|_| ProgressStyle::default_bar()),
-        );
-        b
-    };
+    let pool = super::thread_pool(threads).map_err(|e| e.to_string())?;
+    let bar = super::progress_bar(
+        open_ids.len() as u64,
+        "{spinner} score pools {wide_bar} {pos}/{len} tasks · {elapsed} · {msg}",
+        quiet,
+    );
     let seed = plan.seed;
     let tasks = &plan.tasks;
     let built: Vec<Result<_, String>> = pool.install(|| {

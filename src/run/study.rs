@@ -14,9 +14,7 @@
 //! `method = <variant>`, `size = N`; the reference is the cross-fitted variant.
 
 use std::collections::{BTreeMap, BTreeSet};
-use std::io::IsTerminal;
 
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
 use super::{
@@ -89,24 +87,13 @@ pub fn run_study(
         })
         .collect();
     let resumed_units = keys.len() - todo.len();
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(opts.threads.unwrap_or(0))
-        .build()
-        .map_err(|e| RunError::Threads(e.to_string()))?;
+    let pool = super::thread_pool(opts.threads)?;
     let threads = pool.current_num_threads();
-    let bar = if opts.quiet || !std::io::stderr().is_terminal() {
-        ProgressBar::with_draw_target(Some(keys.len() as u64), ProgressDrawTarget::hidden())
-    } else {
-        let b =
-            ProgressBar::with_draw_target(Some(keys.len() as u64), ProgressDrawTarget::stderr());
-        b.set_style(
-            ProgressStyle::with_template(
-                "{spinner} protocol study {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
-            )
-            .unwrap_or_else(|_| ProgressStyle::default_bar()),
-        );
-        b
-    };
+    let bar = super::progress_bar(
+        keys.len() as u64,
+        "{spinner} protocol study {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
+        opts.quiet,
+    );
     bar.set_position(resumed_units as u64);
     let finished = std::sync::Mutex::new(done);
     let failure: std::sync::Mutex<Option<String>> = std::sync::Mutex::new(None);
