@@ -177,23 +177,71 @@ const Q_10: [f64; 9] = [
     1.645, 2.052, 2.291, 2.459, 2.589, 2.693, 2.780, 2.855, 2.920,
 ];
 
-/// q_α of the Nemenyi test for `k` methods (α = 0.05 or 0.10, 2 ≤ k ≤ 10).
-pub fn nemenyi_q(k: usize, alpha: f64) -> Result<f64, StatsError> {
-    let table = if (alpha - 0.05).abs() < 1e-12 {
-        &Q_05
-    } else if (alpha - 0.10).abs() < 1e-12 {
-        &Q_10
-    } else {
-        return Err(StatsError::Shape(format!(
-            "Nemenyi critical values are tabulated for α = 0.05 and 0.10 only, got {alpha}"
-        )));
+/// P(R ≤ r) for the range R of k independent standard normals (the
+/// studentized range with infinite degrees of freedom):
+/// k ∫ φ(z) [Φ(z) − Φ(z − r)]^(k−1) dz, by composite Simpson on [−9, 9 + r].
+pub fn normal_range_cdf(r: f64, k: usize) -> f64 {
+    if r <= 0.0 {
+        return 0.0;
+    }
+    let norm = match Normal::new(0.0, 1.0) {
+        Ok(n) => n,
+        Err(_) => return f64::NAN,
     };
-    if !(2..=10).contains(&k) {
+    let (a, b) = (-9.0, 9.0 + r);
+    let m = 4000; // even
+    let h = (b - a) / m as f64;
+    let f = |z: f64| {
+        let d = (norm.cdf(z) - norm.cdf(z - r)).max(0.0);
+        (-0.5 * z * z).exp() / (2.0 * std::f64::consts::PI).sqrt() * d.powi(k as i32 - 1)
+    };
+    let mut sum = f(a) + f(b);
+    for i in 1..m {
+        let z = a + i as f64 * h;
+        sum += if i % 2 == 1 { 4.0 * f(z) } else { 2.0 * f(z) };
+    }
+    (k as f64 * sum * h / 3.0).clamp(0.0, 1.0)
+}
+
+/// q_α of the Nemenyi test for `k` methods: the 1 − α quantile of the
+/// studentized range with infinite degrees of freedom, divided by √2 (Demšar
+/// 2006, section 3.2.2). For α = 0.05 and 0.10 and 2 ≤ k ≤ 10 the value is
+/// Demšar's Table 5(a); otherwise it is computed by bisection on
+/// [`normal_range_cdf`] (which reproduces that table to its three decimals).
+pub fn nemenyi_q(k: usize, alpha: f64) -> Result<f64, StatsError> {
+    if k < 2 {
         return Err(StatsError::Shape(format!(
-            "Nemenyi critical values are tabulated for 2 to 10 methods, got {k}"
+            "the Nemenyi test needs at least 2 methods, got {k}"
         )));
     }
-    Ok(table[k - 2])
+    if !(alpha > 0.0 && alpha < 1.0) {
+        return Err(StatsError::Shape(format!(
+            "α must lie in (0, 1), got {alpha}"
+        )));
+    }
+    if (2..=10).contains(&k) {
+        if (alpha - 0.05).abs() < 1e-12 {
+            return Ok(Q_05[k - 2]);
+        }
+        if (alpha - 0.10).abs() < 1e-12 {
+            return Ok(Q_10[k - 2]);
+        }
+    }
+    Ok(nemenyi_q_computed(k, alpha))
+}
+
+/// q_α computed from the normal range distribution (see [`nemenyi_q`]).
+pub fn nemenyi_q_computed(k: usize, alpha: f64) -> f64 {
+    let (mut lo, mut hi) = (0.0f64, 20.0f64);
+    for _ in 0..60 {
+        let mid = 0.5 * (lo + hi);
+        if normal_range_cdf(mid, k) < 1.0 - alpha {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi) / std::f64::consts::SQRT_2
 }
 
 /// Nemenyi critical difference of average ranks for k methods over n tasks.
@@ -353,7 +401,7 @@ pub struct VersusBest {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct AcrossTasks {
     pub friedman: Friedman,
-    /// Nemenyi CD at α = 0.05 and α = 0.10 (None when k > 10).
+    /// Nemenyi CD at α = 0.05 and α = 0.10 (None when it cannot be computed).
     pub cd_05: Option<f64>,
     pub cd_10: Option<f64>,
     /// Index of the method with the lowest average rank (first on ties).
@@ -426,8 +474,11 @@ mod tests {
         // Demšar §3.2.2: CD = 2.569 √(4·5/(6·14)) = 1.25 at α = 0.05.
         assert_eq!(nemenyi_q(4, 0.05).unwrap(), 2.569);
         assert!((nemenyi_cd(4, 14, 0.05).unwrap() - 1.25).abs() < 0.005);
-        assert!(nemenyi_q(11, 0.05).is_err());
-        assert!(nemenyi_q(4, 0.01).is_err());
+        // Outside Table 5(a) the quantile is computed: the studentized range
+        // q(0.99; 4, ∞) = 4.403 (standard tables, from memory) gives 4.403/√2.
+        assert!((nemenyi_q(4, 0.01).unwrap() - 4.403 / 2f64.sqrt()).abs() < 0.002);
+        assert!(nemenyi_q(11, 0.05).unwrap() > 3.164);
+        assert!(nemenyi_q(1, 0.05).is_err());
     }
 
     /// Demšar (2006) Table 2, C4.5 vs C4.5+m AUC on 14 data sets — from memory,
@@ -512,5 +563,24 @@ mod tests {
             prop_assert!((v.r_plus - w.r_minus).abs() < 1e-9);
             prop_assert!((v.p - w.p).abs() < 1e-12);
         }
+    }
+
+    /// Demšar (2006) Table 5(a), α = 0.05 and 0.10, k = 2..10: the computed
+    /// quantiles agree with the published three-decimal values.
+    #[test]
+    fn computed_nemenyi_q_reproduces_demsar_table() {
+        for k in 2..=10 {
+            for (alpha, table) in [(0.05, &Q_05), (0.10, &Q_10)] {
+                let q = nemenyi_q_computed(k, alpha);
+                assert!(
+                    (q - table[k - 2]).abs() < 0.0015,
+                    "k = {k}, α = {alpha}: {q} vs {}",
+                    table[k - 2]
+                );
+            }
+        }
+        // Beyond the table: q grows with k.
+        let q12 = nemenyi_q(12, 0.05).unwrap();
+        assert!(q12 > Q_05[8] && q12 < 3.5, "{q12}");
     }
 }
