@@ -254,7 +254,6 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         suite_sha256: plan.suite_sha256.clone(),
         seed: Some(plan.seed),
         settings: settings.clone(),
-        warnings: result.warnings.clone(),
     };
     let mut units = Vec::new();
     result.table.write_csv(&mut units)?;
@@ -291,6 +290,7 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         })).collect::<Vec<_>>(),
         "seed_rule": "unit seed = mix(suite seed, task id, size, repeat), SplitMix64 folding into ChaCha8",
         "score_pools": pool_reports,
+        "warnings": result.warnings,
         "units": plan.unit_count(),
         "resumed_units": result.resumed_units,
         "threads": result.threads,
@@ -432,7 +432,6 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
             .and_then(|s| s.get("seed"))
             .and_then(|v| v.as_u64()),
         settings: settings.clone(),
-        warnings: Vec::new(),
     };
     for (name, bytes) in report::publish(&a, &ctx) {
         output::write_file(&args.dir, &name, &bytes)?;

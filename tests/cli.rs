@@ -185,6 +185,7 @@ fn existing_results_need_force_and_report_rebuilds() {
     let out = fx.path("out");
     run_ok(&fx, &suite, &out, "2");
     let paired = fs::read(out.join("paired.csv")).unwrap();
+    let summary = fs::read(out.join("summary.md")).unwrap();
     bin()
         .args([
             "run",
@@ -203,6 +204,7 @@ fn existing_results_need_force_and_report_rebuilds() {
         .assert()
         .success();
     assert_eq!(fs::read(out.join("paired.csv")).unwrap(), paired);
+    assert_eq!(fs::read(out.join("summary.md")).unwrap(), summary);
     bin()
         .args([
             "run",

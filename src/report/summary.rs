@@ -13,7 +13,6 @@ pub struct ReportContext {
     pub suite_sha256: String,
     pub seed: Option<u64>,
     pub settings: AnalysisSettings,
-    pub warnings: Vec<String>,
 }
 
 fn hib(metric: &str) -> bool {
@@ -167,13 +166,6 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
                     "| {task} | {size} | {method} | {status} | {n} |\n"
                 ));
             }
-        }
-        out.push('\n');
-    }
-    if !ctx.warnings.is_empty() {
-        out.push_str("## Warnings\n\n");
-        for w in &ctx.warnings {
-            out.push_str(&format!("- {w}\n"));
         }
         out.push('\n');
     }
