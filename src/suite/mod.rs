@@ -588,17 +588,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     for (i, m) in raw.method.iter().enumerate() {
         let mut table = m.get_ref().clone();
         let label = format!("method #{}", i + 1);
-        let id = match table.remove("id") {
-            Some(toml::Value::String(s)) if valid_id(&s) => s,
-            Some(v) => {
-                return Err(ctx.err(
-                    m.span(),
-                    &format!("{label}.id"),
-                    format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"),
-                ))
-            }
-            None => return Err(ctx.err(m.span(), &label, "missing key `id`")),
-        };
+        let id = take_id(&ctx, &mut table, m.span(), &label)?;
         if !table.contains_key("kind") {
             return Err(ctx.err(
                 m.span(),
@@ -723,17 +713,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     for (i, m) in raw.model.iter().enumerate() {
         let mut table = m.get_ref().clone();
         let label = format!("model #{}", i + 1);
-        let id = match table.remove("id") {
-            Some(toml::Value::String(s)) if valid_id(&s) => s,
-            Some(v) => {
-                return Err(ctx.err(
-                    m.span(),
-                    &format!("{label}.id"),
-                    format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"),
-                ))
-            }
-            None => return Err(ctx.err(m.span(), &label, "missing key `id`")),
-        };
+        let id = take_id(&ctx, &mut table, m.span(), &label)?;
         let spec: ModelSpec =
             toml::Value::Table(table)
                 .try_into()
@@ -1119,6 +1099,24 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         pairs,
         tasks,
     })
+}
+
+/// Remove and check the `id` key of a `[[method]]` or `[[model]]` table.
+fn take_id(
+    ctx: &Ctx,
+    table: &mut toml::Table,
+    span: std::ops::Range<usize>,
+    label: &str,
+) -> Result<String, SuiteError> {
+    match table.remove("id") {
+        Some(toml::Value::String(s)) if valid_id(&s) => Ok(s),
+        Some(v) => Err(ctx.err(
+            span,
+            &format!("{label}.id"),
+            format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"),
+        )),
+        None => Err(ctx.err(span, label, "missing key `id`")),
+    }
 }
 
 /// Ids are used in file names and CSV cells: keep them plain.
