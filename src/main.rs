@@ -16,7 +16,8 @@ decision needs: over many calibration-set sizes and repeated seeded draws, every
 fitted on the same sample and scored on the same test set, with paired confidence intervals.
 
 A suite file (TOML) lists the tasks (score files or open datasets), the sizes, the methods, \
-the metrics and the seed. See docs/suite-format.md, or start from suites/courier-demo.toml.
+the metrics and the seed. See docs/suite-format.md, or start from suites/open-uci.toml \
+(open datasets) or suites/courier-demo.toml (score files).
 
 Typical session:
   plumbline check suites/courier-demo.toml     validate, print the plan and the unit count
@@ -35,14 +36,15 @@ enum Command {
     /// Run a suite and write its results folder.
     #[command(long_about = "\
 Run every unit (task × calibration size × repeat) of a suite in parallel and write the \
-results folder: manifest.json, units.csv, timings.csv, paired.csv and summary.md, then \
-print one table per task.
+results folder: manifest.json, units.csv, timings.csv, paired.csv, thresholds.csv, \
+summary.md, index.html, tables.tex and figures/, then print one table per task. Open-data \
+tasks first build their score pools (cached beside the results folder).
 
 The folder appears only when complete. Finished units are journaled as they finish: if a \
 run is interrupted, the same command resumes it. An existing results folder is kept \
 unless --force is given.")]
     Run {
-        /// Suite file; the shipped default suite when omitted.
+        /// Suite file [default: suites/open-uci.toml].
         suite: Option<PathBuf>,
         /// Results folder [default: results/<suite name>].
         #[arg(long, value_name = "DIR")]
