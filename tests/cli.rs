@@ -135,9 +135,27 @@ fn small_suite_writes_the_documented_files() {
     );
     // Per-unit test-batch summaries for the interval estimator.
     assert!(
-        head.contains(",brier_dbatch00,") && head.ends_with("log_loss_dbatch19"),
+        head.contains(",brier_dbatch00,")
+            && head.ends_with("log_loss_dbatch19,log_loss_extreme_rows"),
         "{head}"
     );
+    // Extreme-prediction counts: plain isotonic regression fitted on 20 rows
+    // predicts exactly 0 or 1 on its end blocks, so some test row pays the
+    // clipped loss; the count is recorded for every method, reference included.
+    let col = head
+        .split(',')
+        .position(|c| c == "log_loss_extreme_rows")
+        .unwrap();
+    let counts = |method: &str| -> Vec<f64> {
+        units
+            .lines()
+            .skip(1)
+            .filter(|l| l.split(',').nth(3) == Some(method))
+            .map(|l| l.split(',').nth(col).unwrap().parse::<f64>().unwrap())
+            .collect()
+    };
+    assert!(counts("isotonic").iter().any(|&n| n > 0.0));
+    assert_eq!(counts("platt").len(), 20);
     // 2 tasks × 2 sizes × 5 repeats × 3 methods.
     assert_eq!(units.lines().count() - 1, 60);
     let paired = fs::read_to_string(out.join("paired.csv")).unwrap();

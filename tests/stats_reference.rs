@@ -40,6 +40,7 @@ fn paired_t_matches_scipy_ttest_rel_and_t_interval() {
             size: 100,
             reservoir: 1000,
             test_rows: 1000,
+            extreme: false,
         };
         let iv = interval(IntervalKind::PairedT, &input, conf).unwrap();
         // scipy.stats.t.interval(conf, n − 1, loc = mean, scale = sem).

@@ -8,7 +8,9 @@ use crate::metrics::{Goal, MetricId};
 use crate::run::table::UnitTable;
 use crate::stats::across::{across_tasks, task_record, AcrossTasks};
 use crate::stats::paired::Record;
-use crate::stats::paired::{interval, Interval, IntervalKind, PairedInput, ROW_SUMMARY_NAMES};
+use crate::stats::paired::{
+    interval, Interval, IntervalKind, PairedInput, EXTREME_ROWS, ROW_SUMMARY_NAMES,
+};
 use crate::stats::thresholds::{
     summarize, thresholds as stats_thresholds, ThresholdSummary, Thresholds,
 };
@@ -256,6 +258,17 @@ pub fn paired_interval(
         } else {
             None
         };
+    // Extreme predictions by either method in any repeat (column absent in
+    // results written before it existed: treated as none).
+    let extreme = table
+        .extra_index(&format!("{metric}_{}", EXTREME_ROWS))
+        .is_some_and(|c| {
+            pr.rows.iter().any(|&(i, j)| {
+                [i, j]
+                    .iter()
+                    .any(|&k| table.rows[k].extras[c].is_some_and(|v| v > 0.0))
+            })
+        });
     let first = pr.rows.first().map(|&(i, _)| &table.rows[i]);
     let input = PairedInput {
         diffs: &pr.diffs,
@@ -263,6 +276,7 @@ pub fn paired_interval(
         size: first.map(|r| r.size).unwrap_or(0),
         reservoir: first.map(|r| r.reservoir).unwrap_or(0),
         test_rows: first.map(|r| r.test_rows).unwrap_or(0),
+        extreme,
     };
     interval(kind, &input, settings.confidence).unwrap_or(Interval {
         kind,

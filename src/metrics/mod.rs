@@ -223,6 +223,22 @@ impl MetricId {
         matches!(self, MetricId::LogLoss | MetricId::Brier)
     }
 
+    /// The row loss from which a prediction counts as extreme for this metric,
+    /// or `None` when the metric is smooth in the prediction everywhere.
+    ///
+    /// Log loss −ln p has curvature 1/p², so near p = 0 a fitted map's loss is
+    /// no longer close to its second-order expansion and can be moved a lot by
+    /// one calibration row. A row loss of at least −½ ln(clip) — a predicted
+    /// probability of at most √clip (10⁻³ at the default clip 10⁻⁶) for the
+    /// row's observed class — counts as extreme. The Brier score is a
+    /// quadratic and never has extreme rows in this sense.
+    pub fn extreme_row_loss(self, settings: &MetricSettings) -> Option<f64> {
+        match self {
+            MetricId::LogLoss => Some(-0.5 * settings.log_loss_clip.ln()),
+            _ => None,
+        }
+    }
+
     /// The per-row term of a row-decomposable metric; NaN for the others.
     pub fn row_term(self, p: f64, y: bool, settings: &MetricSettings) -> f64 {
         match self {
@@ -274,6 +290,21 @@ mod tests {
             assert_eq!(json, format!("\"{}\"", m.as_str()));
         }
         assert_eq!(MetricId::parse("nope"), None);
+    }
+
+    #[test]
+    fn extreme_row_loss_is_half_the_clipped_maximum_for_log_loss_only() {
+        let s = MetricSettings::default();
+        let limit = MetricId::LogLoss.extreme_row_loss(&s).unwrap();
+        // −½ ln 10⁻⁶ = 3 ln 10 = 6.907755… nats: a prediction of 10⁻³ for the
+        // observed class sits exactly on the limit.
+        assert!((limit - 3.0 * 10f64.ln()).abs() < 1e-12);
+        assert!(MetricId::LogLoss.row_term(1e-3, true, &s) >= limit - 1e-12);
+        assert!(MetricId::LogLoss.row_term(2e-3, true, &s) < limit);
+        assert!(MetricId::LogLoss.row_term(1.0 - 1e-3, false, &s) >= limit - 1e-12);
+        for &m in MetricId::ALL.iter().filter(|&&m| m != MetricId::LogLoss) {
+            assert_eq!(m.extreme_row_loss(&s), None, "{}", m.as_str());
+        }
     }
 
     #[test]

@@ -166,10 +166,6 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
     }
 }
 
-/// For each row-decomposable metric, summarise the per-test-row difference of
-/// each method to the reference (`stats::paired::row_summary`) into extra
-/// columns `<metric>_<summary>`; the interval estimators use them to measure
-/// the shared test set's part of the uncertainty.
 /// The outcome of a method in a unit whose calibration sample has one class.
 pub(crate) fn one_class_outcome(plan: &Plan, name: &str) -> MethodOutcome {
     MethodOutcome {
@@ -255,6 +251,16 @@ pub(crate) fn fit_score(
     }
 }
 
+/// For each row-decomposable metric, summarise the per-test-row difference of
+/// each method to the reference (`stats::paired::row_summary`) into extra
+/// columns `<metric>_<summary>`; the interval estimators use them to measure
+/// the shared test set's part of the uncertainty.
+///
+/// For a metric with extreme rows (`MetricId::extreme_row_loss`), every method
+/// also gets `<metric>_extreme_rows`: the number of test rows whose row loss
+/// reaches that limit (for log loss, a predicted probability ≤ √clip for the
+/// row's observed class). The default interval widens its reservoir term when
+/// either method of a comparison has such rows.
 pub(crate) fn add_row_summaries(
     plan: &Plan,
     labels: &[bool],
@@ -262,11 +268,29 @@ pub(crate) fn add_row_summaries(
     methods: &mut [MethodOutcome],
     reference: Option<usize>,
 ) {
+    let s = &plan.metric_settings;
+    for mid in &plan.metrics {
+        let Some(limit) = mid.extreme_row_loss(s) else {
+            continue;
+        };
+        for (mi, pm) in preds.iter().enumerate() {
+            if let Some(pm) = pm {
+                let n = pm
+                    .iter()
+                    .zip(labels)
+                    .filter(|&(&p, &y)| mid.row_term(p, y, s) >= limit)
+                    .count();
+                methods[mi].extras.insert(
+                    format!("{}_{}", mid.as_str(), paired::EXTREME_ROWS),
+                    n as f64,
+                );
+            }
+        }
+    }
     let Some(ri) = reference else {
         return;
     };
     let Some(rp) = &preds[ri] else { return };
-    let s = &plan.metric_settings;
     for mid in plan.metrics.iter().filter(|m| m.row_terms()) {
         let rterms: Vec<f64> = rp
             .iter()

@@ -132,7 +132,7 @@ impl Default for CoverageConfig {
             reservoir: 2000,
             test_rows: 2000,
             sizes: vec![50, 100, 200, 500, 1000],
-            repeats: 10,
+            repeats: 30,
             replicates: 1000,
             truth_samples: 20_000,
             quadrature: 4096,
@@ -151,6 +151,10 @@ pub struct CoverageRow {
     pub truth: f64,
     pub truth_se: f64,
     pub covered: usize,
+    /// Replicates whose interval lies entirely below θ(n) (upper end too low).
+    pub missed_low: usize,
+    /// Replicates whose interval lies entirely above θ(n).
+    pub missed_high: usize,
     pub replicates: usize,
     pub coverage: f64,
     pub coverage_se: f64,
@@ -162,9 +166,12 @@ pub struct CoverageRow {
     pub rms_se: f64,
     /// Root mean square error of d̄ around θ(n): what `rms_se` should match.
     pub rmse: f64,
-    /// Mean draws, reservoir (second order) and test variance terms of the
+    /// Mean draws, reservoir and test variance terms of the default
     /// decomposed interval on the same data (the same for every kind).
     pub mean_parts: [f64; 3],
+    /// Share of replicates with extreme predictions (either method, any
+    /// repeat), where the default interval takes the first-order reservoir term.
+    pub extreme_share: f64,
 }
 
 /// Result of [`coverage_study`].
@@ -273,7 +280,7 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
 
     // Replicates of the harness protocol.
     let nk = IntervalKind::ALL.len();
-    type Out = Vec<(usize, usize, usize, bool, f64, f64, f64, [f64; 3])>;
+    type Out = Vec<(usize, usize, usize, i8, f64, f64, f64, [f64; 3], bool)>;
     let per_rep: Vec<(Out, usize)> = (0..cfg.replicates)
         .into_par_iter()
         .map(|rep| {
@@ -288,6 +295,7 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
             for (si, &n) in cfg.sizes.iter().enumerate() {
                 let mut diffs = vec![Vec::with_capacity(cfg.repeats); nm];
                 let mut rows = vec![Vec::with_capacity(cfg.repeats); nm];
+                let mut extreme = vec![false; nm];
                 for rr in 0..cfg.repeats {
                     let draw = split::draw_calibration(
                         res.len(),
@@ -301,6 +309,12 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                         continue;
                     };
                     for (mi, &met) in cfg.metrics.iter().enumerate() {
+                        if let Some(limit) = met.extreme_row_loss(&cfg.settings) {
+                            extreme[mi] |= (0..m).any(|i| {
+                                met.row_term(pa[i], ty[i], &cfg.settings) >= limit
+                                    || met.row_term(pb[i], ty[i], &cfg.settings) >= limit
+                            });
+                        }
                         let e: Vec<f64> = (0..m)
                             .map(|i| {
                                 met.row_term(pa[i], ty[i], &cfg.settings)
@@ -323,11 +337,13 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                         size: n,
                         reservoir: res.len(),
                         test_rows: m,
+                        extreme: extreme[mi],
                     };
                     for (ki, &kind) in IntervalKind::ALL.iter().enumerate() {
                         if let Ok(iv) = paired::interval(kind, &input, cfg.confidence) {
                             let th = truth[si][mi].0;
-                            let parts = match paired::decompose(&input, 2) {
+                            let order = if input.extreme { 1 } else { 2 };
+                            let parts = match paired::decompose(&input, order) {
                                 Ok((p, _)) => [p.draws, p.reservoir, p.test.unwrap_or(0.0)],
                                 Err(_) => [f64::NAN; 3],
                             };
@@ -335,11 +351,18 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                                 si,
                                 mi,
                                 ki,
-                                iv.covers(th),
-                                iv.high - iv.mean,
+                                if iv.high < th {
+                                    -1
+                                } else if iv.low > th {
+                                    1
+                                } else {
+                                    0
+                                },
+                                0.5 * (iv.high - iv.low),
                                 iv.mean,
                                 iv.se,
                                 parts,
+                                input.extreme,
                             ));
                         }
                     }
@@ -351,17 +374,23 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
 
     let cells = cfg.sizes.len() * nm * nk;
     let mut covered = vec![0usize; cells];
+    let mut low = vec![0usize; cells];
+    let mut high = vec![0usize; cells];
     let mut count = vec![0usize; cells];
     let mut half = vec![0.0f64; cells];
     let mut est = vec![0.0f64; cells];
     let mut se2 = vec![0.0f64; cells];
     let mut err2 = vec![0.0f64; cells];
     let mut parts = vec![[0.0f64; 3]; cells];
+    let mut flagged = vec![0usize; cells];
     for (out, fails) in &per_rep {
         failed += fails;
-        for &(si, mi, ki, c, h, e, se, p) in out {
+        for &(si, mi, ki, c, h, e, se, p, x) in out {
             let idx = (mi * cfg.sizes.len() + si) * nk + ki;
-            covered[idx] += c as usize;
+            covered[idx] += (c == 0) as usize;
+            flagged[idx] += x as usize;
+            low[idx] += (c < 0) as usize;
+            high[idx] += (c > 0) as usize;
             count[idx] += 1;
             half[idx] += h;
             est[idx] += e;
@@ -386,6 +415,8 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                     truth: truth[si][mi].0,
                     truth_se: truth[si][mi].1,
                     covered: covered[idx],
+                    missed_low: low[idx],
+                    missed_high: high[idx],
                     replicates: count[idx],
                     coverage: cov,
                     coverage_se: (cov * (1.0 - cov) / c).sqrt(),
@@ -394,6 +425,7 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                     rms_se: (se2[idx] / c).sqrt(),
                     rmse: (err2[idx] / c).sqrt(),
                     mean_parts: parts[idx].map(|x| x / c),
+                    extreme_share: flagged[idx] as f64 / c,
                 });
             }
         }
@@ -410,7 +442,7 @@ impl CoverageTable {
     pub fn render(&self) -> String {
         let mut s = String::new();
         s.push_str(&format!(
-            "{:<9} {:>6} {:<17} {:>10} {:>9} {:>9} {:>7} {:>10} {:>10} {:>10} {:>10}\n",
+            "{:<9} {:>6} {:<17} {:>10} {:>9} {:>9} {:>7} {:>6} {:>6} {:>10} {:>10} {:>10} {:>10}\n",
             "metric",
             "size",
             "interval",
@@ -418,6 +450,8 @@ impl CoverageTable {
             "truth_se",
             "coverage",
             "cov_se",
+            "low",
+            "high",
             "half_width",
             "bias",
             "rms_se",
@@ -425,7 +459,7 @@ impl CoverageTable {
         ));
         for r in &self.rows {
             s.push_str(&format!(
-                "{:<9} {:>6} {:<17} {:>10.6} {:>9.6} {:>8.1}% {:>6.1}% {:>10.6} {:>10.6} {:>10.6} {:>10.6}\n",
+                "{:<9} {:>6} {:<17} {:>10.6} {:>9.6} {:>8.1}% {:>6.1}% {:>5.1}% {:>5.1}% {:>10.6} {:>10.6} {:>10.6} {:>10.6}\n",
                 r.metric.as_str(),
                 r.size,
                 r.kind.as_str(),
@@ -433,6 +467,8 @@ impl CoverageTable {
                 r.truth_se,
                 100.0 * r.coverage,
                 100.0 * r.coverage_se,
+                100.0 * r.missed_low as f64 / r.replicates.max(1) as f64,
+                100.0 * r.missed_high as f64 / r.replicates.max(1) as f64,
                 r.mean_half_width,
                 r.mean_estimate - r.truth,
                 r.rms_se,
@@ -440,7 +476,7 @@ impl CoverageTable {
             ));
         }
         s.push_str(
-            "\nmean variance terms of the decomposed interval (draws, second-order reservoir, test) vs rmse²\n",
+            "\nmean variance terms of the default decomposed interval (draws, reservoir, test) vs rmse², and the share of replicates with extreme predictions\n",
         );
         for r in self
             .rows
@@ -448,14 +484,15 @@ impl CoverageTable {
             .filter(|r| r.kind == IntervalKind::Decomposed)
         {
             s.push_str(&format!(
-                "{:<9} {:>6} draws {:.3e} reservoir {:.3e} test {:.3e} sum {:.3e} rmse² {:.3e}\n",
+                "{:<9} {:>6} draws {:.3e} reservoir {:.3e} test {:.3e} sum {:.3e} rmse² {:.3e} extreme {:.1}%\n",
                 r.metric.as_str(),
                 r.size,
                 r.mean_parts[0],
                 r.mean_parts[1],
                 r.mean_parts[2],
                 r.mean_parts.iter().sum::<f64>(),
-                r.rmse * r.rmse
+                r.rmse * r.rmse,
+                100.0 * r.extreme_share
             ));
         }
         s

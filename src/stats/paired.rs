@@ -108,6 +108,12 @@ pub const ROW_SUMMARY_NAMES: [&str; TEST_BATCHES] = [
     "dbatch16", "dbatch17", "dbatch18", "dbatch19",
 ];
 
+/// Suffix of the per-unit column `<metric>_extreme_rows`: the number of test
+/// rows on which a method's row loss reached [`MetricId::extreme_row_loss`].
+///
+/// [`MetricId::extreme_row_loss`]: crate::metrics::MetricId::extreme_row_loss
+pub const EXTREME_ROWS: &str = "extreme_rows";
+
 /// Seed of the fixed assignment of test-row positions to batches.
 const BATCH_SEED: u64 = 0x6261_7463_6865_7321;
 
@@ -165,6 +171,12 @@ pub struct PairedInput<'a> {
     pub reservoir: usize,
     /// Test rows m.
     pub test_rows: usize,
+    /// True when, in some repeat, either method made an extreme prediction
+    /// under a loss that is not smooth there (see [`MetricId::extreme_row_loss`]):
+    /// [`IntervalKind::Decomposed`] then takes the first-order reservoir term.
+    ///
+    /// [`MetricId::extreme_row_loss`]: crate::metrics::MetricId::extreme_row_loss
+    pub extreme: bool,
 }
 
 /// The variance terms of a [`IntervalKind::Decomposed`] interval (squared standard errors).
@@ -346,7 +358,10 @@ pub fn interval(
             (s2 * (1.0 / r as f64 + ratio), (r - 1) as f64, None)
         }
         IntervalKind::Decomposed | IntervalKind::DecomposedLinear => {
-            let order = if kind == IntervalKind::Decomposed {
+            // The second-order reservoir term needs a loss that is smooth at
+            // the fitted predictions; with extreme predictions fall back to
+            // the first-order bound.
+            let order = if kind == IntervalKind::Decomposed && !input.extreme {
                 2
             } else {
                 1
@@ -408,6 +423,39 @@ mod tests {
             size: 100,
             reservoir: 1000,
             test_rows: 500,
+            extreme: false,
+        }
+    }
+
+    #[test]
+    fn extreme_predictions_switch_the_default_to_the_first_order_term() {
+        // d = 1..5 (s² = 2.5), n = 100, M = 1000: ρ = 0.1. Without extreme
+        // predictions the reservoir term is s² ρ²/(1 − ρ²) = 2.5 · 0.01/0.99;
+        // with them it is s² ρ/(1 − ρ) = 2.5/9, exactly the linear interval.
+        let d = [1.0, 2.0, 3.0, 4.0, 5.0];
+        let smooth = input(&d, None);
+        let rough = PairedInput {
+            extreme: true,
+            ..smooth
+        };
+        let iv = interval(IntervalKind::Decomposed, &smooth, 0.95).unwrap();
+        assert!((iv.se * iv.se - (0.5 + 2.5 * 0.01 / 0.99)).abs() < 1e-12);
+        let ivx = interval(IntervalKind::Decomposed, &rough, 0.95).unwrap();
+        assert!((ivx.se * ivx.se - (0.5 + 2.5 / 9.0)).abs() < 1e-12);
+        let lin = interval(IntervalKind::DecomposedLinear, &smooth, 0.95).unwrap();
+        assert_eq!(
+            ivx,
+            Interval {
+                kind: IntervalKind::Decomposed,
+                ..lin
+            }
+        );
+        // The other estimators ignore the flag.
+        for k in [IntervalKind::PairedT, IntervalKind::CorrectedT] {
+            assert_eq!(
+                interval(k, &smooth, 0.95).unwrap(),
+                interval(k, &rough, 0.95).unwrap()
+            );
         }
     }
 
@@ -530,6 +578,7 @@ mod tests {
                 size: 1,
                 reservoir: 1_000_000,
                 test_rows: 1000,
+                extreme: false,
             };
             let (p, _) = decompose(&inp, 2).unwrap();
             draws += p.draws / sims as f64;
