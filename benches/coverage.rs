@@ -2,7 +2,8 @@
 //! population of `plumbline::stats::coverage` (isotonic vs Platt).
 //!
 //! `cargo bench --bench coverage` runs the default settings; options:
-//! `--replicates N`, `--truth-samples K`, `--repeats R`, `--seed S`.
+//! `--replicates N`, `--truth-samples K`, `--repeats R` (default 30), `--seed S`,
+//! and `--pseudo-count C` to compare bounded isotonic regression instead.
 
 use std::time::Instant;
 

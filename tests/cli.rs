@@ -170,6 +170,8 @@ fn small_suite_writes_the_documented_files() {
     assert!(manifest["suite"]["sha256"].as_str().unwrap().len() == 64);
     let summary = fs::read_to_string(out.join("summary.md")).unwrap();
     assert!(summary.contains("Task `a`") && summary.contains("Caution"));
+    // 5 repeats is below the 30 at which the intervals' coverage was checked.
+    assert!(summary.contains("Note on intervals:** some comparisons rest on 5 repeats"));
     // No staging folder is left behind.
     assert!(!fx.path(".out.partial").exists());
 }
