@@ -3,7 +3,8 @@
 //!
 //! `cargo bench --bench coverage` runs the default settings; options:
 //! `--replicates N`, `--truth-samples K`, `--repeats R` (default 30), `--seed S`,
-//! and `--pseudo-count C` to compare bounded isotonic regression instead.
+//! `--pseudo-count C` to compare bounded isotonic regression instead, and
+//! `--without-extreme-switch` to keep the second-order reservoir term throughout.
 
 use std::time::Instant;
 
@@ -14,6 +15,12 @@ fn main() {
     let args: Vec<String> = std::env::args().collect();
     let mut i = 1;
     while i < args.len() {
+        if args[i] == "--without-extreme-switch" {
+            // Keep the second-order reservoir term even with extreme predictions.
+            cfg.detect_extreme = false;
+            i += 1;
+            continue;
+        }
         if args[i] == "--pseudo-count" {
             // Compare bounded isotonic regression (pseudo-rows at the base rate) instead.
             if let Some(m) = args.get(i + 1).and_then(|v| v.parse::<f64>().ok()) {
@@ -39,13 +46,14 @@ fn main() {
     match coverage_study(&cfg) {
         Ok(t) => {
             println!(
-                "reservoir {} test_rows {} repeats {} replicates {} truth_samples {} confidence {}",
+                "reservoir {} test_rows {} repeats {} replicates {} truth_samples {} confidence {} extreme_switch {}",
                 cfg.reservoir,
                 cfg.test_rows,
                 cfg.repeats,
                 cfg.replicates,
                 cfg.truth_samples,
-                cfg.confidence
+                cfg.confidence,
+                cfg.detect_extreme
             );
             print!("{}", t.render());
             println!("failed fits: {}", t.failed_fits);

@@ -171,7 +171,9 @@ fn small_suite_writes_the_documented_files() {
     let summary = fs::read_to_string(out.join("summary.md")).unwrap();
     assert!(summary.contains("Task `a`") && summary.contains("Caution"));
     // 5 repeats is below the 30 at which the intervals' coverage was checked.
-    assert!(summary.contains("Note on intervals:** some comparisons rest on 5 repeats"));
+    assert!(summary.contains(
+        "Note on intervals:** 16 of 16 comparisons rest on fewer than 30 repeats (as few as 5;"
+    ));
     // No staging folder is left behind.
     assert!(!fx.path(".out.partial").exists());
 }

@@ -226,15 +226,17 @@ impl MetricId {
     /// The row loss from which a prediction counts as extreme for this metric,
     /// or `None` when the metric is smooth in the prediction everywhere.
     ///
-    /// Log loss −ln p has curvature 1/p², so near p = 0 a fitted map's loss is
-    /// no longer close to its second-order expansion and can be moved a lot by
-    /// one calibration row. A row loss of at least −½ ln(clip) — a predicted
-    /// probability of at most √clip (10⁻³ at the default clip 10⁻⁶) for the
-    /// row's observed class — counts as extreme. The Brier score is a
-    /// quadratic and never has extreme rows in this sense.
+    /// For log loss that is the clipped maximum −ln(clip) (less 10⁻⁷ nats for
+    /// rounding): the clip had to bound the row's loss because the method gave
+    /// the observed class a probability ≤ clip — typically an exact 0 or 1 from
+    /// a step-function map such as plain isotonic regression or histogram
+    /// binning. Where a map reaches 0 or 1 is decided by single calibration
+    /// rows (which rows end its first and last blocks), and −ln p has
+    /// curvature 1/p², so the loss is far from its second-order expansion
+    /// there. The Brier score is a quadratic and never has extreme rows.
     pub fn extreme_row_loss(self, settings: &MetricSettings) -> Option<f64> {
         match self {
-            MetricId::LogLoss => Some(-0.5 * settings.log_loss_clip.ln()),
+            MetricId::LogLoss => Some(-settings.log_loss_clip.ln() - 1e-7),
             _ => None,
         }
     }
@@ -293,15 +295,18 @@ mod tests {
     }
 
     #[test]
-    fn extreme_row_loss_is_half_the_clipped_maximum_for_log_loss_only() {
+    fn extreme_row_loss_is_the_clipped_maximum_for_log_loss_only() {
         let s = MetricSettings::default();
         let limit = MetricId::LogLoss.extreme_row_loss(&s).unwrap();
-        // −½ ln 10⁻⁶ = 3 ln 10 = 6.907755… nats: a prediction of 10⁻³ for the
-        // observed class sits exactly on the limit.
-        assert!((limit - 3.0 * 10f64.ln()).abs() < 1e-12);
-        assert!(MetricId::LogLoss.row_term(1e-3, true, &s) >= limit - 1e-12);
-        assert!(MetricId::LogLoss.row_term(2e-3, true, &s) < limit);
-        assert!(MetricId::LogLoss.row_term(1.0 - 1e-3, false, &s) >= limit - 1e-12);
+        // −ln 10⁻⁶ = 6 ln 10 = 13.8155… nats, less the rounding allowance.
+        assert!((limit - (6.0 * 10f64.ln() - 1e-7)).abs() < 1e-12);
+        // Exact 0 and 1 predictions against the observed class reach it, from
+        // either side of the clip; a probability of 10⁻⁵ does not.
+        assert!(MetricId::LogLoss.row_term(0.0, true, &s) >= limit);
+        assert!(MetricId::LogLoss.row_term(1.0, false, &s) >= limit);
+        assert!(MetricId::LogLoss.row_term(1e-6, true, &s) >= limit);
+        assert!(MetricId::LogLoss.row_term(1e-5, true, &s) < limit);
+        assert!(MetricId::LogLoss.row_term(0.0, false, &s) < limit);
         for &m in MetricId::ALL.iter().filter(|&&m| m != MetricId::LogLoss) {
             assert_eq!(m.extreme_row_loss(&s), None, "{}", m.as_str());
         }

@@ -142,12 +142,18 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
             a.tasks.len()
         ));
     }
-    if let Some(r) = a.paired.iter().map(|p| p.repeats).min() {
-        if r < REPEATS_CHECKED && s.interval == "decomposed" {
-            out.push_str(&format!(
-                "**Note on intervals:** some comparisons rest on {r} repeats. The coverage study of `docs/statistics.md` checked the default interval at {REPEATS_CHECKED} repeats (93.2–95.9% for nominal 95%); at 10 repeats its log-loss intervals against plain isotonic regression, which makes extreme predictions, covered only 92.5–93.6%.\n\n"
-            ));
-        }
+    let few: Vec<usize> = a
+        .paired
+        .iter()
+        .map(|p| p.repeats)
+        .filter(|&r| r < REPEATS_CHECKED)
+        .collect();
+    if let (Some(r), "decomposed") = (few.iter().min(), s.interval.as_str()) {
+        out.push_str(&format!(
+            "**Note on intervals:** {} of {} comparisons rest on fewer than {REPEATS_CHECKED} repeats (as few as {r}; failed or one-class fits leave gaps). The coverage study of `docs/statistics.md` checked the default interval at {REPEATS_CHECKED} repeats (93.2–95.9% for nominal 95%); at 10 repeats its log-loss intervals against plain isotonic regression, which makes extreme predictions, covered only 92.5–93.6%.\n\n",
+            few.len(),
+            a.paired.len()
+        ));
     }
     if s.reference.starts_with("cross-fitted-") {
         out.push_str(&format!(

@@ -258,7 +258,7 @@ pub(crate) fn fit_score(
 ///
 /// For a metric with extreme rows (`MetricId::extreme_row_loss`), every method
 /// also gets `<metric>_extreme_rows`: the number of test rows whose row loss
-/// reaches that limit (for log loss, a predicted probability ≤ √clip for the
+/// reaches that limit (for log loss, a predicted probability ≤ clip for the
 /// row's observed class). The default interval widens its reservoir term when
 /// either method of a comparison has such rows.
 pub(crate) fn add_row_summaries(

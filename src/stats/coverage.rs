@@ -116,6 +116,10 @@ pub struct CoverageConfig {
     /// G: quadrature nodes for the exact expected loss of a fitted map.
     pub quadrature: usize,
     pub confidence: f64,
+    /// Detect extreme predictions (as the engine does); `false` keeps the
+    /// second-order reservoir term of the default interval throughout, to
+    /// show what the switch is for.
+    pub detect_extreme: bool,
 }
 
 impl Default for CoverageConfig {
@@ -137,6 +141,7 @@ impl Default for CoverageConfig {
             truth_samples: 20_000,
             quadrature: 4096,
             confidence: 0.95,
+            detect_extreme: true,
         }
     }
 }
@@ -309,7 +314,10 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                         continue;
                     };
                     for (mi, &met) in cfg.metrics.iter().enumerate() {
-                        if let Some(limit) = met.extreme_row_loss(&cfg.settings) {
+                        if let Some(limit) = met
+                            .extreme_row_loss(&cfg.settings)
+                            .filter(|_| cfg.detect_extreme)
+                        {
                             extreme[mi] |= (0..m).any(|i| {
                                 met.row_term(pa[i], ty[i], &cfg.settings) >= limit
                                     || met.row_term(pb[i], ty[i], &cfg.settings) >= limit
