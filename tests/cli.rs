@@ -240,6 +240,53 @@ fn existing_results_need_force_and_report_rebuilds() {
         .success();
 }
 
+#[test]
+fn extreme_predictions_widen_the_default_interval_to_the_linear_one() {
+    // The default `decomposed` interval takes the first-order reservoir term
+    // exactly when a unit recorded extreme log-loss rows for either method
+    // (docs/statistics.md): its log-loss intervals against plain isotonic
+    // regression then equal `decomposed-linear`, while its Brier intervals
+    // (never extreme) are narrower.
+    let fx = Fixture::new();
+    let suite = fx.suite("good.toml", GOOD);
+    let out = fx.path("out");
+    run_ok(&fx, &suite, &out, "2");
+    let read = |name: &str| -> Vec<Vec<String>> {
+        fs::read_to_string(out.join(name))
+            .unwrap()
+            .lines()
+            .skip(1)
+            .map(|l| l.split(',').map(str::to_string).collect())
+            .collect()
+    };
+    let default = read("paired.csv");
+    bin()
+        .args([
+            "report",
+            out.to_str().unwrap(),
+            "--interval",
+            "decomposed-linear",
+        ])
+        .assert()
+        .success();
+    let linear = read("paired.csv");
+    assert_eq!(default.len(), linear.len());
+    let (mut same, mut narrower) = (0, 0);
+    for (d, l) in default.iter().zip(&linear) {
+        assert_eq!(d[..5], l[..5]);
+        let width = |r: &Vec<String>| r[10].parse::<f64>().unwrap() - r[9].parse::<f64>().unwrap();
+        if d[2] == "isotonic" && d[4] == "log_loss" {
+            assert_eq!(d[9..12], l[9..12], "{d:?}");
+            same += 1;
+        }
+        if d[4] == "brier" {
+            assert!(width(d) < width(l), "{d:?} vs {l:?}");
+            narrower += 1;
+        }
+    }
+    assert_eq!((same, narrower), (4, 8));
+}
+
 /// Run a suite that must fail; the message must contain every `needle`, and no
 /// results folder may appear.
 fn must_fail(fx: &Fixture, suite_text: &str, needles: &[&str]) {
