@@ -182,7 +182,7 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
             Some(s) => s,
             None => {
                 return Err(FitError::Failed(
-                    "logistic fit: singular Hessian (collinear features?)".into(),
+                    "logistic fit: singular Hessian (scores nearly constant or collinear, or fitted probabilities saturated at 0 or 1)".into(),
                 ))
             }
         };
