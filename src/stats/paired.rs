@@ -38,10 +38,15 @@
 //!     [`IntervalKind::Decomposed`] takes k = 2: a loss difference of two
 //!     consistent fits is a difference of excess risks, which are second order
 //!     in the estimation error; components of degree ≥ 2 have ratios ≤
-//!     ρ²/(1 − ρ²), so k = 2 is conservative for them. It is not conservative
-//!     when a first-order term dominates (a strongly biased method with large
-//!     n). [`IntervalKind::DecomposedLinear`] takes k = 1, the bound over all
-//!     degrees, s_d² · n/(M − n). Both grow as n approaches M (draws overlap,
+//!     ρ²/(1 − ρ²), so k = 2 is conservative for them. That argument needs a
+//!     loss that is smooth at the fitted predictions. When either method made
+//!     an extreme prediction in some repeat ([`PairedInput::extreme`]: a row
+//!     loss the log-loss clip had to bound, typically an exact 0 or 1 from a
+//!     step-function map, whose end blocks are decided by single calibration
+//!     rows) the first-order term matters and k = 1 is taken instead; the
+//!     coverage study ([`super::coverage`]) shows both halves of this rule.
+//!     [`IntervalKind::DecomposedLinear`] always takes k = 1, the bound over
+//!     all degrees, s_d² · n/(M − n). Both grow as n approaches M (draws overlap,
 //!     repeats become dependent) and are undefined at n = M.
 //!   - test set: the test rows are split into B fixed batches (a pseudo-random
 //!     assignment that depends only on m; see [`row_summary`]). Per unit the
@@ -73,7 +78,7 @@ pub enum IntervalKind {
     /// Nadeau & Bengio's corrected resampled t.
     CorrectedT,
     /// Draws + reservoir + test-set variance decomposition with a second-order
-    /// reservoir term (default).
+    /// reservoir term, first-order under extreme predictions (default).
     #[default]
     Decomposed,
     /// The same with the first-order (conservative) reservoir term.
