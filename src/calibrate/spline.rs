@@ -474,7 +474,7 @@ fn search_grid(
         let score = 2.0 * fit.nll + per_df * fit.edf;
         path.push((l, score));
         warm.clone_from(&fit.beta);
-        if best.as_ref().map_or(true, |(s, _)| score < *s) {
+        if best.as_ref().is_none_or(|(s, _)| score < *s) {
             best = Some((score, fit));
         }
     }

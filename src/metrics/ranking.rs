@@ -62,8 +62,8 @@ mod tests {
         let (mut p, mut y) = (Vec::new(), Vec::new());
         for r in 0..5 {
             for (count, label) in [(normal[r], false), (abnormal[r], true)] {
-                p.extend(std::iter::repeat((r + 1) as f64).take(count));
-                y.extend(std::iter::repeat(label).take(count));
+                p.extend(std::iter::repeat_n((r + 1) as f64, count));
+                y.extend(std::iter::repeat_n(label, count));
             }
         }
         assert_eq!(p.len(), 109);

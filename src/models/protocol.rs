@@ -387,7 +387,7 @@ fn build_pool(
             let mut rows = train.clone();
             rows.extend(&unseen);
             let mut sides = vec![Side::Reservoir; train.len()];
-            sides.extend(std::iter::repeat(Side::Test).take(unseen.len()));
+            sides.extend(std::iter::repeat_n(Side::Test, unseen.len()));
             let pool = ScorePool {
                 scores,
                 labels: rows.iter().map(|&r| data.labels[r]).collect(),
@@ -492,7 +492,7 @@ pub fn protocol_study_unit(
         let mut labels: Vec<bool> = cal_rows.iter().map(|&r| data.labels[r]).collect();
         labels.extend(&test_labels);
         let mut sides = vec![Side::Reservoir; cal_rows.len()];
-        sides.extend(std::iter::repeat(Side::Test).take(test_rows.len()));
+        sides.extend(std::iter::repeat_n(Side::Test, test_rows.len()));
         ScorePool {
             scores,
             labels,

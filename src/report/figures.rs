@@ -47,13 +47,16 @@ fn ticks(lo: f64, hi: f64, n: usize) -> Vec<f64> {
     out
 }
 
+/// One method's points of a difference figure: (size, mean, low, high).
+type Series<'a> = (&'a String, Vec<(usize, f64, f64, f64)>);
+
 /// The difference-vs-size figure for one task and metric.
 pub fn diff_figure(a: &Analysis, task: &str, metric: &str, reference: &str) -> Option<String> {
     let sizes = a.sizes.get(task)?;
     if sizes.is_empty() {
         return None;
     }
-    let series: Vec<(&String, Vec<(usize, f64, f64, f64)>)> = a
+    let series: Vec<Series> = a
         .methods
         .iter()
         .filter(|m| *m != reference)
