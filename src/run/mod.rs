@@ -291,6 +291,7 @@ pub(crate) fn add_row_summaries(
         return;
     };
     let Some(rp) = &preds[ri] else { return };
+    let batch = paired::test_batches(labels.len());
     for mid in plan.metrics.iter().filter(|m| m.row_terms()) {
         let rterms: Vec<f64> = rp
             .iter()
@@ -307,7 +308,7 @@ pub(crate) fn add_row_summaries(
                 .zip(&rterms)
                 .map(|((&p, &y), &r)| mid.row_term(p, y, s) - r)
                 .collect();
-            for (name, v) in paired::row_summary(&e) {
+            for (name, v) in paired::row_summary_in(&batch, &e) {
                 if v.is_finite() {
                     // Seven significant digits are plenty for a variance
                     // estimate and keep units.csv a third smaller; the value is

@@ -295,6 +295,7 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
             let (res, test) = split::partition(big_m + m, m, split::mix(pool_seed, &[1]));
             let ts: Vec<f64> = test.iter().map(|&i| s[i]).collect();
             let ty: Vec<bool> = test.iter().map(|&i| y[i]).collect();
+            let batch = paired::test_batches(m);
             let mut out = Vec::new();
             let mut fails = 0;
             for (si, &n) in cfg.sizes.iter().enumerate() {
@@ -331,7 +332,7 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
                             .collect();
                         diffs[mi].push(e.iter().sum::<f64>() / m as f64);
                         rows[mi].push(
-                            paired::row_summary(&e)
+                            paired::row_summary_in(&batch, &e)
                                 .into_iter()
                                 .map(|(_, v)| v)
                                 .collect::<Vec<f64>>(),

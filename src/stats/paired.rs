@@ -141,7 +141,14 @@ pub fn test_batches(m: usize) -> Vec<usize> {
 /// [`test_batches`], named by [`ROW_SUMMARY_NAMES`]. A batch with no rows (when
 /// m < [`TEST_BATCHES`]) is NaN and is ignored by [`interval`].
 pub fn row_summary(e: &[f64]) -> Vec<(&'static str, f64)> {
-    let batch = test_batches(e.len());
+    row_summary_in(&test_batches(e.len()), e)
+}
+
+/// [`row_summary`] with the batch assignment `batch` = [`test_batches`]`(e.len())`
+/// computed once by the caller (the engine summarises many methods and
+/// metrics on the same test set).
+pub fn row_summary_in(batch: &[usize], e: &[f64]) -> Vec<(&'static str, f64)> {
+    debug_assert_eq!(batch.len(), e.len());
     let mut sum = [0.0f64; TEST_BATCHES];
     let mut count = [0usize; TEST_BATCHES];
     for (&b, &v) in batch.iter().zip(e) {
