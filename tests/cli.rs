@@ -170,6 +170,9 @@ fn small_suite_writes_the_documented_files() {
     assert!(manifest["suite"]["sha256"].as_str().unwrap().len() == 64);
     let summary = fs::read_to_string(out.join("summary.md")).unwrap();
     assert!(summary.contains("Task `a`") && summary.contains("Caution"));
+    // Plain isotonic regression makes extreme predictions in every log-loss
+    // comparison here (see the test below): 4 of the 8 log-loss comparisons.
+    assert!(summary.contains("first-order reservoir term for 4 of 8 log-loss comparisons"));
     // 5 repeats is below the 30 at which the intervals' coverage was checked.
     assert!(summary.contains(
         "Note on intervals:** 16 of 16 comparisons rest on fewer than 30 repeats (as few as 5;"

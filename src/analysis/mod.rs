@@ -97,6 +97,9 @@ pub struct Paired {
     pub losses: usize,
     pub interval: String,
     pub confidence: f64,
+    /// The interval's reservoir term was first order (`decomposed-linear`, or
+    /// `decomposed` with extreme predictions).
+    pub first_order: bool,
 }
 
 impl Paired {
@@ -287,6 +290,7 @@ pub fn paired_interval(
         df: f64::NAN,
         confidence: settings.confidence,
         test_term: None,
+        reservoir_order: None,
     })
 }
 
@@ -415,6 +419,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         losses,
                         interval: settings.interval.clone(),
                         confidence: settings.confidence,
+                        first_order: iv.reservoir_order == Some(1),
                     });
                 }
             }
@@ -487,6 +492,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                                 df: f64::NAN,
                                 confidence: p.confidence,
                                 test_term: None,
+                                reservoir_order: None,
                             }
                         })
                         .collect();

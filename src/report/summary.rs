@@ -142,6 +142,15 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
             a.tasks.len()
         ));
     }
+    let log_loss: Vec<&crate::analysis::Paired> =
+        a.paired.iter().filter(|p| p.metric == "log_loss").collect();
+    let wide = log_loss.iter().filter(|p| p.first_order).count();
+    if wide > 0 && s.interval == "decomposed" {
+        out.push_str(&format!(
+            "The default interval took its wider first-order reservoir term for {wide} of {} log-loss comparisons, where a method gave the observed class a probability at or below the log-loss clip (an exact 0 or 1) on some test row; see `docs/statistics.md`.\n\n",
+            log_loss.len()
+        ));
+    }
     let few: Vec<usize> = a
         .paired
         .iter()

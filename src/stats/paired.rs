@@ -212,6 +212,8 @@ pub struct Interval {
     pub confidence: f64,
     /// The test-set variance term (decomposed interval with batch means only).
     pub test_term: Option<f64>,
+    /// The Hoeffding degree k of the reservoir term (decomposed intervals only).
+    pub reservoir_order: Option<u32>,
 }
 
 impl Interval {
@@ -360,14 +362,14 @@ pub fn interval(
     check(input)?;
     let r = input.diffs.len();
     let (mean, s2) = mean_var(input.diffs);
-    let (var, df, test_term) = match kind {
-        IntervalKind::PairedT => (s2 / r as f64, (r - 1) as f64, None),
+    let (var, df, test_term, reservoir_order) = match kind {
+        IntervalKind::PairedT => (s2 / r as f64, (r - 1) as f64, None, None),
         IntervalKind::CorrectedT => {
             if input.size == 0 {
                 return Err(StatsError::Shape("calibration size is 0".into()));
             }
             let ratio = input.test_rows as f64 / input.size as f64;
-            (s2 * (1.0 / r as f64 + ratio), (r - 1) as f64, None)
+            (s2 * (1.0 / r as f64 + ratio), (r - 1) as f64, None, None)
         }
         IntervalKind::Decomposed | IntervalKind::DecomposedLinear => {
             // The second-order reservoir term needs a loss that is smooth at
@@ -379,7 +381,12 @@ pub fn interval(
                 1
             };
             let (p, df) = decompose(input, order)?;
-            (p.draws + p.reservoir + p.test.unwrap_or(0.0), df, p.test)
+            (
+                p.draws + p.reservoir + p.test.unwrap_or(0.0),
+                df,
+                p.test,
+                Some(order),
+            )
         }
     };
     let se = var.sqrt();
@@ -393,6 +400,7 @@ pub fn interval(
         df,
         confidence,
         test_term,
+        reservoir_order,
     })
 }
 

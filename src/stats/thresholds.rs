@@ -147,6 +147,7 @@ mod tests {
             df: 9.0,
             confidence: 0.95,
             test_term: None,
+            reservoir_order: None,
         }
     }
 
