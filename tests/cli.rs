@@ -274,16 +274,20 @@ fn extreme_predictions_widen_the_default_interval_to_the_linear_one() {
         .success();
     let linear = read("paired.csv");
     assert_eq!(default.len(), linear.len());
+    // The last column names the reservoir term's degree.
+    assert!(linear.iter().all(|r| r[17] == "1"));
     let (mut same, mut narrower) = (0, 0);
     for (d, l) in default.iter().zip(&linear) {
         assert_eq!(d[..5], l[..5]);
         let width = |r: &Vec<String>| r[10].parse::<f64>().unwrap() - r[9].parse::<f64>().unwrap();
         if d[2] == "isotonic" && d[4] == "log_loss" {
             assert_eq!(d[9..12], l[9..12], "{d:?}");
+            assert_eq!(d[17], "1");
             same += 1;
         }
         if d[4] == "brier" {
             assert!(width(d) < width(l), "{d:?} vs {l:?}");
+            assert_eq!(d[17], "2");
             narrower += 1;
         }
     }

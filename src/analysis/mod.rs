@@ -97,9 +97,10 @@ pub struct Paired {
     pub losses: usize,
     pub interval: String,
     pub confidence: f64,
-    /// The interval's reservoir term was first order (`decomposed-linear`, or
-    /// `decomposed` with extreme predictions).
-    pub first_order: bool,
+    /// The Hoeffding degree of the interval's reservoir term: 1 for
+    /// `decomposed-linear` and for `decomposed` with extreme predictions, 2 for
+    /// `decomposed` otherwise, `None` for the t intervals.
+    pub reservoir_order: Option<u32>,
 }
 
 impl Paired {
@@ -419,7 +420,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         losses,
                         interval: settings.interval.clone(),
                         confidence: settings.confidence,
-                        first_order: iv.reservoir_order == Some(1),
+                        reservoir_order: iv.reservoir_order,
                     });
                 }
             }

@@ -4,7 +4,7 @@ use crate::analysis::Analysis;
 use crate::run::table::num;
 
 pub const PAIRED_HEADER: &str =
-    "task,size,method,reference,metric,repeats,mean_method,mean_reference,mean_diff,ci_low,ci_high,se,wins,ties,losses,interval,confidence";
+    "task,size,method,reference,metric,repeats,mean_method,mean_reference,mean_diff,ci_low,ci_high,se,wins,ties,losses,interval,confidence,reservoir_order";
 
 fn f(v: f64) -> String {
     if v.is_finite() {
@@ -19,7 +19,7 @@ pub fn paired_csv(a: &Analysis) -> String {
     s.push('\n');
     for p in &a.paired {
         s.push_str(&format!(
-            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
+            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
             p.task,
             p.size,
             p.method,
@@ -36,7 +36,8 @@ pub fn paired_csv(a: &Analysis) -> String {
             p.ties,
             p.losses,
             p.interval,
-            num(p.confidence)
+            num(p.confidence),
+            p.reservoir_order.map(|k| k.to_string()).unwrap_or_default()
         ));
     }
     s

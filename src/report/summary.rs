@@ -144,7 +144,10 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
     }
     let log_loss: Vec<&crate::analysis::Paired> =
         a.paired.iter().filter(|p| p.metric == "log_loss").collect();
-    let wide = log_loss.iter().filter(|p| p.first_order).count();
+    let wide = log_loss
+        .iter()
+        .filter(|p| p.reservoir_order == Some(1))
+        .count();
     if wide > 0 && s.interval == "decomposed" {
         out.push_str(&format!(
             "The default interval took its wider first-order reservoir term for {wide} of {} log-loss comparisons, where a method gave the observed class a probability at or below the log-loss clip (an exact 0 or 1) on some test row; see `docs/statistics.md`.\n\n",
