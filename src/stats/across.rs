@@ -14,7 +14,9 @@
 //! * Iman & Davenport (1980, Comm. Statist. A 9): F_F = (N − 1)χ²_F / (N(k − 1) − χ²_F)
 //!   with (k − 1, (k − 1)(N − 1)) df (Demšar eq. 2).
 //! * Nemenyi (1963) critical difference CD = q_α √(k(k+1)/(6N)) with q_α from
-//!   Demšar Table 5(a) (studentized range quantile / √2), α = 0.05 and 0.10, k ≤ 10.
+//!   Demšar Table 5(a) (studentized range quantile / √2) for α = 0.05 and 0.10
+//!   and k ≤ 10; for more methods or another α, from the range distribution of
+//!   k standard normals by quadrature ([`normal_range_cdf`]).
 //! * Wilcoxon (1945, Biometrics Bulletin 1) signed-rank test of a method against
 //!   the best-ranked one over tasks: ranks of |d| with average ranks for ties;
 //!   zero differences are split evenly between R⁺ and R⁻ (Demšar §3.1.3);

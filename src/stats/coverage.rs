@@ -79,7 +79,8 @@ impl Population {
         self.lo + (self.hi - self.lo) * up / 2.0
     }
 
-    fn draw(&self, rng: &mut rand_chacha::ChaCha8Rng, n: usize) -> (Vec<f64>, Vec<bool>) {
+    /// n rows (score, label) drawn from the population.
+    pub fn draw(&self, rng: &mut rand_chacha::ChaCha8Rng, n: usize) -> (Vec<f64>, Vec<bool>) {
         let mut s = Vec::with_capacity(n);
         let mut y = Vec::with_capacity(n);
         for _ in 0..n {
@@ -201,12 +202,39 @@ pub enum CoverageError {
 const TAG_TRUTH: u64 = 0x0074_7275_7468;
 const TAG_REPL: u64 = 0x7265_706c;
 
-struct Fitters {
+/// How θ(n) is computed: K calibration samples, G quadrature nodes.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TruthConfig {
+    pub seed: u64,
+    /// K: calibration samples of size n drawn from the population.
+    pub samples: usize,
+    /// G: midpoint nodes in the score quantile for the exact expected loss.
+    pub quadrature: usize,
+}
+
+/// θ(n) for each metric: mean and Monte Carlo standard error.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Truth {
+    pub per_metric: Vec<(f64, f64)>,
+    /// Samples skipped because a fit failed.
+    pub failed_fits: usize,
+}
+
+/// Two methods, built once, fitted side by side.
+pub struct Fitters {
     a: Box<dyn Calibrator>,
     b: Box<dyn Calibrator>,
 }
 
 impl Fitters {
+    /// Method A and reference B for probability scores.
+    pub fn new(method: &MethodSpec, reference: &MethodSpec) -> Result<Self, CoverageError> {
+        Ok(Fitters {
+            a: method.build(ScoreKind::Probability)?,
+            b: reference.build(ScoreKind::Probability)?,
+        })
+    }
+
     /// Predictions of both methods at `at`, or None when a fit fails.
     fn fit_predict(&self, s: &[f64], y: &[bool], at: &[f64]) -> Option<(Vec<f64>, Vec<f64>)> {
         let fa = self.a.fit(s, y).ok()?;
@@ -216,6 +244,63 @@ impl Fitters {
         fa.map.predict(at, &mut pa);
         fb.map.predict(at, &mut pb);
         Some((pa, pb))
+    }
+}
+
+/// The true expected loss difference θ(n) = E_S E_(s,y)[ℓ(A_S) − ℓ(B_S)] of
+/// two methods fitted on calibration samples S of size n from `pop`: the exact
+/// expected difference of each fitted pair over the population (midpoint rule
+/// in u = F(s)), averaged over K samples. Independent of the harness's split,
+/// draw and interval code, so it can judge them. Parallel over samples; the
+/// result does not depend on the thread count.
+pub fn true_difference(
+    pop: &Population,
+    fit: &Fitters,
+    metrics: &[MetricId],
+    settings: &MetricSettings,
+    n: usize,
+    cfg: &TruthConfig,
+) -> Truth {
+    let g = cfg.quadrature.max(1);
+    let nodes: Vec<f64> = (0..g)
+        .map(|k| pop.quantile((k as f64 + 0.5) / g as f64))
+        .collect();
+    let q: Vec<f64> = nodes.iter().map(|&s| pop.truth(s)).collect();
+    let vals: Vec<Option<Vec<f64>>> = (0..cfg.samples)
+        .into_par_iter()
+        .map(|k| {
+            let mut r = split::rng(split::mix(cfg.seed, &[TAG_TRUTH, n as u64, k as u64]));
+            let (s, y) = pop.draw(&mut r, n);
+            let (pa, pb) = fit.fit_predict(&s, &y, &nodes)?;
+            Some(
+                metrics
+                    .iter()
+                    .map(|&met| {
+                        let mut acc = 0.0;
+                        for j in 0..g {
+                            let one = met.row_term(pa[j], true, settings)
+                                - met.row_term(pb[j], true, settings);
+                            let zero = met.row_term(pa[j], false, settings)
+                                - met.row_term(pb[j], false, settings);
+                            acc += q[j] * one + (1.0 - q[j]) * zero;
+                        }
+                        acc / g as f64
+                    })
+                    .collect(),
+            )
+        })
+        .collect();
+    let ok: Vec<&Vec<f64>> = vals.iter().flatten().collect();
+    let per_metric = (0..metrics.len())
+        .map(|mi| {
+            let x: Vec<f64> = ok.iter().map(|v| v[mi]).collect();
+            let (mean, var) = super::mean_var(&x);
+            (mean, (var / x.len() as f64).sqrt())
+        })
+        .collect();
+    Truth {
+        per_metric,
+        failed_fits: vals.len() - ok.len(),
     }
 }
 
@@ -234,53 +319,23 @@ pub fn coverage_study(cfg: &CoverageConfig) -> Result<CoverageTable, CoverageErr
             "every size must lie in 2..reservoir, test_rows ≥ 2, at least one metric".into(),
         ));
     }
-    let fit = Fitters {
-        a: cfg.method.build(ScoreKind::Probability)?,
-        b: cfg.reference.build(ScoreKind::Probability)?,
-    };
+    let fit = Fitters::new(&cfg.method, &cfg.reference)?;
     let pop = &cfg.population;
     let g = cfg.quadrature;
-    let nodes: Vec<f64> = (0..g)
-        .map(|k| pop.quantile((k as f64 + 0.5) / g as f64))
-        .collect();
-    let q: Vec<f64> = nodes.iter().map(|&s| pop.truth(s)).collect();
     let nm = cfg.metrics.len();
 
     // θ(n) per (size, metric): mean and standard error over K samples.
-    let mut truth = vec![vec![(0.0, 0.0); nm]; cfg.sizes.len()];
+    let truth_cfg = TruthConfig {
+        seed: cfg.seed,
+        samples: cfg.truth_samples,
+        quadrature: g,
+    };
+    let mut truth = Vec::with_capacity(cfg.sizes.len());
     let mut failed = 0usize;
-    for (si, &n) in cfg.sizes.iter().enumerate() {
-        let vals: Vec<Option<Vec<f64>>> = (0..cfg.truth_samples)
-            .into_par_iter()
-            .map(|k| {
-                let mut r = split::rng(split::mix(cfg.seed, &[TAG_TRUTH, n as u64, k as u64]));
-                let (s, y) = pop.draw(&mut r, n);
-                let (pa, pb) = fit.fit_predict(&s, &y, &nodes)?;
-                Some(
-                    cfg.metrics
-                        .iter()
-                        .map(|&met| {
-                            let mut acc = 0.0;
-                            for j in 0..g {
-                                let one = met.row_term(pa[j], true, &cfg.settings)
-                                    - met.row_term(pb[j], true, &cfg.settings);
-                                let zero = met.row_term(pa[j], false, &cfg.settings)
-                                    - met.row_term(pb[j], false, &cfg.settings);
-                                acc += q[j] * one + (1.0 - q[j]) * zero;
-                            }
-                            acc / g as f64
-                        })
-                        .collect(),
-                )
-            })
-            .collect();
-        failed += vals.iter().filter(|v| v.is_none()).count();
-        let ok: Vec<&Vec<f64>> = vals.iter().flatten().collect();
-        for mi in 0..nm {
-            let x: Vec<f64> = ok.iter().map(|v| v[mi]).collect();
-            let (mean, var) = super::mean_var(&x);
-            truth[si][mi] = (mean, (var / x.len() as f64).sqrt());
-        }
+    for &n in &cfg.sizes {
+        let t = true_difference(pop, &fit, &cfg.metrics, &cfg.settings, n, &truth_cfg);
+        failed += t.failed_fits;
+        truth.push(t.per_metric);
     }
 
     // Replicates of the harness protocol.
