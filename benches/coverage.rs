@@ -40,7 +40,10 @@ fn method(opt: &str, spec: Option<&String>) -> MethodSpec {
 fn main() {
     let mut cfg = CoverageConfig::default();
     // `cargo bench` passes `--bench` to every bench binary; skip it.
-    let args: Vec<String> = std::env::args().skip(1).filter(|a| a != "--bench").collect();
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| a != "--bench")
+        .collect();
     let mut i = 0;
     while i < args.len() {
         let opt = args[i].as_str();
@@ -58,9 +61,9 @@ fn main() {
             }
             "--pseudo-count" => {
                 // Compare bounded isotonic regression (pseudo-rows at the base rate).
-                let m = val
-                    .and_then(|v| v.parse::<f64>().ok())
-                    .unwrap_or_else(|| usage(&format!("--pseudo-count needs a number, got {val:?}")));
+                let m = val.and_then(|v| v.parse::<f64>().ok()).unwrap_or_else(|| {
+                    usage(&format!("--pseudo-count needs a number, got {val:?}"))
+                });
                 cfg.method = MethodSpec::Isotonic { pseudo_count: m };
             }
             "--method" => cfg.method = method(opt, val),

@@ -362,31 +362,54 @@ pub fn run(
         .filter(|&(ti, s, r)| !done_keys.contains(&(plan.tasks[ti].id.clone(), s, r)))
         .collect();
     let resumed_units = keys.len() - todo.len();
+    let (finished, threads) = execute(
+        &todo,
+        keys.len(),
+        "{spinner} {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
+        opts,
+        done,
+        &|(ti, size, r)| vec![run_unit(plan, &data, ti, size, r)],
+        on_done,
+    )?;
+    Ok(assemble(plan, finished, threads, resumed_units))
+}
 
+/// The parallel loop shared by suites and protocol studies: `work` turns one
+/// key into finished units, each handed to `on_done` (the journal) as soon as
+/// it exists. The first journal failure stops the loop. The progress bar
+/// counts keys and starts at those already done. Returns every finished unit
+/// (`done` first, the rest in completion order; `assemble` sorts) and the
+/// number of worker threads.
+pub(crate) fn execute<K: Copy + Sync>(
+    todo: &[K],
+    total: usize,
+    bar_template: &str,
+    opts: &RunOptions,
+    done: Vec<UnitOutcome>,
+    work: &(dyn Fn(K) -> Vec<UnitOutcome> + Sync),
+    on_done: &(dyn Fn(&UnitOutcome) -> Result<(), String> + Sync),
+) -> Result<(Vec<UnitOutcome>, usize), RunError> {
     let pool = thread_pool(opts.threads)?;
     let threads = pool.current_num_threads();
-    let bar = progress_bar(
-        keys.len() as u64,
-        "{spinner} {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
-        opts.quiet,
-    );
-    bar.set_position(resumed_units as u64);
-
+    let bar = progress_bar(total as u64, bar_template, opts.quiet);
+    bar.set_position(total.saturating_sub(todo.len()) as u64);
     let finished: Mutex<Vec<UnitOutcome>> = Mutex::new(done);
     let journal_error: Mutex<Option<String>> = Mutex::new(None);
     pool.install(|| {
-        todo.par_iter().for_each(|&(ti, size, r)| {
+        todo.par_iter().for_each(|&key| {
             if journal_error.lock().map(|e| e.is_some()).unwrap_or(true) {
                 return;
             }
-            let u = run_unit(plan, &data, ti, size, r);
-            if let Err(e) = on_done(&u) {
-                if let Ok(mut j) = journal_error.lock() {
-                    j.get_or_insert(e);
+            let units = work(key);
+            for u in &units {
+                if let Err(e) = on_done(u) {
+                    if let Ok(mut j) = journal_error.lock() {
+                        j.get_or_insert(e);
+                    }
                 }
             }
             if let Ok(mut f) = finished.lock() {
-                f.push(u);
+                f.extend(units);
             }
             bar.inc(1);
         });
@@ -395,8 +418,7 @@ pub fn run(
     if let Some(e) = journal_error.into_inner().unwrap_or(None) {
         return Err(RunError::Journal(e));
     }
-    let finished = finished.into_inner().unwrap_or_default();
-    Ok(assemble(plan, finished, threads, resumed_units))
+    Ok((finished.into_inner().unwrap_or_default(), threads))
 }
 
 /// A worker pool of `threads` threads (`None` = rayon's default, which honours

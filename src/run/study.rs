@@ -15,8 +15,6 @@
 
 use std::collections::{BTreeMap, BTreeSet};
 
-use rayon::prelude::*;
-
 use super::{
     add_row_summaries, assemble, fit_score, one_class_outcome, MethodOutcome, RunError, RunOptions,
     RunOutput, UnitOutcome,
@@ -87,118 +85,85 @@ pub fn run_study(
         })
         .collect();
     let resumed_units = keys.len() - todo.len();
-    let pool = super::thread_pool(opts.threads)?;
-    let threads = pool.current_num_threads();
-    let bar = super::progress_bar(
-        keys.len() as u64,
-        "{spinner} protocol study {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
-        opts.quiet,
-    );
-    bar.set_position(resumed_units as u64);
-    let finished = std::sync::Mutex::new(done);
-    let failure: std::sync::Mutex<Option<String>> = std::sync::Mutex::new(None);
     let reference = study.reference();
-    pool.install(|| {
-        todo.par_iter().for_each(|&(ti, budget, r)| {
-            if failure.lock().map(|f| f.is_some()).unwrap_or(true) {
-                return;
-            }
-            let t = &plan.tasks[ti];
-            let TaskSource::Open { data, model, .. } = &t.source else {
-                return;
-            };
-            let (ds, test_rows) = &datasets[data];
-            let seed = split::unit_seed(plan.seed, &t.id, budget, r);
-            let test_y: Vec<bool> = test_rows.iter().map(|&i| ds.labels[i]).collect();
-            let variants = protocol_study_unit(ds, model, test_rows, budget, &settings, seed);
-            let mut outs = Vec::new();
-            for (mi, m) in plan.methods.iter().enumerate() {
-                let mut methods: Vec<MethodOutcome> = Vec::new();
-                let mut preds = Vec::new();
-                let mut positives = 0;
-                match &variants {
-                    Ok(vs) => {
-                        for (name, p) in vs {
-                            let sides = p.sides.as_deref().unwrap_or(&[]);
-                            let (mut cs, mut cy, mut ts) = (Vec::new(), Vec::new(), Vec::new());
-                            for (k, &side) in sides.iter().enumerate() {
-                                if side == Side::Reservoir {
-                                    cs.push(p.scores[k]);
-                                    cy.push(p.labels[k]);
-                                } else {
-                                    ts.push(p.scores[k]);
-                                }
-                            }
-                            if *name == reference {
-                                positives = cy.iter().filter(|&&y| y).count();
-                            }
-                            let pos = cy.iter().filter(|&&y| y).count();
-                            let (o, pr) = if pos == 0 || pos == cy.len() {
-                                (one_class_outcome(plan, name), None)
+    let work = |(ti, budget, r): (usize, usize, usize)| -> Vec<UnitOutcome> {
+        let t = &plan.tasks[ti];
+        let TaskSource::Open { data, model, .. } = &t.source else {
+            return Vec::new();
+        };
+        let (ds, test_rows) = &datasets[data];
+        let seed = split::unit_seed(plan.seed, &t.id, budget, r);
+        let test_y: Vec<bool> = test_rows.iter().map(|&i| ds.labels[i]).collect();
+        let variants = protocol_study_unit(ds, model, test_rows, budget, &settings, seed);
+        let mut outs = Vec::new();
+        for (mi, m) in plan.methods.iter().enumerate() {
+            let mut methods: Vec<MethodOutcome> = Vec::new();
+            let mut preds = Vec::new();
+            let mut positives = 0;
+            match &variants {
+                Ok(vs) => {
+                    for (name, p) in vs {
+                        let sides = p.sides.as_deref().unwrap_or(&[]);
+                        let (mut cs, mut cy, mut ts) = (Vec::new(), Vec::new(), Vec::new());
+                        for (k, &side) in sides.iter().enumerate() {
+                            if side == Side::Reservoir {
+                                cs.push(p.scores[k]);
+                                cy.push(p.labels[k]);
                             } else {
-                                fit_score(
-                                    plan,
-                                    calibrators[mi].as_ref(),
-                                    name,
-                                    &cs,
-                                    &cy,
-                                    &ts,
-                                    &test_y,
-                                )
-                            };
-                            methods.push(o);
-                            preds.push(pr);
+                                ts.push(p.scores[k]);
+                            }
                         }
-                        let ri = vs.iter().position(|(n, _)| *n == reference);
-                        add_row_summaries(plan, &test_y, &preds, &mut methods, ri);
-                    }
-                    Err(e) => {
-                        let mut names: Vec<String> = settings
-                            .fractions
-                            .iter()
-                            .map(|f| format!("held-out-{f}"))
-                            .collect();
-                        names.push(reference.clone());
-                        for n in names {
-                            let mut o = one_class_outcome(plan, &n);
-                            o.status = "failed".into();
-                            o.error = Some(format!("base model: {e}"));
-                            methods.push(o);
+                        if *name == reference {
+                            positives = cy.iter().filter(|&&y| y).count();
                         }
+                        let pos = cy.iter().filter(|&&y| y).count();
+                        let (o, pr) = if pos == 0 || pos == cy.len() {
+                            (one_class_outcome(plan, name), None)
+                        } else {
+                            fit_score(plan, calibrators[mi].as_ref(), name, &cs, &cy, &ts, &test_y)
+                        };
+                        methods.push(o);
+                        preds.push(pr);
                     }
+                    let ri = vs.iter().position(|(n, _)| *n == reference);
+                    add_row_summaries(plan, &test_y, &preds, &mut methods, ri);
                 }
-                outs.push(UnitOutcome {
-                    task: format!("{}@{}", t.id, m.id),
-                    size: budget,
-                    repeat: r,
-                    positives,
-                    reservoir: t.reservoir_rows,
-                    test_rows: test_rows.len(),
-                    methods,
-                });
-            }
-            outs.retain(|u| !done_keys.contains(&(u.task.clone(), u.size, u.repeat)));
-            for u in &outs {
-                if let Err(e) = on_done(u) {
-                    if let Ok(mut f) = failure.lock() {
-                        f.get_or_insert(e);
+                Err(e) => {
+                    let mut names: Vec<String> = settings
+                        .fractions
+                        .iter()
+                        .map(|f| format!("held-out-{f}"))
+                        .collect();
+                    names.push(reference.clone());
+                    for n in names {
+                        let mut o = one_class_outcome(plan, &n);
+                        o.status = "failed".into();
+                        o.error = Some(format!("base model: {e}"));
+                        methods.push(o);
                     }
                 }
             }
-            if let Ok(mut f) = finished.lock() {
-                f.extend(outs);
-            }
-            bar.inc(1);
-        });
-    });
-    bar.finish_and_clear();
-    if let Some(e) = failure.into_inner().unwrap_or(None) {
-        return Err(RunError::Journal(e));
-    }
-    Ok(assemble(
-        plan,
-        finished.into_inner().unwrap_or_default(),
-        threads,
-        resumed_units,
-    ))
+            outs.push(UnitOutcome {
+                task: format!("{}@{}", t.id, m.id),
+                size: budget,
+                repeat: r,
+                positives,
+                reservoir: t.reservoir_rows,
+                test_rows: test_rows.len(),
+                methods,
+            });
+        }
+        outs.retain(|u| !done_keys.contains(&(u.task.clone(), u.size, u.repeat)));
+        outs
+    };
+    let (finished, threads) = super::execute(
+        &todo,
+        keys.len(),
+        "{spinner} protocol study {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
+        opts,
+        done,
+        &work,
+        on_done,
+    )?;
+    Ok(assemble(plan, finished, threads, resumed_units))
 }
