@@ -540,7 +540,7 @@ impl CoverageTable {
             ));
         }
         s.push_str(
-            "\nmean variance terms of the default decomposed interval (draws, reservoir, test) vs rmse², and the share of replicates with extreme predictions\n",
+            "\nmean variance terms of the decomposed intervals (draws, reservoir, test) vs rmse², and the share of replicates with extreme predictions\n",
         );
         for r in self
             .rows

@@ -24,7 +24,7 @@
 //!   se² = s_d² (1/R + n₂/n₁), ν = R − 1. In their protocol each repeat trains on
 //!   n₁ rows and tests on n₂ rows; we map n₁ = calibration size n and
 //!   n₂ = test rows m, the literal roles of the two sets in a unit.
-//! * [`IntervalKind::Decomposed`] (default, plumbline's own): a sum of three
+//! * [`IntervalKind::Decomposed`] (plumbline's own): a sum of three
 //!   variance terms, one per source of spread of d̄ around θ(n):
 //!   - draws: s_d²/R, the spread of calibration draws within the reservoir;
 //!   - reservoir: the reservoir is itself a finite sample, and its own effect
@@ -60,6 +60,19 @@
 //!   Biometrics Bulletin 2) over the mean squares involved.
 //!   Without batch means (a metric that is not a mean of row terms) the test term
 //!   is left out and [`Interval::test_term`] is `None`.
+//! * [`IntervalKind::DecomposedSkew`] (default): the same standard error and ν,
+//!   but not symmetric. Loss differences are often skewed (a method that
+//!   occasionally overfits a small sample, a few test rows with a large log-loss
+//!   gap), and the studentized mean T = (d̄ − θ)/se of a skewed sample is skewed
+//!   the other way, so a symmetric interval misses mostly on one side. Hall
+//!   (1992, J. R. Statist. Soc. B 54, "On the removal of skewness by
+//!   transformation") removes the first-order skewness with the monotone map
+//!   g(T) = T + κT²/3 + κ²T³/27 + κ/6, where κ is the skewness of d̄; the
+//!   interval is θ ∈ [d̄ − se·g⁻¹(q), d̄ − se·g⁻¹(−q)] with q the t quantile. We
+//!   estimate κ = (κ₃,draws + κ₃,test)/se³ from third cumulants: m₃(d)/R² for
+//!   the draws (m₃ the third central moment of the d_r) and m₃(b)/B² for the
+//!   test rows (b the B batch means averaged over repeats); the reservoir part
+//!   is treated as symmetric. κ = 0 gives the symmetric interval back.
 //!
 //! Per-repeat wins, ties and losses count d_r < −tol, |d_r| ≤ tol and d_r > tol
 //! for a tiny tolerance ([`TIE_TOLERANCE`]); see [`repeat_record`].
@@ -78,11 +91,14 @@ pub enum IntervalKind {
     /// Nadeau & Bengio's corrected resampled t.
     CorrectedT,
     /// Draws + reservoir + test-set variance decomposition with a second-order
-    /// reservoir term, first-order under extreme predictions (default).
-    #[default]
+    /// reservoir term, first-order under extreme predictions; symmetric.
     Decomposed,
     /// The same with the first-order (conservative) reservoir term.
     DecomposedLinear,
+    /// [`IntervalKind::Decomposed`] with Hall's (1992) skewness-removing
+    /// transformation of the studentized mean: asymmetric (default).
+    #[default]
+    DecomposedSkew,
 }
 
 impl IntervalKind {
@@ -91,6 +107,7 @@ impl IntervalKind {
         IntervalKind::CorrectedT,
         IntervalKind::Decomposed,
         IntervalKind::DecomposedLinear,
+        IntervalKind::DecomposedSkew,
     ];
 
     pub fn as_str(self) -> &'static str {
@@ -99,6 +116,7 @@ impl IntervalKind {
             IntervalKind::CorrectedT => "corrected-t",
             IntervalKind::Decomposed => "decomposed",
             IntervalKind::DecomposedLinear => "decomposed-linear",
+            IntervalKind::DecomposedSkew => "decomposed-skew",
         }
     }
 }
@@ -185,7 +203,8 @@ pub struct PairedInput<'a> {
     pub test_rows: usize,
     /// True when, in some repeat, either method made an extreme prediction
     /// under a loss that is not smooth there (see [`MetricId::extreme_row_loss`]):
-    /// [`IntervalKind::Decomposed`] then takes the first-order reservoir term.
+    /// [`IntervalKind::Decomposed`] and [`IntervalKind::DecomposedSkew`] then
+    /// take the first-order reservoir term.
     ///
     /// [`MetricId::extreme_row_loss`]: crate::metrics::MetricId::extreme_row_loss
     pub extreme: bool,
@@ -198,6 +217,9 @@ pub struct VarianceParts {
     pub reservoir: f64,
     /// `None` when no batch means were given.
     pub test: Option<f64>,
+    /// Third cumulant of d̄ from the draws and the test rows (the reservoir
+    /// part is taken as symmetric), for the skewness-corrected interval.
+    pub third: f64,
 }
 
 /// A two-sided interval for the mean paired difference.
@@ -239,6 +261,8 @@ impl Interval {
 struct TwoWay {
     ms_cols: f64,
     ms_err: f64,
+    /// Third central moment of the column (batch) means, divisor `cols`.
+    col_m3: f64,
     rows: usize,
     cols: usize,
 }
@@ -262,7 +286,14 @@ fn two_way(x: &[Vec<f64>], cols: &[usize]) -> TwoWay {
             ss_err += (row[b] - row_mean[i] - col_mean[k] + grand).powi(2);
         }
     }
+    let col_grand = col_mean.iter().sum::<f64>() / c as f64;
+    let col_m3 = col_mean
+        .iter()
+        .map(|m| (m - col_grand).powi(3))
+        .sum::<f64>()
+        / c as f64;
     TwoWay {
+        col_m3,
         ms_cols: ss_cols / (c - 1) as f64,
         ms_err: ss_err / ((r - 1) * (c - 1)) as f64,
         rows: r,
@@ -289,6 +320,15 @@ pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64)
     let draws = s2 / r as f64;
     let reservoir = s2 * f;
     let mut test = None;
+    // Third cumulant of a mean of R (or B) exchangeable values: m₃/R².
+    let mean_d = input.diffs.iter().sum::<f64>() / r as f64;
+    let m3 = input
+        .diffs
+        .iter()
+        .map(|x| (x - mean_d).powi(3))
+        .sum::<f64>()
+        / r as f64;
+    let mut third = m3 / (r * r) as f64;
     // Satterthwaite: V = Σ c_k MS_k, ν = V² / Σ (c_k MS_k)² / ν_k.
     let mut terms: Vec<(f64, f64)> = vec![(c1 * s2, (r - 1) as f64)];
     if let Some(rows) = input.row_stats {
@@ -318,6 +358,7 @@ pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64)
             let t = ((tw.ms_cols - tw.ms_err) / denom).max(0.0);
             test = Some(t);
             if t > 0.0 {
+                third += tw.col_m3 / (tw.cols * tw.cols) as f64;
                 terms.push((tw.ms_cols / denom, (tw.cols - 1) as f64));
                 terms.push((-tw.ms_err / denom, ((tw.rows - 1) * (tw.cols - 1)) as f64));
             }
@@ -335,6 +376,7 @@ pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64)
             draws,
             reservoir,
             test,
+            third,
         },
         df,
     ))
@@ -362,6 +404,8 @@ pub fn interval(
     check(input)?;
     let r = input.diffs.len();
     let (mean, s2) = mean_var(input.diffs);
+    // Skewness of the estimator for the asymmetric interval (0: symmetric).
+    let mut skew = 0.0;
     let (var, df, test_term, reservoir_order) = match kind {
         IntervalKind::PairedT => (s2 / r as f64, (r - 1) as f64, None, None),
         IntervalKind::CorrectedT => {
@@ -371,37 +415,52 @@ pub fn interval(
             let ratio = input.test_rows as f64 / input.size as f64;
             (s2 * (1.0 / r as f64 + ratio), (r - 1) as f64, None, None)
         }
-        IntervalKind::Decomposed | IntervalKind::DecomposedLinear => {
+        IntervalKind::Decomposed
+        | IntervalKind::DecomposedLinear
+        | IntervalKind::DecomposedSkew => {
             // The second-order reservoir term needs a loss that is smooth at
             // the fitted predictions; with extreme predictions fall back to
             // the first-order bound.
-            let order = if kind == IntervalKind::Decomposed && !input.extreme {
+            let order = if kind != IntervalKind::DecomposedLinear && !input.extreme {
                 2
             } else {
                 1
             };
             let (p, df) = decompose(input, order)?;
-            (
-                p.draws + p.reservoir + p.test.unwrap_or(0.0),
-                df,
-                p.test,
-                Some(order),
-            )
+            let var = p.draws + p.reservoir + p.test.unwrap_or(0.0);
+            if kind == IntervalKind::DecomposedSkew && var > 0.0 {
+                skew = p.third / var.powf(1.5);
+            }
+            (var, df, p.test, Some(order))
         }
     };
     let se = var.sqrt();
     let q = t_quantile(0.5 + confidence / 2.0, df)?;
+    let (lo_q, hi_q) = if skew.is_finite() && skew.abs() > 1e-12 {
+        (hall_inverse(q, skew), hall_inverse(-q, skew))
+    } else {
+        (q, -q)
+    };
     Ok(Interval {
         kind,
         mean,
-        low: mean - q * se,
-        high: mean + q * se,
+        low: mean - lo_q * se,
+        high: mean - hi_q * se,
         se,
         df,
         confidence,
         test_term,
         reservoir_order,
     })
+}
+
+/// Inverse of Hall's (1992) transformation g(T) = T + κT²/3 + κ²T³/27 + κ/6
+/// of a studentized mean whose estimator has skewness κ:
+/// g(T) = ((1 + aT)³ − 1)/(3a) + κ/6 with a = κ/3, so
+/// g⁻¹(x) = (∛(1 + 3a(x − κ/6)) − 1)/a. Monotone for every κ.
+fn hall_inverse(x: f64, kappa: f64) -> f64 {
+    let a = kappa / 3.0;
+    ((1.0 + 3.0 * a * (x - kappa / 6.0)).cbrt() - 1.0) / a
 }
 
 /// Absolute tolerance under which a per-repeat difference counts as a tie.
@@ -490,6 +549,39 @@ mod tests {
         // Corrected: se² = 2.5 (1/5 + 500/100).
         let c = interval(IntervalKind::CorrectedT, &input(&d, None), 0.95).unwrap();
         assert!((c.se * c.se - 2.5 * 5.2).abs() < 1e-12);
+    }
+
+    #[test]
+    fn hall_inverse_inverts_the_transformation() {
+        // g(T) = T + κT²/3 + κ²T³/27 + κ/6 (Hall 1992, JRSS B 54, eq. for the
+        // studentized mean with a = κ/3); g⁻¹(g(T)) = T for either sign of κ.
+        for &kappa in &[-0.8, -0.1, 0.05, 0.4, 1.5] {
+            for &t in &[-3.0, -1.0, 0.0, 0.7, 2.5] {
+                let g = t + kappa * t * t / 3.0 + kappa * kappa * t * t * t / 27.0 + kappa / 6.0;
+                assert!((hall_inverse(g, kappa) - t).abs() < 1e-9, "κ {kappa} T {t}");
+            }
+        }
+    }
+
+    #[test]
+    fn skew_interval_is_symmetric_without_skewness_and_stretches_toward_the_tail() {
+        // Symmetric differences: third cumulant 0, the same interval as the default.
+        let d = [1.0, 2.0, 3.0, 4.0, 5.0];
+        let a = interval(IntervalKind::Decomposed, &input(&d, None), 0.95).unwrap();
+        let b = interval(IntervalKind::DecomposedSkew, &input(&d, None), 0.95).unwrap();
+        assert!((a.low - b.low).abs() < 1e-12 && (a.high - b.high).abs() < 1e-12);
+        // A long right tail: the upper end moves out, the lower end in, the
+        // standard error is unchanged.
+        let d = [0.0, 0.1, 0.0, 0.2, 0.1, 0.0, 3.0, 0.1, 0.0, 0.2];
+        let a = interval(IntervalKind::Decomposed, &input(&d, None), 0.95).unwrap();
+        let b = interval(IntervalKind::DecomposedSkew, &input(&d, None), 0.95).unwrap();
+        assert_eq!(a.se, b.se);
+        assert!(b.high > a.high && b.low > a.low, "{a:?} {b:?}");
+        assert!(b.high - b.mean > b.mean - b.low);
+        // Mirrored data mirror the interval.
+        let m: Vec<f64> = d.iter().map(|x| -x).collect();
+        let c = interval(IntervalKind::DecomposedSkew, &input(&m, None), 0.95).unwrap();
+        assert!((c.low + b.high).abs() < 1e-12 && (c.high + b.low).abs() < 1e-12);
     }
 
     #[test]
