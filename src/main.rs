@@ -78,8 +78,9 @@ unless --force is given.")]
         /// Confidence level of the intervals [default: as recorded, else 0.95].
         #[arg(long)]
         confidence: Option<f64>,
-        /// Interval estimator: paired-t, corrected-t, decomposed or
-        /// decomposed-linear [default: as recorded, else decomposed].
+        /// Interval estimator: paired-t, corrected-t, decomposed,
+        /// decomposed-linear or decomposed-skew (docs/statistics.md)
+        /// [default: as recorded, else decomposed-skew].
         #[arg(long)]
         interval: Option<String>,
     },
