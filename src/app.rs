@@ -394,7 +394,7 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         confidence,
         interval: match &args.interval {
             Some(k) => {
-                if !IntervalKind::ALL.iter().any(|x| x.as_str() == k) {
+                if IntervalKind::parse(k).is_none() {
                     let known: Vec<_> = IntervalKind::ALL.iter().map(|x| x.as_str()).collect();
                     bail!("--interval `{k}`: known estimators: {}", known.join(", "));
                 }

@@ -4,6 +4,7 @@
 use super::{fmt_diff, fmt_value, Table};
 use crate::analysis::{Analysis, AnalysisSettings};
 use crate::metrics::MetricId;
+use crate::stats::paired::IntervalKind;
 
 /// What the summary says about where the results came from.
 #[derive(Debug, Clone)]
@@ -148,13 +149,16 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
         .iter()
         .filter(|p| p.reservoir_order == Some(1))
         .count();
-    if wide > 0 && s.interval.starts_with("decomposed") && s.interval != "decomposed-linear" {
+    let kind = IntervalKind::parse(&s.interval);
+    // Only kinds whose reservoir degree depends on extreme predictions switch.
+    let switches = kind.is_some_and(|k| k.reservoir_order(false) != k.reservoir_order(true));
+    if wide > 0 && switches {
         out.push_str(&format!(
             "The default interval took its wider first-order reservoir term for {wide} of {} log-loss comparisons, where a method gave the observed class a probability at or below the log-loss clip (an exact 0 or 1) on some test row; see `docs/statistics.md`.\n\n",
             log_loss.len()
         ));
     }
-    if s.interval == "decomposed-skew" {
+    if kind == Some(IntervalKind::default()) {
         out.push_str("The intervals' coverage was checked by simulation on one synthetic population for five method pairs against Platt scaling: 90.9–97.5% for a nominal 95%, narrowest (about 91%) for Venn–Abers at 50–200 calibration rows; see `docs/statistics.md`.\n\n");
     }
     let few: Vec<usize> = a
@@ -163,7 +167,7 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
         .map(|p| p.repeats)
         .filter(|&r| r < REPEATS_CHECKED)
         .collect();
-    if let (Some(r), "decomposed-skew") = (few.iter().min(), s.interval.as_str()) {
+    if let (Some(r), true) = (few.iter().min(), kind == Some(IntervalKind::default())) {
         out.push_str(&format!(
             "**Note on intervals:** {} of {} comparisons rest on fewer than {REPEATS_CHECKED} repeats (as few as {r}; failed or one-class fits leave gaps). The coverage study of `docs/statistics.md` checked the default interval at {REPEATS_CHECKED} repeats and, against plain isotonic regression (which makes extreme log-loss predictions), at 10 (93.0–94.3% for log loss, nominal 95%); with fewer repeats the skewness of the differences is poorly estimated and coverage is unchecked.\n\n",
             few.len(),

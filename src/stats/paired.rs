@@ -119,6 +119,24 @@ impl IntervalKind {
             IntervalKind::DecomposedSkew => "decomposed-skew",
         }
     }
+
+    /// The kind named `s` (its suite name), if any.
+    pub fn parse(s: &str) -> Option<IntervalKind> {
+        IntervalKind::ALL.iter().copied().find(|k| k.as_str() == s)
+    }
+
+    /// The Hoeffding degree of the reservoir term: 2 for the decomposed
+    /// kinds unless a method made extreme predictions, 1 for
+    /// `decomposed-linear` always; `None` for kinds without the term.
+    pub fn reservoir_order(self, extreme: bool) -> Option<u32> {
+        match self {
+            IntervalKind::PairedT | IntervalKind::CorrectedT => None,
+            IntervalKind::DecomposedLinear => Some(1),
+            IntervalKind::Decomposed | IntervalKind::DecomposedSkew => {
+                Some(if extreme { 1 } else { 2 })
+            }
+        }
+    }
 }
 
 /// Number of fixed test-row batches whose mean row difference is recorded per unit.
@@ -306,7 +324,7 @@ fn two_way(x: &[Vec<f64>], cols: &[usize]) -> TwoWay {
 pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64), StatsError> {
     check(input)?;
     let r = input.diffs.len();
-    let (_, s2) = mean_var(input.diffs);
+    let (mean_d, s2) = mean_var(input.diffs);
     if input.size >= input.reservoir {
         return Err(StatsError::SizeNotBelowReservoir {
             size: input.size,
@@ -321,7 +339,6 @@ pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64)
     let reservoir = s2 * f;
     let mut test = None;
     // Third cumulant of a mean of R (or B) exchangeable values: m₃/R².
-    let mean_d = input.diffs.iter().sum::<f64>() / r as f64;
     let m3 = input
         .diffs
         .iter()
@@ -421,11 +438,7 @@ pub fn interval(
             // The second-order reservoir term needs a loss that is smooth at
             // the fitted predictions; with extreme predictions fall back to
             // the first-order bound.
-            let order = if kind != IntervalKind::DecomposedLinear && !input.extreme {
-                2
-            } else {
-                1
-            };
+            let order = kind.reservoir_order(input.extreme).unwrap_or(1);
             let (p, df) = decompose(input, order)?;
             let var = p.draws + p.reservoir + p.test.unwrap_or(0.0);
             if kind == IntervalKind::DecomposedSkew && var > 0.0 {

@@ -463,7 +463,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     };
     let interval = match &raw.interval {
         None => IntervalKind::default().as_str().to_string(),
-        Some(s) => match IntervalKind::ALL.iter().find(|k| k.as_str() == s.get_ref()) {
+        Some(s) => match IntervalKind::parse(s.get_ref()) {
             Some(k) => k.as_str().to_string(),
             None => {
                 let known: Vec<_> = IntervalKind::ALL.iter().map(|k| k.as_str()).collect();
