@@ -8,6 +8,7 @@ use anyhow::{bail, Context, Result};
 use sha2::{Digest, Sha256};
 
 use crate::analysis::{self, AnalysisSettings};
+use crate::metrics::reliability;
 use crate::report::{self, summary};
 use crate::run::{self, journal::Journal, output, table::UnitTable, RunOptions};
 use crate::stats::paired::IntervalKind;
@@ -248,12 +249,17 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
 
     let settings = settings_of(&plan);
     let a = analysis::analyse(&result.table, &settings);
+    // The figures are drawn from the reliability files as written, so that
+    // `plumbline report` redraws them byte for byte from the folder.
+    let (points, hist, terms) = reliability::to_csv(&result.curves);
+    let curves = reliability::from_csv(&points, &hist, &terms).map_err(anyhow::Error::msg)?;
     let ctx = summary::ReportContext {
         suite_name: plan.name.clone(),
         suite_file: shown(&args.suite),
         suite_sha256: plan.suite_sha256.clone(),
         seed: Some(plan.seed),
         settings: settings.clone(),
+        curves,
     };
     let mut units = Vec::new();
     result.table.write_csv(&mut units)?;
@@ -305,7 +311,7 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
     )?;
     output::commit(&staging, &out)?;
     Ok(RunSummary {
-        terminal: summary::terminal(&a, &settings),
+        terminal: summary::terminal(&a, &ctx),
         out,
         units: plan.unit_count(),
         resumed: result.resumed_units,
@@ -334,6 +340,30 @@ pub struct ReportArgs {
     pub primary_metric: Option<String>,
     pub confidence: Option<f64>,
     pub interval: Option<String>,
+    /// Print this task's table instead of the summary.
+    pub task: Option<String>,
+}
+
+/// The reliability curves of a results folder; none when the folder has no
+/// `reliability_terms.csv` (results written before curves existed).
+pub fn read_curves(dir: &Path) -> Result<Vec<reliability::CurveRecord>> {
+    let read = |name: &str| -> Result<Option<String>> {
+        let p = dir.join(name);
+        match std::fs::read_to_string(&p) {
+            Ok(t) => Ok(Some(t)),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => Ok(None),
+            Err(e) => Err(anyhow::Error::new(e).context(format!("cannot read {}", p.display()))),
+        }
+    };
+    let (Some(points), Some(hist), Some(terms)) = (
+        read("reliability.csv")?,
+        read("reliability_hist.csv")?,
+        read("reliability_terms.csv")?,
+    ) else {
+        return Ok(Vec::new());
+    };
+    reliability::from_csv(&points, &hist, &terms)
+        .map_err(|e| anyhow::anyhow!("{}: {e}", dir.display()))
 }
 
 /// `plumbline report`: rebuild every table from `units.csv` (settings from
@@ -432,9 +462,19 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
             .and_then(|s| s.get("seed"))
             .and_then(|v| v.as_u64()),
         settings: settings.clone(),
+        curves: read_curves(&args.dir)?,
     };
+    if let Some(task) = &args.task {
+        return summary::task_terminal(&a, &ctx, task).ok_or_else(|| {
+            anyhow::anyhow!(
+                "--task `{task}`: no such task in {} (tasks: {})",
+                units_path.display(),
+                a.tasks.join(", ")
+            )
+        });
+    }
     for (name, bytes) in report::publish(&a, &ctx) {
         output::write_file(&args.dir, &name, &bytes)?;
     }
-    Ok(summary::terminal(&a, &settings))
+    Ok(summary::terminal(&a, &ctx))
 }

@@ -37,8 +37,12 @@ enum Command {
     #[command(long_about = "\
 Run every unit (task × calibration size × repeat) of a suite in parallel and write the \
 results folder: manifest.json, units.csv, timings.csv, paired.csv, thresholds.csv, \
-summary.md, index.html, tables.tex and figures/, then print one table per task. Open-data \
-tasks first build their score pools (cached beside the results folder).
+reliability.csv (with reliability_hist.csv and reliability_terms.csv), summary.md, \
+index.html, tables.tex and figures/ (learning curves, reliability diagrams, rank and \
+threshold charts). Then print the decision: the team default and runner-up, where the \
+answer changes with the calibration size, the ranks and the data-size thresholds \
+(per-task tables: `plumbline report DIR --task ID`). Open-data tasks first build their \
+score pools (cached beside the results folder).
 
 The folder appears only when complete. Finished units are journaled as they finish: if a \
 run is interrupted, the same command resumes it. An existing results folder is kept \
@@ -65,10 +69,18 @@ unless --force is given.")]
         /// Suite file.
         suite: PathBuf,
     },
-    /// Rebuild paired.csv, summary.md and the tables from a results folder's units.csv.
+    /// Rebuild every table and figure from a results folder, or print one task's table.
+    #[command(long_about = "\
+Rebuild paired.csv, thresholds.csv, summary.md, index.html, tables.tex and the figures \
+from a results folder's units.csv and reliability*.csv (settings from manifest.json unless \
+overridden), then print the decision. With --task, print that task's table and write \
+nothing.")]
     Report {
         /// Results folder (holding units.csv).
         dir: PathBuf,
+        /// Print the table of this task (an id from the folder) instead of the summary.
+        #[arg(long, value_name = "ID")]
+        task: Option<String>,
         /// Reference method [default: the one recorded in manifest.json].
         #[arg(long)]
         reference: Option<String>,
@@ -156,6 +168,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
         }
         Command::Report {
             dir,
+            task,
             reference,
             primary_metric,
             confidence,
@@ -167,6 +180,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 primary_metric,
                 confidence,
                 interval,
+                task,
             })?;
             println!("{t}");
         }

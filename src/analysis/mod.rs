@@ -4,16 +4,20 @@
 
 use std::collections::BTreeMap;
 
+pub mod decision;
+pub mod steps;
+
+pub use decision::{decide, task_parts, Decision, SizeVerdict};
+pub use steps::{across_step, decision_metrics, threshold_step, StepInput};
+
 use crate::metrics::{Goal, MetricId};
 use crate::run::table::UnitTable;
-use crate::stats::across::{across_tasks, task_record, AcrossTasks};
+use crate::stats::across::AcrossTasks;
 use crate::stats::paired::Record;
 use crate::stats::paired::{
     interval, Interval, IntervalKind, PairedInput, EXTREME_ROWS, ROW_SUMMARY_NAMES,
 };
-use crate::stats::thresholds::{
-    summarize, thresholds as stats_thresholds, ThresholdSummary, Thresholds,
-};
+use crate::stats::thresholds::{ThresholdSummary, Thresholds};
 
 /// Settings the analysis needs (recorded in `manifest.json`, or given to
 /// `plumbline report` as flags).
@@ -134,14 +138,16 @@ pub struct Analysis {
     pub status_counts: BTreeMap<(String, usize, String), BTreeMap<String, usize>>,
     pub across: Vec<AcrossRow>,
     pub thresholds: Vec<ThresholdRow>,
-    /// Per pair: the summary over tasks.
-    pub threshold_summaries: Vec<((String, String), ThresholdSummary)>,
+    /// Per metric and pair: the summary over tasks.
+    pub threshold_summaries: Vec<(String, (String, String), ThresholdSummary)>,
+    /// The recommendation on each decision metric (the primary metric first).
+    pub decisions: Vec<Decision>,
 }
 
 /// Differences within this tolerance count as ties.
 pub const TIE_TOLERANCE: f64 = 1e-12;
 
-fn higher_is_better(metric: &str) -> bool {
+pub(crate) fn higher_is_better(metric: &str) -> bool {
     MetricId::parse(metric)
         .map(|m| m.higher_is_better())
         .unwrap_or(false)
@@ -184,7 +190,7 @@ pub struct PairRows {
     pub rows: Vec<(usize, usize)>,
 }
 
-fn pair_up(
+pub(crate) fn pair_up(
     table: &UnitTable,
     a: &BTreeMap<usize, usize>,
     b: &BTreeMap<usize, usize>,
@@ -426,139 +432,33 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
             }
         }
     }
-    // Across tasks, primary metric, per size.
-    let primary = settings.primary_metric.clone();
+    let metrics = decision_metrics(&settings.primary_metric, &table.metric_names);
     let mut across = Vec::new();
     let mut thresholds = Vec::new();
     let mut threshold_summaries = Vec::new();
-    if let Some(mi) = table.metric_index(&primary) {
-        let hib = higher_is_better(&primary);
-        let all_sizes: std::collections::BTreeSet<usize> =
-            sizes.values().flatten().copied().collect();
-        for &size in &all_sizes {
-            let mut rows = Vec::new();
-            let mut used = Vec::new();
-            for task in &tasks {
-                let vals: Option<Vec<f64>> = methods
-                    .iter()
-                    .map(|m| {
-                        summaries
-                            .iter()
-                            .find(|x| {
-                                x.task == *task
-                                    && x.size == size
-                                    && x.method == *m
-                                    && x.metric == primary
-                            })
-                            .and_then(|x| compared_value(&primary, x.mean))
-                            .filter(|v| v.is_finite())
-                            .map(|v| if hib { -v } else { v })
-                    })
-                    .collect();
-                if let Some(v) = vals {
-                    rows.push(v);
-                    used.push(task.clone());
-                }
-            }
-            if used.is_empty() {
-                continue;
-            }
-            let result = across_tasks(&rows, 0.05).map_err(|e| e.to_string());
-            let vs_reference = methods
-                .iter()
-                .filter(|m| **m != settings.reference)
-                .map(|m| {
-                    let ivs: Vec<Interval> = paired
-                        .iter()
-                        .filter(|p| {
-                            p.size == size
-                                && p.method == *m
-                                && p.metric == primary
-                                && used.contains(&p.task)
-                        })
-                        .filter(|p| p.ci_low.is_finite())
-                        .map(|p| {
-                            // Orient so that "below zero" means better.
-                            let (lo, hi, mean) = if hib {
-                                (-p.ci_high, -p.ci_low, -p.mean_diff)
-                            } else {
-                                (p.ci_low, p.ci_high, p.mean_diff)
-                            };
-                            Interval {
-                                kind: IntervalKind::default(),
-                                mean,
-                                low: lo,
-                                high: hi,
-                                se: p.se,
-                                df: f64::NAN,
-                                confidence: p.confidence,
-                                test_term: None,
-                                reservoir_order: None,
-                            }
-                        })
-                        .collect();
-                    (m.clone(), task_record(&ivs))
-                })
-                .collect();
-            across.push(AcrossRow {
-                size,
-                metric: primary.clone(),
-                tasks: used,
-                methods: methods.clone(),
-                result,
-                vs_reference,
-            });
-        }
-        // Thresholds for each pair on each task.
-        for (flex, para) in &settings.pairs {
-            let mut per_task = Vec::new();
-            for task in &tasks {
-                let mut pts = Vec::new();
-                let mut ivs = Vec::new();
-                for &size in &sizes[task] {
-                    let (Some(a), Some(b)) = (
-                        cells.get(&(task.clone(), size, flex.clone())),
-                        cells.get(&(task.clone(), size, para.clone())),
-                    ) else {
-                        continue;
-                    };
-                    let pr = pair_up(table, a, b, mi, &primary);
-                    if pr.diffs.len() < 2 {
-                        continue;
-                    }
-                    let mut iv = paired_interval(table, &pr, &primary, settings);
-                    if hib {
-                        iv = Interval {
-                            mean: -iv.mean,
-                            low: -iv.high,
-                            high: -iv.low,
-                            ..iv
-                        };
-                    }
-                    pts.push((size, iv.mean, iv.low, iv.high));
-                    if iv.low.is_finite() {
-                        ivs.push((size, iv));
-                    }
-                }
-                if pts.is_empty() {
-                    continue;
-                }
-                let result = stats_thresholds(&ivs).map_err(|e| e.to_string());
-                if let Ok(t) = &result {
-                    per_task.push(t.clone());
-                }
-                thresholds.push(ThresholdRow {
-                    task: task.clone(),
-                    flexible: flex.clone(),
-                    parametric: para.clone(),
-                    metric: primary.clone(),
-                    points: pts,
-                    result,
-                });
-            }
-            threshold_summaries.push(((flex.clone(), para.clone()), summarize(&per_task)));
-        }
+    for metric in &metrics {
+        let Some(mi) = table.metric_index(metric) else {
+            continue;
+        };
+        let ctx = StepInput {
+            table,
+            settings,
+            tasks: &tasks,
+            methods: &methods,
+            sizes: &sizes,
+            cells: &cells,
+            summaries: &summaries,
+            paired: &paired,
+        };
+        across.extend(across_step(&ctx, metric));
+        let (rows, sums) = threshold_step(&ctx, metric, mi);
+        thresholds.extend(rows);
+        threshold_summaries.extend(sums.into_iter().map(|(pair, s)| (metric.clone(), pair, s)));
     }
+    let decisions = metrics
+        .iter()
+        .filter_map(|m| decide(&across, table, &cells, settings, m))
+        .collect();
     Analysis {
         tasks,
         methods,
@@ -570,5 +470,6 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         across,
         thresholds,
         threshold_summaries,
+        decisions,
     }
 }

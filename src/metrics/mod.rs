@@ -26,6 +26,7 @@ pub mod decompose;
 pub mod ici;
 pub mod ranking;
 pub mod recalibration;
+pub mod reliability;
 pub mod scoring;
 pub mod smooth_ece;
 pub mod spiegelhalter;

@@ -1,20 +1,76 @@
 //! Figures as standalone SVG, written by hand so the bytes are reproducible
-//! (no fonts embedded, no timestamps, fixed number formatting).
+//! (no fonts embedded, no time stamps, fixed number formatting).
 //!
-//! One figure per task: the paired mean difference of each method to the
-//! reference against the calibration size (log scale), with the interval as a
-//! shaded band and a zero line — below zero is better for a loss. This is the
-//! picture behind the data-size question: where a flexible method's band
-//! crosses below zero and stays there.
+//! - **Learning curves** (`figures/<task>--<metric>.svg`): small multiples, one
+//!   panel per method, each with its own readable y range, the paired mean
+//!   difference to the reference against the calibration size (log scale),
+//!   the interval as a band, the zero line, and the size from which the method
+//!   is reliably better than the reference marked.
+//! - **Reliability diagrams** (`figures/<task>--reliability.svg`): per method
+//!   and calibration size, the CORP curve with its consistency band on a
+//!   probability panel and on a log-odds panel (which shows the tails), the
+//!   histogram of the predictions beneath, and the CORP terms of the Brier
+//!   score (see [`crate::metrics::reliability`]).
+//! - **Rank diagrams** (`figures/ranks--<metric>.svg`): per size, the average
+//!   ranks on an axis with the Nemenyi critical difference; methods whose
+//!   ranks differ by less than it are joined by a bar (the layout of Demšar
+//!   2006, JMLR 7).
+//! - **Threshold charts** (`figures/thresholds--<metric>.svg`): per task and
+//!   (flexible, parametric) pair, the size from which the flexible method is
+//!   reliably better at every larger size tried.
+//!
+//! Every method keeps one colour and one marker in every figure ([`style`]),
+//! from the Okabe & Ito (2008) colour-blind-safe palette.
 
 use super::fmt_diff;
 use crate::analysis::Analysis;
+use crate::metrics::reliability::{CurveRecord, HIST_LOGIT_BINS, HIST_P_BINS, LOGIT_RANGE};
 use crate::metrics::MetricId;
 
-/// Okabe & Ito (2008) colour-blind-safe palette.
+/// Okabe & Ito (2008) colour-blind-safe palette (black last).
 const COLOURS: [&str; 8] = [
-    "#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442", "#000000",
+    "#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000", "#F0E442",
 ];
+
+/// Marker shapes; past eight methods the colours repeat with another shape
+/// and a dashed line.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Marker {
+    Circle,
+    Square,
+    Triangle,
+}
+
+/// How one method is drawn.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Style {
+    pub colour: &'static str,
+    pub marker: Marker,
+    pub dashed: bool,
+}
+
+/// The style of the method at position `i` in the suite's method list.
+pub fn style(i: usize) -> Style {
+    let round = i / COLOURS.len();
+    Style {
+        colour: COLOURS[i % COLOURS.len()],
+        marker: [Marker::Circle, Marker::Square, Marker::Triangle][round % 3],
+        dashed: round > 0,
+    }
+}
+
+/// The style of a method by name (`uncalibrated` takes the identity method's
+/// style when the suite has none: black squares).
+pub fn style_of(a: &Analysis, method: &str) -> Style {
+    match a.methods.iter().position(|m| m == method) {
+        Some(i) => style(i),
+        None => Style {
+            colour: "#555555",
+            marker: Marker::Square,
+            dashed: true,
+        },
+    }
+}
 
 fn esc(s: &str) -> String {
     s.replace('&', "&amp;")
@@ -24,7 +80,54 @@ fn esc(s: &str) -> String {
 }
 
 fn f(v: f64) -> String {
-    format!("{v:.2}")
+    let s = format!("{v:.1}");
+    if s == "-0.0" {
+        "0.0".into()
+    } else {
+        s
+    }
+}
+
+fn marker(m: Marker, x: f64, y: f64, r: f64, fill: &str) -> String {
+    match m {
+        Marker::Circle => format!(
+            "<circle cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"{fill}\"/>",
+            f(x),
+            f(y),
+            f(r)
+        ),
+        Marker::Square => format!(
+            "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" fill=\"{fill}\"/>",
+            f(x - r),
+            f(y - r),
+            f(2.0 * r),
+            f(2.0 * r)
+        ),
+        Marker::Triangle => format!(
+            "<path d=\"M{} {}L{} {}L{} {}Z\" fill=\"{fill}\"/>",
+            f(x),
+            f(y - 1.2 * r),
+            f(x + 1.1 * r),
+            f(y + 0.8 * r),
+            f(x - 1.1 * r),
+            f(y + 0.8 * r)
+        ),
+    }
+}
+
+fn dash(s: Style) -> &'static str {
+    if s.dashed {
+        " stroke-dasharray=\"6 3\""
+    } else {
+        ""
+    }
+}
+
+fn open_svg(w: f64, h: f64, label: &str) -> String {
+    format!(
+        "<svg xmlns=\"http://www.w3.org/2000/svg\" viewBox=\"0 0 {w} {h}\" width=\"{w}\" height=\"{h}\" font-family=\"sans-serif\" font-size=\"11\" role=\"img\" aria-label=\"{}\">\n<rect width=\"{w}\" height=\"{h}\" fill=\"white\"/>\n",
+        esc(label)
+    )
 }
 
 /// "Nice" tick values covering [lo, hi].
@@ -47,16 +150,18 @@ fn ticks(lo: f64, hi: f64, n: usize) -> Vec<f64> {
     out
 }
 
-/// One method's points of a difference figure: (size, mean, low, high).
-type Series<'a> = (&'a String, Vec<(usize, f64, f64, f64)>);
+fn higher_is_better(metric: &str) -> bool {
+    MetricId::parse(metric)
+        .map(|m| m.higher_is_better())
+        .unwrap_or(false)
+}
 
-/// The difference-vs-size figure for one task and metric.
-pub fn diff_figure(a: &Analysis, task: &str, metric: &str, reference: &str) -> Option<String> {
+/// Learning curves of one task: one panel per method against the reference.
+pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) -> Option<String> {
     let sizes = a.sizes.get(task)?;
-    if sizes.is_empty() {
-        return None;
-    }
-    let series: Vec<Series> = a
+    let (xmin, xmax) = ((*sizes.first()? as f64).ln(), (*sizes.last()? as f64).ln());
+    let xspan = if xmax > xmin { xmax - xmin } else { 1.0 };
+    let panels: Vec<(&String, Vec<(usize, f64, f64, f64)>)> = a
         .methods
         .iter()
         .filter(|m| *m != reference)
@@ -65,10 +170,7 @@ pub fn diff_figure(a: &Analysis, task: &str, metric: &str, reference: &str) -> O
                 .paired
                 .iter()
                 .filter(|p| {
-                    p.task == task
-                        && p.metric == metric
-                        && &p.method == m
-                        && p.mean_diff.is_finite()
+                    p.task == task && p.metric == metric && &p.method == m && p.mean_diff.is_finite()
                 })
                 .map(|p| (p.size, p.mean_diff, p.ci_low, p.ci_high))
                 .collect::<Vec<_>>();
@@ -76,121 +178,100 @@ pub fn diff_figure(a: &Analysis, task: &str, metric: &str, reference: &str) -> O
         })
         .filter(|(_, p)| !p.is_empty())
         .collect();
-    if series.is_empty() {
+    if panels.is_empty() {
         return None;
     }
-    let (w, h) = (720.0, 420.0);
-    let (ml, mr, mt, mb) = (80.0, 170.0, 40.0, 50.0);
-    let pw = w - ml - mr;
-    let ph = h - mt - mb;
-    let xmin = (*sizes.first()? as f64).ln();
-    let xmax = (*sizes.last()? as f64).ln();
-    let xspan = if xmax > xmin { xmax - xmin } else { 1.0 };
-    let mut ylo = 0.0f64;
-    let mut yhi = 0.0f64;
-    for (_, pts) in &series {
-        for &(_, m, lo, hi) in pts {
-            for v in [m, lo, hi] {
+    let cols = 4usize;
+    let rows = panels.len().div_ceil(cols);
+    let (pw, ph) = (170.0, 110.0);
+    let (ml, mt, gap_x, gap_y) = (58.0, 52.0, 26.0, 48.0);
+    let w = ml + cols as f64 * (pw + gap_x) + 10.0;
+    let h = mt + rows as f64 * (ph + gap_y) + 10.0;
+    let better = if higher_is_better(metric) { "above" } else { "below" };
+    let mut s = open_svg(
+        w,
+        h,
+        &format!("{task}: {metric} difference to {reference} by calibration size"),
+    );
+    s.push_str(&format!(
+        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">{}: mean {} of each method − {}</text>\n",
+        esc(task),
+        esc(metric),
+        esc(reference)
+    ));
+    s.push_str(&format!(
+        "<text x=\"10\" y=\"35\" fill=\"#444\">band: paired interval; {better} the zero line is better; dotted line: size from which the method is reliably better than {} at every larger size</text>\n",
+        esc(reference)
+    ));
+    for (k, (m, pts)) in panels.iter().enumerate() {
+        let st = style_of(a, m);
+        let (cx, cy) = (
+            ml + (k % cols) as f64 * (pw + gap_x),
+            mt + (k / cols) as f64 * (ph + gap_y),
+        );
+        let (mut lo, mut hi) = (0.0f64, 0.0f64);
+        for &(_, d, l, u) in pts {
+            for v in [d, l, u] {
                 if v.is_finite() {
-                    ylo = ylo.min(v);
-                    yhi = yhi.max(v);
+                    lo = lo.min(v);
+                    hi = hi.max(v);
                 }
             }
         }
-    }
-    let pad = (yhi - ylo).max(1e-9) * 0.06;
-    ylo -= pad;
-    yhi += pad;
-    let x = |n: usize| ml + ((n as f64).ln() - xmin) / xspan * pw;
-    let y = |v: f64| mt + (yhi - v) / (yhi - ylo) * ph;
-    let mut s = String::new();
-    s.push_str(&format!(
-        "<svg xmlns=\"http://www.w3.org/2000/svg\" viewBox=\"0 0 {w} {h}\" width=\"{w}\" height=\"{h}\" font-family=\"sans-serif\" font-size=\"12\">\n"
-    ));
-    s.push_str(&format!(
-        "<rect width=\"{w}\" height=\"{h}\" fill=\"white\"/>\n"
-    ));
-    let better = if MetricId::parse(metric)
-        .map(|m| m.higher_is_better())
-        .unwrap_or(false)
-    {
-        "above"
-    } else {
-        "below"
-    };
-    s.push_str(&format!(
-        "<text x=\"{}\" y=\"22\" font-size=\"14\">{}: {} − {} ({} zero is better)</text>\n",
-        ml,
-        esc(task),
-        esc(metric),
-        esc(reference),
-        better
-    ));
-    // Grid and axes.
-    for t in ticks(ylo, yhi, 6) {
-        let yy = y(t);
+        let pad = (hi - lo).max(1e-9) * 0.08;
+        let (lo, hi) = (lo - pad, hi + pad);
+        let x = |n: usize| cx + ((n as f64).ln() - xmin) / xspan * pw;
+        let y = |v: f64| cy + (hi - v) / (hi - lo) * ph;
         s.push_str(&format!(
-            "<line x1=\"{ml}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#e5e5e5\"/>\n",
-            ml + pw,
-            f(yy),
-            f(yy)
+            "<g><text x=\"{}\" y=\"{}\" font-size=\"12\" font-weight=\"bold\" fill=\"{}\">{}</text>\n",
+            f(cx),
+            f(cy - 6.0),
+            st.colour,
+            esc(m)
         ));
         s.push_str(&format!(
-            "<text x=\"{}\" y=\"{}\" text-anchor=\"end\">{}</text>\n",
-            ml - 6.0,
-            f(yy + 4.0),
-            esc(&fmt_diff(t))
+            "<rect x=\"{}\" y=\"{}\" width=\"{pw}\" height=\"{ph}\" fill=\"#fafafa\" stroke=\"#bbb\"/>\n",
+            f(cx),
+            f(cy)
         ));
-    }
-    for &n in sizes {
-        let xx = x(n);
+        for t in ticks(lo, hi, 4) {
+            s.push_str(&format!(
+                "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"9\">{}</text>\n",
+                f(cx - 3.0),
+                f(y(t) + 3.0),
+                esc(&fmt_diff(t))
+            ));
+        }
+        for &n in sizes {
+            s.push_str(&format!(
+                "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"9\">{n}</text>\n",
+                f(x(n)),
+                f(cy + ph + 11.0)
+            ));
+        }
         s.push_str(&format!(
-            "<line x1=\"{}\" x2=\"{}\" y1=\"{mt}\" y2=\"{}\" stroke=\"#f0f0f0\"/>\n",
-            f(xx),
-            f(xx),
-            mt + ph
+            "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\"/>\n",
+            f(cx),
+            f(cx + pw),
+            f(y(0.0)),
+            f(y(0.0))
         ));
-        s.push_str(&format!(
-            "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">{n}</text>\n",
-            f(xx),
-            mt + ph + 18.0
-        ));
-    }
-    s.push_str(&format!(
-        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">calibration-set size (log scale)</text>\n",
-        ml + pw / 2.0,
-        h - 10.0
-    ));
-    s.push_str(&format!(
-        "<line x1=\"{ml}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\" stroke-width=\"1.2\"/>\n",
-        ml + pw,
-        f(y(0.0)),
-        f(y(0.0))
-    ));
-    s.push_str(&format!("<rect x=\"{ml}\" y=\"{mt}\" width=\"{pw}\" height=\"{ph}\" fill=\"none\" stroke=\"#999\"/>\n"));
-    for (i, (m, pts)) in series.iter().enumerate() {
-        let c = COLOURS[i % COLOURS.len()];
-        // Past eight series the colours repeat: tell them apart by dashes.
-        let dash = match i / COLOURS.len() {
-            0 => "",
-            1 => " stroke-dasharray=\"7 3\"",
-            _ => " stroke-dasharray=\"2 3\"",
-        };
         let band: Vec<String> = pts
             .iter()
-            .filter(|p| p.2.is_finite())
+            .filter(|p| p.2.is_finite() && p.3.is_finite())
             .map(|p| format!("{},{}", f(x(p.0)), f(y(p.3))))
             .chain(
                 pts.iter()
                     .rev()
-                    .filter(|p| p.2.is_finite())
+                    .filter(|p| p.2.is_finite() && p.3.is_finite())
                     .map(|p| format!("{},{}", f(x(p.0)), f(y(p.2)))),
             )
             .collect();
         if !band.is_empty() {
             s.push_str(&format!(
-                "<polygon points=\"{}\" fill=\"{c}\" fill-opacity=\"0.15\" stroke=\"none\"/>\n",
-                band.join(" ")
+                "<polygon points=\"{}\" fill=\"{}\" fill-opacity=\"0.2\"/>\n",
+                band.join(" "),
+                st.colour
             ));
         }
         let line: Vec<String> = pts
@@ -198,38 +279,508 @@ pub fn diff_figure(a: &Analysis, task: &str, metric: &str, reference: &str) -> O
             .map(|p| format!("{},{}", f(x(p.0)), f(y(p.1))))
             .collect();
         s.push_str(&format!(
-            "<polyline points=\"{}\" fill=\"none\" stroke=\"{c}\" stroke-width=\"2\"{dash}/>\n",
-            line.join(" ")
+            "<polyline points=\"{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>\n",
+            line.join(" "),
+            st.colour,
+            dash(st)
         ));
         for p in pts {
+            s.push_str(&marker(st.marker, x(p.0), y(p.1), 2.8, st.colour));
+        }
+        s.push('\n');
+        // Reliably better than the reference from this size on.
+        let hib = higher_is_better(metric);
+        let mut from = None;
+        for p in pts.iter().rev() {
+            let better = if hib { p.2 > 0.0 } else { p.3 < 0.0 };
+            if better {
+                from = Some(p.0);
+            } else {
+                break;
+            }
+        }
+        if let Some(n) = from {
             s.push_str(&format!(
-                "<circle cx=\"{}\" cy=\"{}\" r=\"3\" fill=\"{c}\"/>\n",
-                f(x(p.0)),
-                f(y(p.1))
+                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\" stroke-dasharray=\"2 2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\">better from {n}</text>\n",
+                f(x(n)),
+                f(x(n)),
+                f(cy),
+                f(cy + ph),
+                f(x(n) + 2.0),
+                f(cy + 10.0)
             ));
         }
-        let ly = mt + 14.0 + 18.0 * i as f64;
+        s.push_str("</g>\n");
+    }
+    s.push_str(&format!(
+        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" fill=\"#444\">calibration-set size (log scale)</text>\n",
+        f(w / 2.0),
+        f(h - 4.0)
+    ));
+    s.push_str("</svg>\n");
+    Some(s)
+}
+
+fn logit(p: f64) -> f64 {
+    let p = p.clamp(1e-300, 1.0);
+    (p.ln() - (-p).ln_1p()).clamp(-LOGIT_RANGE, LOGIT_RANGE)
+}
+
+/// One reliability panel: curve, band and diagonal in a square; `log_odds`
+/// switches both axes to the log-odds scale. Returns the SVG fragment.
+fn reliability_panel(
+    c: &crate::metrics::reliability::Curve,
+    st: Style,
+    x0: f64,
+    y0: f64,
+    side: f64,
+    log_odds: bool,
+) -> String {
+    let r = if log_odds {
+        // Range of the panel: the data's log-odds range, at least ±4.
+        let mut m: f64 = 4.0;
+        for p in &c.points {
+            for v in [p.x, p.y, p.low, p.high] {
+                if v > 0.0 && v < 1.0 {
+                    m = m.max(logit(v).abs());
+                }
+            }
+        }
+        m.ceil().min(LOGIT_RANGE)
+    } else {
+        1.0
+    };
+    let tr = |v: f64| if log_odds { logit(v).clamp(-r, r) } else { v };
+    let (lo, hi) = if log_odds { (-r, r) } else { (0.0, 1.0) };
+    let px = |v: f64| x0 + (tr(v) - lo) / (hi - lo) * side;
+    let py = |v: f64| y0 + side - (tr(v) - lo) / (hi - lo) * side;
+    let mut s = format!(
+        "<rect x=\"{}\" y=\"{}\" width=\"{side}\" height=\"{side}\" fill=\"#fcfcfc\" stroke=\"#bbb\"/>",
+        f(x0),
+        f(y0)
+    );
+    // Ticks.
+    let tick_values: Vec<(f64, String)> = if log_odds {
+        let step = if r > 8.0 { 4.0 } else { 2.0 };
+        let mut v = Vec::new();
+        let mut t = -(r / step).floor() * step;
+        while t <= r + 1e-9 {
+            let p = 1.0 / (1.0 + (-t).exp());
+            v.push((p, format!("{t:.0}")));
+            t += step;
+        }
+        v
+    } else {
+        [0.0, 0.25, 0.5, 0.75, 1.0]
+            .iter()
+            .map(|&t| (t, format!("{t}")))
+            .collect()
+    };
+    for (p, label) in &tick_values {
         s.push_str(&format!(
-            "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"{c}\" stroke-width=\"3\"{dash}/>\n",
-            ml + pw + 12.0,
-            ml + pw + 32.0,
-            f(ly - 4.0),
-            f(ly - 4.0)
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"8\" fill=\"#555\">{label}</text><text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"8\" fill=\"#555\">{label}</text>",
+            f(px(*p)),
+            f(y0 + side + 9.0),
+            f(x0 - 2.0),
+            f(py(*p) + 3.0)
         ));
+    }
+    // Diagonal.
+    s.push_str(&format!(
+        "<line x1=\"{}\" y1=\"{}\" x2=\"{}\" y2=\"{}\" stroke=\"#999\" stroke-dasharray=\"3 2\"/>",
+        f(x0),
+        f(y0 + side),
+        f(x0 + side),
+        f(y0)
+    ));
+    let pts: Vec<_> = c
+        .points
+        .iter()
+        .filter(|p| p.low.is_finite() && p.high.is_finite())
+        .collect();
+    if !pts.is_empty() {
+        let band: Vec<String> = pts
+            .iter()
+            .map(|p| format!("{},{}", f(px(p.x)), f(py(p.high))))
+            .chain(
+                pts.iter()
+                    .rev()
+                    .map(|p| format!("{},{}", f(px(p.x)), f(py(p.low)))),
+            )
+            .collect();
         s.push_str(&format!(
-            "<text x=\"{}\" y=\"{}\">{}</text>\n",
-            ml + pw + 38.0,
-            f(ly),
+            "<polygon points=\"{}\" fill=\"#8a8a8a\" fill-opacity=\"0.25\"/>",
+            band.join(" ")
+        ));
+    }
+    let line: Vec<String> = c
+        .points
+        .iter()
+        .map(|p| format!("{},{}", f(px(p.x)), f(py(p.y))))
+        .collect();
+    s.push_str(&format!(
+        "<polyline points=\"{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>",
+        line.join(" "),
+        st.colour,
+        dash(st)
+    ));
+    // Histogram beneath.
+    let hist = if log_odds { &c.hist_logit } else { &c.hist_p };
+    let bins = hist.len().max(1);
+    let top = hist.iter().copied().max().unwrap_or(0).max(1) as f64;
+    let (hy, hh) = (y0 + side + 13.0, 22.0);
+    let mut d = String::new();
+    for (b, &n) in hist.iter().enumerate() {
+        if n == 0 {
+            continue;
+        }
+        let (bl, bh) = if log_odds {
+            let l = b as f64 - LOGIT_RANGE;
+            (l.max(-r), (l + 1.0).min(r))
+        } else {
+            (b as f64 / bins as f64, (b + 1) as f64 / bins as f64)
+        };
+        if bh <= bl {
+            continue;
+        }
+        let xa = x0 + (bl - lo) / (hi - lo) * side;
+        let xb = x0 + (bh - lo) / (hi - lo) * side;
+        let hgt = (n as f64 / top).sqrt() * hh;
+        d.push_str(&format!(
+            "M{} {}h{}v{}h{}Z",
+            f(xa),
+            f(hy + hh),
+            f(xb - xa),
+            f(-hgt),
+            f(xa - xb)
+        ));
+    }
+    s.push_str(&format!(
+        "<path d=\"{d}\" fill=\"{}\" fill-opacity=\"0.55\"/>",
+        st.colour
+    ));
+    s
+}
+
+/// The reliability figure of one task: rows = series (uncalibrated scores and
+/// methods), columns = calibration sizes, each with a probability panel and a
+/// log-odds panel. `None` when the folder has no curves for the task.
+pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> Option<String> {
+    let mine: Vec<&CurveRecord> = curves.iter().filter(|c| c.task == task).collect();
+    if mine.is_empty() {
+        return None;
+    }
+    let mut sizes: Vec<usize> = mine.iter().map(|c| c.size).collect();
+    sizes.sort_unstable();
+    sizes.dedup();
+    let mut series: Vec<&str> = Vec::new();
+    for c in &mine {
+        if !series.contains(&c.curve.method.as_str()) {
+            series.push(&c.curve.method);
+        }
+    }
+    let side = 120.0;
+    let (ml, mt) = (110.0, 66.0);
+    let cell_w = 2.0 * side + 70.0;
+    let row_h = side + 62.0;
+    let w = ml + sizes.len() as f64 * cell_w + 10.0;
+    let h = mt + series.len() as f64 * row_h + 6.0;
+    let mut s = open_svg(w, h, &format!("{task}: reliability diagrams"));
+    let first = mine[0];
+    s.push_str(&format!(
+        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">{}: reliability on the test set ({} rows), repeat {}</text>\n",
+        esc(task),
+        first.curve.test_rows,
+        first.repeat
+    ));
+    s.push_str(&format!(
+        "<text x=\"10\" y=\"34\" fill=\"#444\">line: CORP curve (isotonic fit of outcome on prediction); grey: {:.0}% consistency band from {} label draws under calibration; dashed: diagonal</text>\n",
+        first.curve.level * 100.0,
+        first.curve.draws
+    ));
+    s.push_str("<text x=\"10\" y=\"48\" fill=\"#444\">left of each pair: probability scale; right: log-odds scale (tails); bars: share of predictions (square-root height); BS = MCB − DSC + UNC</text>\n");
+    for (j, &n) in sizes.iter().enumerate() {
+        s.push_str(&format!(
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"12\" font-weight=\"bold\">calibration size n = {n}</text>\n",
+            f(ml + j as f64 * cell_w + cell_w / 2.0 - 20.0),
+            f(mt - 6.0)
+        ));
+    }
+    for (i, m) in series.iter().enumerate() {
+        let st = style_of(a, m);
+        let y0 = mt + i as f64 * row_h + 4.0;
+        s.push_str(&format!(
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"12\" font-weight=\"bold\" fill=\"{}\">{}</text>\n",
+            f(ml - 30.0),
+            f(y0 + side / 2.0),
+            st.colour,
             esc(m)
         ));
+        for (j, &n) in sizes.iter().enumerate() {
+            let Some(c) = mine.iter().find(|c| c.size == n && c.curve.method == *m) else {
+                continue;
+            };
+            let x0 = ml + j as f64 * cell_w;
+            s.push_str("<g>");
+            s.push_str(&reliability_panel(&c.curve, st, x0, y0, side, false));
+            s.push_str(&reliability_panel(
+                &c.curve,
+                st,
+                x0 + side + 22.0,
+                y0,
+                side,
+                true,
+            ));
+            s.push_str(&format!(
+                "<text x=\"{}\" y=\"{}\" font-size=\"9\">BS {:.4} = MCB {:.4} − DSC {:.4} + UNC {:.4}; {} of {} points outside band</text>",
+                f(x0),
+                f(y0 + side + 48.0),
+                c.curve.brier,
+                c.curve.mcb,
+                c.curve.dsc,
+                c.curve.unc,
+                c.curve.outside,
+                c.curve.points.len()
+            ));
+            s.push_str("</g>\n");
+        }
+    }
+    s.push_str("</svg>\n");
+    let _ = (HIST_P_BINS, HIST_LOGIT_BINS);
+    Some(s)
+}
+
+/// Groups of methods whose average ranks lie within `cd` of each other:
+/// maximal runs of consecutive methods (in rank order) spanning less than the
+/// critical difference, as drawn in Demšar (2006, fig. 1).
+pub fn cd_groups(sorted_ranks: &[f64], cd: f64) -> Vec<(usize, usize)> {
+    let n = sorted_ranks.len();
+    let mut out: Vec<(usize, usize)> = Vec::new();
+    for i in 0..n {
+        let mut j = i;
+        while j + 1 < n && sorted_ranks[j + 1] - sorted_ranks[i] < cd {
+            j += 1;
+        }
+        if j > i && !out.iter().any(|&(a, b)| a <= i && j <= b) {
+            out.push((i, j));
+        }
+    }
+    out
+}
+
+/// The rank diagram of one metric: one strip per calibration size.
+pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
+    let rows: Vec<_> = a
+        .across
+        .iter()
+        .filter(|r| r.metric == metric)
+        .filter_map(|r| r.result.as_ref().ok().map(|x| (r, x)))
+        .collect();
+    if rows.is_empty() {
+        return None;
+    }
+    let k = rows[0].0.methods.len();
+    let half = k.div_ceil(2);
+    let (w, ml, mr) = (900.0, 230.0, 230.0);
+    let aw = w - ml - mr;
+    let strip = 52.0 + 15.0 * half as f64;
+    let mt = 50.0;
+    let h = mt + strip * rows.len() as f64 + 10.0;
+    let mut s = open_svg(w, h, &format!("average ranks by calibration size, {metric}"));
+    s.push_str(&format!(
+        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">Average rank of mean {} across tasks (1 = best)</text>\n",
+        esc(metric)
+    ));
+    s.push_str("<text x=\"10\" y=\"34\" fill=\"#444\">thick bars join methods whose average ranks differ by less than the Nemenyi critical difference (CD, α = 0.05): no reliable difference between them</text>\n");
+    for (ri, (r, x)) in rows.iter().enumerate() {
+        let y0 = mt + ri as f64 * strip;
+        let mut order: Vec<usize> = (0..k).collect();
+        order.sort_by(|&i, &j| x.friedman.avg_ranks[i].total_cmp(&x.friedman.avg_ranks[j]));
+        let px = |rank: f64| ml + (rank - 1.0) / (k as f64 - 1.0).max(1.0) * aw;
+        let axis_y = y0 + 22.0;
+        s.push_str(&format!(
+            "<text x=\"10\" y=\"{}\" font-size=\"12\" font-weight=\"bold\">n = {} ({} tasks)</text>\n",
+            f(axis_y - 8.0),
+            r.size,
+            r.tasks.len()
+        ));
+        s.push_str(&format!(
+            "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\"/>\n",
+            f(ml),
+            f(ml + aw),
+            f(axis_y),
+            f(axis_y)
+        ));
+        for t in 1..=k {
+            s.push_str(&format!(
+                "<line x1=\"{0}\" x2=\"{0}\" y1=\"{1}\" y2=\"{2}\" stroke=\"#333\"/><text x=\"{0}\" y=\"{3}\" text-anchor=\"middle\" font-size=\"9\">{t}</text>\n",
+                f(px(t as f64)),
+                f(axis_y - 4.0),
+                f(axis_y),
+                f(axis_y - 7.0)
+            ));
+        }
+        if let Some(cd) = x.cd_05 {
+            s.push_str(&format!(
+                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#B22222\" stroke-width=\"2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\" fill=\"#B22222\">CD {cd:.2}</text>\n",
+                f(ml + aw + 10.0),
+                f(ml + aw + 10.0 + cd / (k as f64 - 1.0).max(1.0) * aw),
+                f(axis_y - 12.0),
+                f(axis_y - 12.0),
+                f(ml + aw + 10.0),
+                f(axis_y - 16.0)
+            ));
+            let sorted: Vec<f64> = order.iter().map(|&i| x.friedman.avg_ranks[i]).collect();
+            for (g, &(i, j)) in cd_groups(&sorted, cd).iter().enumerate() {
+                let yy = axis_y + 6.0 + 4.0 * (g % 4) as f64;
+                s.push_str(&format!(
+                    "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#222\" stroke-width=\"3\"/>\n",
+                    f(px(sorted[i]) - 3.0),
+                    f(px(sorted[j]) + 3.0),
+                    f(yy),
+                    f(yy)
+                ));
+            }
+        }
+        for (pos, &mi) in order.iter().enumerate() {
+            let m = &r.methods[mi];
+            let st = style_of(a, m);
+            let rank = x.friedman.avg_ranks[mi];
+            let xr = px(rank);
+            let left = pos < half;
+            let line_y = axis_y + 26.0 + 15.0 * if left { pos } else { k - 1 - pos } as f64;
+            let xt = if left { ml - 8.0 } else { ml + aw + 8.0 };
+            s.push_str(&format!(
+                "<path d=\"M{} {}V{}H{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.2\"/>{}<text x=\"{}\" y=\"{}\" text-anchor=\"{}\" fill=\"{}\">{} {rank:.2}</text>\n",
+                f(xr),
+                f(axis_y),
+                f(line_y),
+                f(xt),
+                st.colour,
+                marker(st.marker, xr, axis_y, 3.0, st.colour),
+                f(if left { xt - 4.0 } else { xt + 4.0 }),
+                f(line_y + 4.0),
+                if left { "end" } else { "start" },
+                st.colour,
+                esc(m)
+            ));
+        }
     }
     s.push_str("</svg>\n");
     Some(s)
 }
 
-/// File name of a task's figure.
+/// Sequential blues for sizes on a log scale (light = small).
+fn size_colour(frac: f64) -> String {
+    let (a, b) = ((222.0, 235.0, 247.0), (8.0, 48.0, 107.0));
+    let t = frac.clamp(0.0, 1.0);
+    format!(
+        "#{:02x}{:02x}{:02x}",
+        (a.0 + (b.0 - a.0) * t) as u8,
+        (a.1 + (b.1 - a.1) * t) as u8,
+        (a.2 + (b.2 - a.2) * t) as u8
+    )
+}
+
+/// The threshold chart of one metric: rows = tasks, columns = pairs.
+pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
+    let rows: Vec<_> = a.thresholds.iter().filter(|t| t.metric == metric).collect();
+    if rows.is_empty() {
+        return None;
+    }
+    let mut pairs: Vec<(&str, &str)> = Vec::new();
+    let mut tasks: Vec<&str> = Vec::new();
+    for t in &rows {
+        if !pairs.contains(&(t.flexible.as_str(), t.parametric.as_str())) {
+            pairs.push((&t.flexible, &t.parametric));
+        }
+        if !tasks.contains(&t.task.as_str()) {
+            tasks.push(&t.task);
+        }
+    }
+    let all: Vec<usize> = a.sizes.values().flatten().copied().collect();
+    let (smin, smax) = (
+        all.iter().copied().min().unwrap_or(1).max(1) as f64,
+        all.iter().copied().max().unwrap_or(1).max(1) as f64,
+    );
+    let frac = |n: usize| {
+        if smax > smin {
+            ((n as f64).ln() - smin.ln()) / (smax.ln() - smin.ln())
+        } else {
+            0.5
+        }
+    };
+    let (cw, rh, ml, mt) = (50.0, 15.0, 190.0, 150.0);
+    let w = ml + cw * pairs.len() as f64 + 20.0;
+    let h = mt + rh * tasks.len() as f64 + 60.0;
+    let mut s = open_svg(w, h, &format!("data-size thresholds, {metric}"));
+    s.push_str(&format!(
+        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">From which calibration size a flexible method is reliably better ({})</text>\n",
+        esc(metric)
+    ));
+    s.push_str("<text x=\"10\" y=\"34\" fill=\"#444\">cell: smallest size tried from which the flexible method beats the parametric one at every larger size; darker = larger; “–” = not within the sizes tried; “?” = no result</text>\n");
+    for (j, (fl, pa)) in pairs.iter().enumerate() {
+        let x = ml + cw * j as f64 + cw / 2.0;
+        s.push_str(&format!(
+            "<text transform=\"translate({},{}) rotate(-55)\" font-size=\"10\"><tspan fill=\"{}\">{}</tspan> vs <tspan fill=\"{}\">{}</tspan></text>\n",
+            f(x),
+            f(mt - 6.0),
+            style_of(a, fl).colour,
+            esc(fl),
+            style_of(a, pa).colour,
+            esc(pa)
+        ));
+    }
+    for (i, task) in tasks.iter().enumerate() {
+        let y = mt + rh * i as f64;
+        s.push_str(&format!(
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"10\">{}</text>\n",
+            f(ml - 6.0),
+            f(y + rh - 4.0),
+            esc(task)
+        ));
+        for (j, (fl, pa)) in pairs.iter().enumerate() {
+            let x = ml + cw * j as f64;
+            let cell = rows
+                .iter()
+                .find(|t| t.task == *task && t.flexible == *fl && t.parametric == *pa);
+            let (fill, text, ink) = match cell.map(|t| &t.result) {
+                Some(Ok(r)) => match r.better_from {
+                    Some(n) => {
+                        let fr = frac(n);
+                        (
+                            size_colour(fr),
+                            n.to_string(),
+                            if fr > 0.5 { "#fff" } else { "#000" },
+                        )
+                    }
+                    None => ("#f2f2f2".to_string(), "–".to_string(), "#666"),
+                },
+                _ => ("#ffffff".to_string(), "?".to_string(), "#999"),
+            };
+            s.push_str(&format!(
+                "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" fill=\"{fill}\" stroke=\"#fff\"/><text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"9\" fill=\"{ink}\">{text}</text>\n",
+                f(x),
+                f(y),
+                f(cw - 1.0),
+                f(rh - 1.0),
+                f(x + cw / 2.0),
+                f(y + rh - 4.0)
+            ));
+        }
+    }
+    s.push_str("</svg>\n");
+    Some(s)
+}
+
+/// File name of a task's learning-curve figure.
 pub fn figure_name(task: &str, metric: &str) -> String {
     format!("figures/{task}--{metric}.svg")
+}
+
+/// File name of a task's reliability figure.
+pub fn reliability_name(task: &str) -> String {
+    format!("figures/{task}--reliability.svg")
 }
 
 #[cfg(test)]
@@ -242,5 +793,27 @@ mod tests {
         assert!(t.first().unwrap() >= &-0.013 && t.last().unwrap() <= &0.041);
         assert!(t.contains(&0.0));
         assert!(t.len() >= 3);
+    }
+
+    /// Hand-worked: with CD 1.2, ranks 1.0, 1.5, 2.6, 3.0, 4.5 form the runs
+    /// {1.0, 1.5}, {1.5, 2.6}, {2.6, 3.0}; 4.5 stands alone; a run inside a
+    /// longer one is not drawn again.
+    #[test]
+    fn cd_groups_are_maximal_runs() {
+        assert_eq!(
+            cd_groups(&[1.0, 1.5, 2.6, 3.0, 4.5], 1.2),
+            vec![(0, 1), (1, 2), (2, 3)]
+        );
+        assert_eq!(cd_groups(&[1.0, 1.1, 1.2, 3.0], 0.5), vec![(0, 2)]);
+    }
+
+    #[test]
+    fn styles_are_distinct_for_twenty_methods() {
+        let v: Vec<Style> = (0..20).map(style).collect();
+        for i in 0..v.len() {
+            for j in 0..i {
+                assert_ne!(v[i], v[j], "{i} and {j}");
+            }
+        }
     }
 }

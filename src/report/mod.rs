@@ -3,6 +3,7 @@
 //! and Markdown; each format only supplies how cells, rows and dividers look.
 
 pub mod csvout;
+pub mod document;
 pub mod figures;
 pub mod html;
 pub mod summary;
@@ -25,24 +26,38 @@ pub fn publish(a: &Analysis, ctx: &summary::ReportContext) -> Vec<(String, Vec<u
             csvout::thresholds_csv(a).into_bytes(),
         ),
     ];
+    let (points, hist, terms) = crate::metrics::reliability::to_csv(&ctx.curves);
+    files.push(("reliability.csv".to_string(), points.into_bytes()));
+    files.push(("reliability_hist.csv".to_string(), hist.into_bytes()));
+    files.push(("reliability_terms.csv".to_string(), terms.into_bytes()));
     let mut tex = String::from("% plumbline tables (requires \\usepackage{booktabs})\n");
     for t in summary::task_tables(a, s, &s.primary_metric, false) {
         tex.push_str(&t.to_latex());
         tex.push('\n');
     }
     files.push(("tables.tex".to_string(), tex.into_bytes()));
-    let mut figs = Vec::new();
+    let mut figs: Vec<(String, String)> = Vec::new();
+    for d in &a.decisions {
+        if let Some(svg) = figures::rank_figure(a, &d.metric) {
+            figs.push((format!("figures/ranks--{}.svg", d.metric), svg));
+        }
+        if let Some(svg) = figures::threshold_figure(a, &d.metric) {
+            figs.push((format!("figures/thresholds--{}.svg", d.metric), svg));
+        }
+    }
     for task in &a.tasks {
-        if let Some(svg) = figures::diff_figure(a, task, &s.primary_metric, &s.reference) {
-            let name = figures::figure_name(task, &s.primary_metric);
-            figs.push(name.clone());
-            files.push((name, svg.into_bytes()));
+        if let Some(svg) = figures::learning_curves(a, task, &s.primary_metric, &s.reference) {
+            figs.push((figures::figure_name(task, &s.primary_metric), svg));
+        }
+        if let Some(svg) = figures::reliability_figure(a, task, &ctx.curves) {
+            figs.push((figures::reliability_name(task), svg));
         }
     }
     files.push((
         "index.html".to_string(),
         html::index(a, ctx, &figs).into_bytes(),
     ));
+    files.extend(figs.into_iter().map(|(n, b)| (n, b.into_bytes())));
     files
 }
 
@@ -135,8 +150,10 @@ impl Table {
                 .replace('_', "\\_")
                 .replace('#', "\\#")
                 .replace('−', "$-$")
-                .replace('✓', "$\\downarrow$")
-                .replace('✗', "$\\uparrow$")
+                .replace('✓', "$\\surd$")
+                .replace('✗', "$\\times$")
+                .replace('≈', "$\\approx$")
+                .replace('`', "")
                 .replace('↓', "$\\downarrow$")
                 .replace('↑', "$\\uparrow$")
                 .replace('\n', "; ")

@@ -1,8 +1,12 @@
-//! `summary.md` and the terminal table: per task, each method's mean primary
-//! metric and its paired difference to the reference with the interval.
+//! The summary a team acts on, as one [`Block`] document rendered to
+//! `summary.md`, `index.html` and the terminal: the decision first, then the
+//! standing caution and the legend, ranks, data-size thresholds, reliability
+//! diagrams and the per-task tables.
 
-use super::{fmt_diff, fmt_value, Table};
-use crate::analysis::{Analysis, AnalysisSettings};
+use super::document::{anchor, legend, Block, BETTER, SAME, WORSE};
+use super::{figures, fmt_diff, fmt_value, Table};
+use crate::analysis::{task_parts, Analysis, AnalysisSettings, Decision};
+use crate::metrics::reliability::CurveRecord;
 use crate::metrics::MetricId;
 use crate::stats::paired::IntervalKind;
 
@@ -14,6 +18,8 @@ pub struct ReportContext {
     pub suite_sha256: String,
     pub seed: Option<u64>,
     pub settings: AnalysisSettings,
+    /// Reliability curves of the folder (`reliability*.csv`).
+    pub curves: Vec<CurveRecord>,
 }
 
 fn hib(metric: &str) -> bool {
@@ -51,19 +57,11 @@ pub fn task_tables(a: &Analysis, s: &AnalysisSettings, metric: &str, markdown: b
                     p.task == *task && p.size == n && p.method == *m && p.metric == metric
                 }) {
                     let mark = if p.reliably_better(higher) {
-                        if markdown {
-                            " ↓"
-                        } else {
-                            " ✓"
-                        }
+                        format!(" {BETTER}")
                     } else if p.reliably_worse(higher) {
-                        if markdown {
-                            " ↑"
-                        } else {
-                            " ✗"
-                        }
+                        format!(" {WORSE}")
                     } else {
-                        ""
+                        format!(" {SAME}")
                     };
                     let diff = format!(
                         "{} [{}, {}]{}",
@@ -72,7 +70,7 @@ pub fn task_tables(a: &Analysis, s: &AnalysisSettings, metric: &str, markdown: b
                         fmt_diff(p.ci_high),
                         mark
                     );
-                    let diff = if markdown && !mark.is_empty() {
+                    let diff = if markdown && !mark.ends_with(SAME) {
                         format!("**{diff}**")
                     } else {
                         diff
@@ -84,9 +82,8 @@ pub fn task_tables(a: &Analysis, s: &AnalysisSettings, metric: &str, markdown: b
             rows.push(row);
         }
         let pct = (s.confidence * 100.0).round();
-        let better = if markdown { "↓ / ↑" } else { "✓ / ✗" };
         let notes = vec![format!(
-            "Each cell: mean {metric} over repeats; below it the mean difference to `{}` with its {pct}% {} interval; {better} = reliably better / worse than the reference.",
+            "Each cell: mean {metric} over repeats; below it the mean difference to `{}` with its {pct}% {} interval; {BETTER} / {SAME} / {WORSE} = reliably better / no reliable difference / reliably worse than the reference.",
             s.reference, s.interval
         )];
         out.push(Table {
@@ -99,118 +96,20 @@ pub fn task_tables(a: &Analysis, s: &AnalysisSettings, metric: &str, markdown: b
     out
 }
 
-/// The terminal report: one table per task for the primary metric.
-pub fn terminal(a: &Analysis, s: &AnalysisSettings) -> String {
-    let width = comfy_table_width();
-    task_tables(a, s, &s.primary_metric, false)
-        .iter()
-        .map(|t| t.to_terminal(width))
-        .collect::<Vec<_>>()
-        .join("\n")
-}
+/// The standing caution, in every report.
+pub const CAUTION: &str = "These results come from benchmark data. They do not replace validating the chosen calibrator on the population where it will be deployed, nor monitoring its calibration after deployment: populations drift, and a map that was right on last year's data can be wrong on this year's. Where calibrated probabilities inform decisions about people — credit, health, insurance, employment, fraud holds and the like — the regulations, local codes and licensed professional practice that apply there govern; this tool's recommendation is evidence for that process, not a substitute for it.";
 
-fn comfy_table_width() -> Option<u16> {
-    std::env::var("COLUMNS").ok().and_then(|c| c.parse().ok())
-}
-
-/// The Markdown summary.
 /// Repeats at which the coverage study of `docs/statistics.md` checked the
 /// default interval.
 const REPEATS_CHECKED: usize = 30;
 
-pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
-    let s = &ctx.settings;
-    let mut out = String::new();
-    out.push_str(&format!("# plumbline results: {}\n\n", ctx.suite_name));
-    out.push_str(&format!(
-        "Suite `{}` (SHA-256 `{}`){}. Reference method: `{}`; primary metric: `{}`; intervals: {} at {}%.\n\n",
-        ctx.suite_file,
-        ctx.suite_sha256,
-        ctx.seed.map(|x| format!(", seed {x}")).unwrap_or_default(),
-        s.reference,
-        s.primary_metric,
-        s.interval,
-        (s.confidence * 100.0).round()
-    ));
-    out.push_str(&format!(
-        "{} task(s), {} method(s). Every method in a unit was fitted on the same calibration sample and scored on the same test set, so the differences are paired.\n\n",
-        a.tasks.len(),
-        a.methods.len()
-    ));
-    if a.tasks.len() < 5 {
-        out.push_str(&format!(
-            "**Caution:** these results rest on {} task(s). Rankings of calibration methods change with the data set, the base model and the calibration size; do not adopt a default from so few tasks.\n\n",
-            a.tasks.len()
-        ));
-    }
-    let log_loss: Vec<&crate::analysis::Paired> =
-        a.paired.iter().filter(|p| p.metric == "log_loss").collect();
-    let wide = log_loss
-        .iter()
-        .filter(|p| p.reservoir_order == Some(1))
-        .count();
-    let kind = IntervalKind::parse(&s.interval);
-    // Only kinds whose reservoir degree depends on extreme predictions switch.
-    let switches = kind.is_some_and(|k| k.reservoir_order(false) != k.reservoir_order(true));
-    if wide > 0 && switches {
-        out.push_str(&format!(
-            "The default interval took its wider first-order reservoir term for {wide} of {} log-loss comparisons, where a method gave the observed class a probability at or below the log-loss clip (an exact 0 or 1) on some test row; see `docs/statistics.md`.\n\n",
-            log_loss.len()
-        ));
-    }
-    if kind == Some(IntervalKind::default()) {
-        out.push_str("The intervals' coverage was checked by simulation on one synthetic population for five method pairs against Platt scaling: 90.9–97.5% for a nominal 95%, narrowest (about 91%) for Venn–Abers at 50–200 calibration rows; see `docs/statistics.md`.\n\n");
-    }
-    let few: Vec<usize> = a
-        .paired
-        .iter()
-        .map(|p| p.repeats)
-        .filter(|&r| r < REPEATS_CHECKED)
-        .collect();
-    if let (Some(r), true) = (few.iter().min(), kind == Some(IntervalKind::default())) {
-        out.push_str(&format!(
-            "**Note on intervals:** {} of {} comparisons rest on fewer than {REPEATS_CHECKED} repeats (as few as {r}; failed or one-class fits leave gaps). The coverage study of `docs/statistics.md` checked the default interval at {REPEATS_CHECKED} repeats and, against plain isotonic regression (which makes extreme log-loss predictions), at 10 (93.0–94.3% for log loss, nominal 95%); with fewer repeats the skewness of the differences is poorly estimated and coverage is unchecked.\n\n",
-            few.len(),
-            a.paired.len()
-        ));
-    }
-    if s.reference.starts_with("cross-fitted-") {
-        out.push_str(&format!(
-            "This is a protocol study. The compared \"methods\" are ways of getting calibration data at an equal labelled budget n: `held-out-f` keeps a fraction f of the n rows away from the base model and calibrates on its scores there; `{}` trains on all n rows and calibrates on out-of-fold scores. Each task is a dataset, a base model and a calibrator (`task@calibrator`). A difference below zero means the held-out variant beats cross-fitting.\n\n",
-            s.reference
-        ));
-    }
-    out.push_str(&decision_md(a, s));
-    out.push_str(&across_md(a, s));
-    out.push_str(&thresholds_md(a));
-    out.push_str("## Results per task\n\n");
-    for t in task_tables(a, s, &s.primary_metric, true) {
-        out.push_str(&t.to_markdown());
-        out.push('\n');
-    }
-    out.push_str("## Unit status\n\n");
-    if a.status_counts.is_empty() {
-        out.push_str("Every fit finished with status `ok`.\n\n");
-    } else {
-        out.push_str("Units whose status was not `ok` (a `separable` Platt or beta fit returned its documented fallback; `one_class` samples have no metric values and are left out of the paired differences):\n\n");
-        out.push_str(
-            "| task | size | method | status | units |\n| --- | ---: | --- | --- | ---: |\n",
-        );
-        for ((task, size, method), counts) in &a.status_counts {
-            for (status, n) in counts {
-                out.push_str(&format!(
-                    "| {task} | {size} | {method} | {status} | {n} |\n"
-                ));
-            }
-        }
-        out.push('\n');
-    }
-    out.push_str("## Reproduce\n\n");
-    out.push_str(&format!(
-        "Run `plumbline run {}` with the same suite file (check its SHA-256 above) to get byte-identical `units.csv`, `paired.csv` and `summary.md`; `plumbline report <folder>` rebuilds the tables from `units.csv`.\n",
-        ctx.suite_file
-    ));
-    out
+/// How much of the document to build.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Detail {
+    /// Everything (`summary.md`, `index.html`).
+    Full,
+    /// Decision, caution, legend, ranks and thresholds (the terminal).
+    Brief,
 }
 
 fn fmt_p(p: f64) -> String {
@@ -223,203 +122,496 @@ fn fmt_p(p: f64) -> String {
     }
 }
 
-/// The recommendation, with its evidence and caveats.
-fn decision_md(a: &Analysis, s: &AnalysisSettings) -> String {
-    let mut out = String::from("## Decision\n\n");
-    let ok: Vec<_> = a
-        .across
+fn size_range(a: usize, b: usize) -> String {
+    if a == b {
+        format!("n = {a}")
+    } else {
+        format!("n = {a}–{b}")
+    }
+}
+
+/// The decision on one metric as blocks.
+fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
+    let mut out = Vec::new();
+    let runner = d
+        .runner_up
+        .as_ref()
+        .map(|r| format!("; runner-up **`{r}`**"))
+        .unwrap_or_default();
+    out.push(Block::Para(format!(
+        "{} **team default: `{}`**{runner}.",
+        if primary {
+            format!("On `{}` (the primary metric):", d.metric)
+        } else {
+            format!("On `{}`:", d.metric)
+        },
+        d.default
+    )));
+    let changes: Vec<String> = d
+        .segments
         .iter()
-        .filter_map(|r| r.result.as_ref().ok().map(|x| (r, x)))
+        .map(|(lo, hi, m)| format!("{}: `{m}`", size_range(*lo, *hi)))
         .collect();
-    if ok.is_empty() {
-        out.push_str("Too few tasks share a calibration size for a comparison across tasks (it needs at least two tasks with every method).\n\n");
-        return out;
-    }
-    let mut wins: std::collections::BTreeMap<&str, usize> = std::collections::BTreeMap::new();
-    for (r, x) in &ok {
-        *wins.entry(r.methods[x.best].as_str()).or_default() += 1;
-    }
-    let (top, n_top) = wins
-        .iter()
-        .max_by_key(|(_, n)| **n)
-        .map(|(m, n)| (*m, *n))
-        .unwrap_or(("", 0));
-    let tally = {
-        let mut w: Vec<_> = wins.iter().collect();
-        w.sort_by(|a, b| b.1.cmp(a.1).then(a.0.cmp(b.0)));
-        w.iter()
-            .map(|(m, n)| format!("`{m}` {n}"))
-            .collect::<Vec<_>>()
-            .join(", ")
+    let holds = d.per_size.iter().filter(|v| v.default_holds).count();
+    out.push(Block::Para(format!(
+        "Best average rank by calibration size — {}. `{}` is the best or not reliably distinguishable from the best (Holm-corrected Wilcoxon, α = 0.05) at {holds} of {} sizes.",
+        changes.join("; "),
+        d.default,
+        d.per_size.len()
+    )));
+    let ru = d.runner_up.clone().unwrap_or_else(|| "–".into());
+    let mut t = Table {
+        title: format!("Decision by calibration size ({})", d.metric),
+        header: vec![
+            "n".into(),
+            "tasks".into(),
+            "best".into(),
+            format!("rank `{}`", d.default),
+            format!("rank `{ru}`"),
+            "CD".into(),
+            format!("`{}` vs `{ru}` {BETTER}/{SAME}/{WORSE}", d.default),
+            "Friedman p".into(),
+        ],
+        rows: Vec::new(),
+        notes: vec![format!(
+            "Ranks: average over tasks of each method's rank by mean {} (1 = best). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. {BETTER}/{SAME}/{WORSE}: tasks on which `{}` is reliably better / not distinguishable / reliably worse than `{ru}` (paired interval per task).",
+            d.metric, d.default
+        )],
     };
-    if 2 * n_top > ok.len() {
-        out.push_str(&format!(
-            "By average rank of mean `{}` across tasks, `{top}` ranks first at {n_top} of {} calibration sizes (first places: {tally}):\n\n",
-            s.primary_metric,
-            ok.len()
-        ));
-    } else {
-        out.push_str(&format!(
-            "No method ranks first (by average rank of mean `{}` across tasks) at a majority of the {} calibration sizes — the best choice depends on how much calibration data there is (first places: {tally}):\n\n",
-            s.primary_metric,
-            ok.len()
-        ));
-    }
-    for (r, x) in &ok {
-        let tied: Vec<&str> = x
-            .versus_best
-            .iter()
-            .filter(|v| !v.differs)
-            .map(|v| r.methods[v.method].as_str())
-            .collect();
-        out.push_str(&format!(
-            "- n = {}: best `{}` over {} task(s){}.\n",
-            r.size,
-            r.methods[x.best],
-            r.tasks.len(),
-            if tied.is_empty() {
-                "; every other method is reliably worse (Holm-corrected Wilcoxon, α = 0.05)"
-                    .to_string()
+    for v in &d.per_size {
+        t.rows.push(vec![
+            v.size.to_string(),
+            v.tasks.to_string(),
+            if v.default_holds && v.best != d.default {
+                format!("`{}` ({SAME} `{}`)", v.best, d.default)
             } else {
-                format!(
-                    "; not distinguishable from it (Holm-corrected Wilcoxon, α = 0.05): {}",
-                    tied.iter()
-                        .map(|m| format!("`{m}`"))
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                )
-            }
-        ));
+                format!("`{}`", v.best)
+            },
+            format!("{:.2}", v.default_rank),
+            v.runner_up_rank
+                .map(|r| format!("{r:.2}"))
+                .unwrap_or_else(|| "–".into()),
+            v.cd_05
+                .map(|c| format!("{c:.2}"))
+                .unwrap_or_else(|| "–".into()),
+            v.versus_runner_up
+                .map(|r| format!("{}/{}/{}", r.wins, r.ties, r.losses))
+                .unwrap_or_else(|| "–".into()),
+            fmt_p(v.friedman_p),
+        ]);
     }
-    let max_tasks = ok.iter().map(|(r, _)| r.tasks.len()).max().unwrap_or(0);
-    out.push('\n');
-    if max_tasks < 10 {
-        out.push_str(&format!(
-            "**Read with care:** at most {max_tasks} task(s) enter any size. Tests across so few tasks have little power, and tasks that share a dataset (one dataset under several base models) are not independent evidence; treat this as a hypothesis to check on your own data, not as a settled default.\n\n"
-        ));
+    out.push(Block::Table(t));
+    out
+}
+
+/// The evidence paragraph and the caveats under the decision.
+fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
+    let s = &ctx.settings;
+    let mut out = Vec::new();
+    let Some(d) = a.decisions.first() else {
+        return out;
+    };
+    let models = if d.models > 0 {
+        format!(" × {} base models", d.models)
     } else {
-        out.push_str("Tasks that share a dataset (one dataset under several base models) are not independent evidence; the tests across tasks treat them as if they were, so their p-values are optimistic.\n\n");
+        String::new()
+    };
+    out.push(Block::Para(format!(
+        "**How strong the evidence is.** {} tasks from {} datasets{models}, {} methods, every method fitted on the same calibration sample and scored on the same test set in each of the suite's repeats. The rule: at each calibration size, rank the methods on each task by mean loss and average the ranks over tasks (Demšar 2006); the team default has the lowest mean of these average ranks over the sizes, each size weighing the same. Tasks that share a dataset are not independent evidence, so the tests across tasks are optimistic; the effective number of cases is nearer {} than {}.",
+        d.tasks, d.datasets, a.methods.len(), d.datasets, d.tasks
+    )));
+    if d.datasets < 10 {
+        out.push(Block::Para(format!(
+            "**Read with care: only {} dataset(s).** Rankings of calibration methods change with the dataset, the base model and the calibration size. Treat this default as a hypothesis to check on your own held-out scores (add them to the suite as score files), not as a settled answer.",
+            d.datasets
+        )));
+    }
+    let log_loss: Vec<&crate::analysis::Paired> =
+        a.paired.iter().filter(|p| p.metric == "log_loss").collect();
+    let wide = log_loss
+        .iter()
+        .filter(|p| p.reservoir_order == Some(1))
+        .count();
+    let kind = IntervalKind::parse(&s.interval);
+    let switches = kind.is_some_and(|k| k.reservoir_order(false) != k.reservoir_order(true));
+    if wide > 0 && switches {
+        out.push(Block::Para(format!(
+            "The default interval took its wider first-order reservoir term for {wide} of {} log-loss comparisons, where a method gave the observed class a probability at or below the log-loss clip (an exact 0 or 1) on some test row; see `docs/statistics.md`.",
+            log_loss.len()
+        )));
+    }
+    if kind == Some(IntervalKind::default()) {
+        out.push(Block::Para("The intervals' coverage was checked by simulation; where it falls short of the nominal level (small calibration sizes for some method pairs) is stated in `docs/statistics.md`.".into()));
+    }
+    let few: Vec<usize> = a
+        .paired
+        .iter()
+        .map(|p| p.repeats)
+        .filter(|&r| r < REPEATS_CHECKED)
+        .collect();
+    if let (Some(r), true) = (few.iter().min(), kind == Some(IntervalKind::default())) {
+        out.push(Block::Para(format!(
+            "**Note on intervals:** {} of {} comparisons rest on fewer than {REPEATS_CHECKED} repeats (as few as {r}; failed or one-class fits leave gaps, see *Unit status*). The coverage study checked the default interval at {REPEATS_CHECKED} repeats; with fewer, coverage is unchecked.",
+            few.len(),
+            a.paired.len()
+        )));
+    }
+    if s.reference.starts_with("cross-fitted-") {
+        out.push(Block::Para(format!(
+            "This is a protocol study. The compared \"methods\" are ways of getting calibration data at an equal labelled budget n: `held-out-f` keeps a fraction f of the n rows away from the base model and calibrates on its scores there; `{}` trains on all n rows and calibrates on out-of-fold scores. Each task is a dataset, a base model and a calibrator (`task@calibrator`). A difference below zero means the held-out variant beats cross-fitting.",
+            s.reference
+        )));
     }
     out
 }
 
-/// Average ranks, Friedman / Iman–Davenport, Nemenyi CD per size.
-fn across_md(a: &Analysis, s: &AnalysisSettings) -> String {
-    let mut out = String::from("## Across tasks\n\n");
+/// Average-rank tables per decision metric.
+fn rank_blocks(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> {
+    let s = &ctx.settings;
+    let mut out = vec![Block::Heading(
+        2,
+        "Ranks across tasks".into(),
+        "ranks".into(),
+    )];
     if a.across.is_empty() {
-        out.push_str("No calibration size has values for every method on any task.\n\n");
+        out.push(Block::Para(
+            "No calibration size has values for every method on two or more tasks.".into(),
+        ));
         return out;
     }
-    out.push_str(&format!(
-        "Average rank of each method's mean `{}` over tasks (1 = best; ties share ranks), the Friedman test with the Iman–Davenport F, and the Nemenyi critical difference at α = 0.05 (Demšar 2006). Two methods whose average ranks differ by less than the CD are not distinguishable.\n\n",
-        s.primary_metric
-    ));
-    let methods = &a.methods;
-    out.push_str(&format!(
-        "| n | tasks | {} | F_F | p | CD 0.05 |\n",
-        methods
+    for d in &a.decisions {
+        let rows: Vec<_> = a
+            .across
             .iter()
-            .map(|m| format!("`{m}`"))
-            .collect::<Vec<_>>()
-            .join(" | ")
-    ));
-    out.push_str(&format!(
-        "| ---: | ---: | {} | ---: | ---: | ---: |\n",
-        methods
-            .iter()
-            .map(|_| "---:")
-            .collect::<Vec<_>>()
-            .join(" | ")
-    ));
-    for r in &a.across {
-        match &r.result {
-            Ok(x) => out.push_str(&format!(
-                "| {} | {} | {} | {:.2} | {} | {} |\n",
-                r.size,
-                r.tasks.len(),
-                x.friedman
-                    .avg_ranks
-                    .iter()
-                    .enumerate()
-                    .map(|(i, v)| if i == x.best {
-                        format!("**{v:.2}**")
-                    } else {
-                        format!("{v:.2}")
-                    })
-                    .collect::<Vec<_>>()
-                    .join(" | "),
-                x.friedman.ff,
-                fmt_p(x.friedman.ff_p),
+            .filter(|r| r.metric == d.metric)
+            .filter_map(|r| r.result.as_ref().ok().map(|x| (r, x)))
+            .collect();
+        let mut t = Table {
+            title: format!("Average rank of mean `{}` over tasks (1 = best)", d.metric),
+            header: std::iter::once("method".to_string())
+                .chain(rows.iter().map(|(r, _)| format!("n = {}", r.size)))
+                .chain(std::iter::once("mean".to_string()))
+                .collect(),
+            rows: Vec::new(),
+            notes: Vec::new(),
+        };
+        for (m, mean) in &d.standing {
+            let mut row = vec![format!("`{m}`")];
+            for (r, x) in &rows {
+                let i = r.methods.iter().position(|x| x == m);
+                row.push(match i {
+                    Some(i) if i == x.best => format!("**{:.2}**", x.friedman.avg_ranks[i]),
+                    Some(i) => format!("{:.2}", x.friedman.avg_ranks[i]),
+                    None => "–".into(),
+                });
+            }
+            row.push(format!("{mean:.2}"));
+            t.rows.push(row);
+        }
+        let mut tasks_row = vec!["tasks".to_string()];
+        let mut cd_row = vec!["CD (α = 0.05)".to_string()];
+        let mut p_row = vec!["Iman–Davenport p".to_string()];
+        for (r, x) in &rows {
+            tasks_row.push(r.tasks.len().to_string());
+            cd_row.push(
                 x.cd_05
                     .map(|c| format!("{c:.2}"))
-                    .unwrap_or_else(|| "–".into())
-            )),
-            Err(e) => out.push_str(&format!(
-                "| {} | {} | {} | – | – | – |\n",
-                r.size,
-                r.tasks.len(),
-                format!("({e})") + &" | –".repeat(methods.len().saturating_sub(1))
-            )),
+                    .unwrap_or_else(|| "–".into()),
+            );
+            p_row.push(fmt_p(x.friedman.ff_p));
+        }
+        for r in [&mut tasks_row, &mut cd_row, &mut p_row] {
+            r.push(String::new());
+        }
+        t.rows.push(tasks_row);
+        t.rows.push(cd_row);
+        t.rows.push(p_row);
+        t.notes.push("Methods in order of the decision rule (mean of the average ranks over sizes); bold: best at that size.".into());
+        out.push(Block::Table(t));
+        if detail == Detail::Full {
+            out.push(Block::Figure(
+                format!("figures/ranks--{}.svg", d.metric),
+                format!("average ranks with Nemenyi critical difference, {}", d.metric),
+            ));
+        } else {
+            out.push(Block::Figure(
+                format!("figures/ranks--{}.svg", d.metric),
+                String::new(),
+            ));
         }
     }
-    out.push_str(&format!(
-        "\nWins / ties / losses against `{}` over tasks (a tie is an interval covering zero):\n\n",
-        s.reference
-    ));
-    let others: Vec<&String> = methods.iter().filter(|m| **m != s.reference).collect();
-    out.push_str(&format!(
-        "| n | {} |\n| ---: | {} |\n",
-        others
-            .iter()
-            .map(|m| format!("`{m}`"))
-            .collect::<Vec<_>>()
-            .join(" | "),
-        others
-            .iter()
-            .map(|_| "---:")
-            .collect::<Vec<_>>()
-            .join(" | ")
-    ));
-    for r in &a.across {
-        let cells: Vec<String> = others
-            .iter()
-            .map(|m| {
-                r.vs_reference
-                    .iter()
-                    .find(|(x, _)| x == *m)
-                    .map(|(_, rec)| format!("{}/{}/{}", rec.wins, rec.ties, rec.losses))
-                    .unwrap_or_else(|| "–".into())
-            })
-            .collect();
-        out.push_str(&format!("| {} | {} |\n", r.size, cells.join(" | ")));
+    if detail == Detail::Full {
+        let primary = &s.primary_metric;
+        let others: Vec<&String> = a.methods.iter().filter(|m| **m != s.reference).collect();
+        let mut t = Table {
+            title: format!(
+                "Tasks on which each method is {BETTER} / {SAME} / {WORSE} against `{}` ({primary})",
+                s.reference
+            ),
+            header: std::iter::once("n".to_string())
+                .chain(others.iter().map(|m| format!("`{m}`")))
+                .collect(),
+            rows: Vec::new(),
+            notes: Vec::new(),
+        };
+        for r in a.across.iter().filter(|r| &r.metric == primary) {
+            let mut row = vec![r.size.to_string()];
+            for m in &others {
+                row.push(
+                    r.vs_reference
+                        .iter()
+                        .find(|(x, _)| x == *m)
+                        .map(|(_, rec)| format!("{}/{}/{}", rec.wins, rec.ties, rec.losses))
+                        .unwrap_or_else(|| "–".into()),
+                );
+            }
+            t.rows.push(row);
+        }
+        out.push(Block::Table(t));
     }
-    out.push('\n');
     out
 }
 
-/// The data-size thresholds of flexible against parametric methods.
-fn thresholds_md(a: &Analysis) -> String {
-    let mut out =
-        String::from("## How much calibration data before a flexible method pays off\n\n");
+/// The data-size thresholds on every decision metric, side by side.
+fn threshold_blocks(a: &Analysis, detail: Detail) -> Vec<Block> {
+    let mut out = vec![Block::Heading(
+        2,
+        "How much calibration data before a flexible method pays off".into(),
+        "thresholds".into(),
+    )];
     if a.threshold_summaries.is_empty() {
-        out.push_str("No (flexible, parametric) method pair in this suite.\n\n");
+        out.push(Block::Para(
+            "No (flexible, parametric) method pair in this suite.".into(),
+        ));
         return out;
     }
-    out.push_str("Per task, *better from* is the smallest tested size from which the flexible method is reliably better than the parametric one at every larger tested size; *worse up to* is the largest size at which it is reliably worse; the crossover interpolates the mean difference linearly on log size. Medians and ranges over the tasks where each exists; per-task values are in `thresholds.csv`.\n\n");
-    out.push_str("| flexible | parametric | tasks | better from: tasks, median [range] | worse up to: tasks, median [range] | crossover: tasks, median [range] |\n| --- | --- | ---: | --- | --- | --- |\n");
-    let sp = |x: &Option<crate::stats::thresholds::Spread>| match x {
-        Some(s) => format!("{}, {:.0} [{:.0}, {:.0}]", s.tasks, s.median, s.min, s.max),
-        None => "0".into(),
+    out.push(Block::Para("Per task, *better from* is the smallest tested size from which the flexible method is reliably better than the parametric one at every larger tested size. Each cell gives the number of tasks where that happens within the sizes tried, out of the tasks compared, and the median size [range] over those tasks; per-task values (also *worse up to* and the interpolated crossover) are in `thresholds.csv`. A size is only as good as the sizes tested: \"better from 1000\" means better at 1000 and at every larger size in the sweep, not at 700.".into()));
+    let metrics: Vec<String> = a.decisions.iter().map(|d| d.metric.clone()).collect();
+    let mut pairs: Vec<(String, String)> = Vec::new();
+    for (_, p, _) in &a.threshold_summaries {
+        if !pairs.contains(p) {
+            pairs.push(p.clone());
+        }
+    }
+    let mut t = Table {
+        title: "Better from (tasks within the sizes tried / tasks compared; median [range])".into(),
+        header: std::iter::once("flexible vs parametric".to_string())
+            .chain(metrics.iter().map(|m| format!("`{m}`")))
+            .collect(),
+        rows: Vec::new(),
+        notes: Vec::new(),
     };
-    for ((f, p), sum) in &a.threshold_summaries {
-        out.push_str(&format!(
-            "| `{f}` | `{p}` | {} | {} | {} | {} |\n",
-            sum.tasks,
-            sp(&sum.better_from),
-            sp(&sum.worse_until),
-            sp(&sum.crossover)
+    for (f, p) in &pairs {
+        let mut row = vec![format!("`{f}` vs `{p}`")];
+        for m in &metrics {
+            let cell = a
+                .threshold_summaries
+                .iter()
+                .find(|(mm, pp, _)| mm == m && pp.0 == *f && pp.1 == *p)
+                .map(|(_, _, s)| match &s.better_from {
+                    Some(b) if detail == Detail::Full => format!(
+                        "{}/{}; {:.0} [{:.0}, {:.0}]",
+                        b.tasks, s.tasks, b.median, b.min, b.max
+                    ),
+                    Some(b) => format!("{}/{}; {:.0}", b.tasks, s.tasks, b.median),
+                    None => format!("0/{}", s.tasks),
+                })
+                .unwrap_or_else(|| "–".into());
+            row.push(cell);
+        }
+        t.rows.push(row);
+    }
+    out.push(Block::Table(t));
+    if detail == Detail::Full {
+        for m in &metrics {
+            out.push(Block::Figure(
+                format!("figures/thresholds--{m}.svg"),
+                format!("data-size thresholds per task and pair, {m}"),
+            ));
+        }
+    }
+    out
+}
+
+/// Tasks grouped by dataset, in first-seen order.
+pub fn datasets(a: &Analysis) -> Vec<(String, Vec<String>)> {
+    let mut out: Vec<(String, Vec<String>)> = Vec::new();
+    for t in &a.tasks {
+        let d = task_parts(t).0.to_string();
+        match out.iter_mut().find(|(x, _)| *x == d) {
+            Some((_, v)) => v.push(t.clone()),
+            None => out.push((d, vec![t.clone()])),
+        }
+    }
+    out
+}
+
+/// The per-task section of one task.
+pub fn task_blocks(a: &Analysis, ctx: &ReportContext, task: &str) -> Vec<Block> {
+    let s = &ctx.settings;
+    let mut out = vec![Block::Heading(
+        4,
+        format!("Task `{task}`"),
+        format!("task-{}", anchor(task)),
+    )];
+    if let Some((i, _)) = a.tasks.iter().enumerate().find(|(_, t)| *t == task) {
+        let mut t = task_tables(a, s, &s.primary_metric, true).swap_remove(i);
+        t.title = format!("`{task}` — mean {} by calibration size", s.primary_metric);
+        out.push(Block::Table(t));
+    }
+    out.push(Block::Figure(
+        figures::figure_name(task, &s.primary_metric),
+        format!("learning curves of {task}: difference to {} by size", s.reference),
+    ));
+    if ctx.curves.iter().any(|c| c.task == task) {
+        out.push(Block::Figure(
+            figures::reliability_name(task),
+            format!("reliability diagrams of {task}"),
         ));
     }
-    out.push_str("\nA size is only as good as the sizes tested: \"better from 800\" means better at 800 and at every larger size in the sweep, not at 700.\n\n");
     out
+}
+
+/// The whole summary document.
+pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> {
+    let s = &ctx.settings;
+    let mut b = vec![Block::Heading(
+        1,
+        format!("plumbline results: {}", ctx.suite_name),
+        "top".into(),
+    )];
+    b.push(Block::Para(format!(
+        "Suite `{}` (SHA-256 `{}`){}. Reference method `{}`; primary metric `{}`; {} intervals at {}%.",
+        ctx.suite_file,
+        ctx.suite_sha256,
+        ctx.seed.map(|x| format!(", seed {x}")).unwrap_or_default(),
+        s.reference,
+        s.primary_metric,
+        s.interval,
+        (s.confidence * 100.0).round()
+    )));
+    b.push(Block::Heading(2, "Decision".into(), "decision".into()));
+    if a.decisions.is_empty() {
+        b.push(Block::Para("Too few tasks share a calibration size for a comparison across tasks (it needs at least two tasks with a value for every method).".into()));
+    }
+    for (i, d) in a.decisions.iter().enumerate() {
+        b.extend(decision_blocks(d, i == 0));
+    }
+    b.extend(evidence_blocks(a, ctx));
+    b.push(Block::Caution(CAUTION.into()));
+    b.push(Block::Heading(2, "How to read the marks".into(), "legend".into()));
+    b.push(Block::List(legend()));
+    b.extend(rank_blocks(a, ctx, detail));
+    b.extend(threshold_blocks(a, detail));
+    if detail == Detail::Brief {
+        b.push(Block::Para(format!(
+            "Per-task tables: `plumbline report <folder> --task <id>` (tasks: {}). Everything, with figures: `summary.md` and `index.html` in the results folder.",
+            a.tasks.len()
+        )));
+        return b;
+    }
+    b.push(Block::Heading(
+        2,
+        "Reliability diagrams".into(),
+        "reliability".into(),
+    ));
+    if ctx.curves.is_empty() {
+        b.push(Block::Para(
+            "This folder holds no reliability curves (`reliability.csv`).".into(),
+        ));
+    } else {
+        let sizes: std::collections::BTreeSet<usize> = ctx.curves.iter().map(|c| c.size).collect();
+        b.push(Block::Para(format!(
+            "For every task, repeat 0 at calibration sizes {}: the CORP reliability curve of each method's test predictions (isotonic regression of the outcome on the prediction; Dimitriadis, Gneiting & Jordan 2021) with a consistency band from label draws under the hypothesis of calibration (Bröcker & Smith 2007), on a probability and a log-odds scale, the histogram of predictions beneath, and the CORP decomposition of the Brier score (BS = MCB − DSC + UNC: miscalibration, discrimination, uncertainty). A curve leaving its band shows miscalibration beyond chance. Points are in `reliability.csv`, histograms in `reliability_hist.csv`, terms in `reliability_terms.csv`.",
+            sizes.iter().map(|n| n.to_string()).collect::<Vec<_>>().join(" and ")
+        )));
+        let mut items = Vec::new();
+        for t in &a.tasks {
+            if ctx.curves.iter().any(|c| &c.task == t) {
+                items.push(format!("[`{t}`]({})", figures::reliability_name(t)));
+            }
+        }
+        b.push(Block::Para(items.join(" · ")));
+    }
+    b.push(Block::Heading(
+        2,
+        "Results per dataset".into(),
+        "tasks".into(),
+    ));
+    for (d, tasks) in datasets(a) {
+        b.push(Block::Heading(
+            3,
+            format!("Dataset `{d}`"),
+            format!("dataset-{}", anchor(&d)),
+        ));
+        for t in tasks {
+            b.extend(task_blocks(a, ctx, &t));
+        }
+    }
+    b.push(Block::Heading(2, "Unit status".into(), "status".into()));
+    if a.status_counts.is_empty() {
+        b.push(Block::Para("Every fit finished with status `ok`.".into()));
+    } else {
+        let mut t = Table {
+            title: "Units whose status was not `ok`".into(),
+            header: vec![
+                "task".into(),
+                "size".into(),
+                "method".into(),
+                "status".into(),
+                "units".into(),
+            ],
+            rows: Vec::new(),
+            notes: vec!["A `separable` Platt or beta fit returned its documented fallback; `one_class` samples and `failed` fits have no metric values and are left out of the paired differences.".into()],
+        };
+        for ((task, size, method), counts) in &a.status_counts {
+            for (status, n) in counts {
+                t.rows.push(vec![
+                    task.clone(),
+                    size.to_string(),
+                    method.clone(),
+                    status.clone(),
+                    n.to_string(),
+                ]);
+            }
+        }
+        b.push(Block::Table(t));
+    }
+    b.push(Block::Heading(2, "Reproduce".into(), "reproduce".into()));
+    b.push(Block::Para(format!(
+        "Run `plumbline run {}` with the same suite file (check its SHA-256 above) to get byte-identical `units.csv`, `paired.csv`, `thresholds.csv`, `reliability*.csv`, `summary.md`, `index.html` and figures; `plumbline report <folder>` rebuilds the tables and figures from `units.csv` and the reliability files.",
+        ctx.suite_file
+    )));
+    b
+}
+
+/// `summary.md`.
+pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
+    super::document::to_markdown(&document(a, ctx, Detail::Full))
+}
+
+/// Terminal width: `COLUMNS` when set, at most 100.
+fn width() -> usize {
+    std::env::var("COLUMNS")
+        .ok()
+        .and_then(|c| c.parse::<usize>().ok())
+        .unwrap_or(100)
+        .clamp(60, 100)
+}
+
+/// The terminal report: decision, caution, legend, ranks and thresholds.
+pub fn terminal(a: &Analysis, ctx: &ReportContext) -> String {
+    super::document::to_terminal(&document(a, ctx, Detail::Brief), width())
+}
+
+/// The terminal table of one task (`plumbline report DIR --task ID`); `None`
+/// for an unknown task.
+pub fn task_terminal(a: &Analysis, ctx: &ReportContext, task: &str) -> Option<String> {
+    if !a.tasks.iter().any(|t| t == task) {
+        return None;
+    }
+    Some(super::document::to_terminal(
+        &task_blocks(a, ctx, task),
+        width(),
+    ))
 }

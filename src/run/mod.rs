@@ -26,6 +26,8 @@ use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
 use crate::calibrate::{Calibrator, FitError};
+use crate::calibrate::ScoreKind;
+use crate::metrics::reliability::{self, Curve, CurveRecord};
 use crate::metrics::scoring::clipped_count;
 use crate::split;
 use crate::stats::paired;
@@ -64,6 +66,10 @@ pub struct UnitOutcome {
     pub reservoir: usize,
     pub test_rows: usize,
     pub methods: Vec<MethodOutcome>,
+    /// Reliability curves of this unit's test predictions (repeat 0 at the
+    /// plan's reliability sizes only).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub curves: Vec<Curve>,
 }
 
 /// Fit time of one method in one unit (kept apart from `units.csv`, whose bytes
@@ -81,6 +87,8 @@ pub struct Timing {
 #[derive(Debug, Clone)]
 pub struct RunOutput {
     pub table: UnitTable,
+    /// Reliability curves in unit order.
+    pub curves: Vec<CurveRecord>,
     pub timings: Vec<Timing>,
     pub warnings: Vec<String>,
     pub threads: usize,
@@ -155,6 +163,11 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
     }
     let ri = plan.methods.iter().position(|m| m.id == plan.reference);
     add_row_summaries(plan, &td.test_labels, &preds, &mut methods, ri);
+    let curves = if repeat == 0 && plan.reliability.sizes_for(&task.sizes).contains(&size) {
+        unit_curves(plan, ti, td, &preds, seed)
+    } else {
+        Vec::new()
+    };
     UnitOutcome {
         task: task.id.clone(),
         size,
@@ -163,8 +176,52 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
         reservoir: task.reservoir.len(),
         test_rows: task.test.len(),
         methods,
+        curves,
     }
 }
+
+/// Reliability curves of a unit: the uncalibrated scores (probability scores
+/// only, unless an identity method is drawn anyway) and each method the plan's
+/// `[reliability]` table names. Band draws are seeded from the unit seed and
+/// the series' position, so they do not depend on scheduling.
+fn unit_curves(
+    plan: &Plan,
+    ti: usize,
+    td: &TaskData,
+    preds: &[Option<Vec<f64>>],
+    unit_seed: u64,
+) -> Vec<Curve> {
+    let task = &plan.tasks[ti];
+    let band = plan.reliability.band;
+    let tag = split::fnv1a(b"reliability-band");
+    let chosen = |id: &str| plan.reliability.methods.iter().any(|m| m == id);
+    let mut out = Vec::new();
+    let has_identity = plan
+        .methods
+        .iter()
+        .any(|m| chosen(&m.id) && m.spec.kind() == "identity");
+    if task.score_kind == ScoreKind::Probability && !has_identity {
+        let seed = split::mix(unit_seed, &[tag, u64::MAX]);
+        out.extend(reliability::curve(
+            UNCALIBRATED,
+            &td.test_scores,
+            &td.test_labels,
+            band,
+            seed,
+        ));
+    }
+    for (mi, m) in plan.methods.iter().enumerate() {
+        let (true, Some(p)) = (chosen(&m.id), &preds[mi]) else {
+            continue;
+        };
+        let seed = split::mix(unit_seed, &[tag, mi as u64]);
+        out.extend(reliability::curve(&m.id, p, &td.test_labels, band, seed));
+    }
+    out
+}
+
+/// The series name of the raw scores in reliability data.
+pub const UNCALIBRATED: &str = "uncalibrated";
 
 /// The outcome of a method in a unit whose calibration sample has one class.
 pub(crate) fn one_class_outcome(plan: &Plan, name: &str) -> MethodOutcome {
@@ -481,7 +538,16 @@ pub fn assemble(
     let mut timings = Vec::new();
     let mut warnings = Vec::new();
     let mut failures: BTreeMap<(String, String), (usize, String)> = BTreeMap::new();
+    let mut curves = Vec::new();
     for u in &units {
+        for c in &u.curves {
+            curves.push(CurveRecord {
+                task: u.task.clone(),
+                size: u.size,
+                repeat: u.repeat,
+                curve: c.clone(),
+            });
+        }
         for m in &u.methods {
             rows.push(UnitRow {
                 task: u.task.clone(),
@@ -532,6 +598,7 @@ pub fn assemble(
     };
     RunOutput {
         table,
+        curves,
         timings,
         warnings,
         threads,

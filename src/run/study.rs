@@ -144,6 +144,7 @@ pub fn run_study(
                 }
             }
             outs.push(UnitOutcome {
+                curves: Vec::new(),
                 task: format!("{}@{}", t.id, m.id),
                 size: budget,
                 repeat: r,

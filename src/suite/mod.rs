@@ -98,6 +98,8 @@ struct RawSuite {
     #[serde(default)]
     threshold_pairs: Option<Spanned<Vec<(String, String)>>>,
     #[serde(default)]
+    reliability: Option<Spanned<RawReliability>>,
+    #[serde(default)]
     open_data: Option<Spanned<String>>,
     #[serde(default)]
     model: Vec<Spanned<toml::Table>>,
@@ -115,6 +117,48 @@ struct RawStudy {
     fractions: Option<Vec<f64>>,
     #[serde(default)]
     folds: Option<i64>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawReliability {
+    #[serde(default)]
+    sizes: Option<Vec<i64>>,
+    #[serde(default)]
+    methods: Option<Vec<String>>,
+    #[serde(default)]
+    band_draws: Option<i64>,
+    #[serde(default)]
+    band_level: Option<f64>,
+}
+
+/// Which units carry reliability curves (the `[reliability]` table): repeat 0
+/// of each task at `sizes` (default: the task's smallest and largest size),
+/// for `methods` (default: every method).
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReliabilityPlan {
+    pub sizes: Option<Vec<usize>>,
+    pub methods: Vec<String>,
+    pub band: crate::metrics::reliability::BandSettings,
+}
+
+impl ReliabilityPlan {
+    /// The sizes of one task whose repeat 0 carries curves.
+    pub fn sizes_for(&self, task_sizes: &[usize]) -> Vec<usize> {
+        match &self.sizes {
+            Some(s) => task_sizes.iter().copied().filter(|n| s.contains(n)).collect(),
+            None => {
+                let mut v: Vec<usize> = task_sizes
+                    .first()
+                    .into_iter()
+                    .chain(task_sizes.last())
+                    .copied()
+                    .collect();
+                v.dedup();
+                v
+            }
+        }
+    }
 }
 
 /// A protocol study: at each labelled budget N (the suite's `sizes`), held-out
@@ -286,6 +330,8 @@ pub struct Plan {
     pub pairs: Vec<(String, String)>,
     /// Set for a protocol study (then `sizes` are labelled budgets).
     pub study: Option<StudyPlan>,
+    /// Reliability curves written with the results.
+    pub reliability: ReliabilityPlan,
     pub tasks: Vec<TaskPlan>,
 }
 
@@ -700,6 +746,8 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         }
     };
 
+    let reliability = reliability_plan(&ctx, raw.reliability.as_ref(), &method_entries)?;
+
     // Tasks.
     if raw.task.is_empty() && raw.task_grid.is_empty() {
         return Err(ctx.err(
@@ -1097,8 +1145,73 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         test_set,
         methods: method_entries,
         pairs,
+        reliability,
         tasks,
     })
+}
+
+/// Check the `[reliability]` table.
+fn reliability_plan(
+    ctx: &Ctx,
+    raw: Option<&Spanned<RawReliability>>,
+    methods: &[MethodEntry],
+) -> Result<ReliabilityPlan, SuiteError> {
+    let all: Vec<String> = methods.iter().map(|m| m.id.clone()).collect();
+    let mut plan = ReliabilityPlan {
+        sizes: None,
+        methods: all.clone(),
+        band: crate::metrics::reliability::BandSettings::default(),
+    };
+    let Some(r) = raw else { return Ok(plan) };
+    let span = r.span();
+    let r = r.get_ref();
+    if let Some(s) = &r.sizes {
+        let mut v = Vec::new();
+        for &n in s {
+            if n < 1 {
+                return Err(ctx.err(
+                    span.clone(),
+                    "reliability.sizes",
+                    format!("{n}: a calibration size is a positive whole number"),
+                ));
+            }
+            v.push(n as usize);
+        }
+        plan.sizes = Some(v);
+    }
+    if let Some(m) = &r.methods {
+        for id in m {
+            if !all.contains(id) {
+                return Err(ctx.err(
+                    span.clone(),
+                    "reliability.methods",
+                    format!("`{id}` is not one of the suite's methods ({})", all.join(", ")),
+                ));
+            }
+        }
+        plan.methods = all.iter().filter(|id| m.contains(id)).cloned().collect();
+    }
+    if let Some(d) = r.band_draws {
+        if !(10..=10_000).contains(&d) {
+            return Err(ctx.err(
+                span.clone(),
+                "reliability.band_draws",
+                format!("{d}: expected 10 to 10000 label draws"),
+            ));
+        }
+        plan.band.draws = d as usize;
+    }
+    if let Some(l) = r.band_level {
+        if !(l > 0.5 && l < 1.0) {
+            return Err(ctx.err(
+                span,
+                "reliability.band_level",
+                format!("{l}: expected a level between 0.5 and 1"),
+            ));
+        }
+        plan.band.level = l;
+    }
+    Ok(plan)
 }
 
 /// Remove and check the `id` key of a `[[method]]` or `[[model]]` table.

@@ -1,0 +1,207 @@
+//! The across-task and threshold steps of the analysis, run once per decision
+//! metric.
+
+use std::collections::BTreeMap;
+
+use super::{
+    compared_value, higher_is_better, pair_up, paired_interval, AcrossRow, AnalysisSettings,
+    MethodSummary, Paired, ThresholdRow,
+};
+use crate::run::table::UnitTable;
+use crate::stats::across::{across_tasks, task_record};
+use crate::stats::paired::{Interval, IntervalKind};
+use crate::stats::thresholds::{summarize, thresholds as stats_thresholds, ThresholdSummary};
+
+/// (task, size, method) → repeat → row index of the unit table.
+pub type Cells = BTreeMap<(String, usize, String), BTreeMap<usize, usize>>;
+
+/// What the steps read.
+pub struct StepInput<'a> {
+    pub table: &'a UnitTable,
+    pub settings: &'a AnalysisSettings,
+    pub tasks: &'a [String],
+    pub methods: &'a [String],
+    pub sizes: &'a BTreeMap<String, Vec<usize>>,
+    pub cells: &'a Cells,
+    pub summaries: &'a [MethodSummary],
+    pub paired: &'a [Paired],
+}
+
+/// The metrics the decision, the ranks and the thresholds are reported on:
+/// the primary metric, then the log loss and the Brier score when the suite
+/// scores them (the two proper scoring rules the tool offers; ECE is not a
+/// proper score and AUC does not see calibration).
+pub fn decision_metrics(primary: &str, available: &[String]) -> Vec<String> {
+    let mut out = vec![primary.to_string()];
+    for m in ["log_loss", "brier"] {
+        if m != primary && available.iter().any(|a| a == m) {
+            out.push(m.to_string());
+        }
+    }
+    out.retain(|m| available.contains(m));
+    out
+}
+
+/// Average ranks, Friedman / Iman–Davenport, Nemenyi and Holm–Wilcoxon per
+/// calibration size over the tasks with a value for every method.
+pub fn across_step(c: &StepInput, metric: &str) -> Vec<AcrossRow> {
+    let hib = higher_is_better(metric);
+    let all_sizes: std::collections::BTreeSet<usize> =
+        c.sizes.values().flatten().copied().collect();
+    let mut across = Vec::new();
+    for &size in &all_sizes {
+        let mut rows = Vec::new();
+        let mut used = Vec::new();
+        for task in c.tasks {
+            let vals: Option<Vec<f64>> = c
+                .methods
+                .iter()
+                .map(|m| {
+                    c.summaries
+                        .iter()
+                        .find(|x| {
+                            x.task == *task && x.size == size && x.method == *m && x.metric == metric
+                        })
+                        .and_then(|x| compared_value(metric, x.mean))
+                        .filter(|v| v.is_finite())
+                        .map(|v| if hib { -v } else { v })
+                })
+                .collect();
+            if let Some(v) = vals {
+                rows.push(v);
+                used.push(task.clone());
+            }
+        }
+        if used.is_empty() {
+            continue;
+        }
+        let result = across_tasks(&rows, 0.05).map_err(|e| e.to_string());
+        let vs_reference = c
+            .methods
+            .iter()
+            .filter(|m| **m != c.settings.reference)
+            .map(|m| {
+                let ivs: Vec<Interval> = c
+                    .paired
+                    .iter()
+                    .filter(|p| {
+                        p.size == size && p.method == *m && p.metric == metric && used.contains(&p.task)
+                    })
+                    .filter(|p| p.ci_low.is_finite())
+                    .map(|p| oriented(p.mean_diff, p.ci_low, p.ci_high, p.se, p.confidence, hib))
+                    .collect();
+                (m.clone(), task_record(&ivs))
+            })
+            .collect();
+        across.push(AcrossRow {
+            size,
+            metric: metric.to_string(),
+            tasks: used,
+            methods: c.methods.to_vec(),
+            result,
+            vs_reference,
+        });
+    }
+    across
+}
+
+/// An interval turned so that "below zero" means better.
+pub fn oriented(mean: f64, low: f64, high: f64, se: f64, confidence: f64, hib: bool) -> Interval {
+    let (low, high, mean) = if hib {
+        (-high, -low, -mean)
+    } else {
+        (low, high, mean)
+    };
+    Interval {
+        kind: IntervalKind::default(),
+        mean,
+        low,
+        high,
+        se,
+        df: f64::NAN,
+        confidence,
+        test_term: None,
+        reservoir_order: None,
+    }
+}
+
+/// The paired interval of method `a` − method `b` at one (task, size), turned
+/// so that below zero means `a` is better; `None` with fewer than 2 repeats.
+pub fn pair_interval(
+    c_table: &UnitTable,
+    cells: &Cells,
+    settings: &AnalysisSettings,
+    task: &str,
+    size: usize,
+    a: &str,
+    b: &str,
+    metric: &str,
+    mi: usize,
+) -> Option<Interval> {
+    let (Some(ca), Some(cb)) = (
+        cells.get(&(task.to_string(), size, a.to_string())),
+        cells.get(&(task.to_string(), size, b.to_string())),
+    ) else {
+        return None;
+    };
+    let pr = pair_up(c_table, ca, cb, mi, metric);
+    if pr.diffs.len() < 2 {
+        return None;
+    }
+    let iv = paired_interval(c_table, &pr, metric, settings);
+    Some(if higher_is_better(metric) {
+        Interval {
+            mean: -iv.mean,
+            low: -iv.high,
+            high: -iv.low,
+            ..iv
+        }
+    } else {
+        iv
+    })
+}
+
+/// Data-size thresholds of every (flexible, parametric) pair on every task.
+pub fn threshold_step(
+    c: &StepInput,
+    metric: &str,
+    mi: usize,
+) -> (Vec<ThresholdRow>, Vec<((String, String), ThresholdSummary)>) {
+    let mut thresholds = Vec::new();
+    let mut summaries = Vec::new();
+    for (flex, para) in &c.settings.pairs {
+        let mut per_task = Vec::new();
+        for task in c.tasks {
+            let mut pts = Vec::new();
+            let mut ivs = Vec::new();
+            for &size in &c.sizes[task] {
+                let Some(iv) = pair_interval(
+                    c.table, c.cells, c.settings, task, size, flex, para, metric, mi,
+                ) else {
+                    continue;
+                };
+                pts.push((size, iv.mean, iv.low, iv.high));
+                if iv.low.is_finite() {
+                    ivs.push((size, iv));
+                }
+            }
+            if pts.is_empty() {
+                continue;
+            }
+            let result = stats_thresholds(&ivs).map_err(|e| e.to_string());
+            if let Ok(t) = &result {
+                per_task.push(t.clone());
+            }
+            thresholds.push(ThresholdRow {
+                task: task.clone(),
+                flexible: flex.clone(),
+                parametric: para.clone(),
+                metric: metric.to_string(),
+                points: pts,
+                result,
+            });
+        }
+        summaries.push(((flex.clone(), para.clone()), summarize(&per_task)));
+    }
+    (thresholds, summaries)
+}
