@@ -44,7 +44,7 @@ pub const LOGIT_RANGE: f64 = 12.0;
 pub const HIST_LOGIT_BINS: usize = 24;
 /// At most this many curve points are kept (evenly spaced over the block end
 /// points, first and last always kept); enough for a figure.
-pub const MAX_POINTS: usize = 80;
+pub const MAX_POINTS: usize = 48;
 
 /// One point of a reliability curve.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -260,7 +260,8 @@ pub struct CurveRecord {
 
 /// Header of `reliability.csv` (one row per curve point).
 pub const POINTS_HEADER: &str = "task,size,repeat,method,x,recalibrated,band_low,band_high";
-/// Header of `reliability_hist.csv` (one row per histogram bin).
+/// Header of `reliability_hist.csv` (one row per histogram bin holding any
+/// prediction).
 pub const HIST_HEADER: &str = "task,size,repeat,method,scale,bin_low,bin_high,count";
 /// Header of `reliability_terms.csv` (one row per curve).
 pub const TERMS_HEADER: &str = "task,size,repeat,method,test_rows,brier,miscalibration,discrimination,uncertainty,band_level,band_draws,points,points_outside_band";
@@ -277,7 +278,8 @@ pub fn to_csv(records: &[CurveRecord]) -> (String, String, String) {
         for p in &c.points {
             pts.push_str(&format!("{key},{},{},{},{}\n", p.x, p.y, p.low, p.high));
         }
-        for (b, n) in c.hist_p.iter().enumerate() {
+        // Empty bins are left out.
+        for (b, n) in c.hist_p.iter().enumerate().filter(|x| *x.1 > 0) {
             let w = 1.0 / HIST_P_BINS as f64;
             hist.push_str(&format!(
                 "{key},probability,{},{},{n}\n",
@@ -285,7 +287,7 @@ pub fn to_csv(records: &[CurveRecord]) -> (String, String, String) {
                 round_sig((b + 1) as f64 * w, 6)
             ));
         }
-        for (b, n) in c.hist_logit.iter().enumerate() {
+        for (b, n) in c.hist_logit.iter().enumerate().filter(|x| *x.1 > 0) {
             let lo = b as f64 - LOGIT_RANGE;
             hist.push_str(&format!("{key},log_odds,{lo},{},{n}\n", lo + 1.0));
         }
@@ -363,8 +365,8 @@ pub fn from_csv(points: &str, hist: &str, terms: &str) -> Result<Vec<CurveRecord
             method: k.3.clone(),
             test_rows: num(file, line, f[4])?,
             points: Vec::new(),
-            hist_p: Vec::new(),
-            hist_logit: Vec::new(),
+            hist_p: vec![0; HIST_P_BINS],
+            hist_logit: vec![0; HIST_LOGIT_BINS],
             brier: num(file, line, f[5])?,
             mcb: num(file, line, f[6])?,
             dsc: num(file, line, f[7])?,
@@ -398,10 +400,15 @@ pub fn from_csv(points: &str, hist: &str, terms: &str) -> Result<Vec<CurveRecord
             .get_mut(&k)
             .ok_or_else(|| format!("{file}: line {line}: no such curve in reliability_terms.csv"))?;
         let n: u64 = num(file, line, f[7])?;
-        match f[4] {
-            "probability" => c.hist_p.push(n),
-            "log_odds" => c.hist_logit.push(n),
+        let low: f64 = num(file, line, f[5])?;
+        let (bins, idx) = match f[4] {
+            "probability" => (&mut c.hist_p, (low * HIST_P_BINS as f64).round()),
+            "log_odds" => (&mut c.hist_logit, low + LOGIT_RANGE),
             other => return Err(format!("{file}: line {line}: unknown scale `{other}`")),
+        };
+        match (idx >= 0.0).then_some(idx as usize).and_then(|i| bins.get_mut(i)) {
+            Some(slot) => *slot = n,
+            None => return Err(format!("{file}: line {line}: bin_low {low} is not a bin")),
         }
     }
     Ok(order

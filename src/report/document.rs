@@ -175,8 +175,12 @@ pub fn to_terminal(blocks: &[Block], width: usize) -> String {
                         *c = inline_plain(c);
                     }
                 }
-                t.notes = t.notes.iter().map(|n| inline_plain(n)).collect();
+                let notes: Vec<String> = t.notes.iter().map(|n| inline_plain(n)).collect();
+                t.notes.clear();
                 s.push_str(&t.to_terminal(Some(width as u16)));
+                for n in notes {
+                    s.push_str(&wrap(&n, width, "  ", "  "));
+                }
                 s.push('\n');
             }
             Block::Figure(p, _) => s.push_str(&format!("  figure: {p}\n\n")),

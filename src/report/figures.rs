@@ -184,7 +184,7 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
     let cols = 4usize;
     let rows = panels.len().div_ceil(cols);
     let (pw, ph) = (170.0, 110.0);
-    let (ml, mt, gap_x, gap_y) = (58.0, 52.0, 26.0, 48.0);
+    let (ml, mt, gap_x, gap_y) = (62.0, 56.0, 62.0, 48.0);
     let w = ml + cols as f64 * (pw + gap_x) + 10.0;
     let h = mt + rows as f64 * (ph + gap_y) + 10.0;
     let better = if higher_is_better(metric) { "above" } else { "below" };
@@ -371,7 +371,7 @@ fn reliability_panel(
         }
         v
     } else {
-        [0.0, 0.25, 0.5, 0.75, 1.0]
+        [0.0, 0.5, 1.0]
             .iter()
             .map(|&t| (t, format!("{t}")))
             .collect()
@@ -480,9 +480,9 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
         }
     }
     let side = 120.0;
-    let (ml, mt) = (110.0, 66.0);
+    let (ml, mt) = (215.0, 78.0);
     let cell_w = 2.0 * side + 70.0;
-    let row_h = side + 62.0;
+    let row_h = side + 72.0;
     let w = ml + sizes.len() as f64 * cell_w + 10.0;
     let h = mt + series.len() as f64 * row_h + 6.0;
     let mut s = open_svg(w, h, &format!("{task}: reliability diagrams"));
@@ -494,11 +494,11 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
         first.repeat
     ));
     s.push_str(&format!(
-        "<text x=\"10\" y=\"34\" fill=\"#444\">line: CORP curve (isotonic fit of outcome on prediction); grey: {:.0}% consistency band from {} label draws under calibration; dashed: diagonal</text>\n",
+        "<text x=\"10\" y=\"34\" fill=\"#444\">line: CORP curve (isotonic fit of outcome on prediction); grey: {:.0}% consistency band ({} label draws under calibration)</text>\n",
         first.curve.level * 100.0,
         first.curve.draws
     ));
-    s.push_str("<text x=\"10\" y=\"48\" fill=\"#444\">left of each pair: probability scale; right: log-odds scale (tails); bars: share of predictions (square-root height); BS = MCB − DSC + UNC</text>\n");
+    s.push_str("<text x=\"10\" y=\"48\" fill=\"#444\">left panel: probability scale; right panel: log-odds scale (tails); bars: predictions (square-root height)</text>\n");
     for (j, &n) in sizes.iter().enumerate() {
         s.push_str(&format!(
             "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"12\" font-weight=\"bold\">calibration size n = {n}</text>\n",
@@ -511,7 +511,7 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
         let y0 = mt + i as f64 * row_h + 4.0;
         s.push_str(&format!(
             "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"12\" font-weight=\"bold\" fill=\"{}\">{}</text>\n",
-            f(ml - 30.0),
+            f(ml - 24.0),
             f(y0 + side / 2.0),
             st.colour,
             esc(m)
@@ -532,13 +532,15 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
                 true,
             ));
             s.push_str(&format!(
-                "<text x=\"{}\" y=\"{}\" font-size=\"9\">BS {:.4} = MCB {:.4} − DSC {:.4} + UNC {:.4}; {} of {} points outside band</text>",
+                "<text x=\"{}\" y=\"{}\" font-size=\"9\">Brier {:.4} = MCB {:.4} − DSC {:.4} + UNC {:.4}</text><text x=\"{}\" y=\"{}\" font-size=\"9\" fill=\"#555\">{} of {} curve points outside the band</text>",
                 f(x0),
                 f(y0 + side + 48.0),
                 c.curve.brier,
                 c.curve.mcb,
                 c.curve.dsc,
                 c.curve.unc,
+                f(x0),
+                f(y0 + side + 59.0),
                 c.curve.outside,
                 c.curve.points.len()
             ));
@@ -583,7 +585,7 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
     let half = k.div_ceil(2);
     let (w, ml, mr) = (900.0, 230.0, 230.0);
     let aw = w - ml - mr;
-    let strip = 52.0 + 15.0 * half as f64;
+    let strip = 58.0 + 15.0 * half as f64;
     let mt = 50.0;
     let h = mt + strip * rows.len() as f64 + 10.0;
     let mut s = open_svg(w, h, &format!("average ranks by calibration size, {metric}"));
@@ -597,7 +599,7 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
         let mut order: Vec<usize> = (0..k).collect();
         order.sort_by(|&i, &j| x.friedman.avg_ranks[i].total_cmp(&x.friedman.avg_ranks[j]));
         let px = |rank: f64| ml + (rank - 1.0) / (k as f64 - 1.0).max(1.0) * aw;
-        let axis_y = y0 + 22.0;
+        let axis_y = y0 + 28.0;
         s.push_str(&format!(
             "<text x=\"10\" y=\"{}\" font-size=\"12\" font-weight=\"bold\">n = {} ({} tasks)</text>\n",
             f(axis_y - 8.0),
@@ -621,14 +623,16 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
             ));
         }
         if let Some(cd) = x.cd_05 {
+            let end = (1.0 + cd).min(k as f64);
             s.push_str(&format!(
-                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#B22222\" stroke-width=\"2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\" fill=\"#B22222\">CD {cd:.2}</text>\n",
-                f(ml + aw + 10.0),
-                f(ml + aw + 10.0 + cd / (k as f64 - 1.0).max(1.0) * aw),
-                f(axis_y - 12.0),
-                f(axis_y - 12.0),
-                f(ml + aw + 10.0),
-                f(axis_y - 16.0)
+                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#B22222\" stroke-width=\"2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\" fill=\"#B22222\">CD {cd:.2}{}</text>\n",
+                f(px(1.0)),
+                f(px(end)),
+                f(axis_y - 21.0),
+                f(axis_y - 21.0),
+                f(px(end) + 4.0),
+                f(axis_y - 18.0),
+                if end < 1.0 + cd { " (wider than the axis)" } else { "" }
             ));
             let sorted: Vec<f64> = order.iter().map(|&i| x.friedman.avg_ranks[i]).collect();
             for (g, &(i, j)) in cd_groups(&sorted, cd).iter().enumerate() {
@@ -710,8 +714,8 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
             0.5
         }
     };
-    let (cw, rh, ml, mt) = (50.0, 15.0, 190.0, 150.0);
-    let w = ml + cw * pairs.len() as f64 + 20.0;
+    let (cw, rh, ml, mt) = (50.0, 15.0, 190.0, 225.0);
+    let w = ml + cw * pairs.len() as f64 + 170.0;
     let h = mt + rh * tasks.len() as f64 + 60.0;
     let mut s = open_svg(w, h, &format!("data-size thresholds, {metric}"));
     s.push_str(&format!(

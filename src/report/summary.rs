@@ -166,16 +166,16 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
             "n".into(),
             "tasks".into(),
             "best".into(),
-            format!("rank `{}`", d.default),
-            format!("rank `{ru}`"),
+            "rank (default)".into(),
+            "rank (runner-up)".into(),
             "CD".into(),
-            format!("`{}` vs `{ru}` {BETTER}/{SAME}/{WORSE}", d.default),
+            format!("vs runner-up {BETTER}/{SAME}/{WORSE}"),
             "Friedman p".into(),
         ],
         rows: Vec::new(),
         notes: vec![format!(
-            "Ranks: average over tasks of each method's rank by mean {} (1 = best). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. {BETTER}/{SAME}/{WORSE}: tasks on which `{}` is reliably better / not distinguishable / reliably worse than `{ru}` (paired interval per task).",
-            d.metric, d.default
+            "Default `{}`, runner-up `{ru}`. Ranks: average over tasks of each method's rank by mean {} (1 = best). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. {BETTER}/{SAME}/{WORSE}: tasks on which `{}` is reliably better / not distinguishable / reliably worse than `{ru}` (paired interval per task).",
+            d.default, d.metric, d.default
         )],
     };
     for v in &d.per_size {
