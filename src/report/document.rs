@@ -185,7 +185,12 @@ pub fn to_terminal(blocks: &[Block], width: usize) -> String {
             }
             Block::Figure(p, _) => s.push_str(&format!("  figure: {p}\n\n")),
             Block::Caution(t) => {
-                s.push_str(&wrap(&inline_plain(t), width, "! ", "  "));
+                s.push_str(&wrap(
+                    &format!("Caution. {}", inline_plain(t)),
+                    width,
+                    "! ",
+                    "! ",
+                ));
                 s.push('\n');
             }
         }

@@ -217,8 +217,15 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
         String::new()
     };
     out.push(Block::Para(format!(
-        "**How strong the evidence is.** {} tasks from {} datasets{models}, {} methods, every method fitted on the same calibration sample and scored on the same test set in each of the suite's repeats. The rule: at each calibration size, rank the methods on each task by mean loss and average the ranks over tasks (Demšar 2006); the team default has the lowest mean of these average ranks over the sizes, each size weighing the same. Tasks that share a dataset are not independent evidence, so the tests across tasks are optimistic; the effective number of cases is nearer {} than {}.",
-        d.tasks, d.datasets, a.methods.len(), d.datasets, d.tasks
+        "**How strong the evidence is.** {} tasks from {} datasets{models}, {} methods, every method fitted on the same calibration sample and scored on the same test set in each of the suite's repeats. The rule: at each calibration size, rank the methods on each task by mean loss and average the ranks over tasks (Demšar 2006); the team default has the lowest mean of these average ranks over the sizes, each size weighing the same.{}",
+        d.tasks,
+        d.datasets,
+        a.methods.len(),
+        if d.datasets < d.tasks {
+            format!(" Tasks that share a dataset are not independent evidence, so the tests across tasks are optimistic; the effective number of cases is nearer {} than {}.", d.datasets, d.tasks)
+        } else {
+            String::new()
+        }
     )));
     if d.datasets < 10 {
         out.push(Block::Para(format!(
@@ -250,8 +257,14 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
         .filter(|&r| r < REPEATS_CHECKED)
         .collect();
     if let (Some(r), true) = (few.iter().min(), kind == Some(IntervalKind::default())) {
+        let most = a.paired.iter().map(|p| p.repeats).max().unwrap_or(0);
+        let why = if most < REPEATS_CHECKED {
+            format!("the suite runs {most} repeats")
+        } else {
+            "failed or one-class fits leave gaps, see *Unit status*".to_string()
+        };
         out.push(Block::Para(format!(
-            "**Note on intervals:** {} of {} comparisons rest on fewer than {REPEATS_CHECKED} repeats (as few as {r}; failed or one-class fits leave gaps, see *Unit status*). The coverage study checked the default interval at {REPEATS_CHECKED} repeats; with fewer, coverage is unchecked.",
+            "**Note on intervals:** {} of {} comparisons rest on fewer than {REPEATS_CHECKED} repeats (as few as {r}; {why}). The coverage study checked the default interval at {REPEATS_CHECKED} repeats; with fewer, coverage is unchecked.",
             few.len(),
             a.paired.len()
         )));
