@@ -261,7 +261,7 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
         let why = if most < REPEATS_CHECKED {
             format!("the suite runs {most} repeats")
         } else {
-            "failed or one-class fits leave gaps, see *Unit status*".to_string()
+            "failed or one-class fits leave gaps, see Unit status".to_string()
         };
         out.push(Block::Para(format!(
             "**Note on intervals:** {} of {} comparisons rest on fewer than {REPEATS_CHECKED} repeats (as few as {r}; {why}). The coverage study checked the default interval at {REPEATS_CHECKED} repeats; with fewer, coverage is unchecked.",

@@ -1,0 +1,161 @@
+//! The HTML report in a real headless browser (Debian's chromium): the page
+//! loads with no console errors and no network requests, every figure has a
+//! non-zero rendered size, every contents link resolves to an element of the
+//! page, and a screenshot is saved in the test's temporary folder.
+//!
+//! Opt-in locally: without a browser on PATH (or in `PLUMBLINE_CHROMIUM`) the
+//! test says so and returns. With `PLUMBLINE_BROWSER_TEST=1` — set by
+//! `.ci/run`, which installs chromium when absent — a missing browser is a
+//! failure, never a silent pass.
+
+use std::fs;
+use std::path::{Path, PathBuf};
+use std::process::Command as Proc;
+
+use assert_cmd::Command;
+use tempfile::TempDir;
+
+fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+fn browser() -> Option<PathBuf> {
+    if let Some(p) = std::env::var_os("PLUMBLINE_CHROMIUM") {
+        return Some(PathBuf::from(p));
+    }
+    let path = std::env::var_os("PATH")?;
+    for dir in std::env::split_paths(&path) {
+        for name in ["chromium", "chromium-browser", "google-chrome"] {
+            let p = dir.join(name);
+            if p.is_file() {
+                return Some(p);
+            }
+        }
+    }
+    None
+}
+
+fn copy_dir(from: &Path, to: &Path) {
+    fs::create_dir_all(to).unwrap();
+    for e in fs::read_dir(from).unwrap() {
+        let e = e.unwrap();
+        if e.path().is_file() {
+            fs::copy(e.path(), to.join(e.file_name())).unwrap();
+        }
+    }
+}
+
+fn chromium(exe: &Path, profile: &Path, extra: &[&str], url: &str) -> std::process::Output {
+    let mut c = Proc::new(exe);
+    c.args([
+        "--headless",
+        "--no-sandbox",
+        "--disable-gpu",
+        "--disable-quic",
+        "--no-first-run",
+        "--disable-background-networking",
+        "--disable-component-update",
+        "--disable-sync",
+        "--allow-file-access-from-files",
+        "--enable-logging=stderr",
+        "--v=0",
+    ]);
+    c.arg(format!("--user-data-dir={}", profile.display()));
+    c.args(extra).arg(url);
+    c.output().expect("cannot start the browser")
+}
+
+const CHECK: &str = r##"<!DOCTYPE html>
+<html><head><meta charset="utf-8"></head><body>
+<iframe id="page" src="folder/index.html" style="width:1280px;height:3000px"></iframe>
+<script>
+document.getElementById('page').addEventListener('load', function () {
+  var d = this.contentDocument, w = this.contentWindow, out = {};
+  var svgs = d.querySelectorAll('figure svg');
+  out.figures = svgs.length;
+  out.zero = 0;
+  svgs.forEach(function (s) { var r = s.getBoundingClientRect(); if (!(r.width > 0 && r.height > 0)) out.zero++; });
+  var links = d.querySelectorAll('nav a[href^="#"]');
+  out.links = links.length;
+  out.broken = [];
+  links.forEach(function (a) { var id = decodeURIComponent(a.getAttribute('href').slice(1)); if (!d.getElementById(id)) out.broken.push(id); });
+  out.resources = w.performance.getEntriesByType('resource').length;
+  out.firstH2 = (d.querySelector('h2') || {}).id || '';
+  var pre = document.createElement('pre');
+  pre.textContent = 'RESULT ' + JSON.stringify(out) + ' END';
+  document.body.appendChild(pre);
+});
+</script></body></html>
+"##;
+
+#[test]
+fn html_report_renders_in_a_headless_browser() {
+    let required = std::env::var("PLUMBLINE_BROWSER_TEST").is_ok_and(|v| v == "1");
+    let Some(exe) = browser() else {
+        assert!(
+            !required,
+            "PLUMBLINE_BROWSER_TEST=1 but no chromium on PATH (install Debian's `chromium`, or set PLUMBLINE_CHROMIUM)"
+        );
+        eprintln!("skipped: no chromium on PATH (set PLUMBLINE_BROWSER_TEST=1 to require it)");
+        return;
+    };
+    let tmp = TempDir::new().unwrap();
+    let folder = tmp.path().join("folder");
+    copy_dir(&root().join("tests/fixtures/report/folder"), &folder);
+    Command::cargo_bin("plumbline")
+        .unwrap()
+        .args(["report", folder.to_str().unwrap()])
+        .assert()
+        .success();
+    let figures_on_disk = fs::read_dir(folder.join("figures")).unwrap().count();
+    let profile = tmp.path().join("profile");
+    // 1. Load the page itself, take a screenshot, collect console messages.
+    let index = folder.join("index.html");
+    let shot = tmp.path().join("screenshot.png");
+    let out = chromium(
+        &exe,
+        &profile,
+        &[
+            &format!("--screenshot={}", shot.display()),
+            "--window-size=1280,2400",
+            "--hide-scrollbars",
+        ],
+        &format!("file://{}", index.display()),
+    );
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        shot.is_file() && fs::metadata(&shot).unwrap().len() > 10_000,
+        "no screenshot; browser said:\n{stderr}"
+    );
+    let console: Vec<&str> = stderr.lines().filter(|l| l.contains("CONSOLE")).collect();
+    assert!(console.is_empty(), "console messages:\n{}", console.join("\n"));
+    // 2. Measure the page from a same-folder wrapper.
+    let check = tmp.path().join("check.html");
+    fs::write(&check, CHECK).unwrap();
+    let out = chromium(
+        &exe,
+        &profile,
+        &["--virtual-time-budget=10000", "--dump-dom"],
+        &format!("file://{}", check.display()),
+    );
+    let dom = String::from_utf8_lossy(&out.stdout);
+    // The last occurrence: the script's own source holds the marker too.
+    let json = (dom.matches("RESULT ").count() > 1)
+        .then(|| dom.rsplit("RESULT ").next())
+        .flatten()
+        .and_then(|r| r.split(" END").next())
+        .unwrap_or_else(|| {
+            panic!(
+                "the check page gave no result; browser said:\n{}",
+                String::from_utf8_lossy(&out.stderr)
+            )
+        });
+    let r: serde_json::Value = serde_json::from_str(json).unwrap();
+    eprintln!("browser check: {r}; screenshot {}", shot.display());
+    assert_eq!(r["figures"].as_u64().unwrap() as usize, figures_on_disk, "{r}");
+    assert_eq!(r["zero"], 0, "figures with no rendered size: {r}");
+    assert!(r["links"].as_u64().unwrap() >= 8, "{r}");
+    assert_eq!(r["broken"].as_array().unwrap().len(), 0, "{r}");
+    assert_eq!(r["resources"], 0, "the page loaded outside resources: {r}");
+    assert_eq!(r["firstH2"], "decision", "{r}");
+}

@@ -1,0 +1,90 @@
+//! The published run in `results/open-uci/` is what the documented command
+//! produces: the default suite is run again into a temporary folder and every
+//! committed file is compared byte for byte (manifest.json without its
+//! machine-dependent fields: times, thread count, cache use).
+//!
+//! Opt-in locally (about a minute or two on 2 cores): set
+//! `PLUMBLINE_PUBLISHED_TEST=1`. `.ci/run` sets it.
+
+use std::fs;
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+use tempfile::TempDir;
+
+fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+fn files(base: &Path, d: &Path, out: &mut Vec<String>) {
+    for e in fs::read_dir(d).unwrap() {
+        let p = e.unwrap().path();
+        if p.is_dir() {
+            files(base, &p, out);
+        } else {
+            out.push(p.strip_prefix(base).unwrap().to_string_lossy().replace('\\', "/"));
+        }
+    }
+}
+
+/// manifest.json without what depends on the machine or the moment.
+fn stable_manifest(text: &str) -> serde_json::Value {
+    let mut m: serde_json::Value = serde_json::from_str(text).unwrap();
+    let o = m.as_object_mut().unwrap();
+    for k in ["started", "finished", "wall_seconds", "threads", "resumed_units", "git_commit"] {
+        o.remove(k);
+    }
+    if let Some(pools) = o.get_mut("score_pools").and_then(|p| p.as_array_mut()) {
+        for p in pools {
+            if let Some(p) = p.as_object_mut() {
+                for k in ["cache_hit", "fit_seconds", "score_seconds"] {
+                    p.remove(k);
+                }
+            }
+        }
+    }
+    m
+}
+
+#[test]
+fn committed_published_run_matches_the_documented_command() {
+    if std::env::var("PLUMBLINE_PUBLISHED_TEST").map_or(true, |v| v != "1") {
+        eprintln!("skipped: set PLUMBLINE_PUBLISHED_TEST=1 to rerun the default suite");
+        return;
+    }
+    let published = root().join("results/open-uci");
+    let mut committed = Vec::new();
+    files(&published, &published, &mut committed);
+    committed.sort();
+    for needed in ["summary.md", "index.html", "paired.csv", "thresholds.csv", "manifest.json", "reliability.csv"] {
+        assert!(committed.iter().any(|f| f == needed), "results/open-uci/{needed} is not committed");
+    }
+    let tmp = TempDir::new().unwrap();
+    let out = tmp.path().join("open-uci");
+    // The documented command is `plumbline run` from the repository root
+    // (default suite suites/open-uci.toml); only the folder differs here.
+    Command::cargo_bin("plumbline")
+        .unwrap()
+        .current_dir(root())
+        .args(["run", "--out", out.to_str().unwrap(), "--quiet"])
+        .assert()
+        .success();
+    let mut differ = Vec::new();
+    for f in &committed {
+        let fresh = fs::read(out.join(f)).unwrap_or_else(|_| panic!("the run did not write {f}"));
+        let old = fs::read(published.join(f)).unwrap();
+        let same = if f == "manifest.json" {
+            stable_manifest(&String::from_utf8_lossy(&old))
+                == stable_manifest(&String::from_utf8_lossy(&fresh))
+        } else {
+            old == fresh
+        };
+        if !same {
+            differ.push(f.clone());
+        }
+    }
+    assert!(
+        differ.is_empty(),
+        "results/open-uci differs from a fresh run in: {differ:?}\nregenerate with `cargo run --release -- run --force` and commit"
+    );
+}
