@@ -6,9 +6,11 @@ use crate::run::table::num;
 pub const PAIRED_HEADER: &str =
     "task,size,method,reference,metric,repeats,mean_method,mean_reference,mean_diff,ci_low,ci_high,se,wins,ties,losses,interval,confidence,reservoir_order";
 
+/// Seven significant digits: more than the intervals resolve, and half the
+/// bytes of the shortest round-trip form.
 fn f(v: f64) -> String {
     if v.is_finite() {
-        num(v)
+        num(crate::metrics::reliability::round_sig(v, 7))
     } else {
         String::new()
     }

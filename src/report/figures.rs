@@ -88,6 +88,18 @@ fn f(v: f64) -> String {
     }
 }
 
+/// `x,y` pairs for `points=""`, consecutive repeats (after rounding) dropped.
+fn point_list(pts: impl Iterator<Item = (f64, f64)>) -> String {
+    let mut out: Vec<String> = Vec::new();
+    for (x, y) in pts {
+        let p = format!("{},{}", f(x), f(y));
+        if out.last() != Some(&p) {
+            out.push(p);
+        }
+    }
+    out.join(" ")
+}
+
 fn marker(m: Marker, x: f64, y: f64, r: f64, fill: &str) -> String {
     match m {
         Marker::Circle => format!(
@@ -378,7 +390,7 @@ fn reliability_panel(
     };
     for (p, label) in &tick_values {
         s.push_str(&format!(
-            "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"8\" fill=\"#555\">{label}</text><text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"8\" fill=\"#555\">{label}</text>",
+            "<text x=\"{}\" y=\"{}\" class=\"tm\">{label}</text><text x=\"{}\" y=\"{}\" class=\"te\">{label}</text>",
             f(px(*p)),
             f(y0 + side + 9.0),
             f(x0 - 2.0),
@@ -399,28 +411,18 @@ fn reliability_panel(
         .filter(|p| p.low.is_finite() && p.high.is_finite())
         .collect();
     if !pts.is_empty() {
-        let band: Vec<String> = pts
-            .iter()
-            .map(|p| format!("{},{}", f(px(p.x)), f(py(p.high))))
-            .chain(
-                pts.iter()
-                    .rev()
-                    .map(|p| format!("{},{}", f(px(p.x)), f(py(p.low)))),
-            )
-            .collect();
+        let band = point_list(
+            pts.iter()
+                .map(|p| (px(p.x), py(p.high)))
+                .chain(pts.iter().rev().map(|p| (px(p.x), py(p.low)))),
+        );
         s.push_str(&format!(
-            "<polygon points=\"{}\" fill=\"#8a8a8a\" fill-opacity=\"0.25\"/>",
-            band.join(" ")
+            "<polygon points=\"{band}\" fill=\"#8a8a8a\" fill-opacity=\"0.25\"/>"
         ));
     }
-    let line: Vec<String> = c
-        .points
-        .iter()
-        .map(|p| format!("{},{}", f(px(p.x)), f(py(p.y))))
-        .collect();
+    let line = point_list(c.points.iter().map(|p| (px(p.x), py(p.y))));
     s.push_str(&format!(
-        "<polyline points=\"{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>",
-        line.join(" "),
+        "<polyline points=\"{line}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>",
         st.colour,
         dash(st)
     ));
@@ -486,6 +488,7 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
     let w = ml + sizes.len() as f64 * cell_w + 10.0;
     let h = mt + series.len() as f64 * row_h + 6.0;
     let mut s = open_svg(w, h, &format!("{task}: reliability diagrams"));
+    s.push_str("<style>.tm{font-size:8px;fill:#555;text-anchor:middle}.te{font-size:8px;fill:#555;text-anchor:end}</style>\n");
     let first = mine[0];
     s.push_str(&format!(
         "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">{}: reliability on the test set ({} rows), repeat {}</text>\n",
