@@ -88,11 +88,20 @@ fn f(v: f64) -> String {
     }
 }
 
-/// `x,y` pairs for `points=""`, consecutive repeats (after rounding) dropped.
+/// `x,y` pairs for `points=""` on a half-pixel grid, consecutive repeats
+/// (after rounding) dropped: plenty for a line at screen resolution.
 fn point_list(pts: impl Iterator<Item = (f64, f64)>) -> String {
+    let half = |v: f64| {
+        let r = (v * 2.0).round() / 2.0;
+        if r == r.trunc() {
+            format!("{r:.0}")
+        } else {
+            format!("{r:.1}")
+        }
+    };
     let mut out: Vec<String> = Vec::new();
     for (x, y) in pts {
-        let p = format!("{},{}", f(x), f(y));
+        let p = format!("{},{}", half(x), half(y));
         if out.last() != Some(&p) {
             out.push(p);
         }
@@ -268,31 +277,24 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
             f(y(0.0)),
             f(y(0.0))
         ));
-        let band: Vec<String> = pts
+        let ok: Vec<_> = pts
             .iter()
             .filter(|p| p.2.is_finite() && p.3.is_finite())
-            .map(|p| format!("{},{}", f(x(p.0)), f(y(p.3))))
-            .chain(
-                pts.iter()
-                    .rev()
-                    .filter(|p| p.2.is_finite() && p.3.is_finite())
-                    .map(|p| format!("{},{}", f(x(p.0)), f(y(p.2)))),
-            )
             .collect();
-        if !band.is_empty() {
+        if !ok.is_empty() {
+            let band = point_list(
+                ok.iter()
+                    .map(|p| (x(p.0), y(p.3)))
+                    .chain(ok.iter().rev().map(|p| (x(p.0), y(p.2)))),
+            );
             s.push_str(&format!(
-                "<polygon points=\"{}\" fill=\"{}\" fill-opacity=\"0.2\"/>\n",
-                band.join(" "),
+                "<polygon points=\"{band}\" fill=\"{}\" fill-opacity=\"0.2\"/>\n",
                 st.colour
             ));
         }
-        let line: Vec<String> = pts
-            .iter()
-            .map(|p| format!("{},{}", f(x(p.0)), f(y(p.1))))
-            .collect();
+        let line = point_list(pts.iter().map(|p| (x(p.0), y(p.1))));
         s.push_str(&format!(
-            "<polyline points=\"{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>\n",
-            line.join(" "),
+            "<polyline points=\"{line}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>\n",
             st.colour,
             dash(st)
         ));
@@ -722,6 +724,10 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
     let h = mt + rh * tasks.len() as f64 + 60.0;
     let mut s = open_svg(w, h, &format!("data-size thresholds, {metric}"));
     s.push_str(&format!(
+        "<style>.c{{stroke:#fff}}.v{{text-anchor:middle;font-size:9px}}</style>\n"
+    ));
+    let (cwi, rhi) = (cw - 1.0, rh - 1.0);
+    s.push_str(&format!(
         "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">From which calibration size a flexible method is reliably better ({})</text>\n",
         esc(metric)
     ));
@@ -766,11 +772,9 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
                 _ => ("#ffffff".to_string(), "?".to_string(), "#999"),
             };
             s.push_str(&format!(
-                "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" fill=\"{fill}\" stroke=\"#fff\"/><text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"9\" fill=\"{ink}\">{text}</text>\n",
+                "<rect x=\"{}\" y=\"{}\" width=\"{cwi}\" height=\"{rhi}\" fill=\"{fill}\" class=\"c\"/><text x=\"{}\" y=\"{}\" fill=\"{ink}\" class=\"v\">{text}</text>\n",
                 f(x),
                 f(y),
-                f(cw - 1.0),
-                f(rh - 1.0),
                 f(x + cw / 2.0),
                 f(y + rh - 4.0)
             ));
