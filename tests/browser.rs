@@ -128,7 +128,11 @@ fn html_report_renders_in_a_headless_browser() {
         "no screenshot; browser said:\n{stderr}"
     );
     let console: Vec<&str> = stderr.lines().filter(|l| l.contains("CONSOLE")).collect();
-    assert!(console.is_empty(), "console messages:\n{}", console.join("\n"));
+    assert!(
+        console.is_empty(),
+        "console messages:\n{}",
+        console.join("\n")
+    );
     // 2. Measure the page from a same-folder wrapper.
     let check = tmp.path().join("check.html");
     fs::write(&check, CHECK).unwrap();
@@ -152,7 +156,11 @@ fn html_report_renders_in_a_headless_browser() {
         });
     let r: serde_json::Value = serde_json::from_str(json).unwrap();
     eprintln!("browser check: {r}; screenshot {}", shot.display());
-    assert_eq!(r["figures"].as_u64().unwrap() as usize, figures_on_disk, "{r}");
+    assert_eq!(
+        r["figures"].as_u64().unwrap() as usize,
+        figures_on_disk,
+        "{r}"
+    );
     assert_eq!(r["zero"], 0, "figures with no rendered size: {r}");
     assert!(r["links"].as_u64().unwrap() >= 8, "{r}");
     assert_eq!(r["broken"].as_array().unwrap().len(), 0, "{r}");

@@ -22,7 +22,12 @@ fn files(base: &Path, d: &Path, out: &mut Vec<String>) {
         if p.is_dir() {
             files(base, &p, out);
         } else {
-            out.push(p.strip_prefix(base).unwrap().to_string_lossy().replace('\\', "/"));
+            out.push(
+                p.strip_prefix(base)
+                    .unwrap()
+                    .to_string_lossy()
+                    .replace('\\', "/"),
+            );
         }
     }
 }
@@ -31,7 +36,14 @@ fn files(base: &Path, d: &Path, out: &mut Vec<String>) {
 fn stable_manifest(text: &str) -> serde_json::Value {
     let mut m: serde_json::Value = serde_json::from_str(text).unwrap();
     let o = m.as_object_mut().unwrap();
-    for k in ["started", "finished", "wall_seconds", "threads", "resumed_units", "git_commit"] {
+    for k in [
+        "started",
+        "finished",
+        "wall_seconds",
+        "threads",
+        "resumed_units",
+        "git_commit",
+    ] {
         o.remove(k);
     }
     if let Some(pools) = o.get_mut("score_pools").and_then(|p| p.as_array_mut()) {
@@ -56,8 +68,17 @@ fn committed_published_run_matches_the_documented_command() {
     let mut committed = Vec::new();
     files(&published, &published, &mut committed);
     committed.sort();
-    for needed in ["summary.md", "paired.csv", "thresholds.csv", "manifest.json", "reliability.csv"] {
-        assert!(committed.iter().any(|f| f == needed), "results/open-uci/{needed} is not committed");
+    for needed in [
+        "summary.md",
+        "paired.csv",
+        "thresholds.csv",
+        "manifest.json",
+        "reliability.csv",
+    ] {
+        assert!(
+            committed.iter().any(|f| f == needed),
+            "results/open-uci/{needed} is not committed"
+        );
     }
     let tmp = TempDir::new().unwrap();
     let out = tmp.path().join("open-uci");

@@ -131,29 +131,73 @@ fn every_table_format_matches_its_snapshot() {
 fn terminal_fits_100_columns_and_every_format_leads_with_the_decision() {
     let (_tmp, dir, terminal) = reported_fixture();
     for (i, l) in terminal.lines().enumerate() {
-        assert!(l.chars().count() <= 100, "line {}: {} chars: {l}", i + 1, l.chars().count());
+        assert!(
+            l.chars().count() <= 100,
+            "line {}: {} chars: {l}",
+            i + 1,
+            l.chars().count()
+        );
     }
     let md = fs::read_to_string(dir.join("summary.md")).unwrap();
     let html = fs::read_to_string(dir.join("index.html")).unwrap();
     for (name, text, order) in [
-        ("terminal", &terminal, ["Decision", "Caution", "Ranks across tasks", "How much calibration data"]),
-        ("summary.md", &md, ["## Decision", "**Caution.**", "## Ranks across tasks", "## Results per dataset"]),
-        ("index.html", &html, ["id=\"decision\"", "class=\"caution\"", "id=\"ranks\"", "id=\"tasks\""]),
+        (
+            "terminal",
+            &terminal,
+            [
+                "Decision",
+                "Caution",
+                "Ranks across tasks",
+                "How much calibration data",
+            ],
+        ),
+        (
+            "summary.md",
+            &md,
+            [
+                "## Decision",
+                "**Caution.**",
+                "## Ranks across tasks",
+                "## Results per dataset",
+            ],
+        ),
+        (
+            "index.html",
+            &html,
+            [
+                "id=\"decision\"",
+                "class=\"caution\"",
+                "id=\"ranks\"",
+                "id=\"tasks\"",
+            ],
+        ),
     ] {
         let pos: Vec<usize> = order
             .iter()
-            .map(|k| text.find(k).unwrap_or_else(|| panic!("{name}: `{k}` missing")))
+            .map(|k| {
+                text.find(k)
+                    .unwrap_or_else(|| panic!("{name}: `{k}` missing"))
+            })
             .collect();
-        assert!(pos.windows(2).all(|w| w[0] < w[1]), "{name}: sections out of order {pos:?}");
+        assert!(
+            pos.windows(2).all(|w| w[0] < w[1]),
+            "{name}: sections out of order {pos:?}"
+        );
         assert!(text.contains("team default"), "{name}: no team default");
         // The standing caution: validation on the deployment population, and
         // the rules of the field where decisions about people are made.
         let flat = text.replace("\n! ", " ");
-        assert!(flat.contains("deployed") && flat.contains("licensed professional practice"), "{name}: caution");
+        assert!(
+            flat.contains("deployed") && flat.contains("licensed professional practice"),
+            "{name}: caution"
+        );
     }
     // One vocabulary: the legend's three marks appear in every format.
     for m in ["✓", "≈", "✗"] {
-        assert!(md.contains(m) && html.contains(m) && terminal.contains(m), "mark {m}");
+        assert!(
+            md.contains(m) && html.contains(m) && terminal.contains(m),
+            "mark {m}"
+        );
     }
     // An unknown task is an error naming it.
     bin()
@@ -179,7 +223,8 @@ fn every_svg_parses_and_holds_the_expected_series() {
         let text = fs::read_to_string(dir.join("figures").join(f)).unwrap();
         let doc = roxmltree::Document::parse(&text).unwrap_or_else(|e| panic!("{f}: {e}"));
         let lines = count(&doc, "polyline");
-        if f.ends_with("--log_loss.svg") && !f.starts_with("ranks") && !f.starts_with("thresholds") {
+        if f.ends_with("--log_loss.svg") && !f.starts_with("ranks") && !f.starts_with("thresholds")
+        {
             // One panel per non-reference method: identity, beta, isotonic, venn-abers.
             assert_eq!(lines, 4, "{f}");
             assert_eq!(count(&doc, "polygon"), 4, "{f}");
@@ -190,7 +235,9 @@ fn every_svg_parses_and_holds_the_expected_series() {
             // One marker path and label per method and size: 5 × 2.
             let labels = doc
                 .descendants()
-                .filter(|n| n.has_tag_name("text") && n.text().is_some_and(|t| t.starts_with("venn-abers ")))
+                .filter(|n| {
+                    n.has_tag_name("text") && n.text().is_some_and(|t| t.starts_with("venn-abers "))
+                })
                 .count();
             assert_eq!(labels, 2, "{f}");
         } else if f.starts_with("thresholds--") {
@@ -241,27 +288,51 @@ fn report_rebuilds_what_run_wrote_byte_for_byte() {
     let tmp = TempDir::new().unwrap();
     let suite = tmp.path().join("s.toml");
     let scores = root().join("suites/courier-data/route-boost.csv.gz");
-    fs::write(&suite, SMALL.replace("SCORES", &scores.to_string_lossy().replace('\\', "/"))).unwrap();
+    fs::write(
+        &suite,
+        SMALL.replace("SCORES", &scores.to_string_lossy().replace('\\', "/")),
+    )
+    .unwrap();
     let out = tmp.path().join("out");
     bin()
-        .args(["run", suite.to_str().unwrap(), "--out", out.to_str().unwrap(), "--quiet"])
+        .args([
+            "run",
+            suite.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--quiet",
+        ])
         .assert()
         .success();
     let copy = tmp.path().join("copy");
     copy_dir(&out, &copy);
     // Delete every published file, then rebuild from units.csv and the
     // reliability files.
-    let keep = ["units.csv", "timings.csv", "manifest.json", "reliability.csv", "reliability_hist.csv", "reliability_terms.csv"];
+    let keep = [
+        "units.csv",
+        "timings.csv",
+        "manifest.json",
+        "reliability.csv",
+        "reliability_hist.csv",
+        "reliability_terms.csv",
+    ];
     for f in files(&copy) {
         if !keep.contains(&f.as_str()) {
             fs::remove_file(copy.join(&f)).unwrap();
         }
     }
-    bin().args(["report", copy.to_str().unwrap()]).assert().success();
+    bin()
+        .args(["report", copy.to_str().unwrap()])
+        .assert()
+        .success();
     let written = files(&out);
     assert_eq!(files(&copy), written);
     for f in &written {
-        assert_eq!(fs::read(out.join(f)).unwrap(), fs::read(copy.join(f)).unwrap(), "{f} differs");
+        assert_eq!(
+            fs::read(out.join(f)).unwrap(),
+            fs::read(copy.join(f)).unwrap(),
+            "{f} differs"
+        );
     }
     // Reliability rows: repeat 0 at size 300 only, for the two chosen methods
     // and the raw scores (no identity method in this suite).
@@ -271,12 +342,22 @@ fn report_rebuilds_what_run_wrote_byte_for_byte() {
         .skip(1)
         .map(|l| l.split(',').take(4).collect::<Vec<_>>().join(","))
         .collect();
-    assert_eq!(keys, ["over,300,0,uncalibrated", "over,300,0,platt", "over,300,0,isotonic"]);
+    assert_eq!(
+        keys,
+        [
+            "over,300,0,uncalibrated",
+            "over,300,0,platt",
+            "over,300,0,isotonic"
+        ]
+    );
 }
 
 /// Scores and labels of one demo model.
 fn demo(stem: &str, rows: usize, seed: u64) -> (Vec<f64>, Vec<bool>) {
-    let m = plumbline::simulate::MODELS.iter().find(|m| m.stem == stem).unwrap();
+    let m = plumbline::simulate::MODELS
+        .iter()
+        .find(|m| m.stem == stem)
+        .unwrap();
     let csv = plumbline::simulate::generate(m, rows, seed);
     let mut lines = csv.lines();
     let head: Vec<&str> = lines.next().unwrap().split(',').collect();
@@ -302,20 +383,33 @@ fn demo(stem: &str, rows: usize, seed: u64) -> (Vec<f64>, Vec<bool>) {
 #[test]
 fn the_band_holds_the_diagonal_on_calibrated_scores() {
     use plumbline::metrics::reliability::{curve, BandSettings};
-    let band = BandSettings { draws: 200, level: 0.9 };
+    let band = BandSettings {
+        draws: 200,
+        level: 0.9,
+    };
     let (mut inside, mut curve_inside, mut total) = (0, 0, 0);
     for seed in 1..=5u64 {
         let (p, y) = demo("eta-calibrated", 4000, seed);
         let c = curve("calibrated", &p, &y, band, seed + 100).unwrap();
-        inside += c.points.iter().filter(|q| q.low <= q.x && q.x <= q.high).count();
+        inside += c
+            .points
+            .iter()
+            .filter(|q| q.low <= q.x && q.x <= q.high)
+            .count();
         curve_inside += c.points.len() - c.outside;
         total += c.points.len();
     }
     let share = inside as f64 / total as f64;
     let curve_share = curve_inside as f64 / total as f64;
     eprintln!("of {total} curve points: diagonal inside the 90% band at {share:.3}, observed curve inside at {curve_share:.3}");
-    assert!(share >= 0.75, "diagonal inside the band at {share:.3} of {total} points");
-    assert!(curve_share >= 0.75, "observed curve inside the band at {curve_share:.3} of {total} points");
+    assert!(
+        share >= 0.75,
+        "diagonal inside the band at {share:.3} of {total} points"
+    );
+    assert!(
+        curve_share >= 0.75,
+        "observed curve inside the band at {curve_share:.3} of {total} points"
+    );
 }
 
 /// The over-confident demo model (logit s = 1.8·logit q + 0.2) must show a
@@ -324,12 +418,26 @@ fn the_band_holds_the_diagonal_on_calibrated_scores() {
 #[test]
 fn over_confident_scores_have_larger_miscalibration() {
     use plumbline::metrics::reliability::{curve, BandSettings};
-    let band = BandSettings { draws: 100, level: 0.9 };
+    let band = BandSettings {
+        draws: 100,
+        level: 0.9,
+    };
     let (p, y) = demo("eta-calibrated", 6000, 9);
     let cal = curve("calibrated", &p, &y, band, 1).unwrap();
     let (p, y) = demo("route-boost", 6000, 9);
     let over = curve("over", &p, &y, band, 1).unwrap();
-    assert!(over.mcb > 3.0 * cal.mcb, "MCB over {} vs calibrated {}", over.mcb, cal.mcb);
-    let share = |c: &plumbline::metrics::reliability::Curve| c.outside as f64 / c.points.len() as f64;
-    assert!(share(&over) > share(&cal), "outside share {} vs {}", share(&over), share(&cal));
+    assert!(
+        over.mcb > 3.0 * cal.mcb,
+        "MCB over {} vs calibrated {}",
+        over.mcb,
+        cal.mcb
+    );
+    let share =
+        |c: &plumbline::metrics::reliability::Curve| c.outside as f64 / c.points.len() as f64;
+    assert!(
+        share(&over) > share(&cal),
+        "outside share {} vs {}",
+        share(&over),
+        share(&cal)
+    );
 }

@@ -8,7 +8,7 @@
 //! of these average ranks over the sizes, each size weighing the same; the
 //! runner-up is second. Ties go to the method listed first in the suite.
 
-use super::steps::{pair_interval, Cells};
+use super::steps::{pair_interval, Cells, PairSource};
 use super::{AcrossRow, AnalysisSettings};
 use crate::run::table::UnitTable;
 use crate::stats::paired::Record;
@@ -111,9 +111,12 @@ pub fn decide(
         let versus_runner_up = runner_up.as_ref().map(|ru| {
             let mut rec = Record::default();
             for task in &r.tasks {
-                if let Some(iv) = pair_interval(
-                    table, cells, settings, task, r.size, &default, ru, metric, mi,
-                ) {
+                let src = PairSource {
+                    table,
+                    cells,
+                    settings,
+                };
+                if let Some(iv) = pair_interval(&src, task, r.size, &default, ru, metric, mi) {
                     match iv.sign() {
                         -1 => rec.wins += 1,
                         1 => rec.losses += 1,

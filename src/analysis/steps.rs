@@ -60,7 +60,10 @@ pub fn across_step(c: &StepInput, metric: &str) -> Vec<AcrossRow> {
                     c.summaries
                         .iter()
                         .find(|x| {
-                            x.task == *task && x.size == size && x.method == *m && x.metric == metric
+                            x.task == *task
+                                && x.size == size
+                                && x.method == *m
+                                && x.metric == metric
                         })
                         .and_then(|x| compared_value(metric, x.mean))
                         .filter(|v| v.is_finite())
@@ -85,7 +88,10 @@ pub fn across_step(c: &StepInput, metric: &str) -> Vec<AcrossRow> {
                     .paired
                     .iter()
                     .filter(|p| {
-                        p.size == size && p.method == *m && p.metric == metric && used.contains(&p.task)
+                        p.size == size
+                            && p.method == *m
+                            && p.metric == metric
+                            && used.contains(&p.task)
                     })
                     .filter(|p| p.ci_low.is_finite())
                     .map(|p| oriented(p.mean_diff, p.ci_low, p.ci_high, p.se, p.confidence, hib))
@@ -125,12 +131,20 @@ pub fn oriented(mean: f64, low: f64, high: f64, se: f64, confidence: f64, hib: b
     }
 }
 
+/// Where paired intervals between any two methods come from.
+pub struct PairSource<'a> {
+    pub table: &'a UnitTable,
+    pub cells: &'a Cells,
+    pub settings: &'a AnalysisSettings,
+}
+
+/// Per-task threshold rows and the summary over tasks of each pair.
+pub type ThresholdOutput = (Vec<ThresholdRow>, Vec<((String, String), ThresholdSummary)>);
+
 /// The paired interval of method `a` − method `b` at one (task, size), turned
 /// so that below zero means `a` is better; `None` with fewer than 2 repeats.
 pub fn pair_interval(
-    c_table: &UnitTable,
-    cells: &Cells,
-    settings: &AnalysisSettings,
+    c: &PairSource,
     task: &str,
     size: usize,
     a: &str,
@@ -139,16 +153,16 @@ pub fn pair_interval(
     mi: usize,
 ) -> Option<Interval> {
     let (Some(ca), Some(cb)) = (
-        cells.get(&(task.to_string(), size, a.to_string())),
-        cells.get(&(task.to_string(), size, b.to_string())),
+        c.cells.get(&(task.to_string(), size, a.to_string())),
+        c.cells.get(&(task.to_string(), size, b.to_string())),
     ) else {
         return None;
     };
-    let pr = pair_up(c_table, ca, cb, mi, metric);
+    let pr = pair_up(c.table, ca, cb, mi, metric);
     if pr.diffs.len() < 2 {
         return None;
     }
-    let iv = paired_interval(c_table, &pr, metric, settings);
+    let iv = paired_interval(c.table, &pr, metric, c.settings);
     Some(if higher_is_better(metric) {
         Interval {
             mean: -iv.mean,
@@ -162,22 +176,21 @@ pub fn pair_interval(
 }
 
 /// Data-size thresholds of every (flexible, parametric) pair on every task.
-pub fn threshold_step(
-    c: &StepInput,
-    metric: &str,
-    mi: usize,
-) -> (Vec<ThresholdRow>, Vec<((String, String), ThresholdSummary)>) {
+pub fn threshold_step(c: &StepInput, metric: &str, mi: usize) -> ThresholdOutput {
     let mut thresholds = Vec::new();
     let mut summaries = Vec::new();
+    let src = PairSource {
+        table: c.table,
+        cells: c.cells,
+        settings: c.settings,
+    };
     for (flex, para) in &c.settings.pairs {
         let mut per_task = Vec::new();
         for task in c.tasks {
             let mut pts = Vec::new();
             let mut ivs = Vec::new();
             for &size in &c.sizes[task] {
-                let Some(iv) = pair_interval(
-                    c.table, c.cells, c.settings, task, size, flex, para, metric, mi,
-                ) else {
+                let Some(iv) = pair_interval(&src, task, size, flex, para, metric, mi) else {
                     continue;
                 };
                 pts.push((size, iv.mean, iv.low, iv.high));

@@ -383,9 +383,9 @@ pub fn from_csv(points: &str, hist: &str, terms: &str) -> Result<Vec<CurveRecord
     for (line, f) in fields(points, "reliability.csv", POINTS_HEADER, 8)? {
         let file = "reliability.csv";
         let k = key(file, line, &f)?;
-        let c = curves
-            .get_mut(&k)
-            .ok_or_else(|| format!("{file}: line {line}: no such curve in reliability_terms.csv"))?;
+        let c = curves.get_mut(&k).ok_or_else(|| {
+            format!("{file}: line {line}: no such curve in reliability_terms.csv")
+        })?;
         c.points.push(CurvePoint {
             x: num(file, line, f[4])?,
             y: num(file, line, f[5])?,
@@ -396,9 +396,9 @@ pub fn from_csv(points: &str, hist: &str, terms: &str) -> Result<Vec<CurveRecord
     for (line, f) in fields(hist, "reliability_hist.csv", HIST_HEADER, 8)? {
         let file = "reliability_hist.csv";
         let k = key(file, line, &f)?;
-        let c = curves
-            .get_mut(&k)
-            .ok_or_else(|| format!("{file}: line {line}: no such curve in reliability_terms.csv"))?;
+        let c = curves.get_mut(&k).ok_or_else(|| {
+            format!("{file}: line {line}: no such curve in reliability_terms.csv")
+        })?;
         let n: u64 = num(file, line, f[7])?;
         let low: f64 = num(file, line, f[5])?;
         let (bins, idx) = match f[4] {
@@ -406,7 +406,10 @@ pub fn from_csv(points: &str, hist: &str, terms: &str) -> Result<Vec<CurveRecord
             "log_odds" => (&mut c.hist_logit, low + LOGIT_RANGE),
             other => return Err(format!("{file}: line {line}: unknown scale `{other}`")),
         };
-        match (idx >= 0.0).then_some(idx as usize).and_then(|i| bins.get_mut(i)) {
+        match (idx >= 0.0)
+            .then_some(idx as usize)
+            .and_then(|i| bins.get_mut(i))
+        {
             Some(slot) => *slot = n,
             None => return Err(format!("{file}: line {line}: bin_low {low} is not a bin")),
         }
@@ -447,7 +450,17 @@ mod tests {
     fn curve_points_are_the_block_ends() {
         let p = [0.1, 0.2, 0.3, 0.4];
         let y = [false, true, false, true];
-        let c = curve("m", &p, &y, BandSettings { draws: 10, level: 0.9 }, 1).unwrap();
+        let c = curve(
+            "m",
+            &p,
+            &y,
+            BandSettings {
+                draws: 10,
+                level: 0.9,
+            },
+            1,
+        )
+        .unwrap();
         let xy: Vec<(f64, f64)> = c.points.iter().map(|q| (q.x, q.y)).collect();
         assert_eq!(xy, vec![(0.1, 0.0), (0.2, 0.5), (0.3, 0.5), (0.4, 1.0)]);
         assert_eq!(c.hist_p.iter().sum::<u64>(), 4);
@@ -468,7 +481,17 @@ mod tests {
     #[test]
     fn csv_round_trip_is_exact() {
         let (p, y) = calibrated(500, 3);
-        let c = curve("platt", &p, &y, BandSettings { draws: 50, level: 0.9 }, 5).unwrap();
+        let c = curve(
+            "platt",
+            &p,
+            &y,
+            BandSettings {
+                draws: 50,
+                level: 0.9,
+            },
+            5,
+        )
+        .unwrap();
         let recs = vec![CurveRecord {
             task: "t".into(),
             size: 100,

@@ -177,12 +177,15 @@ fn higher_is_better(metric: &str) -> bool {
         .unwrap_or(false)
 }
 
+/// One method's points of a learning curve: (size, mean, low, high).
+type Series<'a> = (&'a String, Vec<(usize, f64, f64, f64)>);
+
 /// Learning curves of one task: one panel per method against the reference.
 pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) -> Option<String> {
     let sizes = a.sizes.get(task)?;
     let (xmin, xmax) = ((*sizes.first()? as f64).ln(), (*sizes.last()? as f64).ln());
     let xspan = if xmax > xmin { xmax - xmin } else { 1.0 };
-    let panels: Vec<(&String, Vec<(usize, f64, f64, f64)>)> = a
+    let panels: Vec<Series> = a
         .methods
         .iter()
         .filter(|m| *m != reference)
@@ -191,7 +194,10 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
                 .paired
                 .iter()
                 .filter(|p| {
-                    p.task == task && p.metric == metric && &p.method == m && p.mean_diff.is_finite()
+                    p.task == task
+                        && p.metric == metric
+                        && &p.method == m
+                        && p.mean_diff.is_finite()
                 })
                 .map(|p| (p.size, p.mean_diff, p.ci_low, p.ci_high))
                 .collect::<Vec<_>>();
@@ -208,7 +214,11 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
     let (ml, mt, gap_x, gap_y) = (62.0, 56.0, 62.0, 48.0);
     let w = ml + cols as f64 * (pw + gap_x) + 10.0;
     let h = mt + rows as f64 * (ph + gap_y) + 10.0;
-    let better = if higher_is_better(metric) { "above" } else { "below" };
+    let better = if higher_is_better(metric) {
+        "above"
+    } else {
+        "below"
+    };
     let mut s = open_svg(
         w,
         h,
@@ -593,7 +603,11 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
     let strip = 58.0 + 15.0 * half as f64;
     let mt = 50.0;
     let h = mt + strip * rows.len() as f64 + 10.0;
-    let mut s = open_svg(w, h, &format!("average ranks by calibration size, {metric}"));
+    let mut s = open_svg(
+        w,
+        h,
+        &format!("average ranks by calibration size, {metric}"),
+    );
     s.push_str(&format!(
         "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">Average rank of mean {} across tasks (1 = best)</text>\n",
         esc(metric)
@@ -723,9 +737,7 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
     let w = ml + cw * pairs.len() as f64 + 170.0;
     let h = mt + rh * tasks.len() as f64 + 60.0;
     let mut s = open_svg(w, h, &format!("data-size thresholds, {metric}"));
-    s.push_str(&format!(
-        "<style>.c{{stroke:#fff}}.v{{text-anchor:middle;font-size:9px}}</style>\n"
-    ));
+    s.push_str("<style>.c{stroke:#fff}.v{text-anchor:middle;font-size:9px}</style>\n");
     let (cwi, rhi) = (cw - 1.0, rh - 1.0);
     s.push_str(&format!(
         "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">From which calibration size a flexible method is reliably better ({})</text>\n",

@@ -93,10 +93,7 @@ fn para_html(t: &str, figures: &[(String, String)]) -> String {
 fn fig_id(path: &str) -> String {
     format!(
         "fig-{}",
-        super::document::anchor(
-            path.trim_start_matches("figures/")
-                .trim_end_matches(".svg")
-        )
+        super::document::anchor(path.trim_start_matches("figures/").trim_end_matches(".svg"))
     )
 }
 

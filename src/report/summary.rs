@@ -344,7 +344,10 @@ fn rank_blocks(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> 
         if detail == Detail::Full {
             out.push(Block::Figure(
                 format!("figures/ranks--{}.svg", d.metric),
-                format!("average ranks with Nemenyi critical difference, {}", d.metric),
+                format!(
+                    "average ranks with Nemenyi critical difference, {}",
+                    d.metric
+                ),
             ));
         } else {
             out.push(Block::Figure(
@@ -474,7 +477,10 @@ pub fn task_blocks(a: &Analysis, ctx: &ReportContext, task: &str) -> Vec<Block> 
     }
     out.push(Block::Figure(
         figures::figure_name(task, &s.primary_metric),
-        format!("learning curves of {task}: difference to {} by size", s.reference),
+        format!(
+            "learning curves of {task}: difference to {} by size",
+            s.reference
+        ),
     ));
     if ctx.curves.iter().any(|c| c.task == task) {
         out.push(Block::Figure(
@@ -512,7 +518,11 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
     }
     b.extend(evidence_blocks(a, ctx));
     b.push(Block::Caution(CAUTION.into()));
-    b.push(Block::Heading(2, "How to read the marks".into(), "legend".into()));
+    b.push(Block::Heading(
+        2,
+        "How to read the marks".into(),
+        "legend".into(),
+    ));
     b.push(Block::List(legend()));
     b.extend(rank_blocks(a, ctx, detail));
     b.extend(threshold_blocks(a, detail));

@@ -25,8 +25,8 @@ use std::time::Instant;
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
-use crate::calibrate::{Calibrator, FitError};
 use crate::calibrate::ScoreKind;
+use crate::calibrate::{Calibrator, FitError};
 use crate::metrics::reliability::{self, Curve, CurveRecord};
 use crate::metrics::scoring::clipped_count;
 use crate::split;

@@ -146,7 +146,11 @@ impl ReliabilityPlan {
     /// The sizes of one task whose repeat 0 carries curves.
     pub fn sizes_for(&self, task_sizes: &[usize]) -> Vec<usize> {
         match &self.sizes {
-            Some(s) => task_sizes.iter().copied().filter(|n| s.contains(n)).collect(),
+            Some(s) => task_sizes
+                .iter()
+                .copied()
+                .filter(|n| s.contains(n))
+                .collect(),
             None => {
                 let mut v: Vec<usize> = task_sizes
                     .first()
@@ -1185,7 +1189,10 @@ fn reliability_plan(
                 return Err(ctx.err(
                     span.clone(),
                     "reliability.methods",
-                    format!("`{id}` is not one of the suite's methods ({})", all.join(", ")),
+                    format!(
+                        "`{id}` is not one of the suite's methods ({})",
+                        all.join(", ")
+                    ),
                 ));
             }
         }
