@@ -60,10 +60,18 @@ unless --force is given.")]
         /// No progress bar and no table on the terminal.
         #[arg(long)]
         quiet: bool,
-        /// Replace an existing results folder.
+        /// Replace an existing results folder; also discard the journal of an
+        /// interrupted run that cannot be resumed (edited suite, changed data).
         #[arg(long)]
         force: bool,
+        /// Run only shard K of N (1 ≤ K ≤ N) into a shard folder
+        /// [default folder: results/<suite name>.shard-K-of-N]; join the N
+        /// shard folders with `plumbline merge`.
+        #[arg(long, value_name = "K/N")]
+        shard: Option<plumbline::scale::shard::ShardSpec>,
     },
+    #[command(flatten)]
+    Scale(plumbline::scale::cli::ScaleCommand),
     /// Validate a suite and print the resolved plan without running it.
     Check {
         /// Suite file.
@@ -124,6 +132,7 @@ fn main() -> ExitCode {
 
 fn dispatch(cmd: Command) -> anyhow::Result<()> {
     match cmd {
+        Command::Scale(c) => plumbline::scale::cli::dispatch(c)?,
         Command::Check { suite } => {
             let plan = app::load_plan(&suite)?;
             print!("{}", app::describe_plan(&plan));
@@ -135,6 +144,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
             threads,
             quiet,
             force,
+            shard,
         } => {
             let suite = suite.unwrap_or_else(|| PathBuf::from(app::DEFAULT_SUITE));
             if !suite.exists() {
@@ -149,6 +159,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 threads: threads.map(usize::from),
                 quiet,
                 force,
+                shard,
             };
             let s = app::run_suite(&args)?;
             if !quiet {
