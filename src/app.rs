@@ -9,7 +9,7 @@ use anyhow::{bail, Context, Result};
 use crate::analysis::{self, AnalysisSettings};
 use crate::metrics::reliability;
 use crate::report::{self, summary};
-use crate::run::{self, journal, journal::Journal, output, table::UnitTable, RunOptions};
+use crate::run::{self, journal, journal::Journal, output, RunOptions};
 use crate::stats::paired::IntervalKind;
 use crate::suite::{self, Plan, TaskSource};
 
@@ -420,9 +420,10 @@ pub(crate) fn write_results(
     // `plumbline report` redraws them byte for byte from the folder.
     let (points, hist, terms) = reliability::to_csv(&result.curves);
     ctx.curves = reliability::from_csv(&points, &hist, &terms).map_err(anyhow::Error::msg)?;
-    let mut units = Vec::new();
-    result.table.write_csv(&mut units)?;
-    output::write_file(dir, "units.csv", &units)?;
+    // Compressed while it is written: the plain text is never held whole.
+    let mut enc = flate2::GzBuilder::new().write(Vec::new(), flate2::Compression::default());
+    result.table.write_csv(&mut enc)?;
+    output::write_file(dir, run::table::UNITS_FILE, &enc.finish()?)?;
     output::write_file(dir, "timings.csv", timings_csv(&result.timings).as_bytes())?;
     for (name, bytes) in report::publish(&a, &ctx) {
         output::write_file(dir, &name, &bytes)?;
@@ -475,14 +476,19 @@ pub fn read_curves(dir: &Path) -> Result<Vec<reliability::CurveRecord>> {
         .map_err(|e| anyhow::anyhow!("{}: {e}", dir.display()))
 }
 
-/// `plumbline report`: rebuild every table from `units.csv` (settings from
+/// `plumbline report`: rebuild every table from `units.csv.gz` (or an older
+/// folder's `units.csv`; settings from
 /// `manifest.json` when present, else from the flags).
 pub fn report_dir(args: &ReportArgs) -> Result<String> {
-    let units_path = args.dir.join("units.csv");
-    let f = std::fs::File::open(&units_path)
-        .with_context(|| format!("cannot open {}", units_path.display()))?;
-    let table =
-        UnitTable::read_csv(f).with_context(|| format!("reading {}", units_path.display()))?;
+    let units_path = run::table::units_path(&args.dir).with_context(|| {
+        format!(
+            "{}: no unit table ({} or units.csv)",
+            args.dir.display(),
+            run::table::UNITS_FILE
+        )
+    })?;
+    let table = run::table::read_units_file(&units_path)
+        .with_context(|| format!("reading {}", units_path.display()))?;
     let manifest_path = args.dir.join("manifest.json");
     let manifest: Option<serde_json::Value> = std::fs::read(&manifest_path)
         .ok()

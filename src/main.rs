@@ -22,7 +22,7 @@ the metrics and the seed. See docs/suite-format.md, or start from suites/open-uc
 Typical session:
   plumbline check suites/courier-demo.toml     validate, print the plan and the unit count
   plumbline run suites/courier-demo.toml       run it; results in results/courier-demo/
-  plumbline report results/courier-demo        rebuild tables from units.csv";
+  plumbline report results/courier-demo        rebuild tables from units.csv.gz";
 
 #[derive(Parser)]
 #[command(name = "plumbline", version, about = ABOUT, long_about = LONG_ABOUT)]
@@ -36,7 +36,7 @@ enum Command {
     /// Run a suite and write its results folder.
     #[command(long_about = "\
 Run every unit (task × calibration size × repeat) of a suite in parallel and write the \
-results folder: manifest.json, units.csv, timings.csv, paired.csv, thresholds.csv, \
+results folder: manifest.json, units.csv.gz, timings.csv, paired.csv, thresholds.csv, \
 reliability.csv (with reliability_hist.csv and reliability_terms.csv), summary.md, \
 index.html, tables.tex and figures/ (learning curves, reliability diagrams, rank and \
 threshold charts). Then print the decision: the team default and runner-up, where the \
@@ -80,11 +80,11 @@ unless --force is given.")]
     /// Rebuild every table and figure from a results folder, or print one task's table.
     #[command(long_about = "\
 Rebuild paired.csv, thresholds.csv, summary.md, index.html, tables.tex and the figures \
-from a results folder's units.csv and reliability*.csv (settings from manifest.json unless \
+from a results folder's units.csv.gz and reliability*.csv (settings from manifest.json unless \
 overridden), then print the decision. With --task, print that task's table and write \
 nothing.")]
     Report {
-        /// Results folder (holding units.csv).
+        /// Results folder (holding units.csv.gz, or units.csv).
         dir: PathBuf,
         /// Print the table of this task (an id from the folder) instead of the summary.
         #[arg(long, value_name = "ID")]
