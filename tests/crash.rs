@@ -49,7 +49,10 @@ fn sigkill_at_random_moments_then_rerun_gives_the_uninterrupted_folder() {
             break;
         }
     }
-    assert!(interrupted >= 3, "only {interrupted} runs were killed mid-way (run took {t:?})");
+    assert!(
+        interrupted >= 3,
+        "only {interrupted} runs were killed mid-way (run took {t:?})"
+    );
     if !out.exists() {
         run(&suite, &out, &["--threads", "1"]);
     }
@@ -97,7 +100,8 @@ fn a_torn_journal_tail_loses_exactly_the_torn_record() {
 
     // Garbage appended after whole records (two lines of it).
     let mut f = fs::OpenOptions::new().append(true).open(&path).unwrap();
-    f.write_all(b"{\"task\":\"a\",\"si\n\x00\x00garbage").unwrap();
+    f.write_all(b"{\"task\":\"a\",\"si\n\x00\x00garbage")
+        .unwrap();
     drop(f);
     let (j, done) = Journal::open(&staging, &key, false).unwrap();
     assert_eq!((done.len(), j.dropped), (n - 1, 2));
@@ -115,7 +119,10 @@ fn a_torn_journal_tail_loses_exactly_the_torn_record() {
     lines[3] = "not json".into();
     fs::write(&path, lines.join("\n") + "\n").unwrap();
     let err = Journal::open(&staging, &key, false).err().unwrap();
-    assert!(err.contains("line 4 is damaged but line 5 after it is whole"), "{err}");
+    assert!(
+        err.contains("line 4 is damaged but line 5 after it is whole"),
+        "{err}"
+    );
 }
 
 #[test]
@@ -139,7 +146,13 @@ fn resuming_an_edited_suite_or_changed_data_is_refused() {
 
     let refused = |needle: &str| {
         let o = bin()
-            .args(["run", suite.to_str().unwrap(), "--out", out.to_str().unwrap(), "--quiet"])
+            .args([
+                "run",
+                suite.to_str().unwrap(),
+                "--out",
+                out.to_str().unwrap(),
+                "--quiet",
+            ])
             .assert()
             .failure()
             .get_output()

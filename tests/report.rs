@@ -249,9 +249,9 @@ fn report_rebuilds_what_run_wrote_byte_for_byte() {
         .success();
     let copy = tmp.path().join("copy");
     copy_dir(&out, &copy);
-    // Delete every published file, then rebuild from units.csv and the
+    // Delete every published file, then rebuild from units.csv.gz and the
     // reliability files.
-    let keep = ["units.csv", "timings.csv", "manifest.json", "reliability.csv", "reliability_hist.csv", "reliability_terms.csv"];
+    let keep = ["units.csv.gz", "timings.csv", "manifest.json", "reliability.csv", "reliability_hist.csv", "reliability_terms.csv"];
     for f in files(&copy) {
         if !keep.contains(&f.as_str()) {
             fs::remove_file(copy.join(&f)).unwrap();

@@ -33,7 +33,11 @@ impl Setup {
         (1..=n)
             .map(|k| {
                 let out = self.p(&format!("{prefix}{k}"));
-                run(&self.suite, &out, &["--shard", &format!("{k}/{n}"), "--threads", "1"]);
+                run(
+                    &self.suite,
+                    &out,
+                    &["--shard", &format!("{k}/{n}"), "--threads", "1"],
+                );
                 out
             })
             .collect()
@@ -48,7 +52,12 @@ fn merge_args(shards: &[PathBuf], out: &Path) -> Vec<String> {
 }
 
 fn merge_fails(shards: &[PathBuf], out: &Path, needles: &[&str]) {
-    let o = bin().args(merge_args(shards, out)).assert().failure().get_output().clone();
+    let o = bin()
+        .args(merge_args(shards, out))
+        .assert()
+        .failure()
+        .get_output()
+        .clone();
     let err = String::from_utf8_lossy(&o.stderr).to_string();
     for n in needles {
         assert!(err.contains(n), "`{n}` not in: {err}");
@@ -195,7 +204,10 @@ fn verify_tells_untouched_from_edited_folders() {
     run(&s.suite, &out, &[]);
     let (code, text) = verify(&out, &[]);
     assert_eq!(code, 0, "{text}");
-    assert!(text.contains("match: every compared file is identical"), "{text}");
+    assert!(
+        text.contains("match: every compared file is identical"),
+        "{text}"
+    );
     let (code, text) = verify(&out, &["--sample", "5"]);
     assert_eq!(code, 0, "{text}");
     assert!(text.contains("reran 5 of 24 units"), "{text}");
@@ -221,7 +233,10 @@ fn verify_tells_untouched_from_edited_folders() {
     edit_first_number(&published.join("paired.csv"));
     let (code, text) = verify(&published, &[]);
     assert_eq!(code, 1, "{text}");
-    assert!(text.contains("paired.csv: first difference on line 2"), "{text}");
+    assert!(
+        text.contains("paired.csv: first difference on line 2"),
+        "{text}"
+    );
 
     // One number edited in the unit table: the unit and column are named.
     let units = plumbline::run::table::units_path(&out).unwrap();
@@ -250,7 +265,9 @@ fn verify_tells_untouched_from_edited_folders() {
     );
 
     // An edited suite cannot be verified: an error.
-    let edited = fs::read_to_string(&s.suite).unwrap().replace("seed = 5", "seed = 8");
+    let edited = fs::read_to_string(&s.suite)
+        .unwrap()
+        .replace("seed = 5", "seed = 8");
     fs::write(&s.suite, edited).unwrap();
     let (code, text) = verify(&out, &[]);
     assert_eq!(code, 2, "{text}");

@@ -69,7 +69,10 @@ fn ensure_slurm() {
         let (ok, out) = sh(Proc::new("apt-get")
             .args(&args)
             .env("DEBIAN_FRONTEND", "noninteractive"));
-        assert!(ok, "apt-get {args:?} failed (the Slurm test needs root):\n{out}");
+        assert!(
+            ok,
+            "apt-get {args:?} failed (the Slurm test needs root):\n{out}"
+        );
     }
 }
 
@@ -92,7 +95,11 @@ fn slurm_job_array_and_merge_equal_the_one_machine_run() {
         dir: cdir,
     };
     let jobs = tmp.path().join("jobs");
-    assert!(ok, "the Slurm cluster did not start:\n{out}\n{}", cluster.logs(&jobs));
+    assert!(
+        ok,
+        "the Slurm cluster did not start:\n{out}\n{}",
+        cluster.logs(&jobs)
+    );
     // Wait for the node to register.
     let t0 = Instant::now();
     loop {

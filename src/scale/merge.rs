@@ -74,7 +74,12 @@ pub fn task_digests(m: &Value) -> Vec<(String, String)> {
         .as_array()
         .map(|ts| {
             ts.iter()
-                .map(|t| (str_at(t, &["id"]).to_string(), str_at(t, &["data_sha256"]).to_string()))
+                .map(|t| {
+                    (
+                        str_at(t, &["id"]).to_string(),
+                        str_at(t, &["data_sha256"]).to_string(),
+                    )
+                })
                 .collect()
         })
         .unwrap_or_default()
@@ -126,7 +131,10 @@ fn check_same_run(base: &Shard, s: &Shard) -> Result<()> {
             str_at(a, &["version"])
         );
     }
-    let (ha, hb) = (str_at(a, &["suite", "sha256"]), str_at(b, &["suite", "sha256"]));
+    let (ha, hb) = (
+        str_at(a, &["suite", "sha256"]),
+        str_at(b, &["suite", "sha256"]),
+    );
     if ha != hb {
         bail!(
             "{sd} comes from another suite than {bd}: suite `{}` SHA-256 {}… vs `{}` SHA-256 {}…",
@@ -208,7 +216,11 @@ pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
         .collect();
     let strings = |v: &Value| -> Vec<String> {
         v.as_array()
-            .map(|a| a.iter().filter_map(|x| x.as_str().map(String::from)).collect())
+            .map(|a| {
+                a.iter()
+                    .filter_map(|x| x.as_str().map(String::from))
+                    .collect()
+            })
             .unwrap_or_default()
     };
     let methods = strings(&base["shard"]["methods"]);
@@ -218,7 +230,12 @@ pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
         .map(|t| {
             let sizes = t["sizes"]
                 .as_array()
-                .map(|a| a.iter().filter_map(|x| x.as_u64()).map(|x| x as usize).collect())
+                .map(|a| {
+                    a.iter()
+                        .filter_map(|x| x.as_u64())
+                        .map(|x| x as usize)
+                        .collect()
+                })
                 .unwrap_or_default();
             (sizes, t["test_rows"].as_u64().unwrap_or(0) as usize)
         })
@@ -229,9 +246,8 @@ pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
             .into_iter()
             .map(|((ti, size, r), s, _)| ((task_ids[ti].clone(), size, r), s + 1))
             .collect();
-    let unit_name = |k: &(String, usize, usize)| {
-        format!("task `{}`, size {}, repeat {}", k.0, k.1, k.2)
-    };
+    let unit_name =
+        |k: &(String, usize, usize)| format!("task `{}`, size {}, repeat {}", k.0, k.1, k.2);
     let mut seen: BTreeMap<(String, usize, usize), usize> = BTreeMap::new();
     let mut units = Vec::new();
     for s in &shards {
@@ -253,11 +269,7 @@ pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
                 _ => {}
             }
             if seen.insert(k.clone(), s.index).is_some() {
-                bail!(
-                    "{}: unit {} appears twice",
-                    s.dir.display(),
-                    unit_name(&k)
-                );
+                bail!("{}: unit {} appears twice", s.dir.display(), unit_name(&k));
             }
             units.push(u);
         }
@@ -265,7 +277,10 @@ pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
     let absent: Vec<_> = expected.keys().filter(|k| !seen.contains_key(*k)).collect();
     if let Some(first) = absent.first() {
         let sh = expected[*first];
-        let dir = shards.iter().find(|s| s.index == sh).map(|s| s.dir.display().to_string());
+        let dir = shards
+            .iter()
+            .find(|s| s.index == sh)
+            .map(|s| s.dir.display().to_string());
         bail!(
             "{} unit(s) missing, first {} of shard {sh}/{count} ({}): was that shard cut short?",
             absent.len(),

@@ -198,7 +198,8 @@ pub(crate) fn write_shard(
 /// Read the units of a shard folder.
 pub fn read_units(dir: &Path) -> Result<Vec<UnitOutcome>> {
     let path = dir.join(UNITS_FILE);
-    let f = std::fs::File::open(&path).with_context(|| format!("cannot open {}", path.display()))?;
+    let f =
+        std::fs::File::open(&path).with_context(|| format!("cannot open {}", path.display()))?;
     read_unit_lines(flate2::read::GzDecoder::new(f))
         .with_context(|| format!("reading {}", path.display()))
 }
@@ -240,7 +241,10 @@ mod tests {
 
     #[test]
     fn layout_covers_every_unit_once_and_balances_cost() {
-        let tasks = vec![(vec![50, 100, 200, 400, 800, 1600, 3200], 3600), (vec![50, 400], 900)];
+        let tasks = vec![
+            (vec![50, 100, 200, 400, 800, 1600, 3200], 3600),
+            (vec![50, 400], 900),
+        ];
         let l = layout(&tasks, 30, 12, 4);
         assert_eq!(l.len(), (7 + 2) * 30);
         let mut load = [0u64; 4];

@@ -113,8 +113,18 @@ fn row_diffs(ta: &UnitTable, a: &UnitRow, tb: &UnitTable, b: &UnitRow) -> Vec<St
         }
         out
     };
-    d.extend(pairs(&ta.metric_names, &a.metrics, &tb.metric_names, &b.metrics));
-    d.extend(pairs(&ta.extra_names, &a.extras, &tb.extra_names, &b.extras));
+    d.extend(pairs(
+        &ta.metric_names,
+        &a.metrics,
+        &tb.metric_names,
+        &b.metrics,
+    ));
+    d.extend(pairs(
+        &ta.extra_names,
+        &a.extras,
+        &tb.extra_names,
+        &b.extras,
+    ));
     d
 }
 
@@ -123,11 +133,19 @@ fn row_diffs(ta: &UnitTable, a: &UnitRow, tb: &UnitTable, b: &UnitRow) -> Vec<St
 fn table_diffs(want: &UnitTable, got: &UnitTable, all: bool) -> Vec<String> {
     let w: BTreeMap<Key, &UnitRow> = want.rows.iter().map(|r| (key(r), r)).collect();
     let mut out = Vec::new();
-    let name = |k: &Key| format!("task `{}`, size {}, repeat {}, method `{}`", k.0, k.1, k.2, k.3);
+    let name = |k: &Key| {
+        format!(
+            "task `{}`, size {}, repeat {}, method `{}`",
+            k.0, k.1, k.2, k.3
+        )
+    };
     for r in &got.rows {
         let k = key(r);
         match w.get(&k) {
-            None => out.push(format!("{}: missing from the folder's unit table", name(&k))),
+            None => out.push(format!(
+                "{}: missing from the folder's unit table",
+                name(&k)
+            )),
             Some(wr) => {
                 let d = row_diffs(want, wr, got, r);
                 if !d.is_empty() {
@@ -161,7 +179,9 @@ fn files_under(dir: &Path) -> Result<Vec<String>> {
     let mut stack = vec![PathBuf::new()];
     while let Some(rel) = stack.pop() {
         let abs = dir.join(&rel);
-        for e in std::fs::read_dir(&abs).with_context(|| format!("cannot list {}", abs.display()))? {
+        for e in
+            std::fs::read_dir(&abs).with_context(|| format!("cannot list {}", abs.display()))?
+        {
             let e = e?;
             let r = rel.join(e.file_name());
             if e.file_type()?.is_dir() {
@@ -197,8 +217,12 @@ pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
             env!("CARGO_PKG_VERSION")
         );
     }
-    let plan = app::load_plan(&suite)
-        .with_context(|| format!("loading the suite recorded in {}/manifest.json (pass --suite to give its path)", dir.display()))?;
+    let plan = app::load_plan(&suite).with_context(|| {
+        format!(
+            "loading the suite recorded in {}/manifest.json (pass --suite to give its path)",
+            dir.display()
+        )
+    })?;
     let want_sha = manifest["suite"]["sha256"].as_str().unwrap_or("");
     if plan.suite_sha256 != want_sha {
         bail!(
@@ -224,7 +248,11 @@ pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
     }
 }
 
-fn verify_sample(args: &VerifyArgs, mut plan: crate::suite::Plan, k: usize) -> Result<VerifyReport> {
+fn verify_sample(
+    args: &VerifyArgs,
+    mut plan: crate::suite::Plan,
+    k: usize,
+) -> Result<VerifyReport> {
     let dir = &args.dir;
     let Some(path) = units_path(dir) else {
         bail!(
@@ -314,7 +342,10 @@ fn compare_folders(dir: &Path, rerun: &Path, manifest: &Value) -> Result<VerifyR
         let b = std::fs::read(&theirs)?;
         if f == "manifest.json" {
             let rb: Value = serde_json::from_slice(&b)?;
-            let (x, y) = (without_machine_fields(manifest), without_machine_fields(&rb));
+            let (x, y) = (
+                without_machine_fields(manifest),
+                without_machine_fields(&rb),
+            );
             if x != y {
                 let keys: Vec<String> = x
                     .as_object()
@@ -349,7 +380,13 @@ fn compare_folders(dir: &Path, rerun: &Path, manifest: &Value) -> Result<VerifyR
         bail!("{}: no file a run writes to compare", dir.display());
     }
     let matched = bad.is_empty();
-    lines.insert(0, format!("reran every unit; compared {compared} file(s) of {}", dir.display()));
+    lines.insert(
+        0,
+        format!(
+            "reran every unit; compared {compared} file(s) of {}",
+            dir.display()
+        ),
+    );
     let n = bad.len();
     lines.extend(bad.into_iter().take(4 * LIST));
     lines.push(if matched {

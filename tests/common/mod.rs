@@ -157,7 +157,12 @@ pub fn assert_same_results(a: &Path, b: &Path) {
                 };
                 assert_eq!(keys(&x), keys(&y), "timings.csv names other fits");
             }
-            _ => assert!(x == y, "{f} differs between {} and {}", a.display(), b.display()),
+            _ => assert!(
+                x == y,
+                "{f} differs between {} and {}",
+                a.display(),
+                b.display()
+            ),
         }
     }
 }
