@@ -27,7 +27,7 @@ measure() { # label, command...: prints "label  wall_s  peak_MiB"
 }
 echo "machine: $(nproc) cores, $(uname -m), run under nice -n 10 (shared CPU)"
 echo "warming the score-pool cache (not timed)"
-"$bin" run "$base" --out "$work/warm" --quiet
+"$bin" run "$base" --out "$work/warm" --quiet 2>&1 | sed "s|$work|(scratch folder)|"
 : >"$work/table.txt"
 last=""
 for m in $mults; do
