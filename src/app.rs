@@ -5,14 +5,13 @@ use std::path::{Path, PathBuf};
 use std::time::{SystemTime, UNIX_EPOCH};
 
 use anyhow::{bail, Context, Result};
-use sha2::{Digest, Sha256};
 
 use crate::analysis::{self, AnalysisSettings};
 use crate::metrics::reliability;
 use crate::report::{self, summary};
-use crate::run::{self, journal::Journal, output, table::UnitTable, RunOptions};
+use crate::run::{self, journal, journal::Journal, output, RunOptions};
 use crate::stats::paired::IntervalKind;
-use crate::suite::{self, hex, Plan, TaskSource};
+use crate::suite::{self, Plan, TaskSource};
 
 /// The suite `plumbline run` uses when none is given.
 pub const DEFAULT_SUITE: &str = "suites/open-uci.toml";
@@ -136,10 +135,14 @@ pub struct RunArgs {
     pub out: Option<PathBuf>,
     pub threads: Option<usize>,
     pub quiet: bool,
+    /// Replace an existing results folder, and discard a journal that cannot
+    /// be resumed.
     pub force: bool,
+    /// Run only this share of the units into a shard folder.
+    pub shard: Option<crate::scale::shard::ShardSpec>,
 }
 
-fn now_rfc3339() -> String {
+pub(crate) fn now_rfc3339() -> String {
     let secs = SystemTime::now()
         .duration_since(UNIX_EPOCH)
         .map(|d| d.as_secs())
@@ -165,17 +168,11 @@ fn now_rfc3339() -> String {
     )
 }
 
-/// A fingerprint of everything that determines the units: a journal written
-/// under another fingerprint is not resumed.
+/// A fingerprint of everything that determines the units (the SHA-256 of
+/// [`run_key`] of a whole run): a journal written under another fingerprint
+/// is not resumed.
 pub fn fingerprint(plan: &Plan) -> String {
-    let mut h = Sha256::new();
-    h.update(env!("CARGO_PKG_VERSION").as_bytes());
-    h.update(plan.suite_sha256.as_bytes());
-    for t in &plan.tasks {
-        h.update(t.id.as_bytes());
-        h.update(t.data_sha256.as_bytes());
-    }
-    hex(&h.finalize())
+    run_key(plan, None).fingerprint()
 }
 
 pub fn settings_of(plan: &Plan) -> AnalysisSettings {
@@ -189,7 +186,7 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
 }
 
 /// Portable form of a path for reports: forward slashes, as given.
-fn shown(p: &Path) -> String {
+pub(crate) fn shown(p: &Path) -> String {
     p.display().to_string().replace('\\', "/")
 }
 
@@ -204,15 +201,39 @@ pub struct RunSummary {
     pub seconds: f64,
 }
 
-/// `plumbline run`.
+/// What a journal of this plan depends on (see [`journal::RunKey`]).
+pub fn run_key(plan: &Plan, shard: Option<crate::scale::shard::ShardSpec>) -> journal::RunKey {
+    journal::RunKey {
+        version: env!("CARGO_PKG_VERSION").to_string(),
+        suite_sha256: plan.suite_sha256.clone(),
+        tasks: plan
+            .tasks
+            .iter()
+            .map(|t| (t.id.clone(), t.data_sha256.clone()))
+            .collect(),
+        shard: shard.map(|s| s.to_string()),
+    }
+}
+
+/// `plumbline run` (with `--shard K/N`: one share of the units into a shard
+/// folder, see [`crate::scale::shard`]).
 pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
     let t0 = std::time::Instant::now();
     let started = now_rfc3339();
     let mut plan = load_plan(&args.suite)?;
-    let out = args
-        .out
-        .clone()
-        .unwrap_or_else(|| PathBuf::from("results").join(&plan.name));
+    if args.shard.is_some() && plan.study.is_some() {
+        bail!(
+            "{}: --shard is not available for a protocol study suite; run it on one machine",
+            args.suite.display()
+        );
+    }
+    let out = args.out.clone().unwrap_or_else(|| {
+        let name = match args.shard {
+            Some(s) => format!("{}.shard-{}-of-{}", plan.name, s.index, s.count),
+            None => plan.name.clone(),
+        };
+        PathBuf::from("results").join(name)
+    });
     if out.exists() && !args.force {
         return Err(output::OutputError::Exists(out.display().to_string()).into());
     }
@@ -220,20 +241,34 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         .parent()
         .map(|p| p.join(".cache").join("pools"))
         .unwrap_or_else(|| PathBuf::from(".cache/pools"));
+    let keys = match args.shard {
+        Some(s) => crate::scale::shard::shard_keys(&plan, s),
+        None => run::unit_keys(&plan),
+    };
     let pool_reports = if plan.study.is_some() {
         Vec::new()
     } else {
-        run::pools::resolve(&mut plan, Some(&cache), args.threads, args.quiet)
+        let only = args
+            .shard
+            .map(|s| crate::scale::shard::pools_needed(&plan, s, &keys));
+        run::pools::resolve_tasks(&mut plan, only.as_ref(), Some(&cache), args.threads, args.quiet)
             .map_err(anyhow::Error::msg)?
     };
     let staging = output::prepare(&out, args.force)?;
-    let fp = fingerprint(&plan);
-    let (journal, done) = Journal::open(&staging, &fp).map_err(anyhow::Error::msg)?;
+    let key = run_key(&plan, args.shard);
+    let (journal, done) =
+        Journal::open(&staging, &key, args.force).map_err(anyhow::Error::msg)?;
+    if journal.dropped > 0 && !args.quiet {
+        eprintln!(
+            "journal: dropped {} torn line(s) at its end (a unit cut short is run again)",
+            journal.dropped
+        );
+    }
     if !done.is_empty() && !args.quiet {
         eprintln!(
             "resuming: {} of {} units already finished in {}",
             done.len(),
-            plan.unit_count(),
+            keys.len(),
             staging.display()
         );
     }
@@ -241,69 +276,56 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         threads: args.threads,
         quiet: args.quiet,
     };
+    if let Some(shard) = args.shard {
+        let (units, threads, resumed) =
+            run::run_outcomes(&plan, &opts, &keys, done, &|u| journal.append(u))?;
+        drop(journal);
+        let info = RunInfo {
+            suite: &args.suite,
+            started,
+            t0,
+            threads,
+            resumed,
+            pool_reports,
+        };
+        let n = units.len();
+        crate::scale::shard::write_shard(&staging, &plan, shard, units, &info)?;
+        output::commit(&staging, &out)?;
+        return Ok(RunSummary {
+            terminal: String::new(),
+            out,
+            units: n,
+            resumed,
+            threads,
+            warnings: Vec::new(),
+            seconds: t0.elapsed().as_secs_f64(),
+        });
+    }
     let result = match &plan.study {
         Some(st) => run::study::run_study(&plan, st, &opts, done, &|u| journal.append(u))?,
-        None => run::run(&plan, &opts, done, &|u| journal.append(u))?,
+        None => run::run_keys(&plan, &opts, &keys, done, &|u| journal.append(u))?,
     };
     drop(journal);
 
     let settings = settings_of(&plan);
-    let a = analysis::analyse(&result.table, &settings);
-    // The figures are drawn from the reliability files as written, so that
-    // `plumbline report` redraws them byte for byte from the folder.
-    let (points, hist, terms) = reliability::to_csv(&result.curves);
-    let curves = reliability::from_csv(&points, &hist, &terms).map_err(anyhow::Error::msg)?;
     let ctx = summary::ReportContext {
         suite_name: plan.name.clone(),
         suite_file: shown(&args.suite),
         suite_sha256: plan.suite_sha256.clone(),
         seed: Some(plan.seed),
         settings: settings.clone(),
-        curves,
+        curves: Vec::new(),
     };
-    let mut units = Vec::new();
-    result.table.write_csv(&mut units)?;
-    output::write_file(&staging, "units.csv", &units)?;
-    output::write_file(
-        &staging,
-        "timings.csv",
-        timings_csv(&result.timings).as_bytes(),
-    )?;
-    for (name, bytes) in report::publish(&a, &ctx) {
-        output::write_file(&staging, &name, &bytes)?;
-    }
-    let manifest = serde_json::json!({
-        "tool": "plumbline",
-        "version": env!("CARGO_PKG_VERSION"),
-        "git_commit": option_env!("PLUMBLINE_GIT_COMMIT"),
-        "suite": {
-            "file": shown(&args.suite),
-            "name": plan.name,
-            "sha256": plan.suite_sha256,
-            "seed": plan.seed,
-            "repeats": plan.repeats,
-        },
-        "analysis": settings,
-        "tasks": plan.tasks.iter().map(|t| serde_json::json!({
-            "id": t.id,
-            "data_sha256": t.data_sha256,
-            "task_seed": crate::split::task_seed(plan.seed, &t.id),
-            "rows": t.rows,
-            "reservoir": t.reservoir.len(),
-            "test_rows": t.test.len(),
-            "sizes": t.sizes,
-            "skipped_sizes": t.skipped_sizes,
-        })).collect::<Vec<_>>(),
-        "seed_rule": "unit seed = mix(suite seed, task id, size, repeat), SplitMix64 folding into ChaCha8",
-        "score_pools": pool_reports,
-        "warnings": result.warnings,
-        "units": plan.unit_count(),
-        "resumed_units": result.resumed_units,
-        "threads": result.threads,
-        "started": started,
-        "finished": now_rfc3339(),
-        "wall_seconds": t0.elapsed().as_secs_f64(),
-    });
+    let (a, ctx) = write_results(&staging, &result, ctx)?;
+    let info = RunInfo {
+        suite: &args.suite,
+        started,
+        t0,
+        threads: result.threads,
+        resumed: result.resumed_units,
+        pool_reports,
+    };
+    let manifest = run_manifest(&plan, &info, &result.warnings);
     output::write_file(
         &staging,
         "manifest.json",
@@ -319,6 +341,94 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         warnings: result.warnings,
         seconds: t0.elapsed().as_secs_f64(),
     })
+}
+
+/// How a run went, for its manifest (the machine-dependent part).
+pub(crate) struct RunInfo<'a> {
+    pub suite: &'a Path,
+    pub started: String,
+    pub t0: std::time::Instant,
+    pub threads: usize,
+    pub resumed: usize,
+    pub pool_reports: Vec<run::pools::PoolReport>,
+}
+
+/// The fields of `manifest.json` that depend on the machine or on how the
+/// folder came about (interruptions, shards), not on the suite: `verify` and
+/// the tests compare manifests without them. Inside `score_pools`, the
+/// entries' `cache_hit`, `fit_seconds` and `score_seconds`.
+pub const MACHINE_FIELDS: [&str; 5] = [
+    "started",
+    "finished",
+    "wall_seconds",
+    "threads",
+    "resumed_units",
+];
+/// The machine-dependent fields of each `score_pools` entry.
+pub const POOL_MACHINE_FIELDS: [&str; 3] = ["cache_hit", "fit_seconds", "score_seconds"];
+
+/// `manifest.json` of a run (and, with a `shard` entry added, of a shard).
+pub(crate) fn run_manifest(
+    plan: &Plan,
+    info: &RunInfo,
+    warnings: &[String],
+) -> serde_json::Value {
+    serde_json::json!({
+        "tool": "plumbline",
+        "version": env!("CARGO_PKG_VERSION"),
+        "git_commit": option_env!("PLUMBLINE_GIT_COMMIT"),
+        "suite": {
+            "file": shown(info.suite),
+            "name": plan.name,
+            "sha256": plan.suite_sha256,
+            "seed": plan.seed,
+            "repeats": plan.repeats,
+        },
+        "analysis": settings_of(plan),
+        "tasks": plan.tasks.iter().map(|t| serde_json::json!({
+            "id": t.id,
+            "data_sha256": t.data_sha256,
+            "task_seed": crate::split::task_seed(plan.seed, &t.id),
+            "rows": t.rows,
+            "reservoir": t.reservoir_rows,
+            "test_rows": t.test_rows,
+            "sizes": t.sizes,
+            "skipped_sizes": t.skipped_sizes,
+        })).collect::<Vec<_>>(),
+        "seed_rule": "unit seed = mix(suite seed, task id, size, repeat), SplitMix64 folding into ChaCha8",
+        "score_pools": info.pool_reports,
+        "warnings": warnings,
+        "units": plan.unit_count(),
+        "resumed_units": info.resumed,
+        "threads": info.threads,
+        "started": info.started,
+        "finished": now_rfc3339(),
+        "wall_seconds": info.t0.elapsed().as_secs_f64(),
+    })
+}
+
+/// Write a run's unit table, timings and every published file into `dir`
+/// (all but `manifest.json`); returns the analysis and the report context
+/// (with the run's reliability curves) for the terminal table.
+pub(crate) fn write_results(
+    dir: &Path,
+    result: &run::RunOutput,
+    mut ctx: summary::ReportContext,
+) -> Result<(analysis::Analysis, summary::ReportContext)> {
+    let a = analysis::analyse(&result.table, &ctx.settings);
+    // The figures are drawn from the reliability files as written, so that
+    // `plumbline report` redraws them byte for byte from the folder.
+    let (points, hist, terms) = reliability::to_csv(&result.curves);
+    ctx.curves = reliability::from_csv(&points, &hist, &terms).map_err(anyhow::Error::msg)?;
+    // Compressed while it is written: the plain text is never held whole.
+    let mut enc = flate2::GzBuilder::new().write(Vec::new(), flate2::Compression::default());
+    result.table.write_csv(&mut enc)?;
+    output::write_file(dir, run::table::UNITS_FILE, &enc.finish()?)?;
+    output::write_file(dir, "timings.csv", timings_csv(&result.timings).as_bytes())?;
+    for (name, bytes) in report::publish(&a, &ctx) {
+        output::write_file(dir, &name, &bytes)?;
+    }
+    Ok((a, ctx))
 }
 
 fn timings_csv(t: &[run::Timing]) -> String {
@@ -366,14 +476,19 @@ pub fn read_curves(dir: &Path) -> Result<Vec<reliability::CurveRecord>> {
         .map_err(|e| anyhow::anyhow!("{}: {e}", dir.display()))
 }
 
-/// `plumbline report`: rebuild every table from `units.csv` (settings from
+/// `plumbline report`: rebuild every table from `units.csv.gz` (or an older
+/// folder's `units.csv`; settings from
 /// `manifest.json` when present, else from the flags).
 pub fn report_dir(args: &ReportArgs) -> Result<String> {
-    let units_path = args.dir.join("units.csv");
-    let f = std::fs::File::open(&units_path)
-        .with_context(|| format!("cannot open {}", units_path.display()))?;
-    let table =
-        UnitTable::read_csv(f).with_context(|| format!("reading {}", units_path.display()))?;
+    let units_path = run::table::units_path(&args.dir).with_context(|| {
+        format!(
+            "{}: no unit table ({} or units.csv)",
+            args.dir.display(),
+            run::table::UNITS_FILE
+        )
+    })?;
+    let table = run::table::read_units_file(&units_path)
+        .with_context(|| format!("reading {}", units_path.display()))?;
     let manifest_path = args.dir.join("manifest.json");
     let manifest: Option<serde_json::Value> = std::fs::read(&manifest_path)
         .ok()

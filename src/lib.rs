@@ -14,6 +14,7 @@ pub mod metrics;
 pub mod models;
 pub mod report;
 pub mod run;
+pub mod scale;
 pub mod simulate;
 pub mod split;
 pub mod stats;

@@ -22,7 +22,7 @@ the metrics and the seed. See docs/suite-format.md, or start from suites/open-uc
 Typical session:
   plumbline check suites/courier-demo.toml     validate, print the plan and the unit count
   plumbline run suites/courier-demo.toml       run it; results in results/courier-demo/
-  plumbline report results/courier-demo        rebuild tables from units.csv";
+  plumbline report results/courier-demo        rebuild tables from units.csv.gz";
 
 #[derive(Parser)]
 #[command(name = "plumbline", version, about = ABOUT, long_about = LONG_ABOUT)]
@@ -36,7 +36,7 @@ enum Command {
     /// Run a suite and write its results folder.
     #[command(long_about = "\
 Run every unit (task × calibration size × repeat) of a suite in parallel and write the \
-results folder: manifest.json, units.csv, timings.csv, paired.csv, thresholds.csv, \
+results folder: manifest.json, units.csv.gz, timings.csv, paired.csv, thresholds.csv, \
 reliability.csv (with reliability_hist.csv and reliability_terms.csv), summary.md, \
 index.html, tables.tex and figures/ (learning curves, reliability diagrams, rank and \
 threshold charts). Then print the decision: the team default and runner-up, where the \
@@ -60,10 +60,18 @@ unless --force is given.")]
         /// No progress bar and no table on the terminal.
         #[arg(long)]
         quiet: bool,
-        /// Replace an existing results folder.
+        /// Replace an existing results folder; also discard the journal of an
+        /// interrupted run that cannot be resumed (edited suite, changed data).
         #[arg(long)]
         force: bool,
+        /// Run only shard K of N (1 ≤ K ≤ N) into a shard folder
+        /// [default folder: results/<suite name>.shard-K-of-N]; join the N
+        /// shard folders with `plumbline merge`.
+        #[arg(long, value_name = "K/N")]
+        shard: Option<plumbline::scale::shard::ShardSpec>,
     },
+    #[command(flatten)]
+    Scale(plumbline::scale::cli::ScaleCommand),
     /// Validate a suite and print the resolved plan without running it.
     Check {
         /// Suite file.
@@ -72,11 +80,11 @@ unless --force is given.")]
     /// Rebuild every table and figure from a results folder, or print one task's table.
     #[command(long_about = "\
 Rebuild paired.csv, thresholds.csv, summary.md, index.html, tables.tex and the figures \
-from a results folder's units.csv and reliability*.csv (settings from manifest.json unless \
+from a results folder's units.csv.gz and reliability*.csv (settings from manifest.json unless \
 overridden), then print the decision. With --task, print that task's table and write \
 nothing.")]
     Report {
-        /// Results folder (holding units.csv).
+        /// Results folder (holding units.csv.gz, or units.csv).
         dir: PathBuf,
         /// Print the table of this task (an id from the folder) instead of the summary.
         #[arg(long, value_name = "ID")]
@@ -124,6 +132,7 @@ fn main() -> ExitCode {
 
 fn dispatch(cmd: Command) -> anyhow::Result<()> {
     match cmd {
+        Command::Scale(c) => plumbline::scale::cli::dispatch(c)?,
         Command::Check { suite } => {
             let plan = app::load_plan(&suite)?;
             print!("{}", app::describe_plan(&plan));
@@ -135,6 +144,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
             threads,
             quiet,
             force,
+            shard,
         } => {
             let suite = suite.unwrap_or_else(|| PathBuf::from(app::DEFAULT_SUITE));
             if !suite.exists() {
@@ -149,6 +159,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 threads: threads.map(usize::from),
                 quiet,
                 force,
+                shard,
             };
             let s = app::run_suite(&args)?;
             if !quiet {

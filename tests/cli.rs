@@ -8,6 +8,16 @@ use std::path::{Path, PathBuf};
 use assert_cmd::Command;
 use tempfile::TempDir;
 
+/// The text of a gzip file.
+fn gunzip(p: &Path) -> String {
+    use std::io::Read;
+    let mut s = String::new();
+    flate2::read::GzDecoder::new(fs::File::open(p).unwrap())
+        .read_to_string(&mut s)
+        .unwrap();
+    s
+}
+
 fn bin() -> Command {
     Command::cargo_bin("plumbline").unwrap()
 }
@@ -115,7 +125,7 @@ fn small_suite_writes_the_documented_files() {
     run_ok(&fx, &suite, &out, "2");
     for f in [
         "manifest.json",
-        "units.csv",
+        "units.csv.gz",
         "paired.csv",
         "summary.md",
         "timings.csv",
@@ -125,7 +135,7 @@ fn small_suite_writes_the_documented_files() {
     ] {
         assert!(out.join(f).exists(), "{f} missing");
     }
-    let units = fs::read_to_string(out.join("units.csv")).unwrap();
+    let units = gunzip(&out.join("units.csv.gz"));
     let head = units.lines().next().unwrap();
     assert!(
         head.starts_with(
@@ -189,7 +199,7 @@ fn one_and_two_threads_give_identical_bytes() {
     run_ok(&fx, &suite, &o1, "1");
     run_ok(&fx, &suite, &o2, "2");
     for f in [
-        "units.csv",
+        "units.csv.gz",
         "paired.csv",
         "summary.md",
         "thresholds.csv",
@@ -222,12 +232,52 @@ fn existing_results_need_force_and_report_rebuilds() {
         .assert()
         .failure()
         .stderr(predicates::str::contains("--force"));
-    // report rebuilds paired.csv byte for byte from units.csv.
-    fs::remove_file(out.join("paired.csv")).unwrap();
+    // report rebuilds every published file byte for byte from units.csv.gz.
+    let mut published = Vec::new();
+    for e in fs::read_dir(&out).unwrap() {
+        let p = e.unwrap().path();
+        let name = p.file_name().unwrap().to_string_lossy().to_string();
+        // The inputs of report: the unit table, the reliability files, the
+        // manifest (timings.csv is not read).
+        if !name.starts_with("reliability")
+            && !["units.csv.gz", "timings.csv", "manifest.json"].contains(&name.as_str())
+        {
+            published.push(name);
+        }
+    }
+    assert!(published.len() >= 6, "{published:?}");
+    let before: Vec<(String, Vec<u8>)> = published
+        .iter()
+        .flat_map(|n| {
+            let p = out.join(n);
+            if p.is_dir() {
+                fs::read_dir(&p)
+                    .unwrap()
+                    .map(|e| {
+                        let q = e.unwrap().path();
+                        (format!("{n}/{}", q.file_name().unwrap().to_string_lossy()), fs::read(q).unwrap())
+                    })
+                    .collect::<Vec<_>>()
+            } else {
+                vec![(n.clone(), fs::read(p).unwrap())]
+            }
+        })
+        .collect();
+    for n in &published {
+        let p = out.join(n);
+        if p.is_dir() {
+            fs::remove_dir_all(p).unwrap();
+        } else {
+            fs::remove_file(p).unwrap();
+        }
+    }
     bin()
         .args(["report", out.to_str().unwrap()])
         .assert()
         .success();
+    for (n, bytes) in &before {
+        assert!(fs::read(out.join(n)).unwrap() == *bytes, "{n} rebuilt differently");
+    }
     assert_eq!(fs::read(out.join("paired.csv")).unwrap(), paired);
     assert_eq!(fs::read(out.join("summary.md")).unwrap(), summary);
     bin()
@@ -320,7 +370,7 @@ fn must_fail(fx: &Fixture, suite_text: &str, needles: &[&str]) {
         !out.exists(),
         "a results folder was written for a bad suite"
     );
-    assert!(!fx.path(".bad-out.partial").join("units.csv").exists());
+    assert!(!fx.path(".bad-out.partial").join("units.csv.gz").exists());
     // `check` fails the same way.
     bin()
         .args(["check", suite.to_str().unwrap()])

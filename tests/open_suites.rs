@@ -76,12 +76,12 @@ fn held_out_and_cross_fitted_tasks_run_and_cache_their_pools() {
     assert_eq!(first["tasks"][1]["reservoir"], 285);
     assert_eq!(first["tasks"][1]["test_rows"], 284);
     assert_eq!(first["score_pools"][0]["cache_hit"], false);
-    let units = fs::read(out.join("units.csv")).unwrap();
+    let units = fs::read(out.join("units.csv.gz")).unwrap();
     let second = run(true);
     assert_eq!(second["score_pools"][0]["cache_hit"], true);
     assert_eq!(second["score_pools"][1]["cache_hit"], true);
     assert_eq!(
-        fs::read(out.join("units.csv")).unwrap(),
+        fs::read(out.join("units.csv.gz")).unwrap(),
         units,
         "cached pools changed the results"
     );

@@ -42,7 +42,7 @@ fn interrupted_run_resumes_from_the_journal() {
     let suite = dir.path().join("s.toml");
     fs::write(&suite, SUITE).unwrap();
     let plan = plumbline::suite::load(&suite).unwrap();
-    let fp = plumbline::app::fingerprint(&plan);
+    let key = plumbline::app::run_key(&plan, None);
     let opts = RunOptions {
         threads: Some(1),
         quiet: true,
@@ -54,7 +54,7 @@ fn interrupted_run_resumes_from_the_journal() {
     // Interrupted run: the journal accepts 5 units, then the "disk" fails.
     let staging = dir.path().join("staging");
     fs::create_dir_all(&staging).unwrap();
-    let (journal, done) = Journal::open(&staging, &fp).unwrap();
+    let (journal, done) = Journal::open(&staging, &key, false).unwrap();
     assert!(done.is_empty());
     let count = std::sync::atomic::AtomicUsize::new(0);
     let res = run::run(&plan, &opts, Vec::new(), &|u| {
@@ -68,7 +68,7 @@ fn interrupted_run_resumes_from_the_journal() {
     drop(journal);
 
     // Resume: 5 units come from the journal, the rest are run.
-    let (journal, done) = Journal::open(&staging, &fp).unwrap();
+    let (journal, done) = Journal::open(&staging, &key, false).unwrap();
     assert_eq!(done.len(), 5);
     let resumed = run::run(&plan, &opts, done, &|u| journal.append(u)).unwrap();
     assert_eq!(resumed.resumed_units, 5);
@@ -77,8 +77,13 @@ fn interrupted_run_resumes_from_the_journal() {
     resumed.table.write_csv(&mut b).unwrap();
     assert_eq!(String::from_utf8(a).unwrap(), String::from_utf8(b).unwrap());
 
-    // A journal written under another fingerprint is not reused.
+    // A journal written for another suite is refused, naming the change,
+    // and discarded only on request.
     drop(journal);
-    let (_j, done) = Journal::open(&staging, "another-plan").unwrap();
+    let mut other = key.clone();
+    other.suite_sha256 = "0".repeat(64);
+    let err = Journal::open(&staging, &other, false).err().unwrap();
+    assert!(err.contains("the suite file was edited"), "{err}");
+    let (_j, done) = Journal::open(&staging, &other, true).unwrap();
     assert!(done.is_empty());
 }

@@ -389,6 +389,33 @@ pub fn run(
     done: Vec<UnitOutcome>,
     on_done: &(dyn Fn(&UnitOutcome) -> Result<(), String> + Sync),
 ) -> Result<RunOutput, RunError> {
+    run_keys(plan, opts, &unit_keys(plan), done, on_done)
+}
+
+/// Run the units `keys` (a subset of [`unit_keys`], e.g. one shard or a
+/// verification sample) not already in `done`. The table holds these units
+/// only; each is computed exactly as in a whole run.
+pub fn run_keys(
+    plan: &Plan,
+    opts: &RunOptions,
+    keys: &[(usize, usize, usize)],
+    done: Vec<UnitOutcome>,
+    on_done: &(dyn Fn(&UnitOutcome) -> Result<(), String> + Sync),
+) -> Result<RunOutput, RunError> {
+    let (units, threads, resumed) = run_outcomes(plan, opts, keys, done, on_done)?;
+    Ok(assemble(plan, units, threads, resumed))
+}
+
+/// [`run_keys`] without building the table: the finished units (in no
+/// particular order), the worker threads and the number of units taken from
+/// `done`.
+pub fn run_outcomes(
+    plan: &Plan,
+    opts: &RunOptions,
+    keys: &[(usize, usize, usize)],
+    done: Vec<UnitOutcome>,
+    on_done: &(dyn Fn(&UnitOutcome) -> Result<(), String> + Sync),
+) -> Result<(Vec<UnitOutcome>, usize, usize), RunError> {
     let mut data = Vec::with_capacity(plan.tasks.len());
     for t in &plan.tasks {
         let calibrators = plan
@@ -408,7 +435,12 @@ pub fn run(
             calibrators,
         });
     }
-    let keys = unit_keys(plan);
+    let wanted: BTreeSet<(&str, usize, usize)> = keys
+        .iter()
+        .map(|&(ti, s, r)| (plan.tasks[ti].id.as_str(), s, r))
+        .collect();
+    let mut done = done;
+    done.retain(|u| wanted.contains(&(u.task.as_str(), u.size, u.repeat)));
     let done_keys: BTreeSet<(String, usize, usize)> = done
         .iter()
         .map(|u| (u.task.clone(), u.size, u.repeat))
@@ -428,7 +460,7 @@ pub fn run(
         &|(ti, size, r)| vec![run_unit(plan, &data, ti, size, r)],
         on_done,
     )?;
-    Ok(assemble(plan, finished, threads, resumed_units))
+    Ok((finished, threads, resumed_units))
 }
 
 /// The parallel loop shared by suites and protocol studies: `work` turns one
@@ -499,27 +531,12 @@ pub(crate) fn progress_bar(len: u64, template: &str, quiet: bool) -> ProgressBar
     b
 }
 
-/// Sort finished units into the plan's order and build the unit table.
-pub fn assemble(
-    plan: &Plan,
-    mut units: Vec<UnitOutcome>,
-    threads: usize,
-    resumed_units: usize,
-) -> RunOutput {
-    let task_pos: BTreeMap<&str, usize> = plan
-        .tasks
-        .iter()
-        .enumerate()
-        .map(|(i, t)| (t.id.as_str(), i))
-        .collect();
-    // A protocol study's rows are `<task>@<method>`: order by task, then method.
-    let method_pos = |m: &str| {
-        plan.methods
-            .iter()
-            .position(|x| x.id == m)
-            .unwrap_or(usize::MAX)
-    };
-    units.sort_by_key(|u| {
+/// Sort units into output order: task order, then (for a protocol study's
+/// `<task>@<method>` rows) method order, then size and repeat.
+pub fn sort_units(tasks: &[&str], methods: &[&str], units: &mut [UnitOutcome]) {
+    let task_pos: BTreeMap<&str, usize> = tasks.iter().enumerate().map(|(i, t)| (*t, i)).collect();
+    let method_pos = |m: &str| methods.iter().position(|x| *x == m).unwrap_or(usize::MAX);
+    units.sort_by_cached_key(|u| {
         let (base, method) = u.task.split_once('@').unwrap_or((u.task.as_str(), ""));
         (
             task_pos.get(base).copied().unwrap_or(usize::MAX),
@@ -528,6 +545,36 @@ pub fn assemble(
             u.repeat,
         )
     });
+}
+
+/// Sort finished units into the plan's order and build the unit table.
+pub fn assemble(
+    plan: &Plan,
+    units: Vec<UnitOutcome>,
+    threads: usize,
+    resumed_units: usize,
+) -> RunOutput {
+    let tasks: Vec<&str> = plan.tasks.iter().map(|t| t.id.as_str()).collect();
+    let methods: Vec<&str> = plan.methods.iter().map(|m| m.id.as_str()).collect();
+    let metrics = plan
+        .metrics
+        .iter()
+        .map(|m| m.as_str().to_string())
+        .collect();
+    assemble_ordered(&tasks, &methods, metrics, units, threads, resumed_units)
+}
+
+/// [`assemble`] from the plan's task order, method order and metric columns
+/// alone (what `plumbline merge` knows from the shards' manifests).
+pub fn assemble_ordered(
+    tasks: &[&str],
+    methods: &[&str],
+    metric_names: Vec<String>,
+    mut units: Vec<UnitOutcome>,
+    threads: usize,
+    resumed_units: usize,
+) -> RunOutput {
+    sort_units(tasks, methods, &mut units);
     let extra_names: Vec<String> = units
         .iter()
         .flat_map(|u| u.methods.iter().flat_map(|m| m.extras.keys().cloned()))
@@ -588,11 +635,7 @@ pub fn assemble(
         ));
     }
     let table = UnitTable {
-        metric_names: plan
-            .metrics
-            .iter()
-            .map(|m| m.as_str().to_string())
-            .collect(),
+        metric_names,
         extra_names,
         rows,
     };

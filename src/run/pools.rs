@@ -40,8 +40,22 @@ pub fn resolve(
     threads: Option<usize>,
     quiet: bool,
 ) -> Result<Vec<PoolReport>, String> {
+    resolve_tasks(plan, None, cache, threads, quiet)
+}
+
+/// [`resolve`] for the tasks (indices into `plan.tasks`) in `only`, or all;
+/// a shard builds just the pools its units need. Tasks left out keep an
+/// empty pool.
+pub fn resolve_tasks(
+    plan: &mut Plan,
+    only: Option<&std::collections::BTreeSet<usize>>,
+    cache: Option<&Path>,
+    threads: Option<usize>,
+    quiet: bool,
+) -> Result<Vec<PoolReport>, String> {
     let open_ids: Vec<usize> = (0..plan.tasks.len())
         .filter(|&i| matches!(plan.tasks[i].source, TaskSource::Open { .. }))
+        .filter(|i| only.is_none_or(|o| o.contains(i)))
         .collect();
     if open_ids.is_empty() {
         return Ok(Vec::new());

@@ -184,6 +184,31 @@ impl UnitTable {
     }
 }
 
+/// The unit table's file in a results folder: the CSV, gzip-compressed
+/// (written without time stamp or file name, so equal tables give equal
+/// bytes). `pandas.read_csv("units.csv.gz")` and R's `read.csv("units.csv.gz")`
+/// read it in one call.
+pub const UNITS_FILE: &str = "units.csv.gz";
+
+/// Names the unit table may have in a results folder, in the order they are
+/// looked for (`units.csv`: folders of plumbline before the compressed table).
+pub const UNITS_FILES: [&str; 2] = [UNITS_FILE, "units.csv"];
+
+/// The unit table file of a results folder, if it has one.
+pub fn units_path(dir: &std::path::Path) -> Option<std::path::PathBuf> {
+    UNITS_FILES.iter().map(|n| dir.join(n)).find(|p| p.exists())
+}
+
+/// Read a unit table file (`.gz` names are decompressed while reading).
+pub fn read_units_file(path: &std::path::Path) -> Result<UnitTable, TableError> {
+    let f = std::io::BufReader::new(std::fs::File::open(path)?);
+    if path.extension().is_some_and(|e| e == "gz") {
+        UnitTable::read_csv(flate2::read::GzDecoder::new(f))
+    } else {
+        UnitTable::read_csv(f)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -1,0 +1,398 @@
+//! `plumbline verify DIR [--sample K]`: rerun the suite recorded in a results
+//! folder's manifest and compare bit for bit.
+//!
+//! Without `--sample`, every unit is rerun into a scratch folder beside DIR
+//! (sharing DIR's score-pool cache) and every file present in DIR that a run
+//! writes is compared byte for byte; a published folder that keeps only some
+//! files (say paired.csv, summary.md, thresholds.csv, figures/ and
+//! manifest.json) is checked on those. `timings.csv` holds fit times and is
+//! not compared; `manifest.json` is compared without its machine-dependent
+//! fields ([`crate::app::MACHINE_FIELDS`], [`crate::app::POOL_MACHINE_FIELDS`]).
+//! Files a run does not write are listed and skipped.
+//!
+//! With `--sample K`, K units drawn with a seeded generator (`--seed`, by
+//! default derived from the suite seed) are rerun and compared value by value
+//! with their rows of DIR's unit table, which must then be present.
+//!
+//! Exit codes (set by the binary): 0 everything compared matches, 1 a
+//! mismatch (the first differing units or files are listed), 2 an error (no
+//! manifest, the suite or its data changed since the run, another plumbline
+//! version, nothing to compare).
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use anyhow::{bail, Context, Result};
+use serde_json::Value;
+
+use super::merge::{read_manifest, task_digests};
+use crate::app::{self, RunArgs, MACHINE_FIELDS, POOL_MACHINE_FIELDS};
+use crate::run::table::{read_units_file, units_path, UnitRow, UnitTable};
+use crate::run::{self, RunOptions};
+
+/// Options of `plumbline verify`.
+#[derive(Debug, Clone, Default)]
+pub struct VerifyArgs {
+    pub dir: PathBuf,
+    /// Suite file [default: the path recorded in the manifest].
+    pub suite: Option<PathBuf>,
+    pub sample: Option<usize>,
+    pub seed: Option<u64>,
+    pub threads: Option<usize>,
+}
+
+/// The outcome: `lines` to print, `matched` for the exit code.
+#[derive(Debug, Clone, Default)]
+pub struct VerifyReport {
+    pub matched: bool,
+    pub lines: Vec<String>,
+}
+
+/// At most this many differing units or lines are listed.
+const LIST: usize = 10;
+
+/// A manifest without its machine-dependent fields.
+pub fn without_machine_fields(m: &Value) -> Value {
+    let mut m = m.clone();
+    if let Some(o) = m.as_object_mut() {
+        for k in MACHINE_FIELDS {
+            o.remove(k);
+        }
+    }
+    if let Some(pools) = m.get_mut("score_pools").and_then(|p| p.as_array_mut()) {
+        for p in pools {
+            if let Some(o) = p.as_object_mut() {
+                for k in POOL_MACHINE_FIELDS {
+                    o.remove(k);
+                }
+            }
+        }
+    }
+    m
+}
+
+type Key = (String, usize, usize, String);
+
+fn key(r: &UnitRow) -> Key {
+    (r.task.clone(), r.size, r.repeat, r.method.clone())
+}
+
+fn same(a: Option<f64>, b: Option<f64>) -> bool {
+    a.map(f64::to_bits) == b.map(f64::to_bits)
+}
+
+/// Columns whose values differ between a row of table `a` and one of `b`,
+/// matched by column name.
+fn row_diffs(ta: &UnitTable, a: &UnitRow, tb: &UnitTable, b: &UnitRow) -> Vec<String> {
+    let mut d = Vec::new();
+    if a.status != b.status {
+        d.push("status".to_string());
+    }
+    for (name, cols) in [
+        ("clipped", a.clipped == b.clipped),
+        ("positives", a.positives == b.positives),
+        ("reservoir", a.reservoir == b.reservoir),
+        ("test_rows", a.test_rows == b.test_rows),
+    ] {
+        if !cols {
+            d.push(name.to_string());
+        }
+    }
+    let pairs = |names_a: &[String], va: &[Option<f64>], names_b: &[String], vb: &[Option<f64>]| {
+        let mut out = Vec::new();
+        let get = |names: &[String], v: &[Option<f64>], n: &str| {
+            names.iter().position(|x| x == n).and_then(|i| v[i])
+        };
+        let mut all: Vec<&String> = names_a.iter().chain(names_b).collect();
+        all.sort();
+        all.dedup();
+        for n in all {
+            if !same(get(names_a, va, n), get(names_b, vb, n)) {
+                out.push(n.clone());
+            }
+        }
+        out
+    };
+    d.extend(pairs(
+        &ta.metric_names,
+        &a.metrics,
+        &tb.metric_names,
+        &b.metrics,
+    ));
+    d.extend(pairs(
+        &ta.extra_names,
+        &a.extras,
+        &tb.extra_names,
+        &b.extras,
+    ));
+    d
+}
+
+/// Differences between the rows of `got` (recomputed) and those of `want`
+/// (the folder's) with the same keys; with `all`, also rows in only one.
+fn table_diffs(want: &UnitTable, got: &UnitTable, all: bool) -> Vec<String> {
+    let w: BTreeMap<Key, &UnitRow> = want.rows.iter().map(|r| (key(r), r)).collect();
+    let mut out = Vec::new();
+    let name = |k: &Key| {
+        format!(
+            "task `{}`, size {}, repeat {}, method `{}`",
+            k.0, k.1, k.2, k.3
+        )
+    };
+    for r in &got.rows {
+        let k = key(r);
+        match w.get(&k) {
+            None => out.push(format!(
+                "{}: missing from the folder's unit table",
+                name(&k)
+            )),
+            Some(wr) => {
+                let d = row_diffs(want, wr, got, r);
+                if !d.is_empty() {
+                    out.push(format!("{}: differs in {}", name(&k), d.join(", ")));
+                }
+            }
+        }
+    }
+    if all {
+        let g: std::collections::BTreeSet<Key> = got.rows.iter().map(key).collect();
+        for k in w.keys().filter(|k| !g.contains(*k)) {
+            out.push(format!("{}: not produced by the rerun", name(k)));
+        }
+    }
+    out
+}
+
+fn first_line_diff(a: &[u8], b: &[u8]) -> String {
+    let (sa, sb) = (String::from_utf8_lossy(a), String::from_utf8_lossy(b));
+    let line = sa
+        .lines()
+        .zip(sb.lines())
+        .position(|(x, y)| x != y)
+        .map(|i| i + 1)
+        .unwrap_or_else(|| sa.lines().count().min(sb.lines().count()) + 1);
+    format!("first difference on line {line}")
+}
+
+fn files_under(dir: &Path) -> Result<Vec<String>> {
+    let mut out = Vec::new();
+    let mut stack = vec![PathBuf::new()];
+    while let Some(rel) = stack.pop() {
+        let abs = dir.join(&rel);
+        for e in
+            std::fs::read_dir(&abs).with_context(|| format!("cannot list {}", abs.display()))?
+        {
+            let e = e?;
+            let r = rel.join(e.file_name());
+            if e.file_type()?.is_dir() {
+                stack.push(r);
+            } else {
+                out.push(r.to_string_lossy().replace('\\', "/"));
+            }
+        }
+    }
+    out.sort();
+    Ok(out)
+}
+
+/// `plumbline verify`.
+pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
+    let dir = &args.dir;
+    let manifest = read_manifest(dir)?;
+    if manifest.get("shard").is_some() {
+        bail!(
+            "{} is a shard folder: merge the shards (`plumbline merge`) and verify the merged folder",
+            dir.display()
+        );
+    }
+    let suite = match &args.suite {
+        Some(s) => s.clone(),
+        None => PathBuf::from(manifest["suite"]["file"].as_str().unwrap_or("")),
+    };
+    let recorded_version = manifest["version"].as_str().unwrap_or("");
+    if recorded_version != env!("CARGO_PKG_VERSION") {
+        bail!(
+            "{} was written by plumbline {recorded_version}; this is {}: verify with that version",
+            dir.display(),
+            env!("CARGO_PKG_VERSION")
+        );
+    }
+    let plan = app::load_plan(&suite).with_context(|| {
+        format!(
+            "loading the suite recorded in {}/manifest.json (pass --suite to give its path)",
+            dir.display()
+        )
+    })?;
+    let want_sha = manifest["suite"]["sha256"].as_str().unwrap_or("");
+    if plan.suite_sha256 != want_sha {
+        bail!(
+            "{}: SHA-256 {} but {} was produced by a suite with SHA-256 {want_sha}: the suite was edited",
+            suite.display(),
+            plan.suite_sha256,
+            dir.display()
+        );
+    }
+    for ((id, want), t) in task_digests(&manifest).iter().zip(&plan.tasks) {
+        if *id != t.id || *want != t.data_sha256 {
+            bail!(
+                "task `{}`: data SHA-256 {} but {} was produced with {want}: the data changed",
+                t.id,
+                t.data_sha256,
+                dir.display()
+            );
+        }
+    }
+    match args.sample {
+        Some(k) => verify_sample(args, plan, k),
+        None => verify_all(args, &suite, &manifest),
+    }
+}
+
+fn verify_sample(
+    args: &VerifyArgs,
+    mut plan: crate::suite::Plan,
+    k: usize,
+) -> Result<VerifyReport> {
+    let dir = &args.dir;
+    let Some(path) = units_path(dir) else {
+        bail!(
+            "--sample needs the unit table (units.csv.gz or units.csv) in {}; without --sample, verify reruns every unit and compares the files present",
+            dir.display()
+        )
+    };
+    let want = read_units_file(&path).with_context(|| format!("reading {}", path.display()))?;
+    let all = run::unit_keys(&plan);
+    let seed = args
+        .seed
+        .unwrap_or_else(|| crate::split::mix(plan.seed, &[crate::split::fnv1a(b"verify")]));
+    let mut rng = crate::split::rng(seed);
+    let mut picks = crate::split::sample_indices(all.len(), k.min(all.len()), &mut rng);
+    picks.sort_unstable();
+    let keys: Vec<_> = picks.iter().map(|&i| all[i]).collect();
+    let need = keys.iter().map(|k| k.0).collect();
+    let cache = dir.parent().map(|p| p.join(".cache").join("pools"));
+    if plan.study.is_none() {
+        run::pools::resolve_tasks(&mut plan, Some(&need), cache.as_deref(), args.threads, true)
+            .map_err(anyhow::Error::msg)?;
+    } else {
+        bail!("--sample is not available for a protocol study; verify without --sample");
+    }
+    let opts = RunOptions {
+        threads: args.threads,
+        quiet: true,
+    };
+    let got = run::run_keys(&plan, &opts, &keys, Vec::new(), &|_| Ok(()))?;
+    let diffs = table_diffs(&want, &got.table, false);
+    let mut lines = vec![format!(
+        "reran {} of {} units (sample seed {seed}) and compared them with {}",
+        keys.len(),
+        all.len(),
+        path.display()
+    )];
+    let matched = diffs.is_empty();
+    lines.extend(diffs.iter().take(LIST).cloned());
+    if diffs.len() > LIST {
+        lines.push(format!("… and {} more differing rows", diffs.len() - LIST));
+    }
+    lines.push(if matched {
+        "match: every sampled unit is identical bit for bit".into()
+    } else {
+        format!("MISMATCH: {} row(s) differ", diffs.len())
+    });
+    Ok(VerifyReport { matched, lines })
+}
+
+fn verify_all(args: &VerifyArgs, suite: &Path, manifest: &Value) -> Result<VerifyReport> {
+    let dir = &args.dir;
+    let name = dir
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_else(|| "results".into());
+    let scratch = dir.with_file_name(format!(".{name}.verify-{}", std::process::id()));
+    let res = app::run_suite(&RunArgs {
+        suite: suite.to_path_buf(),
+        out: Some(scratch.clone()),
+        threads: args.threads,
+        quiet: true,
+        force: true,
+        shard: None,
+    });
+    let out = res.and_then(|_| compare_folders(dir, &scratch, manifest));
+    let _ = std::fs::remove_dir_all(&scratch);
+    out
+}
+
+fn compare_folders(dir: &Path, rerun: &Path, manifest: &Value) -> Result<VerifyReport> {
+    let mut lines = Vec::new();
+    let mut bad = Vec::new();
+    let mut compared = 0;
+    for f in files_under(dir)? {
+        let mine = dir.join(&f);
+        let theirs = rerun.join(&f);
+        if f == "timings.csv" {
+            lines.push("timings.csv: fit times, not compared".to_string());
+            continue;
+        }
+        if !theirs.exists() {
+            lines.push(format!("{f}: not written by plumbline run, skipped"));
+            continue;
+        }
+        compared += 1;
+        let a = std::fs::read(&mine).with_context(|| format!("cannot read {}", mine.display()))?;
+        let b = std::fs::read(&theirs)?;
+        if f == "manifest.json" {
+            let rb: Value = serde_json::from_slice(&b)?;
+            let (x, y) = (
+                without_machine_fields(manifest),
+                without_machine_fields(&rb),
+            );
+            if x != y {
+                let keys: Vec<String> = x
+                    .as_object()
+                    .into_iter()
+                    .flatten()
+                    .filter(|(k, v)| y.get(k.as_str()) != Some(v))
+                    .map(|(k, _)| k.clone())
+                    .collect();
+                bad.push(format!("manifest.json: differs in {}", keys.join(", ")));
+            }
+            continue;
+        }
+        if a == b {
+            continue;
+        }
+        if crate::run::table::UNITS_FILES.contains(&f.as_str()) {
+            let (ta, tb) = (read_units_file(&mine), read_units_file(&theirs));
+            match (ta, tb) {
+                (Ok(ta), Ok(tb)) => {
+                    let d = table_diffs(&ta, &tb, true);
+                    bad.push(format!("{f}: {} row(s) differ", d.len()));
+                    bad.extend(d.into_iter().take(LIST).map(|x| format!("  {x}")));
+                }
+                (Err(e), _) => bad.push(format!("{f}: unreadable: {e}")),
+                (_, Err(e)) => bad.push(format!("{f}: rerun unreadable: {e}")),
+            }
+        } else {
+            bad.push(format!("{f}: {}", first_line_diff(&a, &b)));
+        }
+    }
+    if compared == 0 {
+        bail!("{}: no file a run writes to compare", dir.display());
+    }
+    let matched = bad.is_empty();
+    lines.insert(
+        0,
+        format!(
+            "reran every unit; compared {compared} file(s) of {}",
+            dir.display()
+        ),
+    );
+    let n = bad.len();
+    lines.extend(bad.into_iter().take(4 * LIST));
+    lines.push(if matched {
+        "match: every compared file is identical bit for bit".into()
+    } else {
+        format!("MISMATCH: {n} difference(s) listed above")
+    });
+    Ok(VerifyReport { matched, lines })
+}

@@ -1,0 +1,168 @@
+//! Helpers shared by the scaling tests (shards, merge, verify, crash safety,
+//! the Slurm test).
+#![allow(dead_code)]
+
+use std::fs;
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+
+pub fn bin() -> Command {
+    Command::cargo_bin("plumbline").unwrap()
+}
+
+pub fn bin_path() -> PathBuf {
+    assert_cmd::cargo::cargo_bin("plumbline")
+}
+
+/// SplitMix64 (Steele, Lea and Flood 2014): the tests' own seeded draws.
+pub fn splitmix(x: &mut u64) -> u64 {
+    *x = x.wrapping_add(0x9E37_79B9_7F4A_7C15);
+    let mut z = *x;
+    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+    z ^ (z >> 31)
+}
+
+pub fn uniform(x: &mut u64) -> f64 {
+    (splitmix(x) >> 11) as f64 / (1u64 << 53) as f64
+}
+
+/// Invented scores for the tests: a logit score whose label is drawn from a
+/// slightly steeper logistic curve.
+pub fn score_csv(rows: usize, seed: u64) -> String {
+    let mut s = String::from("score,label\n");
+    let mut x = seed;
+    for _ in 0..rows {
+        let z = 6.0 * uniform(&mut x) - 3.0;
+        let y = uniform(&mut x) < 1.0 / (1.0 + (-1.4 * z).exp());
+        s.push_str(&format!("{z:.6},{}\n", y as u8));
+    }
+    s
+}
+
+/// A small suite over the score files `a.csv` and `b.csv` of its folder.
+pub fn suite_text(seed: u64, repeats: usize, sizes: &str) -> String {
+    format!(
+        r#"name = "scale"
+seed = {seed}
+repeats = {repeats}
+sizes = [{sizes}]
+reference = "platt"
+metrics = ["log_loss", "brier", "ece_mass"]
+primary_metric = "log_loss"
+
+[test_set]
+rows = 300
+
+[[method]]
+id = "platt"
+kind = "platt"
+
+[[method]]
+id = "isotonic"
+kind = "isotonic"
+
+[[method]]
+id = "beta"
+kind = "beta"
+
+[[method]]
+id = "spline"
+kind = "spline"
+
+[[task]]
+id = "a"
+scores = "a.csv"
+score_column = "score"
+label_column = "label"
+score_kind = "margin"
+
+[[task]]
+id = "b"
+scores = "b.csv"
+score_column = "score"
+label_column = "label"
+score_kind = "margin"
+"#
+    )
+}
+
+/// Write the score files and the suite into `dir`; returns the suite path.
+pub fn write_suite(dir: &Path, seed: u64, repeats: usize, sizes: &str) -> PathBuf {
+    fs::write(dir.join("a.csv"), score_csv(1500, 1)).unwrap();
+    fs::write(dir.join("b.csv"), score_csv(1100, 2)).unwrap();
+    let p = dir.join("suite.toml");
+    fs::write(&p, suite_text(seed, repeats, sizes)).unwrap();
+    p
+}
+
+pub fn run(suite: &Path, out: &Path, extra: &[&str]) {
+    let mut args = vec![
+        "run",
+        suite.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--quiet",
+    ];
+    args.extend_from_slice(extra);
+    bin().args(&args).assert().success();
+}
+
+/// Relative paths of every file under `dir`, sorted.
+pub fn files(dir: &Path) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        for e in fs::read_dir(&d).unwrap() {
+            let p = e.unwrap().path();
+            if p.is_dir() {
+                stack.push(p);
+            } else {
+                out.push(
+                    p.strip_prefix(dir)
+                        .unwrap()
+                        .to_string_lossy()
+                        .replace('\\', "/"),
+                );
+            }
+        }
+    }
+    out.sort();
+    out
+}
+
+/// Two results folders hold the same files with the same bytes, except the
+/// documented machine-dependent parts: the manifest's machine fields and the
+/// fit times of timings.csv (whose rows must still name the same fits).
+pub fn assert_same_results(a: &Path, b: &Path) {
+    assert_eq!(files(a), files(b), "{} vs {}", a.display(), b.display());
+    for f in files(a) {
+        let (x, y) = (fs::read(a.join(&f)).unwrap(), fs::read(b.join(&f)).unwrap());
+        match f.as_str() {
+            "manifest.json" => {
+                let p = |v: &[u8]| {
+                    plumbline::scale::verify::without_machine_fields(
+                        &serde_json::from_slice(v).unwrap(),
+                    )
+                };
+                assert_eq!(p(&x), p(&y), "manifest.json differs");
+            }
+            "timings.csv" => {
+                let keys = |v: &[u8]| -> Vec<String> {
+                    String::from_utf8_lossy(v)
+                        .lines()
+                        .map(|l| l.rsplit_once(',').unwrap().0.to_string())
+                        .collect()
+                };
+                assert_eq!(keys(&x), keys(&y), "timings.csv names other fits");
+            }
+            _ => assert!(
+                x == y,
+                "{f} differs between {} and {}",
+                a.display(),
+                b.display()
+            ),
+        }
+    }
+}
