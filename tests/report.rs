@@ -9,6 +9,9 @@ use std::path::{Path, PathBuf};
 use assert_cmd::Command;
 use tempfile::TempDir;
 
+mod common;
+use common::files;
+
 fn bin() -> Command {
     Command::cargo_bin("plumbline").unwrap()
 }
@@ -30,28 +33,6 @@ fn copy_dir(from: &Path, to: &Path) {
     }
 }
 
-/// Relative paths of every file under `dir`, sorted.
-fn files(dir: &Path) -> Vec<String> {
-    let mut out = Vec::new();
-    fn walk(base: &Path, d: &Path, out: &mut Vec<String>) {
-        for e in fs::read_dir(d).unwrap() {
-            let p = e.unwrap().path();
-            if p.is_dir() {
-                walk(base, &p, out);
-            } else {
-                out.push(
-                    p.strip_prefix(base)
-                        .unwrap()
-                        .to_string_lossy()
-                        .replace('\\', "/"),
-                );
-            }
-        }
-    }
-    walk(dir, dir, &mut out);
-    out.sort();
-    out
-}
 
 /// The fixed folder (`tests/fixtures/report/folder`: units.csv, manifest.json
 /// and the reliability files of `tests/fixtures/report/suite.toml`) reported
