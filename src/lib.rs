@@ -9,7 +9,9 @@
 pub mod analysis;
 pub mod app;
 pub mod calibrate;
+pub mod cli;
 pub mod data;
+pub mod mapfile;
 pub mod metrics;
 pub mod models;
 pub mod report;

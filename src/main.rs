@@ -104,6 +104,10 @@ nothing.")]
         #[arg(long)]
         interval: Option<String>,
     },
+    /// Fit one method on a score file and save it as a map file.
+    Fit(plumbline::cli::fit::FitArgs),
+    /// Calibrate a score file with a map file (adds a column of probabilities).
+    Apply(plumbline::cli::apply::ApplyArgs),
     /// Write the demo score files (an invented courier's late-delivery models with
     /// known true calibration maps).
     Simulate {
@@ -194,6 +198,17 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 task,
             })?;
             println!("{t}");
+        }
+        Command::Fit(args) => {
+            let s = plumbline::cli::fit::run(&args)?;
+            eprintln!("{}", plumbline::cli::fit::describe(&s));
+        }
+        Command::Apply(args) => {
+            let s = plumbline::cli::apply::run(&args)?;
+            if let Some(w) = s.warning() {
+                eprintln!("warning: {w}");
+            }
+            eprintln!("{} rows calibrated → {}", s.rows, args.out.display());
         }
         Command::Simulate { out, rows, seed } => {
             if rows < 100 {

@@ -143,15 +143,15 @@ impl FittedMap for BetaMap {
             *o = sigmoid(z);
         }
     }
-    fn describe(&self) -> serde_json::Value {
-        serde_json::json!({
-            "kind": "beta",
-            "shape": self.shape.as_str(),
-            "a": self.a,
-            "b": self.b,
-            "c": self.c,
-            "smoothed_targets": self.smoothed,
-        })
+    fn state(&self) -> super::state::MapState {
+        super::state::MapState::Beta {
+            shape: self.shape,
+            score_kind: self.score_kind,
+            a: self.a,
+            b: self.b,
+            c: self.c,
+            smoothed_targets: self.smoothed,
+        }
     }
 }
 

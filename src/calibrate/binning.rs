@@ -40,7 +40,8 @@ pub struct Binning {
 }
 
 /// One bin of a fit.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Bin {
     pub lo: f64,
     pub hi: f64,
@@ -101,6 +102,19 @@ pub struct BinningMap {
 }
 
 impl BinningMap {
+    /// The map of fitted bins: cut points at the midpoints between bins.
+    pub fn new(bins: Vec<Bin>, pseudo_count: f64) -> Self {
+        let cuts: Vec<f64> = bins
+            .windows(2)
+            .map(|w| w[0].hi / 2.0 + w[1].lo / 2.0)
+            .collect();
+        BinningMap {
+            bins,
+            cuts,
+            pseudo_count,
+        }
+    }
+
     pub fn eval(&self, s: f64) -> f64 {
         if s.is_nan() {
             return f64::NAN;
@@ -116,20 +130,11 @@ impl FittedMap for BinningMap {
             *o = self.eval(s);
         }
     }
-    fn describe(&self) -> serde_json::Value {
-        let bins: Vec<_> = self
-            .bins
-            .iter()
-            .map(|b| {
-                serde_json::json!({ "lo": b.lo, "hi": b.hi, "rows": b.rows, "positives": b.positives, "value": b.value })
-            })
-            .collect();
-        serde_json::json!({
-            "kind": "binning",
-            "pseudo_count": self.pseudo_count,
-            "cuts": self.cuts,
-            "bins": bins,
-        })
+    fn state(&self) -> super::state::MapState {
+        super::state::MapState::Binning {
+            pseudo_count: self.pseudo_count,
+            bins: self.bins.clone(),
+        }
     }
 }
 
@@ -153,15 +158,10 @@ impl Calibrator for Binning {
                 b.value = (b.positives + self.pseudo_count * pi) / (b.rows + self.pseudo_count);
             }
         }
-        let cuts: Vec<f64> = bins
-            .windows(2)
-            .map(|w| w[0].hi / 2.0 + w[1].lo / 2.0)
-            .collect();
-        Ok(Fitted::plain(Box::new(BinningMap {
+        Ok(Fitted::plain(Box::new(BinningMap::new(
             bins,
-            cuts,
-            pseudo_count: self.pseudo_count,
-        })))
+            self.pseudo_count,
+        ))))
     }
 }
 

@@ -86,14 +86,21 @@ impl FittedMap for CirMap {
             *o = self.curve.eval(s).clamp(0.0, 1.0);
         }
     }
-    fn describe(&self) -> serde_json::Value {
-        serde_json::json!({
-            "kind": "centered-isotonic",
-            "pseudo_count": self.pseudo_count,
-            "x": self.curve.xs,
-            "value": self.curve.vs,
-        })
+    fn state(&self) -> super::state::MapState {
+        super::state::MapState::CenteredIsotonic {
+            pseudo_count: self.pseudo_count,
+            x: self.curve.xs.clone(),
+            value: self.curve.vs.clone(),
+        }
     }
+}
+
+/// The map of saved points (checked by the caller).
+pub(super) fn restore(xs: Vec<f64>, vs: Vec<f64>, pseudo_count: f64) -> Box<dyn FittedMap> {
+    Box::new(CirMap {
+        curve: StepLinear { xs, vs },
+        pseudo_count,
+    })
 }
 
 impl Calibrator for CenteredIsotonic {

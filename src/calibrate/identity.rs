@@ -7,7 +7,7 @@ use super::{check_sample, Calibrator, FitError, Fitted, FittedMap};
 
 pub struct Identity;
 
-struct IdentityMap;
+pub struct IdentityMap;
 
 impl FittedMap for IdentityMap {
     fn predict(&self, scores: &[f64], out: &mut [f64]) {
@@ -15,8 +15,8 @@ impl FittedMap for IdentityMap {
             *o = s.clamp(0.0, 1.0);
         }
     }
-    fn describe(&self) -> serde_json::Value {
-        serde_json::json!({ "kind": "identity" })
+    fn state(&self) -> super::state::MapState {
+        super::state::MapState::Identity
     }
 }
 

@@ -41,7 +41,8 @@ pub struct Isotonic {
 }
 
 /// One pooled block of a PAV fit over distinct scores.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Block {
     /// Smallest distinct score in the block.
     pub lo: f64,
@@ -225,14 +226,22 @@ impl FittedMap for IsotonicMap {
             *o = self.curve.eval(s).clamp(0.0, 1.0);
         }
     }
-    fn describe(&self) -> serde_json::Value {
-        let blocks: Vec<_> = self
-            .blocks
-            .iter()
-            .map(|b| serde_json::json!({ "lo": b.lo, "hi": b.hi, "weight": b.weight, "value": b.value }))
-            .collect();
-        serde_json::json!({ "kind": "isotonic", "pseudo_count": self.pseudo_count, "blocks": blocks })
+    fn state(&self) -> super::state::MapState {
+        super::state::MapState::Isotonic {
+            pseudo_count: self.pseudo_count,
+            blocks: self.blocks.clone(),
+        }
     }
+}
+
+/// The map of saved blocks (checked by the caller), as the fit builds it.
+pub(super) fn restore(blocks: Vec<Block>, pseudo_count: f64) -> Box<dyn FittedMap> {
+    let curve = StepLinear::from_blocks(&blocks);
+    Box::new(IsotonicMap {
+        blocks,
+        curve,
+        pseudo_count,
+    })
 }
 
 /// Fit PAV on raw (unsorted, possibly tied) calibration pairs.

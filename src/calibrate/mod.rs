@@ -22,6 +22,7 @@ pub mod isotonic;
 pub mod logistic;
 pub mod platt;
 pub mod spline;
+pub mod state;
 pub mod temperature;
 pub mod venn_abers;
 
@@ -104,8 +105,13 @@ impl ParamError {
 pub trait FittedMap: Send + Sync {
     /// Probabilities in [0, 1] for raw scores; `out.len() == scores.len()`.
     fn predict(&self, scores: &[f64], out: &mut [f64]);
-    /// The fitted parameters, for saving and applying the map elsewhere.
-    fn describe(&self) -> serde_json::Value;
+    /// Every number `predict` reads, for saving the map and rebuilding it
+    /// exactly ([`state::MapState::rebuild`]).
+    fn state(&self) -> state::MapState;
+    /// The fitted parameters as JSON (the serialised [`Self::state`]).
+    fn describe(&self) -> serde_json::Value {
+        serde_json::to_value(self.state()).unwrap_or(serde_json::Value::Null)
+    }
     /// Extra per-unit figures a method reports about its predictions on the test
     /// scores (for example the mean Venn–Abers interval width). Each name becomes
     /// a column of `units.csv`; methods without extras leave it empty.

@@ -93,8 +93,12 @@ impl FittedMap for PlattMap {
             *o = sigmoid(self.fit.a * s + self.fit.b);
         }
     }
-    fn describe(&self) -> serde_json::Value {
-        serde_json::json!({ "kind": "platt", "a": self.fit.a, "b": self.fit.b, "smoothed_targets": self.smoothed })
+    fn state(&self) -> super::state::MapState {
+        super::state::MapState::Platt {
+            a: self.fit.a,
+            b: self.fit.b,
+            smoothed_targets: self.smoothed,
+        }
     }
 }
 

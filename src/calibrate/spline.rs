@@ -634,20 +634,19 @@ impl FittedMap for SplineMap {
             };
         }
     }
-    fn describe(&self) -> serde_json::Value {
+    fn state(&self) -> super::state::MapState {
         let b = &self.fit.basis;
-        serde_json::json!({
-            "kind": "spline",
-            "score_kind": self.score_kind.as_str(),
-            "lo": b.lo,
-            "hi": b.hi,
-            "intervals": b.intervals,
-            "coefficients": self.fit.chosen.beta,
-            "lambda": self.fit.chosen.lambda,
-            "edf": self.fit.chosen.edf,
-            "criterion": self.criterion.map(|c| c.as_str()),
-            "smoothed_targets": self.fit.separable,
-        })
+        super::state::MapState::Spline {
+            score_kind: self.score_kind,
+            lo: b.lo,
+            hi: b.hi,
+            intervals: b.intervals,
+            coefficients: self.fit.chosen.beta.clone(),
+            lambda: self.fit.chosen.lambda,
+            edf: self.fit.chosen.edf,
+            criterion: self.criterion,
+            smoothed_targets: self.fit.separable,
+        }
     }
     fn extras(&self, _test_scores: &[f64]) -> Vec<(&'static str, f64)> {
         vec![("spline_edf", self.fit.chosen.edf)]
@@ -665,9 +664,14 @@ impl FittedMap for ConstantMap {
             *o = if s.is_nan() { f64::NAN } else { self.p };
         }
     }
-    fn describe(&self) -> serde_json::Value {
-        serde_json::json!({ "kind": "spline", "constant": self.p })
+    fn state(&self) -> super::state::MapState {
+        super::state::MapState::Constant { p: self.p }
     }
+}
+
+/// The constant map p (the saved form of a fit on all-equal log-odds).
+pub(super) fn constant_map(p: f64) -> Box<dyn FittedMap> {
+    Box::new(ConstantMap { p })
 }
 
 impl Calibrator for Spline {

@@ -100,18 +100,12 @@ impl FittedMap for TemperatureMap {
             *o = sigmoid(self.inverse_temperature * log_odds(s, self.score_kind));
         }
     }
-    fn describe(&self) -> serde_json::Value {
-        let t = if self.inverse_temperature > 0.0 {
-            serde_json::json!(1.0 / self.inverse_temperature)
-        } else {
-            serde_json::Value::Null // T = ∞
-        };
-        serde_json::json!({
-            "kind": "temperature",
-            "temperature": t,
-            "inverse_temperature": self.inverse_temperature,
-            "smoothed_targets": self.smoothed,
-        })
+    fn state(&self) -> super::state::MapState {
+        super::state::MapState::Temperature {
+            score_kind: self.score_kind,
+            inverse_temperature: self.inverse_temperature,
+            smoothed_targets: self.smoothed,
+        }
     }
 }
 

@@ -227,18 +227,17 @@ impl FittedMap for VennAbersMap {
             *o = merge_pair(p0, p1);
         }
     }
-    fn describe(&self) -> serde_json::Value {
+    fn state(&self) -> super::state::MapState {
         let t = &self.table;
         let gaps = |v: &[f64]| v.iter().step_by(2).copied().collect::<Vec<_>>();
         let ties = |v: &[f64]| v.iter().skip(1).step_by(2).copied().collect::<Vec<_>>();
-        serde_json::json!({
-            "kind": "venn-abers",
-            "scores": t.scores,
-            "gap_p0": gaps(&t.p0),
-            "gap_p1": gaps(&t.p1),
-            "tie_p0": ties(&t.p0),
-            "tie_p1": ties(&t.p1),
-        })
+        super::state::MapState::VennAbers {
+            scores: t.scores.clone(),
+            gap_p0: gaps(&t.p0),
+            gap_p1: gaps(&t.p1),
+            tie_p0: ties(&t.p0),
+            tie_p1: ties(&t.p1),
+        }
     }
     fn extras(&self, test_scores: &[f64]) -> Vec<(&'static str, f64)> {
         let (mut sum, mut n) = (0.0, 0usize);
@@ -252,6 +251,11 @@ impl FittedMap for VennAbersMap {
         let mean = if n > 0 { sum / n as f64 } else { f64::NAN };
         vec![("va_width", mean)]
     }
+}
+
+/// The map of a saved table (checked by the caller).
+pub(super) fn restore(table: VennAbersTable) -> Box<dyn FittedMap> {
+    Box::new(VennAbersMap { table })
 }
 
 impl Calibrator for VennAbers {

@@ -2,6 +2,7 @@
 //! dataset shipped in `data-open/` that a base model turns into scores.
 
 pub mod open;
+pub mod rows;
 pub mod scorefile;
 pub mod twonorm;
 

@@ -1,5 +1,6 @@
-//! Score files: a team's own held-out scores, as CSV (optionally gzip-compressed
-//! when the name ends in `.gz`) with a header row.
+//! Score files: a team's own held-out scores, as CSV with a header row
+//! (gzip-compressed when the name ends in `.gz`) or Parquet (`.parquet`,
+//! `.pq`); see [`super::rows`].
 //!
 //! The suite names the score column, the label column (0/1 or true/false), the
 //! score kind, and optionally a split column pinning each row to the calibration
@@ -7,11 +8,10 @@
 //! probabilities (only simulated data has one). Every problem is reported with
 //! the file, the line, the column and the offending value; nothing panics.
 
-use std::fs::File;
-use std::io::{BufReader, Read};
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use crate::calibrate::ScoreKind;
+use crate::data::rows::{Loc, RowSource};
 use crate::data::{ScorePool, Side};
 
 /// Which columns of a score file to read.
@@ -23,6 +23,29 @@ pub struct ScoreFileSpec {
     pub score_kind: ScoreKind,
     pub split_column: Option<String>,
     pub truth_column: Option<String>,
+    /// A column naming each row's fold (cross-fitted calibration data for
+    /// `plumbline fit`); see [`check_folds`].
+    pub fold_column: Option<String>,
+    /// Who named the columns, for messages.
+    pub origin: Origin,
+}
+
+/// Who named the columns of a score file: a suite (`score_column = ...`) or the
+/// command line (`--score-column ...`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Origin {
+    Suite,
+    CommandLine,
+}
+
+impl Origin {
+    /// How a column key is named in messages, e.g. `the suite's score_column`.
+    pub fn role(self, key: &str) -> String {
+        match self {
+            Origin::Suite => format!("the suite's {key}"),
+            Origin::CommandLine => format!("--{}", key.replace('_', "-")),
+        }
+    }
 }
 
 /// A problem with a score file.
@@ -37,19 +60,17 @@ pub enum ScoreFileError {
     NoHeader { path: String },
     #[error("{path}: the file has a header but no data rows")]
     NoRows { path: String },
-    #[error(
-        "{path}: no column named `{column}` (the suite's {role}); the header has: {available}"
-    )]
+    #[error("{path}: no column named `{column}` ({role}); the header has: {available}")]
     MissingColumn {
         path: String,
         column: String,
-        role: &'static str,
+        role: String,
         available: String,
     },
-    #[error("{path}:{line}: column `{column}` (field {field}): {problem}: `{value}`")]
+    #[error("{path}{at}: column `{column}` (field {field}): {problem}: `{value}`")]
     BadValue {
         path: String,
-        line: u64,
+        at: Loc,
         column: String,
         field: usize,
         value: String,
@@ -70,6 +91,22 @@ pub enum ScoreFileError {
     },
     #[error("{path}: every row has label {label}: a calibration comparison needs both classes")]
     OneClass { path: String, label: u8 },
+    #[error("{path}{at}: not a readable Parquet file: {message}")]
+    Parquet {
+        path: String,
+        at: String,
+        message: String,
+    },
+    #[error(
+        "{path}: column `{column}` is nested (group, list or map); score files need flat columns"
+    )]
+    Nested { path: String, column: String },
+    #[error("{path}: fold column `{column}`: {problem}")]
+    Folds {
+        path: String,
+        column: String,
+        problem: String,
+    },
     #[error("{path}: the split column `{column}` puts no row in the {side}")]
     EmptySide {
         path: String,
@@ -84,19 +121,9 @@ pub struct LoadedScores {
     pub pool: ScorePool,
     /// Known true probabilities per row, when the file has a truth column.
     pub truth: Option<Vec<f64>>,
-}
-
-fn open(path: &Path) -> Result<Box<dyn Read>, ScoreFileError> {
-    let f = File::open(path).map_err(|e| ScoreFileError::Io {
-        path: path.display().to_string(),
-        source: e,
-    })?;
-    let r = BufReader::new(f);
-    if path.extension().is_some_and(|e| e == "gz") {
-        Ok(Box::new(flate2::read::MultiGzDecoder::new(r)))
-    } else {
-        Ok(Box::new(r))
-    }
+    /// Fold index per row (in order of first appearance) and the fold names,
+    /// when the spec names a fold column.
+    pub folds: Option<(Vec<u32>, Vec<String>)>,
 }
 
 /// Parse a label: 0/1 or true/false (any letter case), surrounding spaces allowed.
@@ -111,82 +138,92 @@ pub fn parse_label(s: &str) -> Option<bool> {
     }
 }
 
+/// Parse a score field: a finite number, inside [0, 1] for probability scores.
+/// `Err` holds the problem for the message.
+pub fn parse_score(raw: &[u8], kind: ScoreKind) -> Result<f64, &'static str> {
+    let text = std::str::from_utf8(raw).map_err(|_| "not a number")?.trim();
+    let s: f64 = text.parse().map_err(|_| "not a number")?;
+    if !s.is_finite() {
+        return Err("scores must be finite");
+    }
+    if kind == ScoreKind::Probability && !(0.0..=1.0).contains(&s) {
+        return Err(
+            "a probability score must lie in [0, 1] (use score_kind = \"margin\" for other scores)",
+        );
+    }
+    Ok(s)
+}
+
+/// Position of a named column, or the located error.
+pub fn find_column(src: &RowSource, name: &str, role: String) -> Result<usize, ScoreFileError> {
+    src.headers()
+        .iter()
+        .position(|h| h.trim() == name)
+        .ok_or_else(|| ScoreFileError::MissingColumn {
+            path: src.path().to_string(),
+            column: name.to_string(),
+            role,
+            available: src
+                .headers()
+                .iter()
+                .map(|h| format!("`{h}`"))
+                .collect::<Vec<_>>()
+                .join(", "),
+        })
+}
+
+/// The error for a bad field of the row just read.
+pub fn bad_value(
+    src: &RowSource,
+    rec: &csv::ByteRecord,
+    col: usize,
+    problem: &str,
+) -> ScoreFileError {
+    ScoreFileError::BadValue {
+        path: src.path().to_string(),
+        at: src.loc(),
+        column: src.headers()[col].to_string(),
+        field: col + 1,
+        value: String::from_utf8_lossy(&rec[col]).into_owned(),
+        problem: problem.to_string(),
+    }
+}
+
 /// Read and validate a score file.
 pub fn load(spec: &ScoreFileSpec) -> Result<LoadedScores, ScoreFileError> {
-    let path = spec.path.display().to_string();
-    let reader = open(&spec.path)?;
-    let mut rdr = csv::ReaderBuilder::new()
-        .has_headers(true)
-        .flexible(false)
-        .from_reader(reader);
-    let headers = match rdr.headers() {
-        Ok(h) => h.clone(),
-        Err(e) => return Err(csv_error(&path, e)),
+    let mut src = RowSource::open(&spec.path)?;
+    let path = src.path().to_string();
+    let role = |k: &str| spec.origin.role(k);
+    let si = find_column(&src, &spec.score_column, role("score_column"))?;
+    let li = find_column(&src, &spec.label_column, role("label_column"))?;
+    let optional = |c: &Option<String>, key: &str| {
+        c.as_deref()
+            .map(|c| find_column(&src, c, role(key)))
+            .transpose()
     };
-    if headers.is_empty() || (headers.len() == 1 && headers[0].trim().is_empty()) {
-        return Err(ScoreFileError::NoHeader { path });
-    }
-    let available = headers
-        .iter()
-        .map(|h| format!("`{h}`"))
-        .collect::<Vec<_>>()
-        .join(", ");
-    let find = |name: &str, role: &'static str| -> Result<usize, ScoreFileError> {
-        headers
-            .iter()
-            .position(|h| h.trim() == name)
-            .ok_or_else(|| ScoreFileError::MissingColumn {
-                path: path.clone(),
-                column: name.to_string(),
-                role,
-                available: available.clone(),
-            })
-    };
-    let si = find(&spec.score_column, "score_column")?;
-    let li = find(&spec.label_column, "label_column")?;
-    let pi = spec
-        .split_column
-        .as_deref()
-        .map(|c| find(c, "split_column"))
-        .transpose()?;
-    let ti = spec
-        .truth_column
-        .as_deref()
-        .map(|c| find(c, "truth_column"))
-        .transpose()?;
+    let pi = optional(&spec.split_column, "split_column")?;
+    let ti = optional(&spec.truth_column, "truth_column")?;
+    let fi = optional(&spec.fold_column, "fold_column")?;
 
     let mut scores = Vec::new();
     let mut labels = Vec::new();
     let mut sides = pi.map(|_| Vec::new());
     let mut truth = ti.map(|_| Vec::new());
-    let mut record = csv::StringRecord::new();
-    loop {
-        match rdr.read_record(&mut record) {
-            Ok(false) => break,
-            Ok(true) => {}
-            Err(e) => return Err(csv_error(&path, e)),
-        }
-        let line = record.position().map(|p| p.line()).unwrap_or(0);
-        let bad = |col: usize, problem: &str| ScoreFileError::BadValue {
-            path: path.clone(),
-            line,
-            column: headers[col].to_string(),
-            field: col + 1,
-            value: record[col].to_string(),
-            problem: problem.to_string(),
+    let mut folds: Option<(Vec<u32>, Vec<String>)> = fi.map(|_| (Vec::new(), Vec::new()));
+    let mut fold_index = std::collections::BTreeMap::<Vec<u8>, u32>::new();
+    let mut record = csv::ByteRecord::new();
+    while src.next_row(&mut record)? {
+        let bad = |col: usize, problem: &str| bad_value(&src, &record, col, problem);
+        let text = |col: usize| {
+            std::str::from_utf8(&record[col])
+                .unwrap_or("\u{fffd}")
+                .trim()
         };
-        let raw = record[si].trim();
-        let s: f64 = raw.parse().map_err(|_| bad(si, "not a number"))?;
-        if !s.is_finite() {
-            return Err(bad(si, "scores must be finite"));
-        }
-        if spec.score_kind == ScoreKind::Probability && !(0.0..=1.0).contains(&s) {
-            return Err(bad(si, "a probability score must lie in [0, 1] (use score_kind = \"margin\" for other scores)"));
-        }
+        let s = parse_score(&record[si], spec.score_kind).map_err(|p| bad(si, p))?;
         let y =
-            parse_label(&record[li]).ok_or_else(|| bad(li, "a label must be 0/1 or true/false"))?;
+            parse_label(text(li)).ok_or_else(|| bad(li, "a label must be 0/1 or true/false"))?;
         if let (Some(i), Some(v)) = (pi, sides.as_mut()) {
-            let side = match record[i].trim() {
+            let side = match text(i) {
                 "calibration" => Side::Reservoir,
                 "test" => Side::Test,
                 _ => return Err(bad(i, "the split column must say `calibration` or `test`")),
@@ -194,14 +231,23 @@ pub fn load(spec: &ScoreFileSpec) -> Result<LoadedScores, ScoreFileError> {
             v.push(side);
         }
         if let (Some(i), Some(v)) = (ti, truth.as_mut()) {
-            let t: f64 = record[i]
-                .trim()
-                .parse()
-                .map_err(|_| bad(i, "not a number"))?;
+            let t: f64 = text(i).parse().map_err(|_| bad(i, "not a number"))?;
             if !(0.0..=1.0).contains(&t) {
                 return Err(bad(i, "a true probability must lie in [0, 1]"));
             }
             v.push(t);
+        }
+        if let (Some(i), Some((idx, names))) = (fi, folds.as_mut()) {
+            let key = record[i].trim_ascii();
+            if key.is_empty() {
+                return Err(bad(i, "every row must name its fold (the field is empty)"));
+            }
+            let next = fold_index.len() as u32;
+            let k = *fold_index.entry(key.to_vec()).or_insert_with(|| {
+                names.push(String::from_utf8_lossy(key).into_owned());
+                next
+            });
+            idx.push(k);
         }
         scores.push(s);
         labels.push(y);
@@ -230,6 +276,13 @@ pub fn load(spec: &ScoreFileSpec) -> Result<LoadedScores, ScoreFileError> {
             }
         }
     }
+    if let (Some((idx, names)), Some(c)) = (&folds, &spec.fold_column) {
+        check_folds(idx, names, &labels).map_err(|problem| ScoreFileError::Folds {
+            path: path.clone(),
+            column: c.clone(),
+            problem,
+        })?;
+    }
     Ok(LoadedScores {
         pool: ScorePool {
             scores,
@@ -237,10 +290,39 @@ pub fn load(spec: &ScoreFileSpec) -> Result<LoadedScores, ScoreFileError> {
             sides,
         },
         truth,
+        folds,
     })
 }
 
-fn csv_error(path: &str, e: csv::Error) -> ScoreFileError {
+/// Checks on cross-fitted calibration data: more than one fold, and both classes
+/// in every fold (a fold of one class means its model was scored on rows it
+/// could not have been compared on). Every row naming exactly one fold is
+/// checked while reading (an empty fold field is an error).
+pub fn check_folds(idx: &[u32], names: &[String], labels: &[bool]) -> Result<(), String> {
+    if names.len() < 2 {
+        return Err(format!(
+            "every row is in fold `{}`: cross-fitted data needs more than one fold",
+            names.first().map(String::as_str).unwrap_or("")
+        ));
+    }
+    let mut counts = vec![(0usize, 0usize); names.len()];
+    for (&k, &y) in idx.iter().zip(labels) {
+        let c = &mut counts[k as usize];
+        c.0 += 1;
+        c.1 += y as usize;
+    }
+    for (name, &(rows, pos)) in names.iter().zip(&counts) {
+        if pos == 0 || pos == rows {
+            return Err(format!(
+                "fold `{name}` has {rows} rows, all with label {}: every fold needs both classes",
+                if pos == 0 { 0 } else { 1 }
+            ));
+        }
+    }
+    Ok(())
+}
+
+pub(crate) fn csv_error(path: &str, e: csv::Error) -> ScoreFileError {
     let line = e.position().map(|p| p.line()).unwrap_or(0);
     match e.kind() {
         csv::ErrorKind::UnequalLengths {

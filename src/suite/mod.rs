@@ -938,6 +938,8 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                     score_kind: rt.score_kind,
                     split_column: rt.split_column.clone(),
                     truth_column: rt.truth_column.clone(),
+                    fold_column: None,
+                    origin: scorefile::Origin::Suite,
                 };
                 let bytes = std::fs::read(&fpath).map_err(|e| {
                     ctx.err(
