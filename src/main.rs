@@ -108,6 +108,8 @@ nothing.")]
     Fit(plumbline::cli::fit::FitArgs),
     /// Calibrate a score file with a map file (adds a column of probabilities).
     Apply(plumbline::cli::apply::ApplyArgs),
+    /// Calibration metrics of one score file with bootstrap intervals.
+    Diagnose(plumbline::cli::diagnose::DiagnoseArgs),
     /// Write the demo score files (an invented courier's late-delivery models with
     /// known true calibration maps).
     Simulate {
@@ -209,6 +211,11 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 eprintln!("warning: {w}");
             }
             eprintln!("{} rows calibrated → {}", s.rows, args.out.display());
+        }
+        Command::Diagnose(args) => {
+            let d = plumbline::cli::diagnose::run(&args)?;
+            println!("{}", d.table.to_terminal(None));
+            eprintln!("{} rows → {}", d.rows, args.out.display());
         }
         Command::Simulate { out, rows, seed } => {
             if rows < 100 {

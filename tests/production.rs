@@ -700,3 +700,23 @@ fn fit_checks_parameters_like_a_suite() {
         assert!(!out.exists());
     }
 }
+
+/// Many batches (the reader and writer stages hand over rows in batches):
+/// every row arrives once, in order, for a file that ends mid-batch.
+#[test]
+fn long_files_keep_every_row_in_order() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let map = small_map(d);
+    let n = 41_234;
+    let r = rows(n, 21, ScoreKind::Probability);
+    let input = d.join("long.csv");
+    fs::write(&input, csv_text(&r)).unwrap();
+    for _ in 0..3 {
+        let out = d.join("long-out.csv");
+        apply(&map, &input, &out).success();
+        let got = read_output(&out, "calibrated");
+        assert_eq!(got.len(), n);
+        assert!(got.iter().zip(&r).all(|(g, w)| g.0 == w.0));
+    }
+}

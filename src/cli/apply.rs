@@ -177,19 +177,39 @@ pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
         score_max: hi,
         rule: range_rule(&content.fitted),
     };
-    let mut rec = csv::ByteRecord::new();
-    let mut buf = ryu::Buffer::new();
-    let mut p = [0.0f64];
-    while src.next_row(&mut rec)? {
-        let s =
-            parse_score(&rec[si], kind).map_err(|problem| bad_value(&src, &rec, si, problem))?;
-        summary.below += (s < lo) as u64;
-        summary.above += (s > hi) as u64;
-        map.predict(&[s], &mut p);
-        rec.push_field(push_float(&mut buf, p[0]).as_bytes());
-        wtr.write_byte_record(&rec).map_err(werr)?;
-        summary.rows += 1;
+    // Two stages on two threads, batches of rows passed between them: the
+    // reader parses the CSV (or decodes Parquet) and the scores; this thread
+    // predicts, formats and writes. Batches are recycled, so memory stays at a
+    // few batches whatever the file size.
+    let (full_tx, full_rx) = std::sync::mpsc::sync_channel::<Result<Batch>>(2);
+    let (empty_tx, empty_rx) = std::sync::mpsc::sync_channel::<Batch>(4);
+    for _ in 0..3 {
+        empty_tx.send(Batch::default()).ok();
     }
+    let mut buf = ryu::Buffer::new();
+    let written: Result<()> = std::thread::scope(|scope| {
+        scope.spawn(move || read_batches(&mut src, si, kind, full_tx, empty_rx));
+        for batch in full_rx {
+            let mut batch = batch?;
+            let n = batch.len;
+            batch.out.resize(n, 0.0);
+            map.predict(&batch.scores[..n], &mut batch.out[..n]);
+            for i in 0..n {
+                let s = batch.scores[i];
+                summary.below += (s < lo) as u64;
+                summary.above += (s > hi) as u64;
+                let rec = &mut batch.records[i];
+                rec.push_field(push_float(&mut buf, batch.out[i]).as_bytes());
+                wtr.write_byte_record(rec).map_err(werr)?;
+            }
+            summary.rows += n as u64;
+            // The reader may have finished already; the rows still queued
+            // are written all the same.
+            empty_tx.send(batch).ok();
+        }
+        Ok(())
+    });
+    written?;
     let sink = wtr
         .into_inner()
         .map_err(|e| anyhow::anyhow!("{out_name}: cannot write: {}", e.error()))?;
@@ -199,6 +219,60 @@ pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
         f.commit()?;
     }
     Ok(summary)
+}
+
+/// Rows handed from the reader to the writer.
+#[derive(Default)]
+struct Batch {
+    records: Vec<csv::ByteRecord>,
+    scores: Vec<f64>,
+    out: Vec<f64>,
+    len: usize,
+}
+
+/// Rows per batch.
+const BATCH: usize = 4096;
+
+/// The reader stage: fill recycled batches with rows and parsed scores until
+/// the file ends or a row is bad (the error is the last message sent).
+fn read_batches(
+    src: &mut RowSource,
+    si: usize,
+    kind: crate::calibrate::ScoreKind,
+    full: std::sync::mpsc::SyncSender<Result<Batch>>,
+    empty: std::sync::mpsc::Receiver<Batch>,
+) {
+    let fill = |src: &mut RowSource, b: &mut Batch| -> Result<bool> {
+        b.records.resize_with(BATCH, csv::ByteRecord::new);
+        b.scores.resize(BATCH, 0.0);
+        b.len = 0;
+        while b.len < BATCH {
+            let rec = &mut b.records[b.len];
+            if !src.next_row(rec)? {
+                return Ok(false);
+            }
+            b.scores[b.len] =
+                parse_score(&rec[si], kind).map_err(|problem| bad_value(src, rec, si, problem))?;
+            b.len += 1;
+        }
+        Ok(true)
+    };
+    for mut b in empty {
+        match fill(src, &mut b) {
+            Ok(more) => {
+                if b.len > 0 && full.send(Ok(b)).is_err() {
+                    return;
+                }
+                if !more {
+                    return;
+                }
+            }
+            Err(e) => {
+                full.send(Err(e)).ok();
+                return;
+            }
+        }
+    }
 }
 
 type FileOut = std::io::BufWriter<std::fs::File>;

@@ -1,9 +1,11 @@
 //! Commands for using a chosen method in production: `fit` (one method on a
 //! score file → map file) and `apply` (map file + score file → calibrated
-//! probabilities). Each command has its clap arguments and a `run` function
+//! probabilities), and `diagnose` (the calibration metrics of one score file
+//! with bootstrap intervals). Each command has its clap arguments and a `run` function
 //! that tests call directly.
 
 pub mod apply;
+pub mod diagnose;
 pub mod fit;
 
 use std::fs::File;

@@ -63,7 +63,7 @@ impl Format {
 }
 
 enum Inner {
-    Csv(csv::Reader<Box<dyn Read>>),
+    Csv(csv::Reader<Box<dyn Read + Send>>),
     Parquet(Box<RowIter<'static>>),
 }
 
@@ -99,7 +99,7 @@ impl RowSource {
             path.display().to_string()
         };
         let format = Format::of(path);
-        let reader: Box<dyn Read> = match format {
+        let reader: Box<dyn Read + Send> = match format {
             Format::Parquet => return Self::open_parquet(path, label),
             Format::Stdin => Box::new(BufReader::with_capacity(1 << 16, std::io::stdin())),
             Format::Csv | Format::CsvGz => {
