@@ -32,13 +32,14 @@ run() {
   local name=$1 rows=$2; shift 2
   local log="$WORK/time-$name-$rows.txt"
   nice -n 10 /usr/bin/time -v "$@" 2>"$log" >/dev/null
-  local wall rss
+  local wall rss cpu
+  cpu=$(awk -F': ' '/User time|System time/ {s += $2} END {print s}' "$log")
   wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {print $2}' "$log" | awk -F: '{ if (NF==3) print $1*3600+$2*60+$3; else print $1*60+$2 }')
   rss=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$log")
-  echo "$name $rows $wall $rss"
+  echo "$name $rows $wall $rss $cpu"
 }
 
-echo "# plumbline apply benchmark: $(nproc) cores, $(uname -m), run under nice -n 10 on a shared machine"
+echo "# plumbline apply benchmark: $(nproc) cores, $(uname -m), run under nice -n 10 on a shared machine (load average $(cut -d' ' -f1-3 /proc/loadavg))"
 echo "# input: $(head -c 200 "$WORK/big-$ROWS.csv" | head -2 | tail -1) ... ($(du -m "$WORK/big-$ROWS.csv" | cut -f1) MB for $ROWS rows)"
 results=()
 for rows in "$SMALL" "$ROWS"; do
@@ -50,6 +51,6 @@ for rows in "$SMALL" "$ROWS"; do
 done
 rm -f "$WORK/out.csv"
 printf '%s\n' "${results[@]}" | awk '
-  BEGIN { printf "%-9s %10s %8s %12s %10s %12s\n", "command", "rows", "wall s", "M rows/s", "× rewrite", "peak RSS MB" }
-  { name[NR]=$1; rows[NR]=$2; wall[NR]=$3; rss[NR]=$4; if ($1=="rewrite") base[$2]=$3 }
-  END { for (i=1;i<=NR;i++) printf "%-9s %10d %8.2f %12.2f %10.2f %12.1f\n", name[i], rows[i], wall[i], rows[i]/wall[i]/1e6, wall[i]/base[rows[i]], rss[i]/1024 }'
+  BEGIN { printf "%-9s %10s %8s %10s %10s %8s %12s %10s %12s\n", "command", "rows", "wall s", "M rows/s", "× rewrite", "CPU s", "M rows/CPU s", "CPU × rw", "peak RSS MB" }
+  { name[NR]=$1; rows[NR]=$2; wall[NR]=$3; rss[NR]=$4; cpu[NR]=$5; if ($1=="rewrite") { base[$2]=$3; cbase[$2]=$5 } }
+  END { for (i=1;i<=NR;i++) printf "%-9s %10d %8.2f %10.2f %10.2f %8.2f %12.2f %10.2f %12.1f\n", name[i], rows[i], wall[i], rows[i]/wall[i]/1e6, wall[i]/base[rows[i]], cpu[i], rows[i]/cpu[i]/1e6, cpu[i]/cbase[rows[i]], rss[i]/1024 }'

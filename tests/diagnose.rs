@@ -118,6 +118,19 @@ fn compare_is_paired() {
         assert_eq!(&r[5..8], &["0", "0", "0"], "{r:?}");
     }
     run(&f, &d.join("other"), &["--compare", "other"], "2");
+    // The reliability diagram (the report's figure code) has one row per column.
+    let svg = fs::read_to_string(d.join("other/reliability.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).expect("reliability.svg parses as XML");
+    let labels: Vec<&str> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|n| n.text())
+        .collect();
+    assert!(
+        labels.contains(&"score") && labels.contains(&"other"),
+        "{labels:?}"
+    );
+    assert!(labels.contains(&"all 500 rows"), "{labels:?}");
     let p: Vec<f64> = rows.iter().map(|r| r.0).collect();
     let q: Vec<f64> = rows.iter().map(|r| r.1).collect();
     let y: Vec<bool> = rows.iter().map(|r| r.2).collect();

@@ -11,6 +11,11 @@
 //! counted. With `--compare`, both columns are scored on the same resampled
 //! rows and the interval is that of the paired difference (main − compare).
 //!
+//! Reliability diagram: the CORP curve with its consistency band
+//! ([`crate::metrics::reliability::curve`], band settings as a run's default)
+//! of each column, drawn by the run report's own figure code
+//! ([`crate::report::figures::reliability_grid`]) into `reliability.svg`.
+//!
 //! Resample b draws its rows from ChaCha8 seeded with `split::mix(seed,
 //! [tag, b])`, so the output is identical whatever the thread count.
 
@@ -21,8 +26,9 @@ use rayon::prelude::*;
 
 use crate::calibrate::ScoreKind;
 use crate::data::scorefile::{self, Origin, ScoreFileSpec};
+use crate::metrics::reliability::{self, BandSettings, CurveRecord};
 use crate::metrics::{MetricId, MetricSettings};
-use crate::report::Table;
+use crate::report::{figures, Table};
 use crate::run::{output, table::num};
 use crate::split;
 
@@ -30,7 +36,7 @@ use crate::split;
 pub struct DiagnoseArgs {
     /// Score file with probabilities and labels (CSV, gzip CSV, Parquet, `-`).
     pub file: PathBuf,
-    /// Output folder (metrics.csv, and compare.csv with --compare); written whole or not at all.
+    /// Output folder (metrics.csv, reliability.svg, and compare.csv with --compare); written whole or not at all.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
     /// Probability column.
@@ -75,6 +81,8 @@ pub struct Diagnosis {
     /// With --compare: the compared column's values and the paired differences.
     pub compare: Option<(Vec<Estimate>, Vec<Estimate>)>,
     pub table: Table,
+    /// The reliability diagram (SVG) of the column(s).
+    pub svg: String,
 }
 
 /// Type-7 quantile of sorted values.
@@ -248,11 +256,46 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
             args.bootstrap, args.seed
         )],
     };
+    let names: Vec<&str> = std::iter::once(args.score_column.as_str())
+        .chain(args.compare.as_deref())
+        .collect();
+    let records: Vec<CurveRecord> = cols
+        .iter()
+        .zip(&names)
+        .enumerate()
+        .filter_map(|(k, (p, name))| {
+            let seed = split::mix(args.seed, &[split::fnv1a(b"diagnose-band"), k as u64]);
+            reliability::curve(name, p, &y, BandSettings::default(), seed).map(|curve| {
+                CurveRecord {
+                    task: String::new(),
+                    size: y.len(),
+                    repeat: 0,
+                    curve,
+                }
+            })
+        })
+        .collect();
+    let refs: Vec<&CurveRecord> = records.iter().collect();
+    let label = args.file.display().to_string();
+    let heading = format!(
+        "{}: reliability of {} ({} rows)",
+        figures::esc(&label),
+        figures::esc(&names.join(" and ")),
+        y.len()
+    );
+    let svg = figures::reliability_grid(
+        &label,
+        &heading,
+        &refs,
+        |m| figures::style(names.iter().position(|n| *n == m).unwrap_or(0)),
+        |n| format!("all {n} rows"),
+    );
     Ok(Diagnosis {
         rows: y.len(),
         single,
         compare,
         table,
+        svg,
     })
 }
 
@@ -282,6 +325,7 @@ pub fn run(args: &DiagnoseArgs) -> Result<Diagnosis> {
     let staging = output::prepare(&args.out, args.force)?;
     let single = csv_rows("metric,value,lo,hi,resamples", &[&d.single]);
     output::write_file(&staging, "metrics.csv", &single)?;
+    output::write_file(&staging, "reliability.svg", d.svg.as_bytes())?;
     if let Some((o, diff)) = &d.compare {
         let bytes = csv_rows(
             "metric,compared_value,compared_lo,compared_hi,compared_resamples,difference,difference_lo,difference_hi,difference_resamples",

@@ -72,7 +72,8 @@ pub fn style_of(a: &Analysis, method: &str) -> Style {
     }
 }
 
-fn esc(s: &str) -> String {
+/// Escape text for SVG markup.
+pub fn esc(s: &str) -> String {
     s.replace('&', "&amp;")
         .replace('<', "&lt;")
         .replace('>', "&gt;")
@@ -481,14 +482,38 @@ fn reliability_panel(
 /// log-odds panel. `None` when the folder has no curves for the task.
 pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> Option<String> {
     let mine: Vec<&CurveRecord> = curves.iter().filter(|c| c.task == task).collect();
-    if mine.is_empty() {
-        return None;
-    }
+    let first = mine.first()?;
+    let heading = format!(
+        "{}: reliability on the test set ({} rows), repeat {}",
+        esc(task),
+        first.curve.test_rows,
+        first.repeat
+    );
+    Some(reliability_grid(
+        task,
+        &heading,
+        &mine,
+        |m| style_of(a, m),
+        |n| format!("calibration size n = {n}"),
+    ))
+}
+
+/// The reliability grid behind [`reliability_figure`] (also drawn by
+/// `plumbline diagnose`): rows = series in order of first appearance,
+/// columns = the records' `size` values, titled by `column`; `heading` is
+/// markup-escaped text.
+pub fn reliability_grid(
+    task: &str,
+    heading: &str,
+    mine: &[&CurveRecord],
+    style: impl Fn(&str) -> Style,
+    column: impl Fn(usize) -> String,
+) -> String {
     let mut sizes: Vec<usize> = mine.iter().map(|c| c.size).collect();
     sizes.sort_unstable();
     sizes.dedup();
     let mut series: Vec<&str> = Vec::new();
-    for c in &mine {
+    for c in mine {
         if !series.contains(&c.curve.method.as_str()) {
             series.push(&c.curve.method);
         }
@@ -503,10 +528,7 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
     s.push_str("<style>.tm{font-size:8px;fill:#555;text-anchor:middle}.te{font-size:8px;fill:#555;text-anchor:end}</style>\n");
     let first = mine[0];
     s.push_str(&format!(
-        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">{}: reliability on the test set ({} rows), repeat {}</text>\n",
-        esc(task),
-        first.curve.test_rows,
-        first.repeat
+        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">{heading}</text>\n"
     ));
     s.push_str(&format!(
         "<text x=\"10\" y=\"34\" fill=\"#444\">line: CORP curve (isotonic fit of outcome on prediction); grey: {:.0}% consistency band ({} label draws under calibration)</text>\n",
@@ -516,13 +538,14 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
     s.push_str("<text x=\"10\" y=\"48\" fill=\"#444\">left panel: probability scale; right panel: log-odds scale (tails); bars: predictions (square-root height)</text>\n");
     for (j, &n) in sizes.iter().enumerate() {
         s.push_str(&format!(
-            "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"12\" font-weight=\"bold\">calibration size n = {n}</text>\n",
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"12\" font-weight=\"bold\">{}</text>\n",
             f(ml + j as f64 * cell_w + cell_w / 2.0 - 20.0),
-            f(mt - 6.0)
+            f(mt - 6.0),
+            esc(&column(n))
         ));
     }
     for (i, m) in series.iter().enumerate() {
-        let st = style_of(a, m);
+        let st = style(m);
         let y0 = mt + i as f64 * row_h + 4.0;
         s.push_str(&format!(
             "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"12\" font-weight=\"bold\" fill=\"{}\">{}</text>\n",
@@ -564,7 +587,7 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
     }
     s.push_str("</svg>\n");
     let _ = (HIST_P_BINS, HIST_LOGIT_BINS);
-    Some(s)
+    s
 }
 
 /// Groups of methods whose average ranks lie within `cd` of each other:
