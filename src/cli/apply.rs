@@ -121,7 +121,7 @@ pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
     let role = if args.score_column.is_some() {
         "--score-column".to_string()
     } else {
-        format!("the map's score column; choose another with --score-column")
+        "the map's score column; choose another with --score-column".to_string()
     };
     let si = find_column(&src, &column, role)?;
     if src.headers().iter().any(|h| h.trim() == args.column) {
