@@ -248,6 +248,23 @@ pub fn from_bytes(path: &str, bytes: &[u8]) -> Result<LoadedMap, MapFileError> {
             ),
         });
     }
+    let state_kind = match &content.fitted {
+        MapState::Beta { score_kind, .. }
+        | MapState::Temperature { score_kind, .. }
+        | MapState::Spline { score_kind, .. } => Some(*score_kind),
+        _ => None,
+    };
+    if state_kind.is_some_and(|k| k != content.score_kind) {
+        return Err(MapFileError::State {
+            path: p(),
+            kind: content.fitted.kind(),
+            message: format!(
+                "the fitted map reads {} scores but the file says score_kind = {}",
+                state_kind.map_or("", |k| k.as_str()),
+                content.score_kind.as_str()
+            ),
+        });
+    }
     let map = content
         .fitted
         .rebuild()

@@ -100,6 +100,16 @@ impl FittedMap for TemperatureMap {
             *o = sigmoid(self.inverse_temperature * log_odds(s, self.score_kind));
         }
     }
+    /// The saved state plus the temperature T = 1/β (null for T = ∞).
+    fn describe(&self) -> serde_json::Value {
+        let mut v = serde_json::to_value(self.state()).unwrap_or(serde_json::Value::Null);
+        v["temperature"] = if self.inverse_temperature > 0.0 {
+            serde_json::json!(1.0 / self.inverse_temperature)
+        } else {
+            serde_json::Value::Null
+        };
+        v
+    }
     fn state(&self) -> super::state::MapState {
         super::state::MapState::Temperature {
             score_kind: self.score_kind,
