@@ -254,7 +254,7 @@ fn map_file_reproduces_the_fitted_method_bit_for_bit_on_every_format() {
 /// A map fitted on the same data as a benchmark works for the same rows
 /// (Parquet training file too): fit on one unit's calibration sample, apply to
 /// the task's test rows, and the log loss equals the one the run wrote in
-/// units.csv (written in the shortest form that reads back exactly).
+/// units.csv.gz (written in the shortest form that reads back exactly).
 #[test]
 fn applying_a_map_reproduces_the_benchmark_scores() {
     let dir = TempDir::new().unwrap();
@@ -305,7 +305,8 @@ score_kind = "probability"
         .success();
     let plan = plumbline::app::load_plan(&suite).unwrap();
     let task = &plan.tasks[0];
-    let mut rdr = csv::Reader::from_path(results.join("units.csv")).unwrap();
+    let units_file = fs::File::open(results.join(plumbline::run::table::UNITS_FILE)).unwrap();
+    let mut rdr = csv::Reader::from_reader(flate2::read::MultiGzDecoder::new(units_file));
     let h = rdr.headers().unwrap().clone();
     let col = |n: &str| h.iter().position(|x| x == n).unwrap();
     let (ci_m, ci_r, ci_ll) = (col("method"), col("repeat"), col("log_loss"));
