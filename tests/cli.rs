@@ -255,7 +255,10 @@ fn existing_results_need_force_and_report_rebuilds() {
                     .unwrap()
                     .map(|e| {
                         let q = e.unwrap().path();
-                        (format!("{n}/{}", q.file_name().unwrap().to_string_lossy()), fs::read(q).unwrap())
+                        (
+                            format!("{n}/{}", q.file_name().unwrap().to_string_lossy()),
+                            fs::read(q).unwrap(),
+                        )
                     })
                     .collect::<Vec<_>>()
             } else {
@@ -276,7 +279,10 @@ fn existing_results_need_force_and_report_rebuilds() {
         .assert()
         .success();
     for (n, bytes) in &before {
-        assert!(fs::read(out.join(n)).unwrap() == *bytes, "{n} rebuilt differently");
+        assert!(
+            fs::read(out.join(n)).unwrap() == *bytes,
+            "{n} rebuilt differently"
+        );
     }
     assert_eq!(fs::read(out.join("paired.csv")).unwrap(), paired);
     assert_eq!(fs::read(out.join("summary.md")).unwrap(), summary);

@@ -19,7 +19,6 @@ fn root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
 }
 
-
 /// manifest.json without what depends on the machine or the moment.
 fn stable_manifest(text: &str) -> serde_json::Value {
     let mut m: serde_json::Value = serde_json::from_str(text).unwrap();

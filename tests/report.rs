@@ -33,7 +33,6 @@ fn copy_dir(from: &Path, to: &Path) {
     }
 }
 
-
 /// The fixed folder (`tests/fixtures/report/folder`: units.csv, manifest.json
 /// and the reliability files of `tests/fixtures/report/suite.toml`) reported
 /// into a temporary copy; returns the copy and the terminal output.
