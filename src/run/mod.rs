@@ -128,18 +128,31 @@ pub fn unit_keys(plan: &Plan) -> Vec<(usize, usize, usize)> {
     keys
 }
 
+/// The calibration sample (scores, labels) of unit (task `ti`, `size`,
+/// `repeat`): the rows its derived seed draws from the task's reservoir. The
+/// task's pool must be resolved.
+pub fn calibration_sample(
+    plan: &Plan,
+    ti: usize,
+    size: usize,
+    repeat: usize,
+) -> (Vec<f64>, Vec<bool>) {
+    let task = &plan.tasks[ti];
+    let seed = split::unit_seed(plan.seed, &task.id, size, repeat);
+    let picks = split::draw_calibration(task.reservoir.len(), size, seed);
+    picks
+        .iter()
+        .map(|&k| {
+            let row = task.reservoir[k];
+            (task.pool.scores[row], task.pool.labels[row])
+        })
+        .unzip()
+}
+
 fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usize) -> UnitOutcome {
     let task = &plan.tasks[ti];
     let td = &data[ti];
-    let seed = split::unit_seed(plan.seed, &task.id, size, repeat);
-    let picks = split::draw_calibration(task.reservoir.len(), size, seed);
-    let mut cal_s = Vec::with_capacity(size);
-    let mut cal_y = Vec::with_capacity(size);
-    for &k in &picks {
-        let row = task.reservoir[k];
-        cal_s.push(task.pool.scores[row]);
-        cal_y.push(task.pool.labels[row]);
-    }
+    let (cal_s, cal_y) = calibration_sample(plan, ti, size, repeat);
     let positives = cal_y.iter().filter(|&&y| y).count();
     let one_class = positives == 0 || positives == size;
     let mut methods = Vec::with_capacity(plan.methods.len());
