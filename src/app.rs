@@ -251,13 +251,18 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         let only = args
             .shard
             .map(|s| crate::scale::shard::pools_needed(&plan, s, &keys));
-        run::pools::resolve_tasks(&mut plan, only.as_ref(), Some(&cache), args.threads, args.quiet)
-            .map_err(anyhow::Error::msg)?
+        run::pools::resolve_tasks(
+            &mut plan,
+            only.as_ref(),
+            Some(&cache),
+            args.threads,
+            args.quiet,
+        )
+        .map_err(anyhow::Error::msg)?
     };
     let staging = output::prepare(&out, args.force)?;
     let key = run_key(&plan, args.shard);
-    let (journal, done) =
-        Journal::open(&staging, &key, args.force).map_err(anyhow::Error::msg)?;
+    let (journal, done) = Journal::open(&staging, &key, args.force).map_err(anyhow::Error::msg)?;
     if journal.dropped > 0 && !args.quiet {
         eprintln!(
             "journal: dropped {} torn line(s) at its end (a unit cut short is run again)",
@@ -368,11 +373,7 @@ pub const MACHINE_FIELDS: [&str; 5] = [
 pub const POOL_MACHINE_FIELDS: [&str; 3] = ["cache_hit", "fit_seconds", "score_seconds"];
 
 /// `manifest.json` of a run (and, with a `shard` entry added, of a shard).
-pub(crate) fn run_manifest(
-    plan: &Plan,
-    info: &RunInfo,
-    warnings: &[String],
-) -> serde_json::Value {
+pub(crate) fn run_manifest(plan: &Plan, info: &RunInfo, warnings: &[String]) -> serde_json::Value {
     serde_json::json!({
         "tool": "plumbline",
         "version": env!("CARGO_PKG_VERSION"),

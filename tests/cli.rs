@@ -255,7 +255,10 @@ fn existing_results_need_force_and_report_rebuilds() {
                     .unwrap()
                     .map(|e| {
                         let q = e.unwrap().path();
-                        (format!("{n}/{}", q.file_name().unwrap().to_string_lossy()), fs::read(q).unwrap())
+                        (
+                            format!("{n}/{}", q.file_name().unwrap().to_string_lossy()),
+                            fs::read(q).unwrap(),
+                        )
                     })
                     .collect::<Vec<_>>()
             } else {
@@ -276,7 +279,10 @@ fn existing_results_need_force_and_report_rebuilds() {
         .assert()
         .success();
     for (n, bytes) in &before {
-        assert!(fs::read(out.join(n)).unwrap() == *bytes, "{n} rebuilt differently");
+        assert!(
+            fs::read(out.join(n)).unwrap() == *bytes,
+            "{n} rebuilt differently"
+        );
     }
     assert_eq!(fs::read(out.join("paired.csv")).unwrap(), paired);
     assert_eq!(fs::read(out.join("summary.md")).unwrap(), summary);
@@ -466,6 +472,10 @@ fn bad_score_files_are_rejected_with_file_line_column_value() {
         (
             good_a.replacen("id,score,label", "id,prob,label", 1),
             vec!["a.csv", "`score`", "prob"],
+        ),
+        (
+            good_a.replacen("id,score,label", "id,score,label,score", 1),
+            vec!["a.csv:1", "`score` twice", "fields 2 and 4"],
         ),
         (String::new(), vec!["a.csv", "empty"]),
         ("id,score,label\n".into(), vec!["a.csv", "no data rows"]),

@@ -68,6 +68,16 @@ pub enum ScoreFileError {
         line: u64,
         message: String,
     },
+    #[error(
+        "{path}:{line}: the header names column `{column}` twice (fields {first} and {second})"
+    )]
+    DuplicateColumn {
+        path: String,
+        line: u64,
+        column: String,
+        first: usize,
+        second: usize,
+    },
     #[error("{path}: every row has label {label}: a calibration comparison needs both classes")]
     OneClass { path: String, label: u8 },
     #[error("{path}: the split column `{column}` puts no row in the {side}")]
@@ -125,6 +135,20 @@ pub fn load(spec: &ScoreFileSpec) -> Result<LoadedScores, ScoreFileError> {
     };
     if headers.is_empty() || (headers.len() == 1 && headers[0].trim().is_empty()) {
         return Err(ScoreFileError::NoHeader { path });
+    }
+    let header_line = headers.position().map(|p| p.line()).unwrap_or(1);
+    let mut seen: std::collections::BTreeMap<&str, usize> = std::collections::BTreeMap::new();
+    for (j, h) in headers.iter().enumerate() {
+        if let Some(&i) = seen.get(h.trim()) {
+            return Err(ScoreFileError::DuplicateColumn {
+                path,
+                line: header_line,
+                column: h.trim().to_string(),
+                first: i + 1,
+                second: j + 1,
+            });
+        }
+        seen.insert(h.trim(), j);
     }
     let available = headers
         .iter()
