@@ -295,9 +295,11 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
     let (mut f, mut g, mut h, mut ubar) = eval(&w, &u);
     let mut iterations = 0;
     let mut prev_dec = f64::INFINITY;
-    let mut mu = 0.0f64;
+    let mut mu: f64;
     'outer: for it in 0..500 {
         iterations = it + 1;
+        // Every iteration tries the plain Newton step first.
+        mu = 0.0;
         // The gradient in the parameters centred at ū (slopes, c + β·ū).
         let mut gc = g;
         for a in 0..d {
@@ -401,7 +403,6 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                     u = features(&centre);
                     (f, g, h, ubar) = eval(&w, &u);
                 }
-                mu = if mu <= 1e-7 { 0.0 } else { mu / 10.0 };
                 break;
             }
             mu = if mu == 0.0 { 1e-8 } else { mu * 10.0 };
