@@ -14,7 +14,7 @@
 //! Armijo fraction 1e-4 of the predicted decrease (or stays flat to rounding at
 //! μ = 0, near the optimum), then divide μ by 10 (down to 0, the plain Newton
 //! step); on a rejected step or a Hessian that is not numerically positive
-//! definite, raise μ (1e-8, then ×10) and solve again. With μ = 0 accepted at
+//! definite, raise μ (1e-3, then ×10) and solve again. With μ = 0 accepted at
 //! every iteration this is Newton's method as in Lin, Lin & Weng (2007, Machine
 //! Learning 68, "A note on Platt's probabilistic outputs for support vector
 //! machines"). The Hessian is formed about the weighted mean
@@ -29,12 +29,14 @@
 //!
 //! Two safeguards keep the steps useful on saturated samples, where the
 //! quadratic model badly misjudges the distance to an optimum whose slope is
-//! 1e5–1e10 on the raw score: after every step the intercept is re-optimised for
+//! 1e5–1e10 on the raw score: after a long step the intercept is re-optimised for
 //! the new slopes (one-dimensional Newton with halving), and the step is
 //! extrapolated (2δ, 4δ, …) while that profiled F keeps falling beyond
 //! rounding. The working coordinates are re-centred on the weighted feature
-//! mean after every step (the intercept absorbs the shift), so z never comes
-//! out of the cancellation of two huge terms. The ridge on the Hessian's
+//! mean after a step (the intercept absorbs the shift), so z never comes
+//! out of the cancellation of two huge terms (once the shift moves z by more
+//! than 1). Intercept profiling and extrapolation are used only for steps
+//! longer than one standard deviation per unit of slope. The ridge on the Hessian's
 //! diagonal is relative (1e-12 of the diagonal), since the curvature of such
 //! a slope can be 1e-20.
 //!
@@ -187,7 +189,7 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
     }
     // Working coordinates: v_ij = (x_ij − centre_j) / scale_j and
     // z_i = Σ_j w_j v_ij + w_d. The centre starts at the plain mean and moves
-    // to the weighted mean Σ p(1 − p) x / Σ p(1 − p) after every accepted
+    // to the weighted mean Σ p(1 − p) x / Σ p(1 − p) after an accepted
     // step (with the intercept moved to keep z unchanged), so z never comes
     // out of a cancellation of two huge terms.
     let mut centre = mean;
@@ -265,13 +267,17 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
     // instead of zig-zagging across it.
     let profile = |mut w: [f64; P], u: &[[f64; MAX_FEATURES]]| -> ([f64; P], Eval) {
         let mut e = eval(&w, u);
-        for _ in 0..30 {
-            if !(e.0.is_finite() && e.2[d][d] > 0.0) || e.1[d].abs() <= 1e-13 * nf {
+        for _ in 0..10 {
+            // Stop when the one-dimensional Newton decrement g²/h is down to
+            // the rounding of F.
+            if !(e.0.is_finite() && e.2[d][d] > 0.0)
+                || e.1[d] * e.1[d] / e.2[d][d] <= 1e-15 * e.0.abs().max(1.0)
+            {
                 break;
             }
             let mut step = -e.1[d] / e.2[d][d];
             let mut moved = false;
-            for _ in 0..30 {
+            for _ in 0..8 {
                 let mut nw = w;
                 nw[d] += step;
                 let ne = eval(&nw, u);
@@ -314,7 +320,7 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                 }
             }
             let Some(sc) = cholesky_solve(&hs, &gc, k) else {
-                mu = if mu == 0.0 { 1e-8 } else { mu * 10.0 };
+                mu = if mu == 0.0 { 1e-3 } else { mu * 10.0 };
                 if mu > 1e10 {
                     break 'outer;
                 }
@@ -361,7 +367,8 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                 }
                 break 'outer;
             }
-            let (nw, (nf_val, ng, nh, nu)) = profile(at(1.0), &u);
+            let nw = at(1.0);
+            let (nf_val, ng, nh, nu) = eval(&nw, &u);
             // Armijo decrease; or, for the undamped step, no change beyond the
             // rounding of the objective (near the optimum the objective is
             // flat to machine precision while Newton still gains digits in β).
@@ -369,7 +376,14 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
             if nf_val <= f + 1e-4 * gd || flat {
                 let mut best = (nw, nf_val, ng, nh, nu);
                 let mut expanded = false;
-                {
+                // Only long steps (more than one standard deviation of a
+                // feature per unit of slope) can be far too short; ordinary
+                // fits take the plain step.
+                if max_dir > 1.0 {
+                    let (pw, pe) = profile(nw, &u);
+                    if pe.0 < best.1 {
+                        best = (pw, pe.0, pe.1, pe.2, pe.3);
+                    }
                     // Extrapolate along the step while F keeps falling beyond
                     // rounding (steps 2, 4, 8, … times δ): when the optimum
                     // lies far away on a nearly linear stretch of F (a
@@ -395,7 +409,7 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                 (w, f, g, h, ubar) = best;
                 // Move the centre to the weighted mean when it has moved
                 // (z is unchanged: the intercept absorbs the shift).
-                if ubar[..d].iter().any(|&x| x != 0.0) {
+                if (0..d).any(|j| (w[j] * ubar[j]).abs() > 1.0) {
                     for j in 0..d {
                         centre[j] += ubar[j] * scale[j];
                         w[d] += w[j] * ubar[j];
@@ -405,7 +419,7 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                 }
                 break;
             }
-            mu = if mu == 0.0 { 1e-8 } else { mu * 10.0 };
+            mu = if mu == 0.0 { 1e-3 } else { mu * 10.0 };
             if mu > 1e10 {
                 break 'outer; // no further decrease at machine precision
             }
