@@ -251,7 +251,7 @@ fn unknown_policy_is_a_located_suite_error() {
         .assert()
         .failure();
     let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
-    assert!(err.contains("suite.toml:7:"), "{err}");
+    assert!(err.contains("suite.toml:8:"), "{err}");
     assert!(
         err.contains("on_fit_failure") && err.contains("`skip`"),
         "{err}"
