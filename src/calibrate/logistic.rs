@@ -393,7 +393,9 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
                     let mut mult = 2.0;
                     while mult <= 1e18 {
                         let (xw, (xf, xg, xh, xu)) = profile(at(mult), &u);
-                        if !(xf < best.1 - 1e-12 * best.1.abs().max(1.0)) {
+                        // (A NaN objective also stops the extrapolation.)
+                        let lower = xf < best.1 - 1e-12 * best.1.abs().max(1.0);
+                        if !lower {
                             break;
                         }
                         best = (xw, xf, xg, xh, xu);
