@@ -473,6 +473,10 @@ fn bad_score_files_are_rejected_with_file_line_column_value() {
             good_a.replacen("id,score,label", "id,prob,label", 1),
             vec!["a.csv", "`score`", "prob"],
         ),
+        (
+            good_a.replacen("id,score,label", "id,score,label,score", 1),
+            vec!["a.csv:1", "`score` twice", "fields 2 and 4"],
+        ),
         (String::new(), vec!["a.csv", "empty"]),
         ("id,score,label\n".into(), vec!["a.csv", "no data rows"]),
         (

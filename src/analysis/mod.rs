@@ -136,6 +136,9 @@ pub struct Analysis {
     pub paired: Vec<Paired>,
     /// Units per (task, size, method) with each non-`ok` status.
     pub status_counts: BTreeMap<(String, usize, String), BTreeMap<String, usize>>,
+    /// Per (task, size, method): (units whose method could not fit and
+    /// predicted the fallback, status `fallback:…`; all units).
+    pub fallback_counts: BTreeMap<(String, usize, String), (usize, usize)>,
     pub across: Vec<AcrossRow>,
     pub thresholds: Vec<ThresholdRow>,
     /// Per metric and pair: the summary over tasks.
@@ -143,6 +146,10 @@ pub struct Analysis {
     /// The recommendation on each decision metric (the primary metric first).
     pub decisions: Vec<Decision>,
 }
+
+/// Status prefix of a unit whose method predicted a fallback because it could
+/// not fit (`fallback:base-rate`, see `run::FALLBACK_BASE_RATE`).
+pub const FALLBACK_PREFIX: &str = "fallback:";
 
 /// Differences within this tolerance count as ties.
 pub const TIE_TOLERANCE: f64 = 1e-12;
@@ -310,7 +317,15 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
     let mut cells: BTreeMap<(String, usize, String), BTreeMap<usize, usize>> = BTreeMap::new();
     let mut status_counts: BTreeMap<(String, usize, String), BTreeMap<String, usize>> =
         BTreeMap::new();
+    let mut fallback_counts: BTreeMap<(String, usize, String), (usize, usize)> = BTreeMap::new();
     for (i, r) in table.rows.iter().enumerate() {
+        let fc = fallback_counts
+            .entry((r.task.clone(), r.size, r.method.clone()))
+            .or_default();
+        fc.1 += 1;
+        if r.status.starts_with(FALLBACK_PREFIX) {
+            fc.0 += 1;
+        }
         if !tasks.contains(&r.task) {
             tasks.push(r.task.clone());
         }
@@ -467,6 +482,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         summaries,
         paired,
         status_counts,
+        fallback_counts,
         across,
         thresholds,
         threshold_summaries,

@@ -210,9 +210,11 @@ impl Calibrator for Beta {
         let (a, b, c, smoothed) = match self.shape {
             BetaShape::Tied => {
                 if groups.len() < 2 {
-                    return Err(FitError::Failed(
-                        "beta (tied): needs at least 2 distinct scores".into(),
-                    ));
+                    return Err(FitError::Failed(format!(
+                        "beta (tied) needs at least 2 distinct scores: all {} scores in {} distinct value (after clipping to [1e-12, 1 - 1e-12])",
+                        scores.len(),
+                        groups.len()
+                    )));
                 }
                 let z: Vec<f64> = scores
                     .iter()
@@ -230,9 +232,11 @@ impl Calibrator for Beta {
             }
             BetaShape::Full => {
                 if groups.len() < 3 {
-                    return Err(FitError::Failed(
-                        "beta (full): needs at least 3 distinct scores".into(),
-                    ));
+                    return Err(FitError::Failed(format!(
+                        "beta (full) needs at least 3 distinct scores: all {} scores in {} distinct values (after clipping to [1e-12, 1 - 1e-12])",
+                        scores.len(),
+                        groups.len()
+                    )));
                 }
                 let (x1, x2): (Vec<f64>, Vec<f64>) = scores
                     .iter()

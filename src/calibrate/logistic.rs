@@ -1,19 +1,57 @@
 //! Maximum-likelihood logistic regression in a few dimensions (an intercept plus
 //! up to three features), shared by the methods that are logistic models of
-//! transformed scores (beta calibration and its tied form).
+//! transformed scores (Platt scaling, beta calibration and its tied form).
 //!
 //! Math: with features x_i ∈ ℝ^d and targets t_i ∈ [0, 1], minimise the negative
 //! log-likelihood F(β, c) = Σ_i [softplus(z_i) − t_i z_i], z_i = β·x_i + c, where
 //! softplus(z) = ln(1 + e^z) is evaluated in the overflow-free form
 //! max(z, 0) + ln(1 + e^(−|z|)). F is convex; its gradient is Σ (p_i − t_i)(x_i, 1)
-//! and its Hessian Σ p_i(1 − p_i)(x_i, 1)(x_i, 1)ᵀ with p_i = σ(z_i). We take Newton
-//! steps (solved by Cholesky with a 1e-12 ridge on the diagonal) with an Armijo
-//! backtracking line search, as for the 1-D fit in `platt.rs` (Lin, Lin & Weng 2007,
-//! Machine Learning 68). Features are centred and scaled internally for
-//! conditioning; coefficients are reported on the raw feature scale.
+//! and its Hessian Σ w_i (x_i, 1)(x_i, 1)ᵀ with p_i = σ(z_i), w_i = p_i(1 − p_i).
+//!
+//! Method: damped Newton steps in the Levenberg–Marquardt form (Levenberg 1944,
+//! Quarterly of Applied Mathematics 2; Marquardt 1963, SIAM J. Appl. Math. 11):
+//! solve (H + μ·diag H) δ = −g by Cholesky, accept the step when F falls by the
+//! Armijo fraction 1e-4 of the predicted decrease (or stays flat to rounding at
+//! μ = 0, near the optimum), then divide μ by 10 (down to 0, the plain Newton
+//! step); on a rejected step or a Hessian that is not numerically positive
+//! definite, raise μ (1e-3, then ×10) and solve again. With μ = 0 accepted at
+//! every iteration this is Newton's method as in Lin, Lin & Weng (2007, Machine
+//! Learning 68, "A note on Platt's probabilistic outputs for support vector
+//! machines"). The Hessian is formed about the weighted mean
+//! ū = Σ w_i u_i / Σ w_i of the (standardised) features, so the slope block is
+//! Σ w_i (u_i − ū)(u_i − ū)ᵀ and no longer shares a row with the intercept. This
+//! matters for saturated samples (scores of a naive-Bayes model, nearly all
+//! within 1e-10 of 0 or 1): there almost all weight w_i sits on a few rows with
+//! nearly equal features, and the uncentred form loses the slope's curvature to
+//! cancellation, while the centred sum keeps it. Features are centred and
+//! scaled internally for conditioning; coefficients are reported on the raw
+//! feature scale.
+//!
+//! Two safeguards keep the steps useful on saturated samples, where the
+//! quadratic model badly misjudges the distance to an optimum whose slope is
+//! 1e5–1e10 on the raw score: after a long step the intercept is re-optimised for
+//! the new slopes (one-dimensional Newton with halving), and the step is
+//! extrapolated (2δ, 4δ, …) while that profiled F keeps falling beyond
+//! rounding. The working coordinates are re-centred on the weighted feature
+//! mean after a step (the intercept absorbs the shift), so z never comes
+//! out of the cancellation of two huge terms (once the shift moves z by more
+//! than 1). Intercept profiling and extrapolation are used only for steps
+//! longer than one standard deviation per unit of slope. The ridge on the Hessian's
+//! diagonal is relative (1e-12 of the diagonal), since the curvature of such
+//! a slope can be 1e-20.
+//!
+//! Stopping: an undamped Newton step below 1e-10, a Newton decrement −g·δ
+//! (invariant under affine changes of the features) below 1e-20·F, or below
+//! 1e-12·F and no longer shrinking quadratically (the rounding floor of the
+//! sums) — each only when a doubled step does not lower F either; or no
+//! damping up to μ = 1e10 decreases F at machine precision (the current point
+//! is then the optimum to that precision); or 500 iterations.
 //!
 //! The optimum is finite unless the sample is (quasi-)separable; callers detect
-//! separation beforehand and pass smoothed targets in that case.
+//! separation beforehand and pass smoothed targets in that case. The design is
+//! checked before fitting: a constant feature or features collinear with each
+//! other and the intercept on the calibration sample are errors, since then no
+//! unique optimum exists.
 
 use super::FitError;
 
@@ -80,7 +118,7 @@ fn cholesky_solve(h: &[[f64; P]; P], g: &[f64; P], k: usize) -> Option<[f64; P]>
 /// Fit σ(coef·x + c) to targets `t` by maximum likelihood. `cols` holds the
 /// feature columns (each of length `t.len()`, at most [`MAX_FEATURES`] of them;
 /// none gives the intercept-only model). Fails when a column is constant or the
-/// columns are collinear with the intercept.
+/// columns are collinear with the intercept on the sample.
 #[allow(clippy::needless_range_loop)] // index form mirrors the matrix algebra
 pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitError> {
     let d = cols.len();
@@ -111,130 +149,289 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
             ));
         }
         if v <= 0.0 {
-            return Err(FitError::Failed(
-                "logistic fit: a feature is constant on the calibration sample".into(),
-            ));
+            return Err(FitError::Failed(format!(
+                "logistic fit: {} on the calibration sample (all {n} rows have the value {})",
+                if d == 1 {
+                    "the feature is constant".to_string()
+                } else {
+                    format!("feature {} is constant", j + 1)
+                },
+                c[0]
+            )));
         }
         mean[j] = m;
         scale[j] = v.sqrt();
     }
     let k = d + 1; // parameters: d slopes then the intercept
-    let mut u: Vec<[f64; MAX_FEATURES]> = vec![[0.0; MAX_FEATURES]; n];
-    for (j, c) in cols.iter().enumerate() {
-        for (ui, &x) in u.iter_mut().zip(c.iter()) {
-            ui[j] = (x - mean[j]) / scale[j];
-        }
-    }
-    let lin = |w: &[f64; P], ui: &[f64; MAX_FEATURES]| -> f64 {
-        let mut z = w[d];
-        for j in 0..d {
-            z += w[j] * ui[j];
-        }
-        z
-    };
-    // Objective, gradient and Hessian (lower triangle) in one pass; the
-    // softplus and the sigmoid share one exponential e^(−|z|).
-    let eval = |w: &[f64; P]| -> (f64, [f64; P], [[f64; P]; P]) {
-        let mut f = 0.0;
-        let mut g = [0.0; P];
-        let mut h = [[0.0; P]; P];
-        for (ui, &ti) in u.iter().zip(t) {
-            let z = lin(w, ui);
-            let e = (-z.abs()).exp();
-            f += z.max(0.0) + e.ln_1p() - ti * z;
-            let p = if z >= 0.0 {
-                1.0 / (1.0 + e)
-            } else {
-                e / (1.0 + e)
-            };
-            let r = p - ti;
-            let wt = p * (1.0 - p);
-            let mut x = [1.0; P];
-            x[..d].copy_from_slice(&ui[..d]);
-            for a in 0..k {
-                g[a] += r * x[a];
+    if d > 1 {
+        // Unweighted correlation matrix of the standardised features: a lost
+        // pivot means the features are collinear with each other and the
+        // intercept on this sample.
+        let mut c = [[0.0; P]; P];
+        for i in 0..n {
+            for a in 0..d {
                 for b in 0..=a {
-                    h[a][b] += wt * x[a] * x[b];
+                    c[a][b] +=
+                        (cols[a][i] - mean[a]) / scale[a] * (cols[b][i] - mean[b]) / scale[b] / nf;
                 }
             }
         }
-        (f, g, h)
+        for a in 0..d {
+            for b in 0..a {
+                c[b][a] = c[a][b];
+            }
+        }
+        if cholesky_solve(&c, &[0.0; P], d).is_none() {
+            return Err(FitError::Failed(format!(
+                "logistic fit: the {d} features are collinear on the calibration sample of {n} rows"
+            )));
+        }
+    }
+    // Working coordinates: v_ij = (x_ij − centre_j) / scale_j and
+    // z_i = Σ_j w_j v_ij + w_d. The centre starts at the plain mean and moves
+    // to the weighted mean Σ p(1 − p) x / Σ p(1 − p) after an accepted
+    // step (with the intercept moved to keep z unchanged), so z never comes
+    // out of a cancellation of two huge terms.
+    let mut centre = mean;
+    let features = |centre: &[f64; MAX_FEATURES]| -> Vec<[f64; MAX_FEATURES]> {
+        (0..n)
+            .map(|i| {
+                let mut v = [0.0; MAX_FEATURES];
+                for j in 0..d {
+                    v[j] = (cols[j][i] - centre[j]) / scale[j];
+                }
+                v
+            })
+            .collect()
+    };
+    // Objective, gradient, and the Hessian about the weighted feature mean
+    // (lower triangle of the slope block, the intercept's curvature Σw last);
+    // the softplus and the sigmoid share one exponential e^(−|z|). Returns
+    // (F, g, H̃, ū) with ū the weighted mean of v.
+    type Eval = (f64, [f64; P], [[f64; P]; P], [f64; MAX_FEATURES]);
+    let eval = |w: &[f64; P], u: &[[f64; MAX_FEATURES]]| -> Eval {
+        let mut f = 0.0;
+        let mut g = [0.0; P];
+        let mut sw = 0.0;
+        let mut swu = [0.0; MAX_FEATURES];
+        let mut wts = Vec::with_capacity(n);
+        for (ui, &ti) in u.iter().zip(t) {
+            let mut z = w[d];
+            for j in 0..d {
+                z += w[j] * ui[j];
+            }
+            let e = (-z.abs()).exp();
+            f += z.max(0.0) + e.ln_1p() - ti * z;
+            // p and q = 1 − p, each without cancellation; then
+            // r = p − t = (1 − t)·p − t·q and p(1 − p) = e / (1 + e)².
+            let (p, q) = if z >= 0.0 {
+                (1.0 / (1.0 + e), e / (1.0 + e))
+            } else {
+                (e / (1.0 + e), 1.0 / (1.0 + e))
+            };
+            let r = (1.0 - ti) * p - ti * q;
+            let wt = e / ((1.0 + e) * (1.0 + e));
+            for a in 0..d {
+                g[a] += r * ui[a];
+                swu[a] += wt * ui[a];
+            }
+            g[d] += r;
+            sw += wt;
+            wts.push(wt);
+        }
+        let mut ubar = [0.0; MAX_FEATURES];
+        if sw > 0.0 {
+            for a in 0..d {
+                ubar[a] = swu[a] / sw;
+            }
+        }
+        let mut h = [[0.0; P]; P];
+        for (ui, &wt) in u.iter().zip(&wts) {
+            let mut v = [0.0; MAX_FEATURES];
+            for a in 0..d {
+                v[a] = ui[a] - ubar[a];
+            }
+            for a in 0..d {
+                for b in 0..=a {
+                    h[a][b] += wt * v[a] * v[b];
+                }
+            }
+        }
+        h[d][d] = sw;
+        (f, g, h, ubar)
+    };
+    // The intercept re-optimised for fixed slopes (Newton in one dimension,
+    // halving a step that does not decrease F): F along the Newton direction
+    // is then measured on the floor of the valley that the slopes and the
+    // intercept form together, so the extrapolation below follows the valley
+    // instead of zig-zagging across it.
+    let profile = |mut w: [f64; P], u: &[[f64; MAX_FEATURES]]| -> ([f64; P], Eval) {
+        let mut e = eval(&w, u);
+        for _ in 0..10 {
+            // Stop when the one-dimensional Newton decrement g²/h is down to
+            // the rounding of F.
+            if !(e.0.is_finite() && e.2[d][d] > 0.0)
+                || e.1[d] * e.1[d] / e.2[d][d] <= 1e-15 * e.0.abs().max(1.0)
+            {
+                break;
+            }
+            let mut step = -e.1[d] / e.2[d][d];
+            let mut moved = false;
+            for _ in 0..8 {
+                let mut nw = w;
+                nw[d] += step;
+                let ne = eval(&nw, u);
+                if ne.0 < e.0 {
+                    (w, e) = (nw, ne);
+                    moved = true;
+                    break;
+                }
+                step /= 2.0;
+            }
+            if !moved {
+                break;
+            }
+        }
+        (w, e)
     };
     let tbar = (t.iter().sum::<f64>() / nf).clamp(1e-12, 1.0 - 1e-12);
     let mut w = [0.0; P];
     w[d] = (tbar / (1.0 - tbar)).ln();
-    let (mut f, mut g, mut h) = eval(&w);
+    let mut u = features(&centre);
+    let (mut f, mut g, mut h, mut ubar) = eval(&w, &u);
     let mut iterations = 0;
-    let mut prev_dir = f64::INFINITY;
-    for it in 0..200 {
+    let mut prev_dec = f64::INFINITY;
+    let mut mu: f64;
+    'outer: for it in 0..500 {
         iterations = it + 1;
-        if g[..k].iter().all(|ga| ga.abs() < 1e-11 * nf) {
-            break;
+        // Every iteration tries the plain Newton step first.
+        mu = 0.0;
+        // The gradient in the parameters centred at ū (slopes, c + β·ū).
+        let mut gc = g;
+        for a in 0..d {
+            gc[a] = g[a] - ubar[a] * g[d];
         }
-        let mut hs = h;
-        for a in 0..k {
-            hs[a][a] += 1e-12;
-            for b in 0..a {
-                hs[b][a] = hs[a][b];
-            }
-        }
-        let step_dir = match cholesky_solve(&hs, &g, k) {
-            Some(s) => s,
-            None => {
-                return Err(FitError::Failed(
-                    "logistic fit: singular Hessian (scores nearly constant or collinear, or fitted probabilities saturated at 0 or 1)".into(),
-                ))
-            }
-        };
-        let mut dir = [0.0; P];
-        let mut gd = 0.0;
-        let mut max_dir: f64 = 0.0;
-        for a in 0..k {
-            dir[a] = -step_dir[a];
-            gd += g[a] * dir[a];
-            max_dir = max_dir.max(dir[a].abs());
-        }
-        // Converged: the Newton step (standardised scale) is negligible, or it
-        // has stopped shrinking quadratically because the gradient is down to
-        // the rounding noise of its sums.
-        if max_dir < 1e-10 || (max_dir < 1e-6 && max_dir > 0.5 * prev_dir) {
+        loop {
+            let mut hs = h;
             for a in 0..k {
-                w[a] += dir[a];
+                hs[a][a] += (mu + 1e-12) * h[a][a].max(f64::MIN_POSITIVE);
+                for b in 0..a {
+                    hs[b][a] = hs[a][b];
+                }
             }
-            break;
-        }
-        prev_dir = max_dir;
-        let mut step = 1.0;
-        let mut accepted = false;
-        while step >= 1e-10 {
-            let mut nw = w;
+            let Some(sc) = cholesky_solve(&hs, &gc, k) else {
+                mu = if mu == 0.0 { 1e-3 } else { mu * 10.0 };
+                if mu > 1e10 {
+                    break 'outer;
+                }
+                continue;
+            };
+            // Back to the working parameters: δc = δc̃ − δβ·ū.
+            let mut dir = [0.0; P];
+            let mut gd = 0.0;
+            let mut max_dir: f64 = 0.0;
+            dir[d] = -sc[d];
+            for a in 0..d {
+                dir[a] = -sc[a];
+                dir[d] += sc[a] * ubar[a];
+            }
             for a in 0..k {
-                nw[a] += step * dir[a];
+                gd += g[a] * dir[a];
+                max_dir = max_dir.max(dir[a].abs());
             }
-            let (nf_val, ng, nh) = eval(&nw);
-            // Armijo decrease; or, for the full Newton step, no change beyond
-            // the rounding of the objective (near the optimum the objective is
+            // Converged (undamped steps only): the Newton step is negligible,
+            // or the Newton decrement −g·δ (invariant under affine changes of
+            // the features) is down to 1e-20·F, or it is below 1e-12·F and
+            // has stopped shrinking quadratically because the gradient is
+            // down to the rounding noise of its sums.
+            let dec = -gd;
+            let fs = f.abs().max(1.0);
+            let at = |mult: f64| {
+                let mut nw = w;
+                for a in 0..k {
+                    nw[a] += mult * dir[a];
+                }
+                nw
+            };
+            // A quadratic model can badly misjudge how far the optimum lies
+            // (saturated samples), so a small decrement only counts when a
+            // doubled step does not lower F beyond rounding either.
+            if mu == 0.0
+                && (max_dir < 1e-10
+                    || dec <= 1e-20 * fs
+                    || (dec <= 1e-12 * fs && dec > 0.25 * prev_dec))
+                && profile(at(2.0), &u).1 .0 >= f - 1e-12 * fs
+            {
+                for a in 0..k {
+                    w[a] += dir[a];
+                }
+                break 'outer;
+            }
+            let nw = at(1.0);
+            let (nf_val, ng, nh, nu) = eval(&nw, &u);
+            // Armijo decrease; or, for the undamped step, no change beyond the
+            // rounding of the objective (near the optimum the objective is
             // flat to machine precision while Newton still gains digits in β).
-            let flat = step == 1.0 && (nf_val - f).abs() <= 1e-12 * f.abs().max(1.0);
-            if nf_val <= f + 1e-4 * step * gd || flat {
-                w = nw;
-                f = nf_val;
-                g = ng;
-                h = nh;
-                accepted = true;
+            let flat = mu == 0.0 && (nf_val - f).abs() <= 1e-12 * fs;
+            if nf_val <= f + 1e-4 * gd || flat {
+                let mut best = (nw, nf_val, ng, nh, nu);
+                let mut expanded = false;
+                // Only long steps (more than one standard deviation of a
+                // feature per unit of slope) can be far too short; ordinary
+                // fits take the plain step.
+                if max_dir > 1.0 {
+                    let (pw, pe) = profile(nw, &u);
+                    if pe.0 < best.1 {
+                        best = (pw, pe.0, pe.1, pe.2, pe.3);
+                    }
+                    // Extrapolate along the step while F keeps falling beyond
+                    // rounding (steps 2, 4, 8, … times δ): when the optimum
+                    // lies far away on a nearly linear stretch of F (a
+                    // saturated sample whose slope is 1e5–1e10 on the raw
+                    // score), the quadratic model's steps are far too short.
+                    // Near the optimum the doubled step already rises.
+                    let mut mult = 2.0;
+                    while mult <= 1e18 {
+                        let (xw, (xf, xg, xh, xu)) = profile(at(mult), &u);
+                        // (A NaN objective also stops the extrapolation.)
+                        let lower = xf < best.1 - 1e-12 * best.1.abs().max(1.0);
+                        if !lower {
+                            break;
+                        }
+                        best = (xw, xf, xg, xh, xu);
+                        expanded = true;
+                        mult *= 2.0;
+                    }
+                }
+                prev_dec = if mu == 0.0 && !expanded {
+                    dec
+                } else {
+                    f64::INFINITY
+                };
+                (w, f, g, h, ubar) = best;
+                // Move the centre to the weighted mean when it has moved
+                // (z is unchanged: the intercept absorbs the shift).
+                if (0..d).any(|j| (w[j] * ubar[j]).abs() > 1.0) {
+                    for j in 0..d {
+                        centre[j] += ubar[j] * scale[j];
+                        w[d] += w[j] * ubar[j];
+                    }
+                    u = features(&centre);
+                    (f, g, h, ubar) = eval(&w, &u);
+                }
                 break;
             }
-            step /= 2.0;
-        }
-        if !accepted {
-            break; // no further decrease at machine precision
+            mu = if mu == 0.0 { 1e-3 } else { mu * 10.0 };
+            if mu > 1e10 {
+                break 'outer; // no further decrease at machine precision
+            }
         }
     }
     let mut coef = Vec::with_capacity(d);
     let mut intercept = w[d];
     for j in 0..d {
         coef.push(w[j] / scale[j]);
-        intercept -= w[j] * mean[j] / scale[j];
+        intercept -= w[j] * centre[j] / scale[j];
     }
     if !(intercept.is_finite() && coef.iter().all(|c| c.is_finite())) {
         return Err(FitError::Failed(

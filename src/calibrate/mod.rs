@@ -46,8 +46,12 @@ impl ScoreKind {
 }
 
 /// Probabilities are clipped to `[LOGIT_EPS, 1 - LOGIT_EPS]` before a method
-/// takes their log-odds (beta, temperature, spline, Platt on log-odds). The value
-/// keeps `ln(s / (1 - s))` finite for scores of exactly 0 or 1 (about ±27.6).
+/// takes their log-odds or logarithms (beta, temperature, spline). The value
+/// keeps `ln(s / (1 - s))` finite for scores of exactly 0 or 1 (about ±27.6);
+/// every score within 1e-12 of 0 (or of 1) becomes the same value, so a
+/// saturated sample (for example naive-Bayes scores that underflow to 0 or 1)
+/// may have only two distinct clipped scores. Platt scaling works on the raw
+/// score and needs no clip.
 pub const LOGIT_EPS: f64 = 1e-12;
 
 /// Log-odds of a score: the logit of a clipped probability, or the margin itself.
@@ -74,8 +78,8 @@ pub fn sigmoid(z: f64) -> f64 {
 /// Why a fit produced no map.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum FitError {
-    #[error("the calibration sample holds only one class")]
-    OneClass,
+    #[error("one class: {positives} positives of {rows}")]
+    OneClass { positives: usize, rows: usize },
     #[error("the calibration sample is empty")]
     Empty,
     #[error("{0}")]
@@ -159,7 +163,10 @@ pub fn check_sample(scores: &[f64], labels: &[bool]) -> Result<(), FitError> {
     }
     let pos = labels.iter().filter(|&&y| y).count();
     if pos == 0 || pos == labels.len() {
-        return Err(FitError::OneClass);
+        return Err(FitError::OneClass {
+            positives: pos,
+            rows: labels.len(),
+        });
     }
     Ok(())
 }

@@ -787,7 +787,10 @@ mod tests {
         assert!((out[0] - 2.0 / 3.0).abs() < 1e-15);
         assert_eq!(
             s.fit(&[0.1, 0.2], &[true, true]).err(),
-            Some(FitError::OneClass)
+            Some(FitError::OneClass {
+                positives: 2,
+                rows: 2
+            })
         );
         assert!(matches!(
             s.fit(&[0.1, f64::NAN], &[true, false]),

@@ -354,7 +354,10 @@ mod tests {
         assert_eq!(v.fit(&[], &[]).err(), Some(FitError::Empty));
         assert_eq!(
             v.fit(&[0.1, 0.2], &[false, false]).err(),
-            Some(FitError::OneClass)
+            Some(FitError::OneClass {
+                positives: 0,
+                rows: 2
+            })
         );
         assert!(matches!(
             v.fit(&[0.1, f64::NAN], &[true, false]),

@@ -90,6 +90,26 @@ fn parquet_err(path: &str, loc: Option<Loc>, e: parquet::errors::ParquetError) -
     }
 }
 
+/// A header that names a column twice is refused: which one a key means
+/// would be a guess. The header is line 1 of a CSV file (for Parquet, the
+/// fields are numbered the same way).
+fn unique_columns(path: &str, headers: &[String]) -> Result<(), ScoreFileError> {
+    let mut seen: std::collections::BTreeMap<&str, usize> = std::collections::BTreeMap::new();
+    for (j, h) in headers.iter().enumerate() {
+        if let Some(&i) = seen.get(h.trim()) {
+            return Err(ScoreFileError::DuplicateColumn {
+                path: path.to_string(),
+                line: 1,
+                column: h.trim().to_string(),
+                first: i + 1,
+                second: j + 1,
+            });
+        }
+        seen.insert(h.trim(), j);
+    }
+    Ok(())
+}
+
 impl RowSource {
     /// Open a score file by the format its name implies (`-` = CSV on stdin).
     pub fn open(path: &Path) -> Result<RowSource, ScoreFileError> {
@@ -124,6 +144,7 @@ impl RowSource {
         if headers.is_empty() || (headers.len() == 1 && headers[0].trim().is_empty()) {
             return Err(ScoreFileError::NoHeader { path: label });
         }
+        unique_columns(&label, &headers)?;
         Ok(RowSource {
             path: label,
             headers,
@@ -149,6 +170,7 @@ impl RowSource {
         if headers.is_empty() {
             return Err(ScoreFileError::NoHeader { path: label });
         }
+        unique_columns(&label, &headers)?;
         Ok(RowSource {
             path: label,
             headers,

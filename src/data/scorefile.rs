@@ -89,6 +89,16 @@ pub enum ScoreFileError {
         line: u64,
         message: String,
     },
+    #[error(
+        "{path}:{line}: the header names column `{column}` twice (fields {first} and {second})"
+    )]
+    DuplicateColumn {
+        path: String,
+        line: u64,
+        column: String,
+        first: usize,
+        second: usize,
+    },
     #[error("{path}: every row has label {label}: a calibration comparison needs both classes")]
     OneClass { path: String, label: u8 },
     #[error("{path}{at}: not a readable Parquet file: {message}")]

@@ -4,6 +4,7 @@
 
 pub mod csvout;
 pub mod document;
+pub mod fallback;
 pub mod figures;
 pub mod html;
 pub mod summary;

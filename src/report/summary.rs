@@ -585,7 +585,7 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
                 "units".into(),
             ],
             rows: Vec::new(),
-            notes: vec!["A `separable` Platt or beta fit returned its documented fallback; `one_class` samples and `failed` fits have no metric values and are left out of the paired differences.".into()],
+            notes: vec!["A `separable` fit used Platt's smoothed targets, its documented fallback; `fallback:base-rate` units could not be fitted and predicted the smoothed base rate, with metric values as usual (see Fallback fits); `one_class` and `failed` units, kept only under `on_fit_failure = \"drop\"`, have no metric values and are left out of the paired differences.".into()],
         };
         for ((task, size, method), counts) in &a.status_counts {
             for (status, n) in counts {
@@ -600,6 +600,7 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
         }
         b.push(Block::Table(t));
     }
+    b.extend(super::fallback::fallback_blocks(a));
     b.push(Block::Heading(2, "Reproduce".into(), "reproduce".into()));
     b.push(Block::Para(format!(
         "Run `plumbline run {}` with the same suite file (check its SHA-256 above) to get byte-identical `units.csv`, `paired.csv`, `thresholds.csv`, `reliability*.csv`, `summary.md`, `index.html` and figures; `plumbline report <folder>` rebuilds the tables and figures from `units.csv` and the reliability files.",

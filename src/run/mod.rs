@@ -31,7 +31,7 @@ use crate::metrics::reliability::{self, Curve, CurveRecord};
 use crate::metrics::scoring::clipped_count;
 use crate::split;
 use crate::stats::paired;
-use crate::suite::Plan;
+use crate::suite::{FitFailurePolicy, Plan};
 use table::{UnitRow, UnitTable};
 
 /// How to run.
@@ -107,6 +107,8 @@ pub enum RunError {
     Threads(String),
     #[error("{0}")]
     Journal(String),
+    #[error("{0}")]
+    FitStopped(String),
 }
 
 struct TaskData {
@@ -128,36 +130,52 @@ pub fn unit_keys(plan: &Plan) -> Vec<(usize, usize, usize)> {
     keys
 }
 
-fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usize) -> UnitOutcome {
+/// The calibration sample (scores, labels) of unit (task `ti`, `size`,
+/// `repeat`): the rows its derived seed draws from the task's reservoir. The
+/// task's pool must be resolved.
+pub fn calibration_sample(
+    plan: &Plan,
+    ti: usize,
+    size: usize,
+    repeat: usize,
+) -> (Vec<f64>, Vec<bool>) {
+    let task = &plan.tasks[ti];
+    let seed = split::unit_seed(plan.seed, &task.id, size, repeat);
+    let picks = split::draw_calibration(task.reservoir.len(), size, seed);
+    picks
+        .iter()
+        .map(|&k| {
+            let row = task.reservoir[k];
+            (task.pool.scores[row], task.pool.labels[row])
+        })
+        .unzip()
+}
+
+fn run_unit(
+    plan: &Plan,
+    data: &[TaskData],
+    ti: usize,
+    size: usize,
+    repeat: usize,
+) -> Result<UnitOutcome, String> {
     let task = &plan.tasks[ti];
     let td = &data[ti];
     let seed = split::unit_seed(plan.seed, &task.id, size, repeat);
-    let picks = split::draw_calibration(task.reservoir.len(), size, seed);
-    let mut cal_s = Vec::with_capacity(size);
-    let mut cal_y = Vec::with_capacity(size);
-    for &k in &picks {
-        let row = task.reservoir[k];
-        cal_s.push(task.pool.scores[row]);
-        cal_y.push(task.pool.labels[row]);
-    }
+    let (cal_s, cal_y) = calibration_sample(plan, ti, size, repeat);
     let positives = cal_y.iter().filter(|&&y| y).count();
-    let one_class = positives == 0 || positives == size;
     let mut methods = Vec::with_capacity(plan.methods.len());
     let mut preds: Vec<Option<Vec<f64>>> = Vec::with_capacity(plan.methods.len());
     for (mi, m) in plan.methods.iter().enumerate() {
-        let (o, p) = if one_class {
-            (one_class_outcome(plan, &m.id), None)
-        } else {
-            fit_score(
-                plan,
-                td.calibrators[mi].as_ref(),
-                &m.id,
-                &cal_s,
-                &cal_y,
-                &td.test_scores,
-                &td.test_labels,
-            )
-        };
+        let (o, p) = fit_score(
+            plan,
+            td.calibrators[mi].as_ref(),
+            &m.id,
+            &cal_s,
+            &cal_y,
+            &td.test_scores,
+            &td.test_labels,
+        )
+        .map_err(|e| stop_message(&task.id, size, repeat, &m.id, &e))?;
         methods.push(o);
         preds.push(p);
     }
@@ -168,7 +186,7 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
     } else {
         Vec::new()
     };
-    UnitOutcome {
+    Ok(UnitOutcome {
         task: task.id.clone(),
         size,
         repeat,
@@ -177,7 +195,7 @@ fn run_unit(plan: &Plan, data: &[TaskData], ti: usize, size: usize, repeat: usiz
         test_rows: task.test.len(),
         methods,
         curves,
-    }
+    })
 }
 
 /// Reliability curves of a unit: the uncalibrated scores (probability scores
@@ -223,7 +241,25 @@ fn unit_curves(
 /// The series name of the raw scores in reliability data.
 pub const UNCALIBRATED: &str = "uncalibrated";
 
-/// The outcome of a method in a unit whose calibration sample has one class.
+/// The message of a run stopped by `on_fit_failure = "stop"`.
+pub(crate) fn stop_message(
+    task: &str,
+    size: usize,
+    repeat: usize,
+    method: &str,
+    e: &FitError,
+) -> String {
+    format!(
+        "task `{task}`, size {size}, repeat {repeat}, method `{method}`: the fit failed: {e} (the suite sets on_fit_failure = \"stop\"; \"fallback\" predicts the base rate instead, \"drop\" leaves the unit out)"
+    )
+}
+
+/// The status of a unit whose method predicted the smoothed base rate because
+/// it could not fit (`on_fit_failure = "fallback"`).
+pub const FALLBACK_BASE_RATE: &str = "fallback:base-rate";
+
+/// The outcome of a method in a unit whose calibration sample has one class,
+/// when the unit is dropped (`on_fit_failure = "drop"`).
 pub(crate) fn one_class_outcome(plan: &Plan, name: &str) -> MethodOutcome {
     MethodOutcome {
         method: name.to_string(),
@@ -236,7 +272,39 @@ pub(crate) fn one_class_outcome(plan: &Plan, name: &str) -> MethodOutcome {
     }
 }
 
+/// Score predictions on the test set into a method outcome.
+#[allow(clippy::too_many_arguments)]
+fn scored(
+    plan: &Plan,
+    name: &str,
+    pred: &[f64],
+    test_y: &[bool],
+    status: String,
+    extras: BTreeMap<String, f64>,
+    fit_ms: f64,
+    error: Option<String>,
+) -> MethodOutcome {
+    let metrics = plan
+        .metrics
+        .iter()
+        .map(|mid| Some(mid.compute(pred, test_y, &plan.metric_settings)).filter(|v| v.is_finite()))
+        .collect();
+    MethodOutcome {
+        method: name.to_string(),
+        status,
+        metrics,
+        clipped: Some(clipped_count(pred, plan.metric_settings.log_loss_clip)),
+        extras,
+        fit_ms,
+        error,
+    }
+}
+
 /// Fit one calibrator on a calibration sample and score it on the test set.
+/// A fit that cannot be made follows the plan's `on_fit_failure`: the
+/// smoothed base rate (k + 1)/(n + 2) of the sample as the prediction
+/// (`fallback`), an outcome without values (`drop`), or the error (`stop`,
+/// returned for the caller to name the unit).
 pub(crate) fn fit_score(
     plan: &Plan,
     cal: &dyn Calibrator,
@@ -245,7 +313,7 @@ pub(crate) fn fit_score(
     cal_y: &[bool],
     test_s: &[f64],
     test_y: &[bool],
-) -> (MethodOutcome, Option<Vec<f64>>) {
+) -> Result<(MethodOutcome, Option<Vec<f64>>), FitError> {
     let t0 = Instant::now();
     let fitted = cal.fit(cal_s, cal_y);
     let fit_ms = t0.elapsed().as_secs_f64() * 1e3;
@@ -253,14 +321,6 @@ pub(crate) fn fit_score(
         Ok(f) => {
             let mut pred = vec![0.0; test_s.len()];
             f.map.predict(test_s, &mut pred);
-            let metrics = plan
-                .metrics
-                .iter()
-                .map(|mid| {
-                    Some(mid.compute(&pred, test_y, &plan.metric_settings))
-                        .filter(|v| v.is_finite())
-                })
-                .collect();
             let extras = f
                 .map
                 .extras(test_s)
@@ -272,39 +332,47 @@ pub(crate) fn fit_score(
             } else {
                 f.notes.join("+")
             };
-            let clipped = Some(clipped_count(&pred, plan.metric_settings.log_loss_clip));
-            (
-                MethodOutcome {
-                    method: name.to_string(),
-                    status,
-                    metrics,
-                    clipped,
-                    extras,
-                    fit_ms,
-                    error: None,
-                },
-                Some(pred),
-            )
+            let o = scored(plan, name, &pred, test_y, status, extras, fit_ms, None);
+            Ok((o, Some(pred)))
         }
-        Err(e) => {
-            let status = if e == FitError::OneClass {
-                "one_class"
-            } else {
-                "failed"
-            };
-            (
-                MethodOutcome {
-                    method: name.to_string(),
-                    status: status.into(),
-                    metrics: vec![None; plan.metrics.len()],
-                    clipped: None,
-                    extras: BTreeMap::new(),
+        Err(e) => match plan.on_fit_failure {
+            FitFailurePolicy::Stop => Err(e),
+            FitFailurePolicy::Fallback => {
+                let k = cal_y.iter().filter(|&&y| y).count() as f64;
+                let rate = (k + 1.0) / (cal_y.len() as f64 + 2.0);
+                let pred = vec![rate; test_s.len()];
+                let o = scored(
+                    plan,
+                    name,
+                    &pred,
+                    test_y,
+                    FALLBACK_BASE_RATE.to_string(),
+                    BTreeMap::new(),
                     fit_ms,
-                    error: Some(e.to_string()),
-                },
-                None,
-            )
-        }
+                    Some(e.to_string()),
+                );
+                Ok((o, Some(pred)))
+            }
+            FitFailurePolicy::Drop => {
+                let status = if matches!(e, FitError::OneClass { .. }) {
+                    "one_class"
+                } else {
+                    "failed"
+                };
+                Ok((
+                    MethodOutcome {
+                        method: name.to_string(),
+                        status: status.into(),
+                        metrics: vec![None; plan.metrics.len()],
+                        clipped: None,
+                        extras: BTreeMap::new(),
+                        fit_ms,
+                        error: Some(e.to_string()),
+                    },
+                    None,
+                ))
+            }
+        },
     }
 }
 
@@ -457,7 +525,7 @@ pub fn run_outcomes(
         "{spinner} {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
         opts,
         done,
-        &|(ti, size, r)| vec![run_unit(plan, &data, ti, size, r)],
+        &|(ti, size, r)| run_unit(plan, &data, ti, size, r).map(|u| vec![u]),
         on_done,
     )?;
     Ok((finished, threads, resumed_units))
@@ -475,7 +543,7 @@ pub(crate) fn execute<K: Copy + Sync>(
     bar_template: &str,
     opts: &RunOptions,
     done: Vec<UnitOutcome>,
-    work: &(dyn Fn(K) -> Vec<UnitOutcome> + Sync),
+    work: &(dyn Fn(K) -> Result<Vec<UnitOutcome>, String> + Sync),
     on_done: &(dyn Fn(&UnitOutcome) -> Result<(), String> + Sync),
 ) -> Result<(Vec<UnitOutcome>, usize), RunError> {
     let pool = thread_pool(opts.threads)?;
@@ -484,12 +552,26 @@ pub(crate) fn execute<K: Copy + Sync>(
     bar.set_position(total.saturating_sub(todo.len()) as u64);
     let finished: Mutex<Vec<UnitOutcome>> = Mutex::new(done);
     let journal_error: Mutex<Option<String>> = Mutex::new(None);
+    // A fit failure under on_fit_failure = "stop" also sets the journal flag,
+    // which makes the other workers skip their remaining keys.
+    let stop_error: Mutex<Option<String>> = Mutex::new(None);
     pool.install(|| {
         todo.par_iter().for_each(|&key| {
             if journal_error.lock().map(|e| e.is_some()).unwrap_or(true) {
                 return;
             }
-            let units = work(key);
+            let units = match work(key) {
+                Ok(u) => u,
+                Err(e) => {
+                    if let Ok(mut s) = stop_error.lock() {
+                        s.get_or_insert(e);
+                    }
+                    if let Ok(mut j) = journal_error.lock() {
+                        j.get_or_insert(String::new());
+                    }
+                    return;
+                }
+            };
             for u in &units {
                 if let Err(e) = on_done(u) {
                     if let Ok(mut j) = journal_error.lock() {
@@ -504,6 +586,9 @@ pub(crate) fn execute<K: Copy + Sync>(
         });
     });
     bar.finish_and_clear();
+    if let Some(e) = stop_error.into_inner().unwrap_or(None) {
+        return Err(RunError::FitStopped(e));
+    }
     if let Some(e) = journal_error.into_inner().unwrap_or(None) {
         return Err(RunError::Journal(e));
     }
@@ -584,7 +669,7 @@ pub fn assemble_ordered(
     let mut rows = Vec::new();
     let mut timings = Vec::new();
     let mut warnings = Vec::new();
-    let mut failures: BTreeMap<(String, String), (usize, String)> = BTreeMap::new();
+    let mut failures: BTreeMap<(String, String, bool), (usize, String)> = BTreeMap::new();
     let mut curves = Vec::new();
     for u in &units {
         for c in &u.curves {
@@ -620,19 +705,27 @@ pub fn assemble_ordered(
                 fit_ms: m.fit_ms,
             });
             if let Some(e) = &m.error {
-                if m.status == "failed" {
-                    let entry = failures
-                        .entry((u.task.clone(), m.method.clone()))
-                        .or_insert((0, e.clone()));
-                    entry.0 += 1;
-                }
+                let entry = failures
+                    .entry((
+                        u.task.clone(),
+                        m.method.clone(),
+                        m.status == FALLBACK_BASE_RATE,
+                    ))
+                    .or_insert((0, e.clone()));
+                entry.0 += 1;
             }
         }
     }
-    for ((task, method), (count, first)) in failures {
-        warnings.push(format!(
-            "task `{task}`, method `{method}`: {count} fit(s) failed; first error: {first}"
-        ));
+    for ((task, method, fallback), (count, first)) in failures {
+        warnings.push(if fallback {
+            format!(
+                "task `{task}`, method `{method}`: {count} fit(s) could not be made and predicted the smoothed base rate (status {FALLBACK_BASE_RATE}); first reason: {first}"
+            )
+        } else {
+            format!(
+                "task `{task}`, method `{method}`: {count} fit(s) failed and were left out of the comparisons (on_fit_failure = \"drop\"); first error: {first}"
+            )
+        });
     }
     let table = UnitTable {
         metric_names,

@@ -16,8 +16,8 @@
 use std::collections::{BTreeMap, BTreeSet};
 
 use super::{
-    add_row_summaries, assemble, fit_score, one_class_outcome, MethodOutcome, RunError, RunOptions,
-    RunOutput, UnitOutcome,
+    add_row_summaries, assemble, fit_score, one_class_outcome, stop_message, MethodOutcome,
+    RunError, RunOptions, RunOutput, UnitOutcome,
 };
 use crate::calibrate::Calibrator;
 use crate::data::{open, Dataset, Side};
@@ -86,10 +86,10 @@ pub fn run_study(
         .collect();
     let resumed_units = keys.len() - todo.len();
     let reference = study.reference();
-    let work = |(ti, budget, r): (usize, usize, usize)| -> Vec<UnitOutcome> {
+    let work = |(ti, budget, r): (usize, usize, usize)| -> Result<Vec<UnitOutcome>, String> {
         let t = &plan.tasks[ti];
         let TaskSource::Open { data, model, .. } = &t.source else {
-            return Vec::new();
+            return Ok(Vec::new());
         };
         let (ds, test_rows) = &datasets[data];
         let seed = split::unit_seed(plan.seed, &t.id, budget, r);
@@ -116,12 +116,11 @@ pub fn run_study(
                         if *name == reference {
                             positives = cy.iter().filter(|&&y| y).count();
                         }
-                        let pos = cy.iter().filter(|&&y| y).count();
-                        let (o, pr) = if pos == 0 || pos == cy.len() {
-                            (one_class_outcome(plan, name), None)
-                        } else {
+                        let (o, pr) =
                             fit_score(plan, calibrators[mi].as_ref(), name, &cs, &cy, &ts, &test_y)
-                        };
+                                .map_err(|e| {
+                                    stop_message(&format!("{}@{}", t.id, m.id), budget, r, name, &e)
+                                })?;
                         methods.push(o);
                         preds.push(pr);
                     }
@@ -155,7 +154,7 @@ pub fn run_study(
             });
         }
         outs.retain(|u| !done_keys.contains(&(u.task.clone(), u.size, u.repeat)));
-        outs
+        Ok(outs)
     };
     let (finished, threads) = super::execute(
         &todo,

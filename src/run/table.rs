@@ -18,7 +18,9 @@ pub struct UnitRow {
     pub size: usize,
     pub repeat: usize,
     pub method: String,
-    /// `ok`, a `+`-joined list of fit notes (e.g. `separable`), `one_class` or
+    /// `ok`, a `+`-joined list of fit notes (e.g. `separable`),
+    /// `fallback:base-rate` (the fit could not be made; the smoothed base
+    /// rate was predicted), or under `on_fit_failure = "drop"` `one_class` or
     /// `failed`.
     pub status: String,
     /// One value per metric column; `None` when the fit failed.

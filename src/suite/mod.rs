@@ -80,6 +80,8 @@ struct RawSuite {
     #[serde(default)]
     too_large: Option<Spanned<String>>,
     #[serde(default)]
+    on_fit_failure: Option<Spanned<String>>,
+    #[serde(default)]
     confidence: Option<Spanned<f64>>,
     #[serde(default)]
     interval: Option<Spanned<String>>,
@@ -257,6 +259,38 @@ pub enum TooLarge {
     Skip,
 }
 
+/// What a unit does when a method cannot fit its calibration sample (one
+/// class, too few distinct scores, a fit that fails): the suite key
+/// `on_fit_failure`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum FitFailurePolicy {
+    /// Every draw counts: the method predicts the smoothed base rate
+    /// (k + 1)/(n + 2) of the calibration sample (k positives of n rows) and
+    /// the unit's status is `fallback:base-rate`.
+    #[default]
+    Fallback,
+    /// The unit keeps no values for that method (status `one_class` or
+    /// `failed`) and the comparison loses that repeat; the run warns.
+    Drop,
+    /// The run stops at the first such fit, naming task, size, repeat,
+    /// method and reason, and writes no results.
+    Stop,
+}
+
+impl FitFailurePolicy {
+    pub const ALL: [FitFailurePolicy; 3] = [Self::Fallback, Self::Drop, Self::Stop];
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::Fallback => "fallback",
+            Self::Drop => "drop",
+            Self::Stop => "stop",
+        }
+    }
+    pub fn parse(s: &str) -> Option<Self> {
+        Self::ALL.into_iter().find(|p| p.as_str() == s)
+    }
+}
+
 /// A method as used in a run: the suite's id and its checked spec.
 #[derive(Debug, Clone, PartialEq)]
 pub struct MethodEntry {
@@ -328,6 +362,8 @@ pub struct Plan {
     pub metrics: Vec<MetricId>,
     pub primary: MetricId,
     pub metric_settings: MetricSettings,
+    /// What a unit does when a method cannot fit (`on_fit_failure`).
+    pub on_fit_failure: FitFailurePolicy,
     pub test_set: TestSetRule,
     pub methods: Vec<MethodEntry>,
     /// (flexible, parametric) method pairs whose data-size thresholds are reported.
@@ -496,6 +532,19 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                 ))
             }
         },
+    };
+    let on_fit_failure = match &raw.on_fit_failure {
+        None => FitFailurePolicy::default(),
+        Some(s) => FitFailurePolicy::parse(s.get_ref()).ok_or_else(|| {
+            ctx.err(
+                s.span(),
+                "on_fit_failure",
+                format!(
+                    "`{}`: expected \"fallback\", \"drop\" or \"stop\"",
+                    s.get_ref()
+                ),
+            )
+        })?,
     };
     let confidence = match &raw.confidence {
         None => DEFAULT_CONFIDENCE,
@@ -1148,6 +1197,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         metrics,
         primary,
         metric_settings,
+        on_fit_failure,
         test_set,
         methods: method_entries,
         pairs,
