@@ -22,7 +22,15 @@ the metrics and the seed. See docs/suite-format.md, or start from suites/open-uc
 Typical session:
   plumbline check suites/courier-demo.toml     validate, print the plan and the unit count
   plumbline run suites/courier-demo.toml       run it; results in results/courier-demo/
-  plumbline report results/courier-demo        rebuild tables from units.csv.gz";
+  plumbline report results/courier-demo        rebuild tables and figures; --task ID for one task
+  open results/courier-demo/index.html         the decision first, then ranks, thresholds,
+                                               reliability diagrams and per-task detail
+
+From benchmark to production:
+  plumbline fit --method beta --scores held_out.csv --out beta.map.json
+  plumbline apply beta.map.json --scores new_scores.csv --out calibrated.csv
+
+Many machines: `run --shard K/N` per machine, then `merge`; `verify` reruns a folder.";
 
 #[derive(Parser)]
 #[command(name = "plumbline", version, about = ABOUT, long_about = LONG_ABOUT)]
