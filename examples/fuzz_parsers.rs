@@ -285,6 +285,8 @@ fn main() {
                     } else {
                         None
                     },
+                    fold_column: None,
+                    origin: scorefile::Origin::Suite,
                 };
                 catch_unwind(AssertUnwindSafe(|| scorefile::load(&spec).is_ok())).map_err(|_| bytes)
             }

@@ -38,6 +38,8 @@ fn score_file_inputs_never_panic() {
                 score_kind: ScoreKind::Probability,
                 split_column: None,
                 truth_column: truth,
+                fold_column: None,
+                origin: scorefile::Origin::Suite,
             };
             let r = std::panic::catch_unwind(|| scorefile::load(&spec).map(|_| ()));
             let r = r.unwrap_or_else(|_| panic!("{} panicked", path.display()));
@@ -61,6 +63,8 @@ fn duplicate_header_column_is_rejected_with_both_positions() {
         score_kind: ScoreKind::Probability,
         split_column: None,
         truth_column: None,
+        fold_column: None,
+        origin: scorefile::Origin::Suite,
     };
     let e = scorefile::load(&spec).err().unwrap().to_string();
     assert!(
