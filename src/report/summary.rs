@@ -30,70 +30,80 @@ fn hib(metric: &str) -> bool {
 
 /// One table per task for `metric`: rows = methods, columns = sizes.
 pub fn task_tables(a: &Analysis, s: &AnalysisSettings, metric: &str, markdown: bool) -> Vec<Table> {
+    a.tasks
+        .iter()
+        .map(|task| task_table(a, s, metric, task, markdown))
+        .collect()
+}
+
+/// The table of one task for `metric`: rows = methods, columns = sizes.
+pub fn task_table(
+    a: &Analysis,
+    s: &AnalysisSettings,
+    metric: &str,
+    task: &str,
+    markdown: bool,
+) -> Table {
     let higher = hib(metric);
-    let mut out = Vec::new();
-    for task in &a.tasks {
-        let sizes = &a.sizes[task];
-        let mut header = vec!["method".to_string()];
-        header.extend(sizes.iter().map(|n| format!("n = {n}")));
-        let mut rows = Vec::new();
-        for m in &a.methods {
-            let mut row = vec![if *m == s.reference {
-                format!("{m} (reference)")
-            } else {
-                m.clone()
-            }];
-            for &n in sizes {
-                let mean = a
-                    .summaries
-                    .iter()
-                    .find(|x| {
-                        x.task == *task && x.size == n && x.method == *m && x.metric == metric
-                    })
-                    .map(|x| x.mean)
-                    .unwrap_or(f64::NAN);
-                let mut cell = fmt_value(mean);
-                if let Some(p) = a.paired.iter().find(|p| {
-                    p.task == *task && p.size == n && p.method == *m && p.metric == metric
-                }) {
-                    let mark = if p.reliably_better(higher) {
-                        format!(" {BETTER}")
-                    } else if p.reliably_worse(higher) {
-                        format!(" {WORSE}")
-                    } else {
-                        format!(" {SAME}")
-                    };
-                    let diff = format!(
-                        "{} [{}, {}]{}",
-                        fmt_diff(p.mean_diff),
-                        fmt_diff(p.ci_low),
-                        fmt_diff(p.ci_high),
-                        mark
-                    );
-                    let diff = if markdown && !mark.ends_with(SAME) {
-                        format!("**{diff}**")
-                    } else {
-                        diff
-                    };
-                    cell = format!("{cell}\n{diff}");
-                }
-                row.push(cell);
+    let sizes = a.sizes.get(task).map(Vec::as_slice).unwrap_or(&[]);
+    let mut header = vec!["method".to_string()];
+    header.extend(sizes.iter().map(|n| format!("n = {n}")));
+    let mut rows = Vec::new();
+    for m in &a.methods {
+        let mut row = vec![if *m == s.reference {
+            format!("{m} (reference)")
+        } else {
+            m.clone()
+        }];
+        for &n in sizes {
+            let mean = a
+                .summaries
+                .iter()
+                .find(|x| x.task == *task && x.size == n && x.method == *m && x.metric == metric)
+                .map(|x| x.mean)
+                .unwrap_or(f64::NAN);
+            let mut cell = fmt_value(mean);
+            if let Some(p) = a
+                .paired
+                .iter()
+                .find(|p| p.task == *task && p.size == n && p.method == *m && p.metric == metric)
+            {
+                let mark = if p.reliably_better(higher) {
+                    format!(" {BETTER}")
+                } else if p.reliably_worse(higher) {
+                    format!(" {WORSE}")
+                } else {
+                    format!(" {SAME}")
+                };
+                let diff = format!(
+                    "{} [{}, {}]{}",
+                    fmt_diff(p.mean_diff),
+                    fmt_diff(p.ci_low),
+                    fmt_diff(p.ci_high),
+                    mark
+                );
+                let diff = if markdown && !mark.ends_with(SAME) {
+                    format!("**{diff}**")
+                } else {
+                    diff
+                };
+                cell = format!("{cell}\n{diff}");
             }
-            rows.push(row);
+            row.push(cell);
         }
-        let pct = (s.confidence * 100.0).round();
-        let notes = vec![format!(
+        rows.push(row);
+    }
+    let pct = (s.confidence * 100.0).round();
+    let notes = vec![format!(
             "Each cell: mean {metric} over repeats; below it the mean difference to `{}` with its {pct}% {} interval; {BETTER} / {SAME} / {WORSE} = reliably better / no reliable difference / reliably worse than the reference.",
             s.reference, s.interval
         )];
-        out.push(Table {
-            title: format!("Task `{task}` — {metric}"),
-            header,
-            rows,
-            notes,
-        });
+    Table {
+        title: format!("Task `{task}` — {metric}"),
+        header,
+        rows,
+        notes,
     }
-    out
 }
 
 /// The standing caution, in every report.
@@ -470,8 +480,8 @@ pub fn task_blocks(a: &Analysis, ctx: &ReportContext, task: &str) -> Vec<Block> 
         format!("Task `{task}`"),
         format!("task-{}", anchor(task)),
     )];
-    if let Some((i, _)) = a.tasks.iter().enumerate().find(|(_, t)| *t == task) {
-        let mut t = task_tables(a, s, &s.primary_metric, true).swap_remove(i);
+    if a.tasks.iter().any(|t| t == task) {
+        let mut t = task_table(a, s, &s.primary_metric, task, true);
         t.title = format!("`{task}` — mean {} by calibration size", s.primary_metric);
         out.push(Block::Table(t));
     }

@@ -670,8 +670,24 @@ pub fn assemble_ordered(
     let mut timings = Vec::new();
     let mut warnings = Vec::new();
     let mut failures: BTreeMap<(String, String, bool), (usize, String)> = BTreeMap::new();
+    // Units whose calibration sample held one class: every method failed for
+    // the same reason, so they make one warning per task, not one per method.
+    let mut one_class: BTreeMap<(String, bool), (usize, String)> = BTreeMap::new();
     let mut curves = Vec::new();
     for u in &units {
+        let sample_one_class = !u.methods.is_empty()
+            && u.methods.iter().all(|m| {
+                m.error
+                    .as_deref()
+                    .is_some_and(|e| e.starts_with("one class"))
+            });
+        if sample_one_class {
+            let fallback = u.methods.iter().all(|m| m.status == FALLBACK_BASE_RATE);
+            let entry = one_class
+                .entry((u.task.clone(), fallback))
+                .or_insert((0, u.methods[0].error.clone().unwrap_or_default()));
+            entry.0 += 1;
+        }
         for c in &u.curves {
             curves.push(CurveRecord {
                 task: u.task.clone(),
@@ -704,7 +720,7 @@ pub fn assemble_ordered(
                 method: m.method.clone(),
                 fit_ms: m.fit_ms,
             });
-            if let Some(e) = &m.error {
+            if let (Some(e), false) = (&m.error, sample_one_class) {
                 let entry = failures
                     .entry((
                         u.task.clone(),
@@ -715,6 +731,17 @@ pub fn assemble_ordered(
                 entry.0 += 1;
             }
         }
+    }
+    for ((task, fallback), (count, first)) in one_class {
+        warnings.push(if fallback {
+            format!(
+                "task `{task}`: {count} unit(s) drew a calibration sample of one class (first: {first}); every method predicted the smoothed base rate (status {FALLBACK_BASE_RATE})"
+            )
+        } else {
+            format!(
+                "task `{task}`: {count} unit(s) drew a calibration sample of one class (first: {first}) and were left out of the comparisons (on_fit_failure = \"drop\")"
+            )
+        });
     }
     for ((task, method, fallback), (count, first)) in failures {
         warnings.push(if fallback {
