@@ -62,7 +62,7 @@ fn committed_published_run_matches_the_documented_command() {
         "paired.csv",
         "thresholds.csv",
         "manifest.json",
-        "reliability.csv",
+        "reliability_terms.csv",
     ] {
         assert!(
             committed.iter().any(|f| f == needed),
