@@ -15,6 +15,9 @@ use std::process::Command as Proc;
 use assert_cmd::Command;
 use tempfile::TempDir;
 
+mod common;
+use common::copy_dir;
+
 fn root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
 }
@@ -33,16 +36,6 @@ fn browser() -> Option<PathBuf> {
         }
     }
     None
-}
-
-fn copy_dir(from: &Path, to: &Path) {
-    fs::create_dir_all(to).unwrap();
-    for e in fs::read_dir(from).unwrap() {
-        let e = e.unwrap();
-        if e.path().is_file() {
-            fs::copy(e.path(), to.join(e.file_name())).unwrap();
-        }
-    }
 }
 
 fn chromium(exe: &Path, profile: &Path, extra: &[&str], url: &str) -> std::process::Output {

@@ -10,7 +10,7 @@ use assert_cmd::Command;
 use tempfile::TempDir;
 
 mod common;
-use common::files;
+use common::{copy_dir, files};
 
 fn bin() -> Command {
     Command::cargo_bin("plumbline").unwrap()
@@ -18,19 +18,6 @@ fn bin() -> Command {
 
 fn root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-}
-
-fn copy_dir(from: &Path, to: &Path) {
-    fs::create_dir_all(to).unwrap();
-    for e in fs::read_dir(from).unwrap() {
-        let e = e.unwrap();
-        let p = e.path();
-        if p.is_dir() {
-            copy_dir(&p, &to.join(e.file_name()));
-        } else {
-            fs::copy(&p, to.join(e.file_name())).unwrap();
-        }
-    }
 }
 
 /// The fixed folder (`tests/fixtures/report/folder`: units.csv, manifest.json

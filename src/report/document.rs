@@ -74,12 +74,7 @@ pub fn to_markdown(blocks: &[Block]) -> String {
     s
 }
 
-fn esc(s: &str) -> String {
-    s.replace('&', "&amp;")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('"', "&quot;")
-}
+use super::esc;
 
 /// Inline Markdown (`code`, **bold**) as HTML.
 pub fn inline_html(t: &str) -> String {

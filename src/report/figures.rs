@@ -24,7 +24,7 @@
 
 use super::fmt_diff;
 use crate::analysis::Analysis;
-use crate::metrics::reliability::{CurveRecord, HIST_LOGIT_BINS, HIST_P_BINS, LOGIT_RANGE};
+use crate::metrics::reliability::{CurveRecord, LOGIT_RANGE};
 use crate::metrics::MetricId;
 
 /// Okabe & Ito (2008) colour-blind-safe palette (black last).
@@ -72,13 +72,7 @@ pub fn style_of(a: &Analysis, method: &str) -> Style {
     }
 }
 
-/// Escape text for SVG markup.
-pub fn esc(s: &str) -> String {
-    s.replace('&', "&amp;")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('"', "&quot;")
-}
+pub use super::esc;
 
 fn f(v: f64) -> String {
     let s = format!("{v:.1}");
@@ -586,7 +580,6 @@ pub fn reliability_grid(
         }
     }
     s.push_str("</svg>\n");
-    let _ = (HIST_P_BINS, HIST_LOGIT_BINS);
     s
 }
 

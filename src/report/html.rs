@@ -9,12 +9,7 @@ use super::summary::{document, Detail, ReportContext};
 use super::Table;
 use crate::analysis::Analysis;
 
-fn esc(s: &str) -> String {
-    s.replace('&', "&amp;")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('"', "&quot;")
-}
+use super::esc;
 
 const STYLE: &str = "body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;max-width:1180px;margin:0 auto;padding:0 1.2em 3em;color:#1d1d1d;line-height:1.45}\
 header{border-bottom:3px solid #0072B2;margin-bottom:1em}\

@@ -11,6 +11,14 @@ pub mod summary;
 
 use crate::analysis::Analysis;
 
+/// Escape text for HTML and SVG markup (text and attribute values).
+pub fn esc(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
 /// Every published file of a results folder except `units.csv`, `timings.csv`
 /// and `manifest.json`: (path inside the folder, bytes). The same function
 /// serves `plumbline run` and `plumbline report`, so both publish the same files.
@@ -180,37 +188,6 @@ impl Table {
             ));
         }
         s.push_str("\\bottomrule\n\\end{tabular}\n");
-        s
-    }
-
-    /// An HTML table; line breaks inside cells become `<br>`.
-    pub fn to_html(&self) -> String {
-        let esc = |c: &str| {
-            c.replace('&', "&amp;")
-                .replace('<', "&lt;")
-                .replace('>', "&gt;")
-                .replace('\n', "<br>")
-        };
-        let mut s = format!("<h3>{}</h3>\n<table>\n<thead><tr>", esc(&self.title));
-        for h in &self.header {
-            s.push_str(&format!("<th>{}</th>", esc(h)));
-        }
-        s.push_str("</tr></thead>\n<tbody>\n");
-        for r in &self.rows {
-            s.push_str("<tr>");
-            for (i, c) in r.iter().enumerate() {
-                if i == 0 {
-                    s.push_str(&format!("<th>{}</th>", esc(c)));
-                } else {
-                    s.push_str(&format!("<td>{}</td>", esc(c)));
-                }
-            }
-            s.push_str("</tr>\n");
-        }
-        s.push_str("</tbody>\n</table>\n");
-        for n in &self.notes {
-            s.push_str(&format!("<p class=\"note\">{}</p>\n", esc(n)));
-        }
         s
     }
 }
