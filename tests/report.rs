@@ -4,7 +4,7 @@
 //! every format, and the reliability data on scores whose calibration is known.
 
 use std::fs;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use assert_cmd::Command;
 use tempfile::TempDir;
