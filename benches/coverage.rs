@@ -1,44 +1,37 @@
-//! Prints the empirical coverage of every paired interval on the synthetic
-//! population of `plumbline::stats::coverage` (isotonic vs Platt by default).
+//! The coverage study of `docs/statistics.md`: every method of the default
+//! suite against Platt scaling and against the identity, on four synthetic
+//! populations, at calibration sizes from 50 to half the reservoir, for log
+//! loss and the Brier score, every interval kind. Each replicate runs through
+//! the run engine and the report's interval code (see `coverage/study.rs`).
 //!
-//! `cargo bench --bench coverage` runs the default settings; options (after `--`):
-//! `--replicates N`, `--truth-samples K`, `--repeats R` (default 30), `--seed S`,
-//! `--pseudo-count C` to compare bounded isotonic regression instead,
-//! `--method SPEC` and `--reference SPEC` to compare other methods (SPEC is a
-//! method as a suite writes it, without the id: `'kind = "spline"'`,
-//! `'kind = "binning", bins = 20'`), and `--without-extreme-switch` to keep the
-//! second-order reservoir term throughout.
+//! `cargo bench --bench coverage -- --out docs/coverage` runs the published
+//! study and writes `table.csv` there (one row per cell); options:
+//! `--replicates N` (default 1000), `--truth-samples K` (default 5000),
+//! `--populations a,b` (names: calibrated, over-confident,
+//! rare-under-confident, two-step), `--methods a,b` (ids of the default
+//! suite's methods, compared with platt and identity), `--sizes 50,100`,
+//! `--seed S`, `--draws FILE` to also write every replicate's intervals as CSV.
+
+#[path = "coverage/study.rs"]
+mod study;
 
 use std::time::Instant;
 
-use plumbline::calibrate::MethodSpec;
-use plumbline::stats::coverage::{coverage_study, CoverageConfig};
+use study::{Population, StudyConfig};
 
 fn usage(msg: &str) -> ! {
     eprintln!("coverage: {msg}");
     eprintln!(
-        "options: --replicates N --truth-samples K --repeats R --seed S --pseudo-count C \
-         --method SPEC --reference SPEC --without-extreme-switch"
+        "options: --out DIR --replicates N --truth-samples K --populations a,b \
+         --methods a,b --sizes n,m --seed S --draws FILE"
     );
     std::process::exit(2);
 }
 
-fn method(opt: &str, spec: Option<&String>) -> MethodSpec {
-    let Some(spec) = spec else {
-        usage(&format!("{opt} needs a method, e.g. 'kind = \"beta\"'"))
-    };
-    let spec = match toml::from_str::<MethodSpec>(spec) {
-        Ok(m) => m,
-        Err(e) => usage(&format!("{opt} {spec:?}: {e}")),
-    };
-    if let Err(e) = spec.validate(plumbline::calibrate::ScoreKind::Probability) {
-        usage(&format!("{opt} {spec:?}: {e}"));
-    }
-    spec
-}
-
 fn main() {
-    let mut cfg = CoverageConfig::default();
+    let mut cfg = StudyConfig::published();
+    let mut out = None;
+    let mut draws = None;
     // `cargo bench` passes `--bench` to every bench binary; skip it.
     let args: Vec<String> = std::env::args()
         .skip(1)
@@ -47,59 +40,112 @@ fn main() {
     let mut i = 0;
     while i < args.len() {
         let opt = args[i].as_str();
-        let val = args.get(i + 1);
-        let num = |v: Option<&String>| -> u64 {
-            v.and_then(|v| v.parse::<u64>().ok())
-                .unwrap_or_else(|| usage(&format!("{opt} needs a whole number, got {v:?}")))
+        let Some(val) = args.get(i + 1) else {
+            usage(&format!("{opt} needs a value"))
+        };
+        let num = |v: &str| -> u64 {
+            v.parse::<u64>()
+                .unwrap_or_else(|_| usage(&format!("{opt} needs a whole number, got {v:?}")))
         };
         match opt {
-            "--without-extreme-switch" => {
-                // Keep the second-order reservoir term even with extreme predictions.
-                cfg.detect_extreme = false;
-                i += 1;
-                continue;
-            }
-            "--pseudo-count" => {
-                // Compare bounded isotonic regression (pseudo-rows at the base rate).
-                let m = val.and_then(|v| v.parse::<f64>().ok()).unwrap_or_else(|| {
-                    usage(&format!("--pseudo-count needs a number, got {val:?}"))
-                });
-                cfg.method = MethodSpec::Isotonic { pseudo_count: m };
-            }
-            "--method" => cfg.method = method(opt, val),
-            "--reference" => cfg.reference = method(opt, val),
+            "--out" => out = Some(std::path::PathBuf::from(val)),
+            "--draws" => draws = Some(std::path::PathBuf::from(val)),
             "--replicates" => cfg.replicates = num(val) as usize,
-            "--truth-samples" => cfg.truth_samples = num(val) as usize,
-            "--repeats" => cfg.repeats = num(val) as usize,
-            "--seed" => cfg.seed = num(val),
+            "--truth-samples" => cfg.truth.samples = num(val) as usize,
+            "--seed" => {
+                cfg.seed = num(val);
+                cfg.truth.seed = cfg.seed;
+            }
+            "--sizes" => cfg.sizes = val.split(',').map(|v| num(v) as usize).collect(),
+            "--populations" => {
+                let all = Population::all();
+                cfg.populations = val
+                    .split(',')
+                    .map(|name| {
+                        all.iter()
+                            .find(|p| p.name == name)
+                            .cloned()
+                            .unwrap_or_else(|| usage(&format!("unknown population {name:?}")))
+                    })
+                    .collect();
+            }
+            "--methods" => {
+                let keep: Vec<&str> = val.split(',').collect();
+                cfg.pairs.retain(|(a, _)| keep.contains(&a.as_str()));
+            }
             other => usage(&format!("unknown option {other:?}")),
         }
         i += 2;
     }
     let start = Instant::now();
-    match coverage_study(&cfg) {
-        Ok(t) => {
-            println!(
-                "method {} reference {}",
-                serde_json::to_string(&cfg.method).unwrap_or_default(),
-                serde_json::to_string(&cfg.reference).unwrap_or_default()
-            );
-            println!(
-                "reservoir {} test_rows {} repeats {} replicates {} truth_samples {} confidence {} extreme_switch {}",
-                cfg.reservoir,
-                cfg.test_rows,
-                cfg.repeats,
-                cfg.replicates,
-                cfg.truth_samples,
-                cfg.confidence,
-                cfg.detect_extreme
-            );
-            print!("{}", t.render());
-            println!("failed fits: {}", t.failed_fits);
-            println!("elapsed: {:.1} s", start.elapsed().as_secs_f64());
-        }
+    let result = study::run_study(&cfg, &|name| {
+        eprintln!(
+            "coverage: population {name} done after {:.0} s",
+            start.elapsed().as_secs_f64()
+        )
+    });
+    let output = match result {
+        Ok(o) => o,
         Err(e) => {
             eprintln!("coverage study failed: {e}");
+            std::process::exit(1);
+        }
+    };
+    let table = output.table_csv();
+    let default = plumbline::stats::paired::IntervalKind::default();
+    let rows = output.rows();
+    let mine: Vec<_> = rows.iter().filter(|r| r.kind == default).collect();
+    let outside: Vec<_> = mine
+        .iter()
+        .filter(|r| !(0.93..=0.97).contains(&r.coverage()))
+        .collect();
+    println!(
+        "replicates {} truth_samples {} repeats {} reservoir {} test_rows {} confidence {}",
+        cfg.replicates,
+        cfg.truth.samples,
+        cfg.repeats,
+        cfg.reservoir,
+        cfg.test_rows,
+        cfg.confidence
+    );
+    println!(
+        "units {} fallback fits in units {} fallback fits in truth samples {}",
+        output.units, output.unit_fallbacks, output.truth_fallbacks
+    );
+    println!(
+        "default interval `{}`: {} of {} cells outside 93–97%",
+        default.as_str(),
+        outside.len(),
+        mine.len()
+    );
+    for r in &outside {
+        println!(
+            "  {} {} − {} {} n = {}: {:.1}% (low {}, high {})",
+            r.population,
+            r.method,
+            r.reference,
+            r.metric.as_str(),
+            r.size,
+            100.0 * r.coverage(),
+            r.missed_low,
+            r.missed_high
+        );
+    }
+    println!("elapsed: {:.1} s", start.elapsed().as_secs_f64());
+    match out {
+        Some(dir) => {
+            if let Err(e) = std::fs::create_dir_all(&dir)
+                .and_then(|_| std::fs::write(dir.join("table.csv"), &table))
+            {
+                eprintln!("coverage: cannot write {}: {e}", dir.display());
+                std::process::exit(1);
+            }
+        }
+        None => print!("{table}"),
+    }
+    if let Some(path) = draws {
+        if let Err(e) = std::fs::write(&path, output.draws_csv()) {
+            eprintln!("coverage: cannot write {}: {e}", path.display());
             std::process::exit(1);
         }
     }

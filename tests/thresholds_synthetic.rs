@@ -2,12 +2,12 @@
 //! known.
 //!
 //! The task is a score file drawn from the population of
-//! `plumbline::stats::coverage` (Kumaraswamy(2, 3) scores, a two-step true
+//! the coverage study (`benches/coverage/study.rs`) (Kumaraswamy(2, 3) scores, a two-step true
 //! calibration map that no logistic curve matches): Platt scaling is biased
 //! there and isotonic regression is not, so isotonic regression loses at small
 //! calibration sizes and wins at large ones. The truth θ(n) of isotonic − Platt
 //! at each tested size is computed independently of the harness's split, draw
-//! and interval code (`coverage::true_difference`: the exact expected Brier
+//! and interval code (`study::truth_samples`: the exact expected Brier
 //! difference of each fitted pair over the population, averaged over many
 //! calibration samples). The run must place the crossover between the same two
 //! tested sizes as the truth, and call isotonic regression reliably better only
@@ -17,10 +17,12 @@ use std::fs;
 use std::io::Write;
 
 use assert_cmd::Command;
-use plumbline::calibrate::MethodSpec;
+use plumbline::calibrate::{MethodSpec, ScoreKind};
 use plumbline::metrics::{MetricId, MetricSettings};
 use plumbline::split;
-use plumbline::stats::coverage::{true_difference, Fitters, Population, TruthConfig};
+#[path = "../benches/coverage/study.rs"]
+mod study;
+use study::{truth_samples, Population, TruthConfig};
 
 const SIZES: [usize; 8] = [50, 100, 200, 300, 500, 1000, 2000, 4000];
 
@@ -50,13 +52,13 @@ fn run_finds_the_known_isotonic_platt_crossover() {
     let pop = Population::default();
 
     // θ(n) of isotonic − Platt for the Brier score at every tested size.
-    let fit = Fitters::new(
-        &MethodSpec::Isotonic { pseudo_count: 0.0 },
-        &MethodSpec::Platt {
+    let methods = [
+        MethodSpec::Isotonic { pseudo_count: 0.0 },
+        MethodSpec::Platt {
             target_smoothing: false,
         },
-    )
-    .unwrap();
+    ]
+    .map(|m| m.build(ScoreKind::Probability).unwrap());
     let tc = TruthConfig {
         seed: 77,
         samples: 800,
@@ -64,16 +66,16 @@ fn run_finds_the_known_isotonic_platt_crossover() {
     };
     let mut truth = Vec::new();
     for &n in &SIZES {
-        let t = true_difference(
+        let t = truth_samples(
             &pop,
-            &fit,
+            &methods,
             &[MetricId::Brier],
             &MetricSettings::default(),
             n,
             &tc,
         );
-        assert_eq!(t.failed_fits, 0);
-        let (mean, se) = t.per_metric[0];
+        assert_eq!(t.fallbacks, 0);
+        let (mean, se) = t.difference(0, 0, 1);
         // The Monte Carlo error must be small against the difference itself,
         // or the "known" crossover would not be known.
         assert!(se < 0.25 * mean.abs(), "n = {n}: θ = {mean}, se = {se}");

@@ -1,6 +1,6 @@
 //! Statistics of a benchmark run: paired intervals per task, tests across
-//! tasks, data-size thresholds and a simulation that checks the intervals'
-//! coverage.
+//! tasks and data-size thresholds. (The simulation that checks the intervals'
+//! coverage lives beside its bench, `benches/coverage/study.rs`.)
 //!
 //! The reporting code computes no statistics itself: it hands per-unit values
 //! (as read back from `units.csv`) to the functions here and prints the plain
@@ -17,14 +17,11 @@
 //!   data sets").
 //! * [`thresholds`]: from which calibration size a flexible method is reliably
 //!   better than a parametric one, and where the mean difference crosses zero.
-//! * [`coverage`]: a synthetic population with a known calibration map, used to
-//!   measure how often each interval covers the true expected loss difference.
 //!
 //! Quantiles and tail probabilities of the t, χ², F and normal distributions
 //! come from `statrs`.
 
 pub mod across;
-pub mod coverage;
 pub mod paired;
 pub mod thresholds;
 

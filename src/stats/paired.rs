@@ -44,7 +44,7 @@
 //!     loss the log-loss clip had to bound, typically an exact 0 or 1 from a
 //!     step-function map, whose end blocks are decided by single calibration
 //!     rows) the first-order term matters and k = 1 is taken instead; the
-//!     coverage study ([`super::coverage`]) shows both halves of this rule.
+//!     coverage study (`benches/coverage/study.rs`) shows both halves of this rule.
 //!     [`IntervalKind::DecomposedLinear`] always takes k = 1, the bound over
 //!     all degrees, s_d² · n/(M − n). Both grow as n approaches M (draws overlap,
 //!     repeats become dependent) and are undefined at n = M.
