@@ -234,9 +234,13 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         };
         PathBuf::from("results").join(name)
     });
-    if out.exists() && !args.force {
-        return Err(output::OutputError::Exists(out.display().to_string()).into());
-    }
+    // Lock and check the folder before the score pools are built (which can
+    // take minutes): a second writer or a folder that must not be replaced is
+    // refused at once.
+    let inputs = run_inputs(&plan, &args.suite);
+    let input_refs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
+    let target = output::prepare(&out, args.force, &input_refs, true)?;
+    let staging = target.staging().to_path_buf();
     let cache = out
         .parent()
         .map(|p| p.join(".cache").join("pools"))
@@ -260,7 +264,6 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         )
         .map_err(anyhow::Error::msg)?
     };
-    let staging = output::prepare(&out, args.force)?;
     let key = run_key(&plan, args.shard);
     let (journal, done) = Journal::open(&staging, &key, args.force).map_err(anyhow::Error::msg)?;
     if journal.dropped > 0 && !args.quiet {
@@ -295,7 +298,7 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         };
         let n = units.len();
         crate::scale::shard::write_shard(&staging, &plan, shard, units, &info)?;
-        output::commit(&staging, &out)?;
+        target.commit()?;
         return Ok(RunSummary {
             terminal: String::new(),
             out,
@@ -336,7 +339,7 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         "manifest.json",
         serde_json::to_string_pretty(&manifest)?.as_bytes(),
     )?;
-    output::commit(&staging, &out)?;
+    target.commit()?;
     Ok(RunSummary {
         terminal: summary::terminal(&a, &ctx),
         out,
@@ -346,6 +349,19 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         warnings: result.warnings,
         seconds: t0.elapsed().as_secs_f64(),
     })
+}
+
+/// What a run reads: the suite file, its score files and its open-data
+/// folder. A results folder holding one of them is never replaced.
+fn run_inputs(plan: &Plan, suite_file: &Path) -> Vec<PathBuf> {
+    let mut v = vec![suite_file.to_path_buf()];
+    for t in &plan.tasks {
+        match &t.source {
+            TaskSource::ScoreFile(f) => v.push(f.path.clone()),
+            TaskSource::Open { data_dir, .. } => v.push(data_dir.clone()),
+        }
+    }
+    v
 }
 
 /// How a run went, for its manifest (the machine-dependent part).

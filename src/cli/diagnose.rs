@@ -19,7 +19,7 @@
 //! Resample b draws its rows from ChaCha8 seeded with `split::mix(seed,
 //! [tag, b])`, so the output is identical whatever the thread count.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use anyhow::{bail, Result};
 use rayon::prelude::*;
@@ -319,20 +319,50 @@ fn csv_rows(head: &str, est: &[&[Estimate]]) -> Vec<u8> {
     s.into_bytes()
 }
 
-/// Run `plumbline diagnose`: compute, then write the folder atomically.
+/// `manifest.json` of a diagnose folder: what was computed, and the mark
+/// that lets `--force` replace the folder later.
+fn manifest(args: &DiagnoseArgs, d: &Diagnosis) -> serde_json::Value {
+    serde_json::json!({
+        "tool": "plumbline",
+        "version": env!("CARGO_PKG_VERSION"),
+        "command": "diagnose",
+        "file": crate::app::shown(&args.file),
+        "score_column": args.score_column,
+        "label_column": args.label_column,
+        "compare": args.compare,
+        "rows": d.rows,
+        "bootstrap": args.bootstrap,
+        "seed": args.seed,
+        "confidence": args.confidence,
+    })
+}
+
+/// Run `plumbline diagnose`: lock and check the output folder, compute, then
+/// write the folder atomically.
 pub fn run(args: &DiagnoseArgs) -> Result<Diagnosis> {
+    let inputs: Vec<&Path> = if args.file.as_os_str() == "-" {
+        Vec::new()
+    } else {
+        vec![args.file.as_path()]
+    };
+    let target = output::prepare(&args.out, args.force, &inputs, false)?;
     let d = diagnose(args)?;
-    let staging = output::prepare(&args.out, args.force)?;
+    let staging = target.staging();
+    output::write_file(
+        staging,
+        output::MANIFEST,
+        serde_json::to_string_pretty(&manifest(args, &d))?.as_bytes(),
+    )?;
     let single = csv_rows("metric,value,lo,hi,resamples", &[&d.single]);
-    output::write_file(&staging, "metrics.csv", &single)?;
-    output::write_file(&staging, "reliability.svg", d.svg.as_bytes())?;
+    output::write_file(staging, "metrics.csv", &single)?;
+    output::write_file(staging, "reliability.svg", d.svg.as_bytes())?;
     if let Some((o, diff)) = &d.compare {
         let bytes = csv_rows(
             "metric,compared_value,compared_lo,compared_hi,compared_resamples,difference,difference_lo,difference_hi,difference_resamples",
             &[o, diff],
         );
-        output::write_file(&staging, "compare.csv", &bytes)?;
+        output::write_file(staging, "compare.csv", &bytes)?;
     }
-    output::commit(&staging, &args.out)?;
+    target.commit()?;
     Ok(d)
 }

@@ -174,9 +174,8 @@ pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
     if args.shards.is_empty() {
         bail!("no shard folders given");
     }
-    if args.out.exists() && !args.force {
-        return Err(output::OutputError::Exists(args.out.display().to_string()).into());
-    }
+    let inputs: Vec<&Path> = args.shards.iter().map(PathBuf::as_path).collect();
+    let target = output::prepare(&args.out, args.force, &inputs, false)?;
     let mut shards = args
         .shards
         .iter()
@@ -298,8 +297,8 @@ pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
     let result = run::assemble_ordered(&tasks, &mrefs, metrics, units, threads, resumed);
 
     let ctx = context_of(base, &base_path)?;
-    let staging = output::prepare(&args.out, args.force)?;
-    let (a, ctx) = write_results(&staging, &result, ctx)?;
+    let staging = target.staging();
+    let (a, ctx) = write_results(staging, &result, ctx)?;
     let mut manifest = base.clone();
     if let Some(o) = manifest.as_object_mut() {
         o.remove("shard");
@@ -329,11 +328,11 @@ pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
         .sum();
     manifest["wall_seconds"] = serde_json::json!(wall);
     output::write_file(
-        &staging,
+        staging,
         "manifest.json",
         serde_json::to_string_pretty(&manifest)?.as_bytes(),
     )?;
-    output::commit(&staging, &args.out)?;
+    target.commit()?;
     Ok(MergeSummary {
         units: n_units,
         shards: shards.len(),

@@ -473,9 +473,16 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     let raw: RawSuite = toml::from_str(text).map_err(|e| toml_err(&ctx, &e, "(suite)"))?;
     let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
 
-    let name = raw.name.get_ref().trim().to_string();
-    if name.is_empty() {
-        return Err(ctx.err(raw.name.span(), "name", "the suite needs a non-empty name"));
+    let name = raw.name.get_ref().clone();
+    if let Err(why) = check_name(&name) {
+        return Err(ctx.err(
+            raw.name.span(),
+            "name",
+            format!(
+                "{}: {why} (the suite name is the results folder's name)",
+                quoted(&name)
+            ),
+        ));
     }
     let seed = *raw.seed.get_ref();
     if seed < 0 {
@@ -946,15 +953,43 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
             Spec::Open(r) => r.id.clone(),
         };
         let tl = format!("task `{id}`");
-        if !valid_id(&id) {
+        // A [[task]]'s own `id` line; a grid's table (its ids are made from
+        // `data` and `models`).
+        let id_span = if label.starts_with("task #") {
+            key_span(ctx.text, &span, "id")
+        } else {
+            span.clone()
+        };
+        if let Err(why) = check_name(&id) {
             return Err(ctx.err(
-                span,
+                id_span,
                 &format!("{label}.id"),
-                format!("`{id}`: an id is a non-empty word of letters, digits, '-', '_' or '.'"),
+                format!("{}: {why}", quoted(&id)),
             ));
         }
-        if tasks.iter().any(|x| x.id == id) {
-            return Err(ctx.err(span, &format!("{tl}.id"), "this id is used by another task"));
+        if RESERVED_TASK_IDS
+            .iter()
+            .any(|r| r.eq_ignore_ascii_case(&id))
+        {
+            return Err(ctx.err(
+                id_span,
+                &format!("{label}.id"),
+                format!(
+                    "`{id}` is reserved: the report's figures `figures/{}--<metric>.svg` would be overwritten; choose another task id",
+                    id.to_ascii_lowercase()
+                ),
+            ));
+        }
+        if let Some(other) = tasks.iter().find(|x| x.id.eq_ignore_ascii_case(&id)) {
+            let why = if other.id == id {
+                "this id is used by another task".to_string()
+            } else {
+                format!(
+                    "differs from task `{}` only in letter case; their figure files would clash on case-insensitive file systems",
+                    other.id
+                )
+            };
+            return Err(ctx.err(id_span, &format!("{tl}.id"), why));
         }
         let score_kind = match &spec {
             Spec::File(r) => r.score_kind,
@@ -1280,23 +1315,95 @@ fn take_id(
     span: std::ops::Range<usize>,
     label: &str,
 ) -> Result<String, SuiteError> {
+    let id_span = key_span(ctx.text, &span, "id");
     match table.remove("id") {
-        Some(toml::Value::String(s)) if valid_id(&s) => Ok(s),
+        Some(toml::Value::String(s)) => match check_name(&s) {
+            Ok(()) => Ok(s),
+            Err(why) => Err(ctx.err(
+                id_span,
+                &format!("{label}.id"),
+                format!("{}: {why}", quoted(&s)),
+            )),
+        },
         Some(v) => Err(ctx.err(
-            span,
+            id_span,
             &format!("{label}.id"),
-            format!("{v}: an id is a non-empty word of letters, digits, '-', '_' or '.'"),
+            format!("{v}: an id is a string"),
         )),
         None => Err(ctx.err(span, label, "missing key `id`")),
     }
 }
 
-/// Ids are used in file names and CSV cells: keep them plain.
+/// The longest suite name or id.
+pub const MAX_NAME_LEN: usize = 64;
+
+/// Task ids that would give a task's figure the name of a report-wide figure
+/// (`figures/ranks--<metric>.svg`, `figures/thresholds--<metric>.svg`).
+pub const RESERVED_TASK_IDS: [&str; 2] = ["ranks", "thresholds"];
+
+/// The rule for names that become file and folder names (the suite name,
+/// task, method and model ids): 1 to [`MAX_NAME_LEN`] ASCII letters, digits,
+/// `-`, `_` or `.`, starting with a letter or digit (so never `.`, `..`, a
+/// hidden file or something that reads like an option). `Err` says why not.
+pub fn check_name(s: &str) -> Result<(), String> {
+    const RULE: &str =
+        "use 1 to 64 ASCII letters, digits, '-', '_' or '.', starting with a letter or digit";
+    if s.is_empty() {
+        return Err(format!("empty; {RULE}"));
+    }
+    let n = s.chars().count();
+    if n > MAX_NAME_LEN {
+        return Err(format!("{n} characters is too long; {RULE}"));
+    }
+    if let Some(c) = s
+        .chars()
+        .find(|c| !(c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.')))
+    {
+        return Err(format!("the character {:?} is not allowed; {RULE}", c));
+    }
+    if !s.starts_with(|c: char| c.is_ascii_alphanumeric()) {
+        return Err(format!("must start with a letter or digit; {RULE}"));
+    }
+    Ok(())
+}
+
+/// Ids are used in file names and CSV cells: keep them plain ([`check_name`]).
 pub fn valid_id(s: &str) -> bool {
-    !s.is_empty()
-        && s.len() <= 64
-        && s.chars()
-            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'))
+    check_name(s).is_ok()
+}
+
+/// A value for a message: escaped, and cut after 40 characters.
+fn quoted(s: &str) -> String {
+    let n = s.chars().count();
+    if n > 40 {
+        let head: String = s.chars().take(40).collect();
+        format!("`{}…` ({n} characters)", head.escape_debug())
+    } else {
+        format!("`{}`", s.escape_debug())
+    }
+}
+
+/// Where the value of `key = ...` starts in the table whose header or body
+/// starts at `span` (so a message points at that line), or `span` itself when
+/// it is not found before the next table header.
+fn key_span(text: &str, span: &std::ops::Range<usize>, key: &str) -> std::ops::Range<usize> {
+    let start = span.start.min(text.len());
+    let mut offset = start;
+    for (i, line) in text[start..].split_inclusive('\n').enumerate() {
+        let trimmed = line.trim_start();
+        if i > 0 && trimmed.starts_with('[') {
+            break;
+        }
+        if let Some(rest) = trimmed.strip_prefix(key) {
+            let after = rest.trim_start();
+            if let Some(value) = after.strip_prefix('=') {
+                let pos = offset + line.len() - value.trim_start().len();
+                return pos..pos;
+            }
+        }
+        offset += line.len();
+    }
+    span.clone()
 }
 
 #[cfg(test)]
@@ -1309,5 +1416,33 @@ mod tests {
         assert_eq!(line_col(t, 0), (1, 1));
         assert_eq!(line_col(t, 6), (2, 1));
         assert_eq!(line_col(t, 8), (2, 3));
+    }
+
+    #[test]
+    fn names_that_become_paths_are_plain() {
+        for ok in ["open-uci", "a", "letter-am.naive-bayes", "x_1", "9lives"] {
+            assert_eq!(check_name(ok), Ok(()), "{ok}");
+        }
+        let long = "x".repeat(MAX_NAME_LEN + 1);
+        for bad in [
+            "", ".", "..", ".hidden", "-flag", "../../x", "/abs", "a/b", "a\\b", "a\0b", "a b",
+            "é", &long,
+        ] {
+            assert!(check_name(bad).is_err(), "{bad:?} passed");
+        }
+        assert!(check_name(&"x".repeat(MAX_NAME_LEN)).is_ok());
+    }
+
+    #[test]
+    fn key_span_finds_the_key_of_its_own_table() {
+        let t = "[[task]]\nscores = \"a\"\n  id = \"x\"\n[[task]]\nid = \"y\"\n";
+        let s = key_span(t, &(0..8), "id");
+        assert_eq!(line_col(t, s.start), (3, 8));
+        // Not found before the next header: the table's own span.
+        let s = key_span(t, &(0..8), "data");
+        assert_eq!(s, 0..8);
+        // `ids` is another key.
+        let t = "[[model]]\nids = 1\nid = \"m\"\n";
+        assert_eq!(line_col(t, key_span(t, &(0..9), "id").start), (3, 6));
     }
 }
