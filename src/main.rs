@@ -215,6 +215,10 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
         }
         Command::Apply(args) => {
             let s = plumbline::cli::apply::run(&args)?;
+            if s.closed {
+                // The reader of a pipe went away (`| head`): a filter's quiet end.
+                return Ok(());
+            }
             if let Some(w) = s.warning() {
                 eprintln!("warning: {w}");
             }

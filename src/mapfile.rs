@@ -73,11 +73,9 @@ pub struct MapContent {
 /// A map file that cannot be used.
 #[derive(Debug, thiserror::Error)]
 pub enum MapFileError {
-    #[error("{path}: cannot read the map file: {source}")]
-    Io {
-        path: String,
-        source: std::io::Error,
-    },
+    // The I/O error is part of the message, not a `source`: shown once.
+    #[error("{path}: cannot read the map file: {error}")]
+    Io { path: String, error: std::io::Error },
     #[error("{path}: not a valid map file: {message} (truncated or not JSON)")]
     Json { path: String, message: String },
     #[error("{path}: not a plumbline map file (`format` is {found}, expected \"{FORMAT}\")")]
@@ -279,9 +277,9 @@ pub fn from_bytes(path: &str, bytes: &[u8]) -> Result<LoadedMap, MapFileError> {
 /// Read and check a map file.
 pub fn load(path: &Path) -> Result<LoadedMap, MapFileError> {
     let name = path.display().to_string();
-    let bytes = std::fs::read(path).map_err(|e| MapFileError::Io {
+    let bytes = std::fs::read(path).map_err(|error| MapFileError::Io {
         path: name.clone(),
-        source: e,
+        error,
     })?;
     from_bytes(&name, &bytes)
 }

@@ -10,12 +10,19 @@
 //! summary follow the map's own prediction rule ([`range_rule`]) and are
 //! counted in a warning. A score that is not a finite number (or, for
 //! probability maps, not in [0, 1]) stops the command with the file, row and
-//! value; the output goes through a temporary file beside the target and is
-//! renamed into place only when every row is written, so nothing partial is
-//! left (with `--out -` rows already written to stdout cannot be taken back).
+//! value; a regular output file goes through a staging file beside the target
+//! ([`super::AtomicFile`]) and is renamed into place only when every row is
+//! written, so nothing partial is left.
+//!
+//! Stdout (`-`), a FIFO or a character device is written in place, streamed,
+//! never renamed over (rows already written cannot be taken back); a directory
+//! is refused before any work. When the reader of such a pipe goes away (`|
+//! head`), the command stops quietly with success, the filter's convention. A
+//! failed write (full disk, file-size limit) stops it with the target's name,
+//! a non-zero exit and no staging file; the two pipeline stages always finish.
 
 use std::io::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use anyhow::{bail, Context, Result};
 
@@ -52,6 +59,9 @@ pub struct ApplySummary {
     pub score_min: f64,
     pub score_max: f64,
     pub rule: &'static str,
+    /// The output was a pipe (stdout or a FIFO) whose reader went away before
+    /// every row was written; the command stopped there without an error.
+    pub closed: bool,
 }
 
 impl ApplySummary {
@@ -107,11 +117,73 @@ fn push_float(buf: &mut ryu::Buffer, v: f64) -> &str {
     }
 }
 
+/// Where `--out` points, decided before any work.
+enum Target {
+    /// `-`: standard output, streamed.
+    Stdout,
+    /// A FIFO or a character device: opened and written in place, streamed;
+    /// never renamed over (it would stop being a FIFO or a device).
+    Special,
+    /// A regular file or a new name: written through a staging file and
+    /// renamed into place when every row is written.
+    Regular,
+}
+
+impl Target {
+    fn of(out: &Path) -> Result<Target> {
+        if out.as_os_str() == "-" {
+            return Ok(Target::Stdout);
+        }
+        let shown = out.display();
+        let meta = match std::fs::metadata(out) {
+            Ok(m) => m,
+            // A new file, or one the staging step reports on.
+            Err(_) => return Ok(Target::Regular),
+        };
+        let ft = meta.file_type();
+        if ft.is_dir() {
+            bail!("{shown}: is a directory; --out needs a file name (e.g. {shown}/calibrated.csv) or - for stdout");
+        }
+        if ft.is_file() {
+            return Ok(Target::Regular);
+        }
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::FileTypeExt;
+            if ft.is_fifo() || ft.is_char_device() {
+                return Ok(Target::Special);
+            }
+        }
+        bail!("{shown}: not a regular file, FIFO or character device; --out needs a file name or - for stdout")
+    }
+}
+
+/// Why the pipeline stopped early.
+enum Stop {
+    /// Writing the output failed (the csv writer's error, as an I/O error).
+    Write(std::io::Error),
+    /// Reading or checking the input failed (the message names file and row).
+    Read(anyhow::Error),
+}
+
+fn io_of(e: csv::Error) -> std::io::Error {
+    match e.into_kind() {
+        csv::ErrorKind::Io(e) => e,
+        other => std::io::Error::other(format!("{other:?}")),
+    }
+}
+
 /// Run `plumbline apply`.
+///
+/// Output to stdout, a FIFO or a character device is streamed in place; when
+/// its reader goes away (a closed pipe) the command stops quietly and returns
+/// with [`ApplySummary::closed`] set, the filter's convention (`| head`).
 pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
+    let target = Target::of(&args.out)?;
+    super::guard_signals();
     let loaded = mapfile::load(&args.map)?;
     let content = &loaded.content;
-    let map = &loaded.map;
+    let map = loaded.map.as_ref();
     let kind = content.score_kind;
     let mut src = RowSource::open(&args.scores)?;
     let column = args
@@ -132,41 +204,42 @@ pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
         );
     }
 
-    let to_stdout = args.out.as_os_str() == "-";
-    let atomic = if to_stdout {
-        None
-    } else {
-        Some(super::AtomicFile::create(&args.out)?)
+    let out_name = match target {
+        Target::Stdout => "<stdout>".to_string(),
+        _ => args.out.display().to_string(),
     };
-    let sink = match &atomic {
-        None => Sink::Stdout(super::stdout()),
-        Some(f) => {
-            let w = std::io::BufWriter::with_capacity(1 << 16, f.writer()?);
-            if args.out.extension().is_some_and(|e| e == "gz") {
-                Sink::Gz(flate2::write::GzEncoder::new(
-                    w,
-                    flate2::Compression::default(),
-                ))
-            } else {
-                Sink::File(w)
-            }
+    let gz = args.out.extension().is_some_and(|e| e == "gz");
+    let file_sink = |f: std::fs::File| {
+        let w = std::io::BufWriter::with_capacity(1 << 16, f);
+        if gz {
+            Sink::Gz(flate2::write::GzEncoder::new(
+                w,
+                flate2::Compression::default(),
+            ))
+        } else {
+            Sink::File(w)
         }
     };
-    let out_name = if to_stdout {
-        "<stdout>".to_string()
-    } else {
-        args.out.display().to_string()
+    let mut atomic = None;
+    let sink = match target {
+        Target::Stdout => Sink::Stdout(super::stdout()),
+        Target::Special => file_sink(
+            std::fs::OpenOptions::new()
+                .write(true)
+                .open(&args.out)
+                .with_context(|| format!("{out_name}: cannot open for writing"))?,
+        ),
+        Target::Regular => {
+            let f = super::AtomicFile::create(&args.out)?;
+            let w = f.writer()?;
+            atomic = Some(f);
+            file_sink(w)
+        }
     };
+    let streamed = !matches!(target, Target::Regular);
     let mut wtr = csv::WriterBuilder::new()
         .buffer_capacity(1 << 16)
         .from_writer(sink);
-    let werr = |e: csv::Error| anyhow::anyhow!("{out_name}: cannot write: {e}");
-    let mut header = csv::ByteRecord::new();
-    for h in src.headers() {
-        header.push_field(h.as_bytes());
-    }
-    header.push_field(args.column.as_bytes());
-    wtr.write_byte_record(&header).map_err(werr)?;
 
     let (lo, hi) = (content.training.score_min, content.training.score_max);
     let mut summary = ApplySummary {
@@ -176,49 +249,97 @@ pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
         score_min: lo,
         score_max: hi,
         rule: range_rule(&content.fitted),
+        closed: false,
     };
+    let mut header = csv::ByteRecord::new();
+    for h in src.headers() {
+        header.push_field(h.as_bytes());
+    }
+    header.push_field(args.column.as_bytes());
+
     // Two stages on two threads, batches of rows passed between them: the
     // reader parses the CSV (or decodes Parquet) and the scores; this thread
     // predicts, formats and writes. Batches are recycled, so memory stays at a
-    // few batches whatever the file size.
+    // few batches whatever the file size. Each stage owns its ends of both
+    // channels, so when either stops (done or failed) the other's next send or
+    // receive ends too: the writer stops on a closed `full` channel, the
+    // reader on a closed `empty` one or a failed send. The reader is always
+    // joined, and the first error is the one reported.
     let (full_tx, full_rx) = std::sync::mpsc::sync_channel::<Result<Batch>>(2);
     let (empty_tx, empty_rx) = std::sync::mpsc::sync_channel::<Batch>(4);
     for _ in 0..3 {
         empty_tx.send(Batch::default()).ok();
     }
-    let mut buf = ryu::Buffer::new();
-    let written: Result<()> = std::thread::scope(|scope| {
-        scope.spawn(move || read_batches(&mut src, si, kind, full_tx, empty_rx));
-        for batch in full_rx {
-            let mut batch = batch?;
-            let n = batch.len;
-            batch.out.resize(n, 0.0);
-            map.predict(&batch.scores[..n], &mut batch.out[..n]);
-            for i in 0..n {
-                let s = batch.scores[i];
-                summary.below += (s < lo) as u64;
-                summary.above += (s > hi) as u64;
-                let rec = &mut batch.records[i];
-                rec.push_field(push_float(&mut buf, batch.out[i]).as_bytes());
-                wtr.write_byte_record(rec).map_err(werr)?;
-            }
-            summary.rows += n as u64;
-            // The reader may have finished already; the rows still queued
-            // are written all the same.
-            empty_tx.send(batch).ok();
-        }
-        Ok(())
+    let outcome: std::result::Result<(), Stop> = std::thread::scope(|scope| {
+        let reader = scope.spawn(move || read_batches(&mut src, si, kind, full_tx, empty_rx));
+        let written = wtr
+            .write_byte_record(&header)
+            .map_err(|e| Stop::Write(io_of(e)))
+            .and_then(|()| write_batches(map, &mut wtr, &mut summary, full_rx, empty_tx));
+        let joined = reader.join();
+        written?;
+        joined.map_err(|_| {
+            Stop::Read(anyhow::anyhow!(
+                "{}: the reader stopped unexpectedly",
+                args.scores.display()
+            ))
+        })
     });
-    written?;
-    let sink = wtr
-        .into_inner()
-        .map_err(|e| anyhow::anyhow!("{out_name}: cannot write: {}", e.error()))?;
-    sink.finish()
-        .with_context(|| format!("{out_name}: cannot write"))?;
+    let finished = outcome.and_then(|()| {
+        wtr.into_inner()
+            .map_err(|e| Stop::Write(e.into_error()))?
+            .finish()
+            .map_err(Stop::Write)
+    });
+    match finished {
+        Ok(()) => {}
+        Err(Stop::Write(e)) if streamed && e.kind() == std::io::ErrorKind::BrokenPipe => {
+            summary.closed = true;
+            return Ok(summary);
+        }
+        // The staging file goes with `atomic` when this returns.
+        Err(Stop::Write(e)) => bail!("{out_name}: cannot write: {e}"),
+        Err(Stop::Read(e)) => return Err(e),
+    }
     if let Some(f) = atomic {
         f.commit()?;
     }
     Ok(summary)
+}
+
+/// The writer stage: predict, format and write every batch the reader sends,
+/// handing each batch back for reuse. Returns at the end of the input, at the
+/// reader's error or at the first failed write; either way the channel ends it
+/// owns are dropped on return, which ends the reader.
+fn write_batches<W: Write>(
+    map: &dyn crate::calibrate::FittedMap,
+    wtr: &mut csv::Writer<W>,
+    summary: &mut ApplySummary,
+    full: std::sync::mpsc::Receiver<Result<Batch>>,
+    empty: std::sync::mpsc::SyncSender<Batch>,
+) -> std::result::Result<(), Stop> {
+    let (lo, hi) = (summary.score_min, summary.score_max);
+    let mut buf = ryu::Buffer::new();
+    for batch in full {
+        let mut batch = batch.map_err(Stop::Read)?;
+        let n = batch.len;
+        batch.out.resize(n, 0.0);
+        map.predict(&batch.scores[..n], &mut batch.out[..n]);
+        for i in 0..n {
+            let s = batch.scores[i];
+            summary.below += (s < lo) as u64;
+            summary.above += (s > hi) as u64;
+            let rec = &mut batch.records[i];
+            rec.push_field(push_float(&mut buf, batch.out[i]).as_bytes());
+            wtr.write_byte_record(rec)
+                .map_err(|e| Stop::Write(io_of(e)))?;
+        }
+        summary.rows += n as u64;
+        // The reader may have finished already; the rows still queued are
+        // written all the same.
+        empty.send(batch).ok();
+    }
+    Ok(())
 }
 
 /// Rows handed from the reader to the writer.

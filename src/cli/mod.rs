@@ -8,33 +8,103 @@ pub mod apply;
 pub mod diagnose;
 pub mod fit;
 
+use std::ffi::{OsStr, OsString};
 use std::fs::File;
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
+use std::sync::{Mutex, MutexGuard};
 
-use anyhow::{Context, Result};
+use anyhow::{bail, Context, Result};
 
-/// A file written through a temporary file beside its target (`.NAME.partial`)
-/// and renamed into place by [`AtomicFile::commit`]; dropped uncommitted, the
-/// temporary file is removed, so a failed command leaves nothing behind.
+/// A file written through a staging file beside its target and renamed into
+/// place by [`AtomicFile::commit`]; dropped uncommitted, the staging file is
+/// removed, so a failed command leaves nothing behind. An interrupt (SIGINT,
+/// SIGTERM, SIGHUP) removes it too ([`guard_signals`]); after a SIGKILL or a
+/// power cut the next run for the same target reuses (truncates) the same
+/// staging name, so at most one stale staging file per target can exist.
+///
+/// The staging name is `.NAME.partial`, shortened for long names to
+/// `.PREFIX~HASH.partial` ([`staging_name`]) so that every name the file
+/// system accepts as a target also works as a staging name. Messages name the
+/// target, never the staging file.
 pub struct AtomicFile {
     tmp: PathBuf,
     target: PathBuf,
     file: Option<File>,
 }
 
+/// Longest target name (bytes) staged as `.NAME.partial`; longer names are
+/// cut to this many bytes and marked with a hash of the whole name. 255 bytes
+/// is the usual file-name limit; `.`, `~`, 16 hex digits and `.partial` fit
+/// beside 200 bytes.
+const STAGING_PREFIX_MAX: usize = 200;
+
+/// The staging file name for a target file name (see [`AtomicFile`]).
+pub fn staging_name(name: &OsStr) -> OsString {
+    let bytes = name.as_encoded_bytes();
+    if bytes.len() <= STAGING_PREFIX_MAX {
+        let mut s = OsString::from(".");
+        s.push(name);
+        s.push(".partial");
+        return s;
+    }
+    use sha2::Digest;
+    let digest = sha2::Sha256::digest(bytes);
+    let hash: String = digest[..8].iter().map(|b| format!("{b:02x}")).collect();
+    // Cut on a character boundary when the name is text; an arbitrary byte
+    // name is cut at any byte.
+    let prefix = match name.to_str() {
+        Some(text) => {
+            let mut cut = STAGING_PREFIX_MAX;
+            while !text.is_char_boundary(cut) {
+                cut -= 1;
+            }
+            OsString::from(&text[..cut])
+        }
+        None => os_from_bytes(&bytes[..STAGING_PREFIX_MAX]),
+    };
+    let mut s = OsString::from(".");
+    s.push(prefix);
+    s.push(format!("~{hash}.partial"));
+    s
+}
+
+#[cfg(unix)]
+fn os_from_bytes(b: &[u8]) -> OsString {
+    use std::os::unix::ffi::OsStrExt;
+    OsStr::from_bytes(b).to_os_string()
+}
+
+#[cfg(not(unix))]
+fn os_from_bytes(b: &[u8]) -> OsString {
+    OsString::from(String::from_utf8_lossy(b).into_owned())
+}
+
 impl AtomicFile {
     pub fn create(target: &Path) -> Result<AtomicFile> {
+        guard_signals();
+        let shown = target.display();
+        if target.is_dir() {
+            bail!("{shown}: is a directory; give a file name to write");
+        }
         let name = target
             .file_name()
-            .with_context(|| format!("{}: not a file name", target.display()))?;
+            .with_context(|| format!("{shown}: not a file name"))?;
         let dir = match target.parent() {
             Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
             _ => PathBuf::from("."),
         };
-        let tmp = dir.join(format!(".{}.partial", name.to_string_lossy()));
-        let file =
-            File::create(&tmp).with_context(|| format!("{}: cannot create", tmp.display()))?;
+        let tmp = dir.join(staging_name(name));
+        // Registered before it exists, so an interrupt during the creation
+        // still removes it.
+        staged().push(tmp.clone());
+        let file = match File::create(&tmp) {
+            Ok(f) => f,
+            Err(e) => {
+                unstage(&tmp);
+                return Err(e).with_context(|| format!("{shown}: cannot create"));
+            }
+        };
         Ok(AtomicFile {
             tmp,
             target: target.to_path_buf(),
@@ -46,17 +116,23 @@ impl AtomicFile {
     pub fn writer(&self) -> Result<File> {
         let f = self.file.as_ref().context("file already committed")?;
         f.try_clone()
-            .with_context(|| format!("{}: cannot open for writing", self.tmp.display()))
+            .with_context(|| format!("{}: cannot open for writing", self.target.display()))
     }
 
     /// Flush to disk and rename into place.
     pub fn commit(mut self) -> Result<()> {
-        if let Some(f) = self.file.take() {
+        if let Some(f) = self.file.as_ref() {
             f.sync_all()
-                .with_context(|| format!("{}: cannot write", self.tmp.display()))?;
+                .with_context(|| format!("{}: cannot write", self.target.display()))?;
         }
+        // The rename happens under the lock the signal thread takes, so an
+        // interrupt either removes the staging file before it or finds it
+        // gone (renamed) after it.
+        let mut staged = staged();
         std::fs::rename(&self.tmp, &self.target)
             .with_context(|| format!("{}: cannot move into place", self.target.display()))?;
+        self.file = None;
+        staged.retain(|p| p != &self.tmp);
         Ok(())
     }
 }
@@ -65,7 +141,60 @@ impl Drop for AtomicFile {
     fn drop(&mut self) {
         if self.file.take().is_some() {
             let _ = std::fs::remove_file(&self.tmp);
+            unstage(&self.tmp);
         }
+    }
+}
+
+/// Staging files of this process not yet committed or removed.
+static STAGED: Mutex<Vec<PathBuf>> = Mutex::new(Vec::new());
+
+fn staged() -> MutexGuard<'static, Vec<PathBuf>> {
+    STAGED
+        .lock()
+        .unwrap_or_else(|poisoned| poisoned.into_inner())
+}
+
+fn unstage(tmp: &Path) {
+    staged().retain(|p| p != tmp);
+}
+
+/// Handle the signals a writing command must not die of silently (once per
+/// process; every [`AtomicFile`] calls it):
+/// - SIGINT, SIGTERM, SIGHUP remove the uncommitted staging files, then end
+///   the process as the signal would have (the parent sees the same signal);
+/// - SIGXFSZ (a file-size limit) is caught and dropped, so the write that
+///   crosses the limit fails with "File too large" and the command reports it
+///   and cleans up instead of being killed with its staging file left behind.
+pub fn guard_signals() {
+    #[cfg(unix)]
+    {
+        static ONCE: std::sync::Once = std::sync::Once::new();
+        ONCE.call_once(|| {
+            use signal_hook::consts::{SIGHUP, SIGINT, SIGTERM, SIGXFSZ};
+            let Ok(mut signals) =
+                signal_hook::iterator::Signals::new([SIGINT, SIGTERM, SIGHUP, SIGXFSZ])
+            else {
+                return;
+            };
+            let spawned = std::thread::Builder::new()
+                .name("signals".into())
+                .spawn(move || {
+                    for sig in signals.forever() {
+                        if sig == SIGXFSZ {
+                            continue;
+                        }
+                        // The lock is kept: no commit renames after this.
+                        let staged = staged();
+                        for p in staged.iter() {
+                            let _ = std::fs::remove_file(p);
+                        }
+                        let _ = signal_hook::low_level::emulate_default_handler(sig);
+                        std::process::exit(128 + sig);
+                    }
+                });
+            drop(spawned);
+        });
     }
 }
 
@@ -81,4 +210,32 @@ pub fn write_atomic(target: &Path, bytes: &[u8]) -> Result<()> {
 /// Standard output, buffered, for `--out -`.
 pub fn stdout() -> io::BufWriter<io::Stdout> {
     io::BufWriter::with_capacity(1 << 16, io::stdout())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn staging_names_fit_the_name_limit_and_stay_distinct() {
+        assert_eq!(
+            staging_name(OsStr::new("out.csv.gz")),
+            OsStr::new(".out.csv.gz.partial")
+        );
+        let long_a = format!("{}a.csv", "x".repeat(250));
+        let long_b = format!("{}b.csv", "x".repeat(250));
+        let (a, b) = (
+            staging_name(OsStr::new(&long_a)),
+            staging_name(OsStr::new(&long_b)),
+        );
+        assert!(a.len() <= 255 && b.len() <= 255, "{}", a.len());
+        assert_ne!(a, b, "same prefix, different names");
+        assert_eq!(a, staging_name(OsStr::new(&long_a)), "the same every run");
+        let a = a.to_str().unwrap();
+        assert!(a.starts_with(".xxx") && a.ends_with(".partial"), "{a}");
+        // A multi-byte character across the cut is not split.
+        let wide = "é".repeat(120);
+        let s = staging_name(OsStr::new(&wide));
+        assert!(s.to_str().is_some() && s.len() <= 255);
+    }
 }

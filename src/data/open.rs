@@ -37,11 +37,11 @@ pub const MANIFEST_FORMAT: u32 = 1;
 
 #[derive(Debug, thiserror::Error)]
 pub enum OpenDataError {
-    #[error("cannot read {path}: {source}")]
+    // The I/O error is part of the message, not a `source`: shown once.
+    #[error("cannot read {path}: {error}")]
     Io {
         path: PathBuf,
-        #[source]
-        source: std::io::Error,
+        error: std::io::Error,
     },
     #[error("manifest {path}: {message}")]
     Manifest { path: PathBuf, message: String },
@@ -183,9 +183,9 @@ fn manifest_error(path: &Path, message: impl Into<String>) -> OpenDataError {
 /// and each task's expected positives equal to the sum of its classes' counts.
 pub fn read_manifest(data_dir: &Path) -> Result<Manifest, OpenDataError> {
     let path = data_dir.join(MANIFEST_FILE);
-    let text = std::fs::read_to_string(&path).map_err(|source| OpenDataError::Io {
+    let text = std::fs::read_to_string(&path).map_err(|error| OpenDataError::Io {
         path: path.clone(),
-        source,
+        error,
     })?;
     let manifest: Manifest =
         toml::from_str(&text).map_err(|e| manifest_error(&path, e.to_string()))?;
@@ -382,9 +382,9 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
 /// Read a shipped file and check its SHA-256 against the manifest.
 fn read_verified(data_dir: &Path, d: &DatasetEntry) -> Result<(PathBuf, Vec<u8>), OpenDataError> {
     let file = data_dir.join(d.file.as_deref().expect("manifest checked"));
-    let bytes = std::fs::read(&file).map_err(|source| OpenDataError::Io {
+    let bytes = std::fs::read(&file).map_err(|error| OpenDataError::Io {
         path: file.clone(),
-        source,
+        error,
     })?;
     let found = sha256_hex(&bytes);
     let expected = d

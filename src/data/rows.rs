@@ -78,7 +78,7 @@ pub struct RowSource {
 fn io_err(path: &str, e: std::io::Error) -> ScoreFileError {
     ScoreFileError::Io {
         path: path.to_string(),
-        source: e,
+        error: e,
     }
 }
 

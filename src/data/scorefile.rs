@@ -51,11 +51,9 @@ impl Origin {
 /// A problem with a score file.
 #[derive(Debug, thiserror::Error)]
 pub enum ScoreFileError {
-    #[error("{path}: cannot read: {source}")]
-    Io {
-        path: String,
-        source: std::io::Error,
-    },
+    // The I/O error is part of the message, not a `source`: shown once.
+    #[error("{path}: cannot read: {error}")]
+    Io { path: String, error: std::io::Error },
     #[error("{path}: the file is empty (no header row)")]
     NoHeader { path: String },
     #[error("{path}: the file has a header but no data rows")]
@@ -347,7 +345,7 @@ pub(crate) fn csv_error(path: &str, e: csv::Error) -> ScoreFileError {
         },
         csv::ErrorKind::Io(err) => ScoreFileError::Io {
             path: path.to_string(),
-            source: std::io::Error::new(err.kind(), err.to_string()),
+            error: std::io::Error::new(err.kind(), err.to_string()),
         },
         _ => ScoreFileError::Csv {
             path: path.to_string(),

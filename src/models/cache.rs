@@ -40,10 +40,11 @@ const FORMAT: u64 = 1;
 /// Why a cache file could not be used or written.
 #[derive(Debug, thiserror::Error)]
 pub enum CacheError {
-    #[error("{path}: {source}")]
+    // The I/O error is part of the message, not a `source`: shown once.
+    #[error("{path}: {error}")]
     Io {
         path: PathBuf,
-        source: std::io::Error,
+        error: std::io::Error,
     },
     #[error("{path}: {reason}")]
     Corrupt { path: PathBuf, reason: String },
@@ -228,7 +229,7 @@ pub fn read(dir: &Path, key: &[u8; 32]) -> Result<Option<(ScorePool, PoolInfo)>,
     let bytes = match fs::read(&p) {
         Ok(b) => b,
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
-        Err(source) => return Err(CacheError::Io { path: p, source }),
+        Err(error) => return Err(CacheError::Io { path: p, error }),
     };
     decode(key, &bytes)
         .map(Some)
@@ -244,7 +245,7 @@ pub fn write(
 ) -> Result<(), CacheError> {
     let io = |path: &Path| {
         let path = path.to_path_buf();
-        move |source| CacheError::Io { path, source }
+        move |error| CacheError::Io { path, error }
     };
     fs::create_dir_all(dir).map_err(io(dir))?;
     let target = path(dir, key);
@@ -262,11 +263,11 @@ pub fn write(
         f.sync_all()?;
         fs::rename(&tmp, &target)
     })();
-    if let Err(source) = result {
+    if let Err(error) = result {
         let _ = fs::remove_file(&tmp);
         return Err(CacheError::Io {
             path: target,
-            source,
+            error,
         });
     }
     Ok(())
