@@ -1,30 +1,68 @@
 #!/usr/bin/env python3
-"""Turn the output of `cargo bench --bench coverage` into the Markdown tables of
-docs/statistics.md.
+"""Turn the coverage study's table (`docs/coverage/table.csv`, written by
+`cargo bench --bench coverage -- --out docs/coverage`) into the Markdown
+tables of docs/statistics.md.
 
-Usage: cargo bench -q --bench coverage -- [OPTIONS] | python3 scripts/coverage_markdown.py [INTERVAL ...]
+Usage: python3 scripts/coverage_markdown.py docs/coverage/table.csv [INTERVAL]
 
-With INTERVAL names (e.g. `decomposed-skew decomposed`) only those rows are
-kept; the default interval's coverage is set in bold. Standard library only.
+One table per population for INTERVAL (default: the default interval
+`decomposed-skew`): a row per (method − reference, metric), a column per
+calibration size, the coverage of the nominal interval in percent; cells
+outside 93–97% are set in bold. Then a summary line per interval kind.
+Standard library only.
 """
+import csv
 import sys
+from collections import OrderedDict
 
 DEFAULT = "decomposed-skew"
 
 
 def main() -> None:
-    keep = set(sys.argv[1:])
-    print("| metric | n | interval | truth θ(n) | ± | coverage | missed low | missed high | half | rms_se | rmse |")
-    print("|---|---|---|---|---|---|---|---|---|---|---|")
-    for line in sys.stdin:
-        f = line.split()
-        if len(f) != 13 or f[0] not in ("brier", "log_loss") or not f[1].isdigit():
-            continue
-        metric, n, kind, truth, truth_se, cov, _cov_se, low, high, half, _bias, rms_se, rmse = f
-        if keep and kind not in keep:
-            continue
-        cov = f"**{cov}**" if kind == DEFAULT else cov
-        print(f"| {metric} | {n} | `{kind}` | {truth} | {truth_se} | {cov} | {low} | {high} | {half} | {rms_se} | {rmse} |")
+    if len(sys.argv) < 2:
+        sys.exit(__doc__)
+    kind = sys.argv[2] if len(sys.argv) > 2 else DEFAULT
+    with open(sys.argv[1], newline="") as f:
+        rows = list(csv.DictReader(f))
+    if not rows:
+        sys.exit(f"{sys.argv[1]}: no rows")
+    reps = sorted({int(r["replicates"]) for r in rows})
+    sizes = sorted({int(r["size"]) for r in rows})
+    pops = list(OrderedDict.fromkeys(r["population"] for r in rows))
+    print(f"Interval `{kind}`, {', '.join(map(str, reps))} replicates per cell; "
+          "coverage in percent, **bold** outside 93–97%.\n")
+    for pop in pops:
+        print(f"#### Population `{pop}`\n")
+        print("| method − reference | metric | " + " | ".join(f"n = {n}" for n in sizes) + " |")
+        print("|---|---|" + "---|" * len(sizes))
+        cells = OrderedDict()
+        for r in rows:
+            if r["population"] != pop or r["interval"] != kind:
+                continue
+            key = (r["method"], r["reference"], r["metric"])
+            cov = int(r["covered"]) / int(r["replicates"])
+            cells.setdefault(key, {})[int(r["size"])] = cov
+        for (m, ref, metric), by in cells.items():
+            vals = []
+            for n in sizes:
+                c = by.get(n)
+                if c is None:
+                    vals.append("–")
+                elif 0.93 <= c <= 0.97:
+                    vals.append(f"{100 * c:.1f}")
+                else:
+                    vals.append(f"**{100 * c:.1f}**")
+            print(f"| {m} − {ref} | {metric} | " + " | ".join(vals) + " |")
+        print()
+    print("| interval | cells | below 93% | above 97% | lowest | highest |")
+    print("|---|---|---|---|---|---|")
+    kinds = list(OrderedDict.fromkeys(r["interval"] for r in rows))
+    for k in kinds:
+        cov = [int(r["covered"]) / int(r["replicates"]) for r in rows if r["interval"] == k]
+        below = sum(c < 0.93 for c in cov)
+        above = sum(c > 0.97 for c in cov)
+        name = f"**`{k}`**" if k == kind else f"`{k}`"
+        print(f"| {name} | {len(cov)} | {below} | {above} | {100 * min(cov):.1f}% | {100 * max(cov):.1f}% |")
 
 
 if __name__ == "__main__":

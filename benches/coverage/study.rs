@@ -450,7 +450,14 @@ pub fn template_plan(cfg: &StudyConfig, dir: &Path) -> Result<Plan, String> {
 /// the plan's own rule under a seed of the replicate.
 fn replicate_plan(template: &Plan, cfg: &StudyConfig, pi: usize, rep: usize) -> Plan {
     let mut plan = template.clone();
-    plan.seed = split::mix(cfg.seed, &[TAG_REPL, pi as u64, rep as u64]);
+    plan.seed = split::mix(
+        cfg.seed,
+        &[
+            TAG_REPL,
+            split::fnv1a(cfg.populations[pi].name.as_bytes()),
+            rep as u64,
+        ],
+    );
     let mut r = split::rng(plan.seed);
     let n = cfg.reservoir + cfg.test_rows;
     let (s, y) = cfg.populations[pi].draw(&mut r, n);
