@@ -611,7 +611,10 @@ fn verdicts(paired: &str) -> std::collections::BTreeMap<(String, String), (f64, 
     lines
         .map(|l| {
             let f: Vec<&str> = l.split(',').collect();
-            eprintln!("{} {}: [{}, {}] margin {} {}", f[m], f[k], f[lo], f[hi], f[d], f[v]);
+            eprintln!(
+                "{} {}: [{}, {}] margin {} {}",
+                f[m], f[k], f[lo], f[hi], f[d], f[v]
+            );
             (
                 (f[m].to_string(), f[k].to_string()),
                 (f[d].parse().unwrap(), f[v].to_string()),
@@ -623,7 +626,8 @@ fn verdicts(paired: &str) -> std::collections::BTreeMap<(String, String), (f64, 
 #[test]
 fn verdicts_come_out_as_built() {
     let fx = Fixture::new();
-    let scores = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("suites/courier-data/weather-bayes.csv.gz");
+    let scores =
+        PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("suites/courier-data/weather-bayes.csv.gz");
     let suite = fx.suite(
         "verdicts.toml",
         &VERDICTS.replace("SCORES", &scores.to_string_lossy().replace('\\', "/")),
@@ -648,7 +652,10 @@ fn verdicts_come_out_as_built() {
     // Every format carries the verdict of the smoothed Platt fit.
     let summary = fs::read_to_string(out.join("summary.md")).unwrap();
     assert!(summary.contains("equivalent within the margin"));
-    assert!(summary.contains("] =**"), "no equivalent mark in a task table");
+    assert!(
+        summary.contains("] =**"),
+        "no equivalent mark in a task table"
+    );
     let tex = fs::read_to_string(out.join("tables.tex")).unwrap();
     assert!(tex.contains("] =") && tex.contains("$\\surd$") && tex.contains("$\\times$"));
 
@@ -662,7 +669,10 @@ fn verdicts_come_out_as_built() {
     let smoothed = &v0[&("platt-smoothed".to_string(), "log_loss".to_string())];
     assert_eq!(smoothed.0, 0.0);
     assert_ne!(smoothed.1, "equivalent");
-    assert_eq!(v0[&("beta".to_string(), "log_loss".to_string())].1, "better");
+    assert_eq!(
+        v0[&("beta".to_string(), "log_loss".to_string())].1,
+        "better"
+    );
     // Without the flag, the recorded margin comes back byte for byte.
     bin()
         .args(["report", out.to_str().unwrap()])
