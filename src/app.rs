@@ -182,6 +182,8 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
         confidence: plan.confidence,
         interval: plan.interval.clone(),
         pairs: plan.pairs.clone(),
+        margin: plan.decision.margin,
+        absolute_margins: plan.decision.absolute_margins.clone(),
     }
 }
 
@@ -467,6 +469,8 @@ pub struct ReportArgs {
     pub primary_metric: Option<String>,
     pub confidence: Option<f64>,
     pub interval: Option<String>,
+    /// Relative equivalence margin (share of the reference's mean).
+    pub margin: Option<f64>,
     /// Print this task's table instead of the summary.
     pub task: Option<String>,
 }
@@ -550,6 +554,16 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
     if !(confidence > 0.5 && confidence < 1.0) {
         bail!("--confidence {confidence}: expected a level between 0.5 and 1");
     }
+    let margin = args
+        .margin
+        .or(from_manifest.as_ref().map(|s| s.margin))
+        .unwrap_or(analysis::DEFAULT_MARGIN);
+    if !(margin.is_finite() && (0.0..=suite::MAX_MARGIN).contains(&margin)) {
+        bail!(
+            "--margin {margin}: expected a share of the reference's mean between 0 and {}, e.g. 0.01",
+            suite::MAX_MARGIN
+        );
+    }
     let settings = AnalysisSettings {
         reference,
         primary_metric: primary,
@@ -570,6 +584,11 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         pairs: from_manifest
             .as_ref()
             .map(|s| s.pairs.clone())
+            .unwrap_or_default(),
+        margin,
+        absolute_margins: from_manifest
+            .as_ref()
+            .map(|s| s.absolute_margins.clone())
             .unwrap_or_default(),
     };
     let a = analysis::analyse(&table, &settings);

@@ -111,6 +111,11 @@ nothing.")]
         /// [default: as recorded, else decomposed-skew].
         #[arg(long)]
         interval: Option<String>,
+        /// Equivalence margin as a share of the reference method's mean value
+        /// at each task and size, e.g. 0.01 (docs/statistics.md)
+        /// [default: as recorded, else 0.01].
+        #[arg(long)]
+        margin: Option<f64>,
     },
     /// Fit one method on a score file and save it as a map file.
     Fit(plumbline::cli::fit::FitArgs),
@@ -198,6 +203,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
             primary_metric,
             confidence,
             interval,
+            margin,
         } => {
             let t = app::report_dir(&app::ReportArgs {
                 dir,
@@ -205,6 +211,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 primary_metric,
                 confidence,
                 interval,
+                margin,
                 task,
             })?;
             println!("{t}");

@@ -546,3 +546,209 @@ fn split_column_pins_rows() {
     assert_eq!(manifest["tasks"][0]["reservoir"], 450);
     assert_eq!(manifest["tasks"][0]["test_rows"], 150);
 }
+
+/// Three verdicts built into the data. `weather-bayes` scores come from the
+/// bent map logit q = 0.6 ln s − 1.6 ln(1 − s) + 0.4 (`src/simulate.rs`), which
+/// is exactly a full beta calibration map and not a Platt map. Against Platt
+/// (reference) at n = 2000: beta is correctly specified and clearly better;
+/// the raw scores (identity) are clearly worse; Platt with smoothed targets
+/// changes the fitted map by O(1/n), so it is equivalent within a 1% margin.
+/// Seed 11 of the suite below gave, when written (log loss; δ = 0.0052):
+/// smoothed Platt [−0.00004, +0.00006] equivalent, identity [+0.115, +0.153]
+/// worse, beta [−0.0160, −0.0055] better; the Brier score agrees.
+const VERDICTS: &str = r#"name = "verdicts"
+seed = 11
+repeats = 10
+sizes = [2000]
+reference = "platt"
+metrics = ["log_loss", "brier"]
+primary_metric = "log_loss"
+
+[test_set]
+rows = 4000
+
+[decision]
+margin = 0.01
+
+[[method]]
+id = "platt"
+kind = "platt"
+
+[[method]]
+id = "platt-smoothed"
+kind = "platt"
+target_smoothing = true
+
+[[method]]
+id = "identity"
+kind = "identity"
+
+[[method]]
+id = "beta"
+kind = "beta"
+
+[[task]]
+id = "weather"
+scores = "SCORES"
+score_column = "p_late"
+label_column = "late"
+score_kind = "probability"
+"#;
+
+/// (method, metric) → (margin, verdict) from a paired.csv.
+fn verdicts(paired: &str) -> std::collections::BTreeMap<(String, String), (f64, String)> {
+    let mut lines = paired.lines();
+    let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| head.iter().position(|h| *h == name).unwrap();
+    let (m, k, d, v, lo, hi) = (
+        col("method"),
+        col("metric"),
+        col("margin"),
+        col("verdict"),
+        col("ci_low"),
+        col("ci_high"),
+    );
+    lines
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            eprintln!(
+                "{} {}: [{}, {}] margin {} {}",
+                f[m], f[k], f[lo], f[hi], f[d], f[v]
+            );
+            (
+                (f[m].to_string(), f[k].to_string()),
+                (f[d].parse().unwrap(), f[v].to_string()),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn verdicts_come_out_as_built() {
+    let fx = Fixture::new();
+    let scores =
+        PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("suites/courier-data/weather-bayes.csv.gz");
+    let suite = fx.suite(
+        "verdicts.toml",
+        &VERDICTS.replace("SCORES", &scores.to_string_lossy().replace('\\', "/")),
+    );
+    let out = fx.path("out");
+    run_ok(&fx, &suite, &out, "2");
+    let paired = fs::read_to_string(out.join("paired.csv")).unwrap();
+    let v = verdicts(&paired);
+    let get = |m: &str, k: &str| v[&(m.to_string(), k.to_string())].clone();
+    for metric in ["log_loss", "brier"] {
+        assert_eq!(get("beta", metric).1, "better", "{metric}");
+        assert_eq!(get("identity", metric).1, "worse", "{metric}");
+        assert_eq!(get("platt-smoothed", metric).1, "equivalent", "{metric}");
+    }
+    // δ is 1% of Platt's mean loss, the same for every method at this size.
+    let (d, _) = get("beta", "log_loss");
+    assert!(d > 0.001 && d < 0.01, "{d}");
+    assert_eq!(get("identity", "log_loss").0, d);
+    let manifest: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("manifest.json")).unwrap()).unwrap();
+    assert_eq!(manifest["analysis"]["margin"], 0.01);
+    // Every format carries the verdict of the smoothed Platt fit.
+    let summary = fs::read_to_string(out.join("summary.md")).unwrap();
+    assert!(summary.contains("equivalent within the margin"));
+    assert!(
+        summary.contains("] =**"),
+        "no equivalent mark in a task table"
+    );
+    let tex = fs::read_to_string(out.join("tables.tex")).unwrap();
+    assert!(tex.contains("] =") && tex.contains("$\\surd$") && tex.contains("$\\times$"));
+
+    // `report --margin 0`: no margin, so the O(1/n) difference is no longer
+    // negligible by definition; the clear verdicts stay.
+    bin()
+        .args(["report", out.to_str().unwrap(), "--margin", "0"])
+        .assert()
+        .success();
+    let v0 = verdicts(&fs::read_to_string(out.join("paired.csv")).unwrap());
+    let smoothed = &v0[&("platt-smoothed".to_string(), "log_loss".to_string())];
+    assert_eq!(smoothed.0, 0.0);
+    assert_ne!(smoothed.1, "equivalent");
+    assert_eq!(
+        v0[&("beta".to_string(), "log_loss".to_string())].1,
+        "better"
+    );
+    // Without the flag, the recorded margin comes back byte for byte.
+    bin()
+        .args(["report", out.to_str().unwrap()])
+        .assert()
+        .success();
+    assert_eq!(fs::read_to_string(out.join("paired.csv")).unwrap(), paired);
+    // A margin outside [0, 0.5] is refused.
+    bin()
+        .args(["report", out.to_str().unwrap(), "--margin", "2"])
+        .assert()
+        .failure()
+        .stderr(predicates::str::contains("--margin 2"));
+}
+
+#[test]
+fn decision_table_is_checked_with_file_line_and_key() {
+    let fx = Fixture::new();
+    // GOOD ends with a newline; the appended table starts two lines later.
+    let at = GOOD.lines().count() + 3;
+    let with = |body: &str| format!("{GOOD}\n[decision]\n{body}\n");
+    // Good values: a relative margin and absolute margins per metric.
+    let suite = fx.suite(
+        "ok.toml",
+        &with("margin = 0.02\nabsolute_margins = { brier = 0.0005 }"),
+    );
+    let out = fx.path("ok-out");
+    run_ok(&fx, &suite, &out, "1");
+    let manifest: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("manifest.json")).unwrap()).unwrap();
+    assert_eq!(manifest["analysis"]["margin"], 0.02);
+    assert_eq!(manifest["analysis"]["absolute_margins"]["brier"], 0.0005);
+    let v = verdicts(&fs::read_to_string(out.join("paired.csv")).unwrap());
+    for ((_, metric), (d, _)) in &v {
+        if metric == "brier" {
+            assert_eq!(*d, 0.0005);
+        } else {
+            assert!(*d > 0.0 && *d != 0.0005);
+        }
+    }
+    // Bad values, each located.
+    must_fail(
+        &fx,
+        &with("margin = 2"),
+        &[&format!("bad.toml:{at}"), "decision.margin", "2"],
+    );
+    must_fail(
+        &fx,
+        &with("margin = -0.01"),
+        &[&format!("bad.toml:{at}"), "decision.margin", "-0.01"],
+    );
+    must_fail(
+        &fx,
+        &with("margin = \"1%\""),
+        &[&format!("bad.toml:{at}"), "margin"],
+    );
+    must_fail(
+        &fx,
+        &with("margins = 0.01"),
+        &[&format!("bad.toml:{at}"), "margins"],
+    );
+    must_fail(
+        &fx,
+        &with("absolute_margins = { auc_roc = 0.01 }"),
+        &[
+            &format!("bad.toml:{at}"),
+            "decision.absolute_margins.auc_roc",
+            "not one of the suite's metrics",
+        ],
+    );
+    must_fail(
+        &fx,
+        &with("margin = 0.01\nabsolute_margins = { brier = -1.0 }"),
+        &[
+            &format!("bad.toml:{}", at + 1),
+            "decision.absolute_margins.brier",
+            "-1",
+        ],
+    );
+}

@@ -159,12 +159,22 @@ fn terminal_fits_100_columns_and_every_format_leads_with_the_decision() {
             "{name}: caution"
         );
     }
-    // One vocabulary: the legend's three marks appear in every format.
-    for m in ["✓", "≈", "✗"] {
-        assert!(
-            md.contains(m) && html.contains(m) && terminal.contains(m),
-            "mark {m}"
-        );
+    // One vocabulary: the legend's four verdicts, marks and words, appear in
+    // every format; the old "≈" is gone.
+    for v in plumbline::stats::verdict::Verdict::ALL {
+        for t in [v.mark(), v.words()] {
+            assert!(
+                md.contains(t) && html.contains(t) && terminal.contains(t),
+                "verdict {t}"
+            );
+        }
+    }
+    for text in [&md, &html, &terminal] {
+        assert!(!text.contains('≈'));
+    }
+    // The task tables carry the four marks after their intervals.
+    for m in ["] ✓", "] =", "] ?", "] ✗"] {
+        assert!(md.contains(m), "task table mark {m}");
     }
     // An unknown task is an error naming it.
     bin()

@@ -522,6 +522,8 @@ fn run_replicate(
             confidence: cfg.confidence,
             interval: kind.as_str().to_string(),
             pairs: Vec::new(),
+            margin: plumbline::analysis::DEFAULT_MARGIN,
+            absolute_margins: Default::default(),
         };
         let src = PairSource {
             table: &table,

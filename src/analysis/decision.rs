@@ -9,9 +9,9 @@
 //! runner-up is second. Ties go to the method listed first in the suite.
 
 use super::steps::{pair_interval, Cells, PairSource};
-use super::{AcrossRow, AnalysisSettings};
+use super::{AcrossRow, AnalysisSettings, Margins};
 use crate::run::table::UnitTable;
-use crate::stats::paired::Record;
+use crate::stats::verdict::{Verdict, VerdictCounts};
 
 /// The verdict at one calibration size.
 #[derive(Debug, Clone, PartialEq)]
@@ -32,10 +32,10 @@ pub struct SizeVerdict {
     pub default_vs_runner_up_cd: Option<bool>,
     /// Iman–Davenport p-value.
     pub friedman_p: f64,
-    /// Tasks where the default is reliably better / not distinguishable /
-    /// reliably worse than the runner-up (paired interval of the suite's
-    /// estimator on each task).
-    pub versus_runner_up: Option<Record>,
+    /// Tasks on which the default gets each verdict against the runner-up
+    /// (paired interval of the suite's estimator on each task, the task's
+    /// equivalence margin).
+    pub versus_runner_up: Option<VerdictCounts>,
 }
 
 /// The recommendation on one metric.
@@ -68,6 +68,7 @@ pub fn decide(
     across: &[AcrossRow],
     table: &UnitTable,
     cells: &Cells,
+    margins: &Margins,
     settings: &AnalysisSettings,
     metric: &str,
 ) -> Option<Decision> {
@@ -109,7 +110,7 @@ pub fn decide(
             .collect();
         let best = r.methods[x.best].clone();
         let versus_runner_up = runner_up.as_ref().map(|ru| {
-            let mut rec = Record::default();
+            let mut rec = VerdictCounts::default();
             for task in &r.tasks {
                 let src = PairSource {
                     table,
@@ -117,11 +118,11 @@ pub fn decide(
                     settings,
                 };
                 if let Some(iv) = pair_interval(&src, task, r.size, &default, ru, metric, mi) {
-                    match iv.sign() {
-                        -1 => rec.wins += 1,
-                        1 => rec.losses += 1,
-                        _ => rec.ties += 1,
-                    }
+                    let margin = margins
+                        .get(&(task.clone(), r.size, metric.to_string()))
+                        .copied()
+                        .unwrap_or(f64::NAN);
+                    rec.add(Verdict::of_interval(&iv, margin));
                 }
             }
             rec

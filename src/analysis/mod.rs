@@ -13,11 +13,11 @@ pub use steps::{across_step, decision_metrics, threshold_step, StepInput};
 use crate::metrics::{Goal, MetricId};
 use crate::run::table::UnitTable;
 use crate::stats::across::AcrossTasks;
-use crate::stats::paired::Record;
 use crate::stats::paired::{
     interval, Interval, IntervalKind, PairedInput, EXTREME_ROWS, ROW_SUMMARY_NAMES,
 };
 use crate::stats::thresholds::{ThresholdSummary, Thresholds};
+use crate::stats::verdict::{Verdict, VerdictCounts};
 
 /// Settings the analysis needs (recorded in `manifest.json`, or given to
 /// `plumbline report` as flags).
@@ -31,6 +31,36 @@ pub struct AnalysisSettings {
     /// reported, e.g. (isotonic, platt).
     #[serde(default)]
     pub pairs: Vec<(String, String)>,
+    /// Equivalence margin as a share of the reference method's mean value of
+    /// the compared metric at each task and size (the suite's
+    /// `[decision] margin`; results written before it existed read as the
+    /// default).
+    #[serde(default = "default_margin")]
+    pub margin: f64,
+    /// Absolute equivalence margins by metric id, in the metric's units;
+    /// they replace the relative margin for their metric.
+    #[serde(default)]
+    pub absolute_margins: BTreeMap<String, f64>,
+}
+
+/// The default relative equivalence margin: 1% of the reference's mean loss.
+pub const DEFAULT_MARGIN: f64 = 0.01;
+
+fn default_margin() -> f64 {
+    DEFAULT_MARGIN
+}
+
+impl AnalysisSettings {
+    /// The equivalence margin δ of `metric` where the reference method's mean
+    /// compared value is `reference_mean`: the absolute margin set for the
+    /// metric, else `margin` × |reference_mean| (NaN without a reference mean:
+    /// then nothing is called equivalent).
+    pub fn margin_for(&self, metric: &str, reference_mean: f64) -> f64 {
+        match self.absolute_margins.get(metric) {
+            Some(&d) => d,
+            None => self.margin * reference_mean.abs(),
+        }
+    }
 }
 
 /// Across-task statistics of the primary metric at one calibration size.
@@ -42,9 +72,9 @@ pub struct AcrossRow {
     pub tasks: Vec<String>,
     pub methods: Vec<String>,
     pub result: Result<AcrossTasks, String>,
-    /// Per method (not the reference): tasks where its interval against the
-    /// reference is below / covers / above zero.
-    pub vs_reference: Vec<(String, Record)>,
+    /// Per method (not the reference): tasks with each verdict against the
+    /// reference.
+    pub vs_reference: Vec<(String, VerdictCounts)>,
 }
 
 /// Data-size thresholds of one (flexible, parametric) pair on one task.
@@ -105,24 +135,11 @@ pub struct Paired {
     /// `decomposed-linear` and for `decomposed` with extreme predictions, 2 for
     /// `decomposed` otherwise, `None` for the t intervals.
     pub reservoir_order: Option<u32>,
-}
-
-impl Paired {
-    /// The interval excludes zero on the method's better side.
-    pub fn reliably_better(&self, higher_is_better: bool) -> bool {
-        if higher_is_better {
-            self.ci_low > 0.0
-        } else {
-            self.ci_high < 0.0
-        }
-    }
-    pub fn reliably_worse(&self, higher_is_better: bool) -> bool {
-        if higher_is_better {
-            self.ci_high < 0.0
-        } else {
-            self.ci_low > 0.0
-        }
-    }
+    /// The equivalence margin δ at this (task, size, metric).
+    pub margin: f64,
+    /// The verdict of [`crate::stats::verdict`] on the interval and δ,
+    /// oriented for the metric.
+    pub verdict: Verdict,
 }
 
 /// Everything the reports show.
@@ -145,7 +162,12 @@ pub struct Analysis {
     pub threshold_summaries: Vec<(String, (String, String), ThresholdSummary)>,
     /// The recommendation on each decision metric (the primary metric first).
     pub decisions: Vec<Decision>,
+    /// The equivalence margin δ of each (task, size, metric) with a reference.
+    pub margins: Margins,
 }
+
+/// (task, size, metric) → equivalence margin δ.
+pub type Margins = BTreeMap<(String, usize, String), f64>;
 
 /// Status prefix of a unit whose method predicted a fallback because it could
 /// not fit (`fallback:base-rate`, see `run::FALLBACK_BASE_RATE`).
@@ -351,6 +373,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
     for s in sizes.values_mut() {
         s.sort_unstable();
     }
+    let margins = margins_of(table, &cells, &sizes, settings);
     let mut summaries = Vec::new();
     let mut paired = Vec::new();
     for task in &tasks {
@@ -416,6 +439,10 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                     }
                     let iv = paired_interval(table, &pr, metric, settings);
                     let (lo, hi, se) = (iv.low, iv.high, iv.se);
+                    let margin = margins
+                        .get(&(task.clone(), size, metric.clone()))
+                        .copied()
+                        .unwrap_or(f64::NAN);
                     let mean_of = |v: &[f64]| {
                         if v.is_empty() {
                             f64::NAN
@@ -442,6 +469,8 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         interval: settings.interval.clone(),
                         confidence: settings.confidence,
                         reservoir_order: iv.reservoir_order,
+                        margin,
+                        verdict: Verdict::of_metric(lo, hi, margin, hib),
                     });
                 }
             }
@@ -464,6 +493,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
             cells: &cells,
             summaries: &summaries,
             paired: &paired,
+            margins: &margins,
         };
         across.extend(across_step(&ctx, metric));
         let (rows, sums) = threshold_step(&ctx, metric, mi);
@@ -472,7 +502,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
     }
     let decisions = metrics
         .iter()
-        .filter_map(|m| decide(&across, table, &cells, settings, m))
+        .filter_map(|m| decide(&across, table, &cells, &margins, settings, m))
         .collect();
     Analysis {
         tasks,
@@ -487,5 +517,47 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         thresholds,
         threshold_summaries,
         decisions,
+        margins,
     }
+}
+
+/// The equivalence margin of every (task, size, metric) where the reference
+/// method has values: [`AnalysisSettings::margin_for`] on the mean of the
+/// reference's compared values (for a metric with a target, the mean
+/// distance to it) over its units.
+fn margins_of(
+    table: &UnitTable,
+    cells: &steps::Cells,
+    sizes: &BTreeMap<String, Vec<usize>>,
+    settings: &AnalysisSettings,
+) -> Margins {
+    let mut out = Margins::new();
+    for (task, ss) in sizes {
+        for &size in ss {
+            let Some(rc) = cells.get(&(task.clone(), size, settings.reference.clone())) else {
+                continue;
+            };
+            for (mi, metric) in table.metric_names.iter().enumerate() {
+                if !is_compared(metric) {
+                    continue;
+                }
+                let v: Vec<f64> = rc
+                    .values()
+                    .filter_map(|&i| table.rows[i].metrics[mi])
+                    .filter_map(|x| compared_value(metric, x))
+                    .filter(|x| x.is_finite())
+                    .collect();
+                let mean = if v.is_empty() {
+                    f64::NAN
+                } else {
+                    v.iter().sum::<f64>() / v.len() as f64
+                };
+                out.insert(
+                    (task.clone(), size, metric.clone()),
+                    settings.margin_for(metric, mean),
+                );
+            }
+        }
+    }
+    out
 }

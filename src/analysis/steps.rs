@@ -8,9 +8,10 @@ use super::{
     MethodSummary, Paired, ThresholdRow,
 };
 use crate::run::table::UnitTable;
-use crate::stats::across::{across_tasks, task_record};
-use crate::stats::paired::{Interval, IntervalKind};
-use crate::stats::thresholds::{summarize, thresholds as stats_thresholds, ThresholdSummary};
+use crate::stats::across::across_tasks;
+use crate::stats::paired::Interval;
+use crate::stats::thresholds::{summarize, thresholds_within, ThresholdSummary};
+use crate::stats::verdict::VerdictCounts;
 
 /// (task, size, method) → repeat → row index of the unit table.
 pub type Cells = BTreeMap<(String, usize, String), BTreeMap<usize, usize>>;
@@ -25,6 +26,7 @@ pub struct StepInput<'a> {
     pub cells: &'a Cells,
     pub summaries: &'a [MethodSummary],
     pub paired: &'a [Paired],
+    pub margins: &'a super::Margins,
 }
 
 /// The metrics the decision, the ranks and the thresholds are reported on:
@@ -84,7 +86,7 @@ pub fn across_step(c: &StepInput, metric: &str) -> Vec<AcrossRow> {
             .iter()
             .filter(|m| **m != c.settings.reference)
             .map(|m| {
-                let ivs: Vec<Interval> = c
+                let counts: VerdictCounts = c
                     .paired
                     .iter()
                     .filter(|p| {
@@ -94,9 +96,9 @@ pub fn across_step(c: &StepInput, metric: &str) -> Vec<AcrossRow> {
                             && used.contains(&p.task)
                     })
                     .filter(|p| p.ci_low.is_finite())
-                    .map(|p| oriented(p.mean_diff, p.ci_low, p.ci_high, p.se, p.confidence, hib))
+                    .map(|p| p.verdict)
                     .collect();
-                (m.clone(), task_record(&ivs))
+                (m.clone(), counts)
             })
             .collect();
         across.push(AcrossRow {
@@ -109,26 +111,6 @@ pub fn across_step(c: &StepInput, metric: &str) -> Vec<AcrossRow> {
         });
     }
     across
-}
-
-/// An interval turned so that "below zero" means better.
-pub fn oriented(mean: f64, low: f64, high: f64, se: f64, confidence: f64, hib: bool) -> Interval {
-    let (low, high, mean) = if hib {
-        (-high, -low, -mean)
-    } else {
-        (low, high, mean)
-    };
-    Interval {
-        kind: IntervalKind::default(),
-        mean,
-        low,
-        high,
-        se,
-        df: f64::NAN,
-        confidence,
-        test_term: None,
-        reservoir_order: None,
-    }
 }
 
 /// Where paired intervals between any two methods come from.
@@ -195,13 +177,18 @@ pub fn threshold_step(c: &StepInput, metric: &str, mi: usize) -> ThresholdOutput
                 };
                 pts.push((size, iv.mean, iv.low, iv.high));
                 if iv.low.is_finite() {
-                    ivs.push((size, iv));
+                    let margin = c
+                        .margins
+                        .get(&(task.clone(), size, metric.to_string()))
+                        .copied()
+                        .unwrap_or(f64::NAN);
+                    ivs.push((size, iv, margin));
                 }
             }
             if pts.is_empty() {
                 continue;
             }
-            let result = stats_thresholds(&ivs).map_err(|e| e.to_string());
+            let result = thresholds_within(&ivs).map_err(|e| e.to_string());
             if let Ok(t) = &result {
                 per_task.push(t.clone());
             }

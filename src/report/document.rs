@@ -21,18 +21,19 @@ pub enum Block {
     Caution(String),
 }
 
-/// Marks of the one vocabulary used in every format.
-pub const BETTER: &str = "✓";
-pub const WORSE: &str = "✗";
-pub const SAME: &str = "≈";
+use crate::stats::verdict::{marks_slashed, Verdict};
 
-/// The legend, worded once.
-pub fn legend() -> Vec<String> {
+/// The legend, worded once: the four verdicts of [`crate::stats::verdict`],
+/// with the equivalence margin δ in force.
+pub fn legend(margin: &str) -> Vec<String> {
+    let [b, e, u, w] = Verdict::ALL.map(|v| (v.mark(), v.words()));
     vec![
-        format!("{BETTER} **reliably better**: the paired interval lies entirely on the better side of zero (lower loss, or higher AUC)."),
-        format!("{WORSE} **reliably worse**: the interval lies entirely on the worse side."),
-        format!("{SAME} **no reliable difference**: the interval covers zero. Not evidence that two methods are equal — only that these repeats cannot tell them apart."),
-        "Across tasks, counts are given as tasks better / no reliable difference / worse.".to_string(),
+        format!("{} **{}**: the paired interval lies entirely on the better side of zero (lower loss, or higher AUC) and reaches beyond the margin δ.", b.0, b.1),
+        format!("{} **{}**: the whole interval lies inside [−δ, +δ] — the difference is shown to be smaller than the margin the suite calls negligible (two one-sided tests read off the interval). This holds even when the interval excludes zero.", e.0, e.1),
+        format!("{} **{}**: the interval covers zero and reaches beyond −δ or +δ: these repeats can neither tell the methods apart nor show them equivalent. Not evidence that they are equal.", u.0, u.1),
+        format!("{} **{}**: the interval lies entirely on the worse side of zero and reaches beyond δ.", w.0, w.1),
+        format!("The margin δ: {margin}."),
+        format!("Across tasks, counts are given as tasks {} ({}).", Verdict::ALL.map(|v| v.as_str()).join(" / "), marks_slashed()),
     ]
 }
 

@@ -10,6 +10,7 @@ pub mod html;
 pub mod summary;
 
 use crate::analysis::Analysis;
+use crate::stats::verdict::Verdict;
 
 /// Escape text for HTML and SVG markup (text and attribute values).
 pub fn esc(s: &str) -> String {
@@ -159,8 +160,8 @@ impl Table {
                 .replace('_', "\\_")
                 .replace('#', "\\#")
                 .replace('−', "$-$")
-                .replace('✓', "$\\surd$")
-                .replace('✗', "$\\times$")
+                .replace('✓', Verdict::Better.latex())
+                .replace('✗', Verdict::Worse.latex())
                 .replace('≈', "$\\approx$")
                 .replace('`', "")
                 .replace('↓', "$\\downarrow$")

@@ -3,12 +3,12 @@
 //! standing caution and the legend, ranks, data-size thresholds, reliability
 //! diagrams and the per-task tables.
 
-use super::document::{anchor, legend, Block, BETTER, SAME, WORSE};
+use super::document::{anchor, legend, Block};
 use super::{figures, fmt_diff, fmt_value, Table};
 use crate::analysis::{task_parts, Analysis, AnalysisSettings, Decision};
 use crate::metrics::reliability::CurveRecord;
-use crate::metrics::MetricId;
 use crate::stats::paired::IntervalKind;
+use crate::stats::verdict::{marks_slashed, Verdict};
 
 /// What the summary says about where the results came from.
 #[derive(Debug, Clone)]
@@ -22,10 +22,23 @@ pub struct ReportContext {
     pub curves: Vec<CurveRecord>,
 }
 
-fn hib(metric: &str) -> bool {
-    MetricId::parse(metric)
-        .map(|m| m.higher_is_better())
-        .unwrap_or(false)
+/// The equivalence margin in force, in words.
+pub fn margin_words(s: &AnalysisSettings) -> String {
+    let pct = s.margin * 100.0;
+    let mut out = format!(
+        "{}% of the reference method's mean value of the metric at each task and size (`[decision] margin = {}`)",
+        crate::run::table::num(pct),
+        crate::run::table::num(s.margin)
+    );
+    if !s.absolute_margins.is_empty() {
+        let abs: Vec<String> = s
+            .absolute_margins
+            .iter()
+            .map(|(m, d)| format!("`{m}` {}", crate::run::table::num(*d)))
+            .collect();
+        out.push_str(&format!("; absolute margins: {}", abs.join(", ")));
+    }
+    out
 }
 
 /// One table per task for `metric`: rows = methods, columns = sizes.
@@ -44,7 +57,6 @@ pub fn task_table(
     task: &str,
     markdown: bool,
 ) -> Table {
-    let higher = hib(metric);
     let sizes = a.sizes.get(task).map(Vec::as_slice).unwrap_or(&[]);
     let mut header = vec!["method".to_string()];
     header.extend(sizes.iter().map(|n| format!("n = {n}")));
@@ -68,21 +80,14 @@ pub fn task_table(
                 .iter()
                 .find(|p| p.task == *task && p.size == n && p.method == *m && p.metric == metric)
             {
-                let mark = if p.reliably_better(higher) {
-                    format!(" {BETTER}")
-                } else if p.reliably_worse(higher) {
-                    format!(" {WORSE}")
-                } else {
-                    format!(" {SAME}")
-                };
                 let diff = format!(
-                    "{} [{}, {}]{}",
+                    "{} [{}, {}] {}",
                     fmt_diff(p.mean_diff),
                     fmt_diff(p.ci_low),
                     fmt_diff(p.ci_high),
-                    mark
+                    p.verdict.mark()
                 );
-                let diff = if markdown && !mark.ends_with(SAME) {
+                let diff = if markdown && p.verdict != Verdict::Undetermined {
                     format!("**{diff}**")
                 } else {
                     diff
@@ -95,8 +100,12 @@ pub fn task_table(
     }
     let pct = (s.confidence * 100.0).round();
     let notes = vec![format!(
-            "Each cell: mean {metric} over repeats; below it the mean difference to `{}` with its {pct}% {} interval; {BETTER} / {SAME} / {WORSE} = reliably better / no reliable difference / reliably worse than the reference.",
-            s.reference, s.interval
+            "Each cell: mean {metric} over repeats; below it the mean difference to `{}` with its {pct}% {} interval and the verdict against the reference: {}.",
+            s.reference,
+            s.interval,
+            Verdict::ALL
+                .map(|v| format!("{} {}", v.mark(), v.words()))
+                .join(" / ")
         )];
     Table {
         title: format!("Task `{task}` — {metric}"),
@@ -179,13 +188,17 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
             "rank (default)".into(),
             "rank (runner-up)".into(),
             "CD".into(),
-            format!("vs runner-up {BETTER}/{SAME}/{WORSE}"),
+            format!("vs runner-up {}", marks_slashed()),
             "Friedman p".into(),
         ],
         rows: Vec::new(),
         notes: vec![format!(
-            "Default `{}`, runner-up `{ru}`. Ranks: average over tasks of each method's rank by mean {} (1 = best). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. {BETTER}/{SAME}/{WORSE}: tasks on which `{}` is reliably better / not distinguishable / reliably worse than `{ru}` (paired interval per task).",
-            d.default, d.metric, d.default
+            "Default `{}`, runner-up `{ru}`. Ranks: average over tasks of each method's rank by mean {} (1 = best); \"tied\": the best is not distinguishable from the default (Holm-corrected Wilcoxon). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. {}: tasks on which `{}`, compared with `{ru}`, is {} (paired interval and margin per task).",
+            d.default,
+            d.metric,
+            marks_slashed(),
+            d.default,
+            Verdict::ALL.map(|v| v.words()).join(" / ")
         )],
     };
     for v in &d.per_size {
@@ -193,7 +206,7 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
             v.size.to_string(),
             v.tasks.to_string(),
             if v.default_holds && v.best != d.default {
-                format!("`{}` ({SAME} `{}`)", v.best, d.default)
+                format!("`{}` (tied with `{}`)", v.best, d.default)
             } else {
                 format!("`{}`", v.best)
             },
@@ -205,7 +218,7 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
                 .map(|c| format!("{c:.2}"))
                 .unwrap_or_else(|| "–".into()),
             v.versus_runner_up
-                .map(|r| format!("{}/{}/{}", r.wins, r.ties, r.losses))
+                .map(|r| r.slashed())
                 .unwrap_or_else(|| "–".into()),
             fmt_p(v.friedman_p),
         ]);
@@ -371,7 +384,10 @@ fn rank_blocks(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> 
         let others: Vec<&String> = a.methods.iter().filter(|m| **m != s.reference).collect();
         let mut t = Table {
             title: format!(
-                "Tasks on which each method is {BETTER} / {SAME} / {WORSE} against `{}` ({primary})",
+                "Tasks on which each method is {} against `{}` ({primary})",
+                Verdict::ALL
+                    .map(|v| format!("{} {}", v.mark(), v.as_str()))
+                    .join(" / "),
                 s.reference
             ),
             header: std::iter::once("n".to_string())
@@ -387,7 +403,7 @@ fn rank_blocks(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> 
                     r.vs_reference
                         .iter()
                         .find(|(x, _)| x == *m)
-                        .map(|(_, rec)| format!("{}/{}/{}", rec.wins, rec.ties, rec.losses))
+                        .map(|(_, rec)| rec.slashed())
                         .unwrap_or_else(|| "–".into()),
                 );
             }
@@ -510,14 +526,20 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
         "top".into(),
     )];
     b.push(Block::Para(format!(
-        "Suite `{}` (SHA-256 `{}`){}. Reference method `{}`; primary metric `{}`; {} intervals at {}%.",
+        "Suite `{}` (SHA-256 `{}`){}. Reference method `{}`; primary metric `{}`; {} intervals at {}%; equivalence margin {}% of the reference's mean{}.",
         ctx.suite_file,
         ctx.suite_sha256,
         ctx.seed.map(|x| format!(", seed {x}")).unwrap_or_default(),
         s.reference,
         s.primary_metric,
         s.interval,
-        (s.confidence * 100.0).round()
+        (s.confidence * 100.0).round(),
+        crate::run::table::num(s.margin * 100.0),
+        if s.absolute_margins.is_empty() {
+            ""
+        } else {
+            " (absolute for some metrics, see the legend)"
+        }
     )));
     b.push(Block::Heading(2, "Decision".into(), "decision".into()));
     if a.decisions.is_empty() {
@@ -533,7 +555,7 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
         "How to read the marks".into(),
         "legend".into(),
     ));
-    b.push(Block::List(legend()));
+    b.push(Block::List(legend(&margin_words(s))));
     b.extend(rank_blocks(a, ctx, detail));
     b.extend(threshold_blocks(a, detail));
     if detail == Detail::Brief {

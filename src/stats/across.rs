@@ -26,14 +26,13 @@
 //!   σ² = N(N+1)(2N+1)/24 − Σ(t³ − t)/48, without continuity correction.
 //! * Holm (1979, Scand. J. Statist. 6) step-down adjustment of the k − 1
 //!   p-values against the best method.
-//! * Win/tie/loss across tasks: a win when a task's interval for the difference
-//!   (method − reference) lies entirely below 0, a loss when entirely above, a
-//!   tie when it covers 0.
+//! * Counts across tasks of the per-task verdicts (better / equivalent /
+//!   undetermined / worse) are kept by the analysis with
+//!   [`super::verdict::VerdictCounts`].
 
 use serde::Serialize;
 use statrs::distribution::{ChiSquared, ContinuousCDF, FisherSnedecor, Normal};
 
-use super::paired::{Interval, Record};
 use super::StatsError;
 
 /// Ranks 1..n of `v` (1 = smallest), ties get their average rank.
@@ -442,20 +441,6 @@ pub fn across_tasks(values: &[Vec<f64>], alpha: f64) -> Result<AcrossTasks, Stat
         best,
         versus_best,
     })
-}
-
-/// Win/tie/loss of a method against the reference across tasks, one interval
-/// per task: win = interval below 0, loss = above 0, tie = covers 0.
-pub fn task_record(intervals: &[Interval]) -> Record {
-    let mut rec = Record::default();
-    for iv in intervals {
-        match iv.sign() {
-            -1 => rec.wins += 1,
-            1 => rec.losses += 1,
-            _ => rec.ties += 1,
-        }
-    }
-    rec
 }
 
 #[cfg(test)]

@@ -17,6 +17,8 @@
 //!   data sets").
 //! * [`thresholds`]: from which calibration size a flexible method is reliably
 //!   better than a parametric one, and where the mean difference crosses zero.
+//! * [`verdict`]: the one rule that reads a paired interval and an
+//!   equivalence margin as better / equivalent / undetermined / worse.
 //!
 //! Quantiles and tail probabilities of the t, χ², F and normal distributions
 //! come from `statrs`.
@@ -24,6 +26,7 @@
 pub mod across;
 pub mod paired;
 pub mod thresholds;
+pub mod verdict;
 
 use statrs::distribution::{ContinuousCDF, StudentsT};
 

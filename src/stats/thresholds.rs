@@ -7,9 +7,11 @@
 //! difference (flexible − parametric; a loss, so negative favours the flexible
 //! method) at each size.
 //!
-//! * `better_from`: the smallest tested n_j such that the interval lies
-//!   entirely below 0 at n_j and at every larger tested size.
-//! * `worse_until`: the largest tested size whose interval lies entirely above 0.
+//! * `better_from`: the smallest tested n_j such that the verdict of
+//!   [`super::verdict`] is *better* at n_j and at every larger tested size
+//!   (the interval lies entirely below 0 and is not inside the equivalence
+//!   margin).
+//! * `worse_until`: the largest tested size whose verdict is *worse*.
 //! * `crossover`: at the first pair of consecutive sizes where the mean
 //!   difference changes sign (a mean of exactly 0 counts as the crossover
 //!   itself), linear interpolation of the mean against ln n:
@@ -24,6 +26,7 @@
 use serde::Serialize;
 
 use super::paired::Interval;
+use super::verdict::Verdict;
 use super::StatsError;
 
 /// The thresholds of one task.
@@ -34,10 +37,16 @@ pub struct Thresholds {
     pub crossover: Option<f64>,
 }
 
-/// Thresholds from (size, interval) pairs; sizes are sorted here and must be
-/// distinct and positive.
+/// Thresholds from (size, interval) pairs with no equivalence margin; sizes
+/// are sorted here and must be distinct and positive.
 pub fn thresholds(points: &[(usize, Interval)]) -> Result<Thresholds, StatsError> {
-    let mut p: Vec<&(usize, Interval)> = points.iter().collect();
+    let p: Vec<(usize, Interval, f64)> = points.iter().map(|&(n, iv)| (n, iv, 0.0)).collect();
+    thresholds_within(&p)
+}
+
+/// Thresholds from (size, interval, equivalence margin) triples.
+pub fn thresholds_within(points: &[(usize, Interval, f64)]) -> Result<Thresholds, StatsError> {
+    let mut p: Vec<&(usize, Interval, f64)> = points.iter().collect();
     p.sort_by_key(|x| x.0);
     if p.iter().any(|x| x.0 == 0) || p.windows(2).any(|w| w[0].0 == w[1].0) {
         return Err(StatsError::Shape(
@@ -48,14 +57,19 @@ pub fn thresholds(points: &[(usize, Interval)]) -> Result<Thresholds, StatsError
         return Err(StatsError::NonFinite("mean difference"));
     }
     let mut better_from = None;
+    let verdict = |x: &(usize, Interval, f64)| Verdict::of_interval(&x.1, x.2);
     for x in p.iter().rev() {
-        if x.1.sign() < 0 {
+        if verdict(x) == Verdict::Better {
             better_from = Some(x.0);
         } else {
             break;
         }
     }
-    let worse_until = p.iter().rev().find(|x| x.1.sign() > 0).map(|x| x.0);
+    let worse_until = p
+        .iter()
+        .rev()
+        .find(|x| verdict(x) == Verdict::Worse)
+        .map(|x| x.0);
     let mut crossover = None;
     if let Some(first) = p.first() {
         if first.1.mean == 0.0 {

@@ -102,6 +102,8 @@ struct RawSuite {
     #[serde(default)]
     reliability: Option<Spanned<RawReliability>>,
     #[serde(default)]
+    decision: Option<Spanned<RawDecision>>,
+    #[serde(default)]
     open_data: Option<Spanned<String>>,
     #[serde(default)]
     model: Vec<Spanned<toml::Table>>,
@@ -133,6 +135,38 @@ struct RawReliability {
     #[serde(default)]
     band_level: Option<f64>,
 }
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawDecision {
+    #[serde(default)]
+    margin: Option<Spanned<f64>>,
+    #[serde(default)]
+    absolute_margins: Option<std::collections::BTreeMap<String, Spanned<f64>>>,
+}
+
+/// The equivalence margin of the verdicts (the `[decision]` table): a share
+/// of the reference method's mean value at each task and size, or an
+/// absolute margin per metric.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DecisionPlan {
+    pub margin: f64,
+    pub absolute_margins: std::collections::BTreeMap<String, f64>,
+}
+
+impl Default for DecisionPlan {
+    fn default() -> Self {
+        DecisionPlan {
+            margin: crate::analysis::DEFAULT_MARGIN,
+            absolute_margins: Default::default(),
+        }
+    }
+}
+
+/// Largest relative margin accepted: beyond half the reference's mean, two
+/// methods called equivalent could differ by more than either's own loss
+/// scale suggests is negligible.
+pub const MAX_MARGIN: f64 = 0.5;
 
 /// Which units carry reliability curves (the `[reliability]` table): repeat 0
 /// of each task at `sizes` (default: the task's smallest and largest size),
@@ -372,6 +406,8 @@ pub struct Plan {
     pub study: Option<StudyPlan>,
     /// Reliability curves written with the results.
     pub reliability: ReliabilityPlan,
+    /// The equivalence margin of the verdicts.
+    pub decision: DecisionPlan,
     pub tasks: Vec<TaskPlan>,
 }
 
@@ -807,6 +843,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     };
 
     let reliability = reliability_plan(&ctx, raw.reliability.as_ref(), &method_entries)?;
+    let decision = decision_plan(&ctx, raw.decision.as_ref(), &metrics)?;
 
     // Tasks.
     if raw.task.is_empty() && raw.task_grid.is_empty() {
@@ -1237,8 +1274,70 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         methods: method_entries,
         pairs,
         reliability,
+        decision,
         tasks,
     })
+}
+
+/// Check the `[decision]` table.
+fn decision_plan(
+    ctx: &Ctx,
+    raw: Option<&Spanned<RawDecision>>,
+    metrics: &[MetricId],
+) -> Result<DecisionPlan, SuiteError> {
+    let mut plan = DecisionPlan::default();
+    let Some(r) = raw else { return Ok(plan) };
+    let r = r.get_ref();
+    if let Some(m) = &r.margin {
+        let v = *m.get_ref();
+        if !(v.is_finite() && (0.0..=MAX_MARGIN).contains(&v)) {
+            return Err(ctx.err(
+                m.span(),
+                "decision.margin",
+                format!(
+                    "{v}: expected a share of the reference's mean between 0 and {MAX_MARGIN}, e.g. 0.01 for 1%"
+                ),
+            ));
+        }
+        plan.margin = v;
+    }
+    if let Some(a) = &r.absolute_margins {
+        for (id, v) in a {
+            let key = format!("decision.absolute_margins.{id}");
+            let metric = MetricId::parse(id).filter(|m| metrics.contains(m));
+            let Some(metric) = metric else {
+                return Err(ctx.err(
+                    v.span(),
+                    &key,
+                    format!(
+                        "`{id}` is not one of the suite's metrics ({})",
+                        metrics
+                            .iter()
+                            .map(|m| m.as_str())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                ));
+            };
+            if !crate::analysis::is_compared(metric.as_str()) {
+                return Err(ctx.err(
+                    v.span(),
+                    &key,
+                    format!("`{id}` is descriptive (the same for every method): no margin applies"),
+                ));
+            }
+            let d = *v.get_ref();
+            if !(d.is_finite() && d >= 0.0) {
+                return Err(ctx.err(
+                    v.span(),
+                    &key,
+                    format!("{d}: expected a margin of 0 or more, in the metric's units"),
+                ));
+            }
+            plan.absolute_margins.insert(id.clone(), d);
+        }
+    }
+    Ok(plan)
 }
 
 /// Check the `[reliability]` table.
