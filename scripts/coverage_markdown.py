@@ -54,6 +54,20 @@ def main() -> None:
                     vals.append(f"**{100 * c:.1f}**")
             print(f"| {m} − {ref} | {metric} | " + " | ".join(vals) + " |")
         print()
+    print(f"Interval `{kind}` by population and metric:\n")
+    print("| population | replicates | metric | cells | below 93% | above 97% | lowest | highest |")
+    print("|---|---|---|---|---|---|---|---|")
+    for pop in pops:
+        for metric in OrderedDict.fromkeys(r["metric"] for r in rows):
+            sel = [r for r in rows if r["population"] == pop and r["metric"] == metric and r["interval"] == kind]
+            if not sel:
+                continue
+            cov = [int(r["covered"]) / int(r["replicates"]) for r in sel]
+            nrep = ", ".join(sorted({r["replicates"] for r in sel}))
+            print(f"| `{pop}` | {nrep} | {metric} | {len(cov)} | {sum(c < 0.93 for c in cov)} | "
+                  f"{sum(c > 0.97 for c in cov)} | {100 * min(cov):.1f}% | {100 * max(cov):.1f}% |")
+    print()
+    print("Every interval kind over all cells:\n")
     print("| interval | cells | below 93% | above 97% | lowest | highest |")
     print("|---|---|---|---|---|---|")
     kinds = list(OrderedDict.fromkeys(r["interval"] for r in rows))
