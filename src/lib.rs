@@ -11,6 +11,7 @@ pub mod app;
 pub mod calibrate;
 pub mod cli;
 pub mod data;
+pub mod limits;
 pub mod mapfile;
 pub mod metrics;
 pub mod models;

@@ -76,6 +76,8 @@ pub enum MapFileError {
     // The I/O error is part of the message, not a `source`: shown once.
     #[error("{path}: cannot read the map file: {error}")]
     Io { path: String, error: std::io::Error },
+    #[error("{path}: cannot read the map file: {message}")]
+    Read { path: String, message: String },
     #[error("{path}: not a valid map file: {message} (truncated or not JSON)")]
     Json { path: String, message: String },
     #[error("{path}: not a plumbline map file (`format` is {found}, expected \"{FORMAT}\")")]
@@ -277,9 +279,11 @@ pub fn from_bytes(path: &str, bytes: &[u8]) -> Result<LoadedMap, MapFileError> {
 /// Read and check a map file.
 pub fn load(path: &Path) -> Result<LoadedMap, MapFileError> {
     let name = path.display().to_string();
-    let bytes = std::fs::read(path).map_err(|error| MapFileError::Io {
-        path: name.clone(),
-        error,
+    let bytes = crate::limits::read_bounded(path, &crate::limits::MAX_MAP).map_err(|message| {
+        MapFileError::Read {
+            path: name.clone(),
+            message,
+        }
     })?;
     from_bytes(&name, &bytes)
 }

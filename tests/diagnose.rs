@@ -202,7 +202,7 @@ fn bad_input_leaves_no_folder() {
     assert!(err.contains("no column named `nope` (--compare)"), "{err}");
     assert!(!err.contains("--score-column"), "{err}");
     assert!(
-        err.contains("the header has: `score`, `other`, `label`"),
+        err.contains("the header has 3 columns: `score`, `other`, `label`"),
         "{err}"
     );
     assert!(!d.join("x").exists());

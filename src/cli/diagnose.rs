@@ -492,13 +492,13 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
                     scorefile::ScoreFileError::MissingColumn {
                         path,
                         column,
-                        available,
+                        detail,
                         ..
                     } => scorefile::ScoreFileError::MissingColumn {
                         path,
                         column,
                         role: "--compare".into(),
-                        available,
+                        detail,
                     },
                     e => e,
                 })?

@@ -58,13 +58,19 @@ pub enum ScoreFileError {
     NoHeader { path: String },
     #[error("{path}: the file has a header but no data rows")]
     NoRows { path: String },
-    #[error("{path}: no column named `{column}` ({role}); the header has: {available}")]
+    #[error("{path}: no column named `{column}` ({role}); {detail}")]
     MissingColumn {
         path: String,
         column: String,
         role: String,
-        available: String,
+        /// Every column the command reads (e.g. "expected columns `score`,
+        /// `label`") and what the header holds: its column names (cut and
+        /// escaped), or for a file that does not look like CSV only a short
+        /// prefix.
+        detail: String,
     },
+    #[error("{path}: {role} is empty: name a column of the file")]
+    EmptyColumnName { path: String, role: String },
     #[error("{path}{at}: column `{column}` (field {field}): {problem}: `{value}`")]
     BadValue {
         path: String,
@@ -115,6 +121,22 @@ pub enum ScoreFileError {
         column: String,
         problem: String,
     },
+    #[error("{path}:{line}: a line or record longer than {limit}: not a score file, or a quoted field that never closes")]
+    LineTooLong {
+        path: String,
+        line: u64,
+        limit: String,
+    },
+    #[error(
+        "{path}:{line}: the decompressed text passes {limit}; refused as a possible gzip bomb"
+    )]
+    Decompressed {
+        path: String,
+        line: u64,
+        limit: String,
+    },
+    #[error("{path}: {message}")]
+    Limit { path: String, message: String },
     #[error("{path}: the split column `{column}` puts no row in the {side}")]
     EmptySide {
         path: String,
@@ -164,6 +186,23 @@ pub fn parse_score(raw: &[u8], kind: ScoreKind) -> Result<f64, &'static str> {
 
 /// Position of a named column, or the located error.
 pub fn find_column(src: &RowSource, name: &str, role: String) -> Result<usize, ScoreFileError> {
+    find_column_of(src, name, role, &[name])
+}
+
+/// [`find_column`], naming every column the command reads (`expected`) in
+/// the message when one is missing.
+fn find_column_of(
+    src: &RowSource,
+    name: &str,
+    role: String,
+    expected: &[&str],
+) -> Result<usize, ScoreFileError> {
+    if name.trim().is_empty() {
+        return Err(ScoreFileError::EmptyColumnName {
+            path: src.path().to_string(),
+            role,
+        });
+    }
     src.headers()
         .iter()
         .position(|h| h.trim() == name)
@@ -171,13 +210,57 @@ pub fn find_column(src: &RowSource, name: &str, role: String) -> Result<usize, S
             path: src.path().to_string(),
             column: name.to_string(),
             role,
-            available: src
-                .headers()
-                .iter()
-                .map(|h| format!("`{h}`"))
-                .collect::<Vec<_>>()
-                .join(", "),
+            detail: format!(
+                "expected column{} {}; {}",
+                if expected.len() == 1 { "" } else { "s" },
+                expected
+                    .iter()
+                    .map(|c| crate::limits::quoted_prefix(c.as_bytes(), 40))
+                    .collect::<Vec<_>>()
+                    .join(", "),
+                describe_header(src.headers())
+            ),
         })
+}
+
+/// At most this many header names are listed in a message.
+const LIST_COLUMNS: usize = 30;
+
+/// Whether a header looks like column names: more than one field, or one
+/// short field of letters, digits, spaces and `_ - .`. A file that is not a
+/// score file (a log, a system file, a binary) usually fails this, and its
+/// content is then not echoed.
+fn plausible_header(headers: &[String]) -> bool {
+    headers.len() > 1
+        || headers.iter().all(|h| {
+            h.chars().count() <= 64
+                && h.chars()
+                    .all(|c| c.is_alphanumeric() || matches!(c, '_' | '-' | '.' | ' '))
+        })
+}
+
+/// The header for a message: the number of columns and their names (each cut
+/// to 40 characters and escaped, at most 30), or for a header that does not
+/// look like column names, only an escaped prefix of 8 characters.
+fn describe_header(headers: &[String]) -> String {
+    let n = headers.len();
+    let plural = if n == 1 { "" } else { "s" };
+    if !plausible_header(headers) {
+        let first = headers.first().map(String::as_str).unwrap_or("");
+        return format!(
+            "the header has {n} column{plural} and does not look like CSV column names (it starts {}); is this a score file?",
+            crate::limits::quoted_prefix(first.as_bytes(), 8)
+        );
+    }
+    let mut names: Vec<String> = headers
+        .iter()
+        .take(LIST_COLUMNS)
+        .map(|h| crate::limits::quoted_prefix(h.as_bytes(), 40))
+        .collect();
+    if n > LIST_COLUMNS {
+        names.push(format!("… ({} more)", n - LIST_COLUMNS));
+    }
+    format!("the header has {n} column{plural}: {}", names.join(", "))
 }
 
 /// The error for a bad field of the row just read.
@@ -192,7 +275,12 @@ pub fn bad_value(
         at: src.loc(),
         column: src.headers()[col].to_string(),
         field: col + 1,
-        value: String::from_utf8_lossy(&rec[col]).into_owned(),
+        value: {
+            // The field, cut and with control characters escaped (the
+            // message adds the backticks).
+            let q = crate::limits::quoted_prefix(&rec[col], 80);
+            q[1..q.len() - 1].to_string()
+        },
         problem: problem.to_string(),
     }
 }
@@ -202,13 +290,20 @@ pub fn load(spec: &ScoreFileSpec) -> Result<LoadedScores, ScoreFileError> {
     let mut src = RowSource::open(&spec.path)?;
     let path = src.path().to_string();
     let role = |k: &str| spec.origin.role(k);
-    let si = find_column(&src, &spec.score_column, role("score_column"))?;
-    let li = find_column(&src, &spec.label_column, role("label_column"))?;
-    let optional = |c: &Option<String>, key: &str| {
-        c.as_deref()
-            .map(|c| find_column(&src, c, role(key)))
-            .transpose()
-    };
+    let expected: Vec<&str> = [
+        Some(spec.score_column.as_str()),
+        Some(spec.label_column.as_str()),
+        spec.split_column.as_deref(),
+        spec.truth_column.as_deref(),
+        spec.fold_column.as_deref(),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
+    let find = |name: &str, key: &str| find_column_of(&src, name, role(key), &expected);
+    let si = find(&spec.score_column, "score_column")?;
+    let li = find(&spec.label_column, "label_column")?;
+    let optional = |c: &Option<String>, key: &str| c.as_deref().map(|c| find(c, key)).transpose();
     let pi = optional(&spec.split_column, "split_column")?;
     let ti = optional(&spec.truth_column, "truth_column")?;
     let fi = optional(&spec.fold_column, "fold_column")?;
@@ -343,10 +438,31 @@ pub(crate) fn csv_error(path: &str, e: csv::Error) -> ScoreFileError {
             expected: *expected_len,
             found: *len,
         },
-        csv::ErrorKind::Io(err) => ScoreFileError::Io {
-            path: path.to_string(),
-            error: std::io::Error::new(err.kind(), err.to_string()),
-        },
+        csv::ErrorKind::Io(err) => {
+            match err
+                .get_ref()
+                .and_then(|e| e.downcast_ref::<crate::data::rows::Overrun>())
+            {
+                Some(&crate::data::rows::Overrun::Line { line, limit }) => {
+                    ScoreFileError::LineTooLong {
+                        path: path.to_string(),
+                        line,
+                        limit: crate::limits::MAX_LINE.describe(limit),
+                    }
+                }
+                Some(&crate::data::rows::Overrun::Decompressed { line, limit }) => {
+                    ScoreFileError::Decompressed {
+                        path: path.to_string(),
+                        line,
+                        limit: crate::limits::MAX_DECOMPRESSED.describe(limit),
+                    }
+                }
+                None => ScoreFileError::Io {
+                    path: path.to_string(),
+                    error: std::io::Error::new(err.kind(), err.to_string()),
+                },
+            }
+        }
         _ => ScoreFileError::Csv {
             path: path.to_string(),
             line,

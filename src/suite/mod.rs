@@ -422,6 +422,11 @@ pub const FLEXIBLE_KINDS: &[&str] = &[
 /// Method kinds with a fixed parametric shape that the threshold pairs use by default.
 pub const PARAMETRIC_KINDS: &[&str] = &["platt", "beta"];
 
+/// The most threshold pairs a suite gets by default: the default pairs are
+/// every flexible method against every parametric one, a list that grows with
+/// the product of the two counts; a suite with more lists its pairs.
+pub const MAX_DEFAULT_PAIRS: usize = 10_000;
+
 /// Default threshold pairs: every flexible method against every Platt or beta method.
 pub fn default_pairs(methods: &[MethodEntry]) -> Vec<(String, String)> {
     let mut out = Vec::new();
@@ -459,13 +464,14 @@ pub const DEFAULT_TEST_FRACTION: f64 = 0.3;
 /// Read, parse and validate a suite file.
 pub fn load(path: &Path) -> Result<Plan, SuiteError> {
     let file = path.display().to_string();
-    let bytes = std::fs::read(path).map_err(|e| SuiteError {
-        file: file.clone(),
-        line: 0,
-        column: 0,
-        key: "(file)".into(),
-        message: format!("cannot read the suite: {e}"),
-    })?;
+    let bytes =
+        crate::limits::read_bounded(path, &crate::limits::MAX_SUITE).map_err(|e| SuiteError {
+            file: file.clone(),
+            line: 0,
+            column: 0,
+            key: "(file)".into(),
+            message: format!("cannot read the suite: {e}"),
+        })?;
     let text = String::from_utf8(bytes.clone()).map_err(|e| SuiteError {
         file: file.clone(),
         line: 0,
@@ -475,6 +481,30 @@ pub fn load(path: &Path) -> Result<Plan, SuiteError> {
     })?;
     let sha = hex(&Sha256::digest(&bytes));
     parse(&text, path, sha)
+}
+
+/// SHA-256 (hex) of a file's bytes, read in blocks (constant memory). Only
+/// regular files: a pipe or device would give other bytes than the ones
+/// loaded, or none.
+pub fn file_sha256(path: &Path) -> std::io::Result<String> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path)?;
+    if !f.metadata()?.is_file() {
+        return Err(std::io::Error::new(
+            std::io::ErrorKind::InvalidInput,
+            "not a regular file (a suite's score files are hashed into the results, so they must be files)",
+        ));
+    }
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    loop {
+        let n = f.read(&mut buf)?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+    }
+    Ok(hex(&h.finalize()))
 }
 
 pub fn hex(bytes: &[u8]) -> String {
@@ -727,6 +757,9 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         return Err(ctx.err(0..0, "method", "the suite lists no [[method]] tables"));
     }
     let mut methods: Vec<(MethodEntry, std::ops::Range<usize>)> = Vec::new();
+    // Ids seen so far, for the duplicate check (a set: suites of many
+    // methods are checked in n log n, not by a scan per method).
+    let mut method_ids: BTreeSet<String> = BTreeSet::new();
     for (i, m) in raw.method.iter().enumerate() {
         let mut table = m.get_ref().clone();
         let label = format!("method #{}", i + 1);
@@ -748,7 +781,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                         e.message().trim().to_string(),
                     )
                 })?;
-        if methods.iter().any(|(e, _)| e.id == id) {
+        if !method_ids.insert(id.clone()) {
             return Err(ctx.err(
                 m.span(),
                 &format!("method `{id}`"),
@@ -801,7 +834,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         (None, Some(st)) => st.reference(),
         (None, None) => return Err(ctx.err(0..0, "reference", "missing key `reference` (the method paired differences are taken against)")),
         (Some(r), None) => {
-            if !methods.iter().any(|(e, _)| &e.id == r.get_ref()) {
+            if !method_ids.contains(r.get_ref()) {
                 return Err(ctx.err(
                     r.span(),
                     "reference",
@@ -818,11 +851,33 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
 
     let method_entries: Vec<MethodEntry> = methods.iter().map(|(m, _)| m.clone()).collect();
     let pairs = match &raw.threshold_pairs {
-        None => default_pairs(&method_entries),
+        // A protocol study reports no thresholds.
+        None if study.is_some() => Vec::new(),
+        None => {
+            let flexible = method_entries
+                .iter()
+                .filter(|m| FLEXIBLE_KINDS.contains(&m.spec.kind()))
+                .count();
+            let parametric = method_entries
+                .iter()
+                .filter(|m| PARAMETRIC_KINDS.contains(&m.spec.kind()))
+                .count();
+            if flexible * parametric > MAX_DEFAULT_PAIRS {
+                return Err(ctx.err(
+                    0..0,
+                    "threshold_pairs",
+                    format!(
+                        "{flexible} flexible and {parametric} Platt or beta methods make {} default threshold pairs (more than {MAX_DEFAULT_PAIRS}); list the pairs to report in `threshold_pairs`",
+                        flexible * parametric
+                    ),
+                ));
+            }
+            default_pairs(&method_entries)
+        }
         Some(p) => {
             for (a, b) in p.get_ref() {
                 for id in [a, b] {
-                    if !method_entries.iter().any(|m| &m.id == id) {
+                    if !method_ids.contains(id) {
                         return Err(ctx.err(
                             p.span(),
                             "threshold_pairs",
@@ -842,7 +897,8 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         }
     };
 
-    let reliability = reliability_plan(&ctx, raw.reliability.as_ref(), &method_entries)?;
+    let reliability =
+        reliability_plan(&ctx, raw.reliability.as_ref(), &method_entries, &method_ids)?;
     let decision = decision_plan(&ctx, raw.decision.as_ref(), &metrics)?;
 
     // Tasks.
@@ -855,6 +911,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     }
     // Models (for open-data tasks).
     let mut models: Vec<(String, ModelSpec)> = Vec::new();
+    let mut model_index: std::collections::BTreeMap<String, usize> = Default::default();
     for (i, m) in raw.model.iter().enumerate() {
         let mut table = m.get_ref().clone();
         let label = format!("model #{}", i + 1);
@@ -871,13 +928,14 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                 })?;
         spec.validate()
             .map_err(|e| ctx.err(m.span(), &format!("model `{id}`"), e.to_string()))?;
-        if models.iter().any(|(x, _)| *x == id) {
+        if model_index.contains_key(&id) {
             return Err(ctx.err(
                 m.span(),
                 &format!("model `{id}`"),
                 "this id is used by another model",
             ));
         }
+        model_index.insert(id.clone(), models.len());
         models.push((id, spec));
     }
     let data_dir = match &raw.open_data {
@@ -917,9 +975,10 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         };
         specs.push((spec, t.span(), label));
     }
-    let mut open_tasks: Option<Vec<open::TaskSummary>> = None;
+    // The open-data folder is listed once and shared (not copied per task).
+    let mut open_tasks: Option<std::rc::Rc<Vec<open::TaskSummary>>> = None;
     let mut list_open =
-        |span: std::ops::Range<usize>| -> Result<Vec<open::TaskSummary>, SuiteError> {
+        |span: std::ops::Range<usize>| -> Result<std::rc::Rc<Vec<open::TaskSummary>>, SuiteError> {
             if open_tasks.is_none() {
                 let l = open::list_tasks(&data_dir).map_err(|e| {
                     ctx.err(
@@ -932,7 +991,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                         format!("{} ({})", e, data_dir.display()),
                     )
                 })?;
-                open_tasks = Some(l);
+                open_tasks = Some(std::rc::Rc::new(l));
             }
             Ok(open_tasks.clone().unwrap_or_default())
         };
@@ -984,6 +1043,11 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     }
 
     let mut tasks: Vec<TaskPlan> = Vec::new();
+    // Task ids in lower case → the id as written, for the duplicate check.
+    let mut task_ids: std::collections::BTreeMap<String, String> = Default::default();
+    // Score kinds whose method parameters are already checked: every method
+    // is validated once per kind, not once per task.
+    let mut validated: Vec<ScoreKind> = Vec::new();
     for (spec, span, label) in specs {
         let id = match &spec {
             Spec::File(r) => r.id.clone(),
@@ -1017,29 +1081,33 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                 ),
             ));
         }
-        if let Some(other) = tasks.iter().find(|x| x.id.eq_ignore_ascii_case(&id)) {
-            let why = if other.id == id {
+        if let Some(other) = task_ids.get(&id.to_ascii_lowercase()) {
+            let why = if *other == id {
                 "this id is used by another task".to_string()
             } else {
                 format!(
                     "differs from task `{}` only in letter case; their figure files would clash on case-insensitive file systems",
-                    other.id
+                    other
                 )
             };
             return Err(ctx.err(id_span, &format!("{tl}.id"), why));
         }
+        task_ids.insert(id.to_ascii_lowercase(), id.clone());
         let score_kind = match &spec {
             Spec::File(r) => r.score_kind,
             Spec::Open(_) => ScoreKind::Probability,
         };
-        for (m, mspan) in &methods {
-            m.spec.validate(score_kind).map_err(|e| {
-                ctx.err(
-                    mspan.clone(),
-                    &format!("method `{}`", m.id),
-                    format!("{e} (for {tl}, score_kind = \"{}\")", score_kind.as_str()),
-                )
-            })?;
+        if !validated.contains(&score_kind) {
+            for (m, mspan) in &methods {
+                m.spec.validate(score_kind).map_err(|e| {
+                    ctx.err(
+                        key_span(ctx.text, mspan, &e.key),
+                        &format!("method `{}`", m.id),
+                        format!("{e} (for {tl}, score_kind = \"{}\")", score_kind.as_str()),
+                    )
+                })?;
+            }
+            validated.push(score_kind);
         }
         let test_set_span = raw
             .test_set
@@ -1062,16 +1130,17 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                     fold_column: None,
                     origin: scorefile::Origin::Suite,
                 };
-                let bytes = std::fs::read(&fpath).map_err(|e| {
+                // Load first: the reader bounds lines and decompressed size,
+                // so an endless or hostile file is refused before it is hashed.
+                let loaded = scorefile::load(&fspec)
+                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), e.to_string()))?;
+                let data_sha256 = file_sha256(&fpath).map_err(|e| {
                     ctx.err(
                         span.clone(),
                         &format!("{tl}.scores"),
                         format!("{}: cannot read: {e}", fpath.display()),
                     )
                 })?;
-                let data_sha256 = hex(&Sha256::digest(&bytes));
-                let loaded = scorefile::load(&fspec)
-                    .map_err(|e| ctx.err(span.clone(), &format!("{tl}.scores"), e.to_string()))?;
                 let n = loaded.pool.scores.len();
                 let positives = loaded.pool.labels.iter().filter(|&&y| y).count();
                 let (reservoir, test) = match &loaded.pool.sides {
@@ -1129,10 +1198,9 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
                         ),
                     )
                 })?;
-                let model = models
-                    .iter()
-                    .find(|(m, _)| *m == ro.model)
-                    .map(|(_, s)| s.clone())
+                let model = model_index
+                    .get(&ro.model)
+                    .map(|&i| models[i].1.clone())
                     .ok_or_else(|| {
                         ctx.err(
                             span.clone(),
@@ -1345,6 +1413,7 @@ fn reliability_plan(
     ctx: &Ctx,
     raw: Option<&Spanned<RawReliability>>,
     methods: &[MethodEntry],
+    ids: &BTreeSet<String>,
 ) -> Result<ReliabilityPlan, SuiteError> {
     let all: Vec<String> = methods.iter().map(|m| m.id.clone()).collect();
     let mut plan = ReliabilityPlan {
@@ -1371,7 +1440,7 @@ fn reliability_plan(
     }
     if let Some(m) = &r.methods {
         for id in m {
-            if !all.contains(id) {
+            if !ids.contains(id) {
                 return Err(ctx.err(
                     span.clone(),
                     "reliability.methods",
@@ -1382,7 +1451,8 @@ fn reliability_plan(
                 ));
             }
         }
-        plan.methods = all.iter().filter(|id| m.contains(id)).cloned().collect();
+        let wanted: BTreeSet<&String> = m.iter().collect();
+        plan.methods = all.into_iter().filter(|id| wanted.contains(id)).collect();
     }
     if let Some(d) = r.band_draws {
         if !(10..=10_000).contains(&d) {
