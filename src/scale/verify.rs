@@ -195,10 +195,75 @@ fn files_under(dir: &Path) -> Result<Vec<String>> {
     Ok(out)
 }
 
+/// The scratch folder a full verify of `dir` reruns into: a hidden sibling
+/// named after the folder and this process.
+fn scratch_dir(dir: &Path, pid: u32) -> PathBuf {
+    dir.with_file_name(format!(".{}.verify-{pid}", folder_label(dir)))
+}
+
+fn folder_label(dir: &Path) -> String {
+    dir.file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_else(|| "results".into())
+}
+
+/// Remove what an earlier verify of `dir` left behind when it was killed
+/// (its scratch folder, and the staging folder and lock of the rerun into
+/// it): siblings named `.<name>.verify-<pid>` (and `..<name>.verify-<pid>.*`)
+/// whose process is no longer running. Returns one note per removed entry.
+pub fn remove_stale_scratch(dir: &Path) -> Vec<String> {
+    let parent = match dir.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let prefix = format!(".{}.verify-", folder_label(dir));
+    let Ok(entries) = std::fs::read_dir(&parent) else {
+        return Vec::new();
+    };
+    let mut notes = Vec::new();
+    for e in entries.flatten() {
+        let name = e.file_name().to_string_lossy().to_string();
+        // The scratch folder itself, or `.<scratch name>.partial` / `.lock`.
+        let rest = name
+            .strip_prefix(&prefix)
+            .or_else(|| name.strip_prefix('.').and_then(|n| n.strip_prefix(&prefix)));
+        let Some(rest) = rest else { continue };
+        let digits: String = rest.chars().take_while(char::is_ascii_digit).collect();
+        let tail = &rest[digits.len()..];
+        if !(tail.is_empty() || tail == ".partial" || tail == ".lock") {
+            continue;
+        }
+        let Ok(pid) = digits.parse::<u32>() else {
+            continue;
+        };
+        if pid == std::process::id() || crate::run::output::pid_alive(pid) {
+            continue;
+        }
+        let path = e.path();
+        let removed = match e.file_type() {
+            Ok(t) if t.is_dir() => std::fs::remove_dir_all(&path),
+            Ok(_) => std::fs::remove_file(&path),
+            Err(err) => Err(err),
+        };
+        if removed.is_ok() {
+            notes.push(format!(
+                "removed {}, left by an interrupted verify (process {pid}, no longer running)",
+                path.display()
+            ));
+        }
+    }
+    notes.sort();
+    notes
+}
+
 /// `plumbline verify`.
 pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
     let dir = &args.dir;
+    if args.sample == Some(0) {
+        bail!("--sample 0 would compare nothing: give the number of units to rerun (at least 1), or leave --sample out to rerun every unit");
+    }
     let manifest = read_manifest(dir)?;
+    let stale = remove_stale_scratch(dir);
     if manifest.get("shard").is_some() {
         bail!(
             "{} is a shard folder: merge the shards (`plumbline merge`) and verify the merged folder",
@@ -242,10 +307,14 @@ pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
             );
         }
     }
-    match args.sample {
-        Some(k) => verify_sample(args, plan, k),
-        None => verify_all(args, &suite, &manifest),
-    }
+    let mut report = match args.sample {
+        Some(k) => verify_sample(args, plan, k)?,
+        None => verify_all(args, &suite, &manifest)?,
+    };
+    report
+        .lines
+        .splice(0..0, stale.into_iter().map(|n| format!("note: {n}")));
+    Ok(report)
 }
 
 fn verify_sample(
@@ -304,11 +373,7 @@ fn verify_sample(
 
 fn verify_all(args: &VerifyArgs, suite: &Path, manifest: &Value) -> Result<VerifyReport> {
     let dir = &args.dir;
-    let name = dir
-        .file_name()
-        .map(|n| n.to_string_lossy().to_string())
-        .unwrap_or_else(|| "results".into());
-    let scratch = dir.with_file_name(format!(".{name}.verify-{}", std::process::id()));
+    let scratch = scratch_dir(dir, std::process::id());
     let res = app::run_suite(&RunArgs {
         suite: suite.to_path_buf(),
         out: Some(scratch.clone()),
