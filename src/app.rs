@@ -593,6 +593,22 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
     };
     let a = analysis::analyse(&table, &settings);
     let suite_info = manifest.as_ref().and_then(|m| m.get("suite"));
+    // Missing unit rows and NaN values change the tables silently: say so.
+    let repeats = suite_info
+        .and_then(|s| s.get("repeats"))
+        .and_then(|v| v.as_u64())
+        .map(|n| n as usize);
+    let gaps = analysis::gaps::table_gaps(&table, repeats);
+    for w in gaps.iter().take(20) {
+        eprintln!("warning: {}: {w}", units_path.display());
+    }
+    if gaps.len() > 20 {
+        eprintln!(
+            "warning: {}: … and {} more such warnings",
+            units_path.display(),
+            gaps.len() - 20
+        );
+    }
     let ctx = summary::ReportContext {
         suite_name: suite_info
             .and_then(|s| s.get("name"))

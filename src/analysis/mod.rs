@@ -5,6 +5,7 @@
 use std::collections::BTreeMap;
 
 pub mod decision;
+pub mod gaps;
 pub mod steps;
 
 pub use decision::{decide, task_parts, Decision, SizeVerdict};
