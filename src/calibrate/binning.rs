@@ -34,6 +34,12 @@ use super::{check_sample, Calibrator, FitError, Fitted, FittedMap};
 /// Default bin count (Zadrozny & Elkan 2001 used ten bins).
 pub const DEFAULT_BINS: usize = 10;
 
+/// The most bins a map may have: at 10,000 equal-mass bins even a
+/// million-row calibration sample has only 100 rows per bin, and the bin
+/// search of a fit takes time in the number of bins, so a larger count is a
+/// mistake (the suite check says so).
+pub const MAX_BINS: usize = 10_000;
+
 pub struct Binning {
     pub bins: usize,
     pub pseudo_count: f64,
@@ -144,8 +150,11 @@ impl Calibrator for Binning {
     }
     fn fit(&self, scores: &[f64], labels: &[bool]) -> Result<Fitted, FitError> {
         check_sample(scores, labels)?;
-        if self.bins == 0 {
-            return Err(FitError::Failed("binning: bins must be at least 1".into()));
+        if self.bins == 0 || self.bins > MAX_BINS {
+            return Err(FitError::Failed(format!(
+                "binning: bins must be between 1 and {MAX_BINS}, got {}",
+                self.bins
+            )));
         }
         if scores.iter().any(|s| s.is_nan()) {
             return Err(FitError::Failed("binning: NaN score".into()));

@@ -278,8 +278,12 @@ impl MethodSpec {
             MethodSpec::Isotonic { pseudo_count } => check_pseudo_count(*pseudo_count),
             MethodSpec::Beta { .. } => Ok(()),
             MethodSpec::Binning { bins, pseudo_count } => {
-                if *bins == 0 {
-                    return Err(ParamError::new("bins", bins, "must be at least 1"));
+                if *bins == 0 || *bins > binning::MAX_BINS {
+                    return Err(ParamError::new(
+                        "bins",
+                        bins,
+                        "the number of bins must be between 1 and 10000",
+                    ));
                 }
                 check_pseudo_count(*pseudo_count)
             }
@@ -416,6 +420,10 @@ mod spec_tests {
         let b = parse("m = { kind = \"binning\", bins = 0 }").unwrap();
         let e = b.validate(ScoreKind::Probability).err().unwrap();
         assert_eq!(e.key, "bins");
+        let big = parse("m = { kind = \"binning\", bins = 10001 }").unwrap();
+        assert_eq!(big.validate(ScoreKind::Margin).err().unwrap().key, "bins");
+        let most = parse("m = { kind = \"binning\", bins = 10000 }").unwrap();
+        assert!(most.validate(ScoreKind::Margin).is_ok());
         let c = parse("m = { kind = \"centered-isotonic\", pseudo_count = -1.0 }").unwrap();
         assert_eq!(
             c.validate(ScoreKind::Margin).err().unwrap().key,
