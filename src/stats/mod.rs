@@ -15,6 +15,10 @@
 //!   critical difference and Holm-corrected Wilcoxon signed-rank tests, following
 //!   Demšar (2006, JMLR 7, "Statistical comparisons of classifiers over multiple
 //!   data sets").
+//! * [`bayes`]: the Bayesian signed-rank test with a region of practical
+//!   equivalence (Benavoli, Corani, Demšar & Zaffalon 2017, JMLR 18, §5), the
+//!   across-dataset evidence of the decision: P(better), P(equivalent),
+//!   P(worse) from Dirichlet-process posterior samples.
 //! * [`thresholds`]: from which calibration size a flexible method is reliably
 //!   better than a parametric one, and where the mean difference crosses zero.
 //! * [`verdict`]: the one rule that reads a paired interval and an
@@ -24,6 +28,7 @@
 //! come from `statrs`.
 
 pub mod across;
+pub mod bayes;
 pub mod paired;
 pub mod thresholds;
 pub mod verdict;
