@@ -5,10 +5,12 @@
 use std::collections::BTreeMap;
 
 pub mod decision;
+pub mod evidence;
 pub mod gaps;
 pub mod steps;
 
 pub use decision::{decide, task_parts, Decision, SizeVerdict};
+pub use evidence::{dataset_evidence, DatasetEvidence};
 pub use steps::{across_step, decision_metrics, threshold_step, StepInput};
 
 use crate::metrics::{Goal, MetricId};
@@ -165,6 +167,9 @@ pub struct Analysis {
     pub decisions: Vec<Decision>,
     /// The equivalence margin δ of each (task, size, metric) with a reference.
     pub margins: Margins,
+    /// The primary decision's default against every other method at each
+    /// size, datasets as units (Bayesian signed-rank test with rope).
+    pub dataset_evidence: Vec<DatasetEvidence>,
 }
 
 /// (task, size, metric) → equivalence margin δ.
@@ -501,10 +506,14 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         thresholds.extend(rows);
         threshold_summaries.extend(sums.into_iter().map(|(pair, s)| (metric.clone(), pair, s)));
     }
-    let decisions = metrics
+    let decisions: Vec<Decision> = metrics
         .iter()
         .filter_map(|m| decide(&across, table, &cells, &margins, settings, m))
         .collect();
+    let dataset_evidence = decisions
+        .first()
+        .map(|d| dataset_evidence(d, &across, table, &cells, &margins))
+        .unwrap_or_default();
     Analysis {
         tasks,
         methods,
@@ -519,6 +528,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         threshold_summaries,
         decisions,
         margins,
+        dataset_evidence,
     }
 }
 

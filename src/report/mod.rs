@@ -4,6 +4,7 @@
 
 pub mod csvout;
 pub mod document;
+pub mod evidence;
 pub mod fallback;
 pub mod figures;
 pub mod html;

@@ -193,7 +193,7 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
         ],
         rows: Vec::new(),
         notes: vec![format!(
-            "Default `{}`, runner-up `{ru}`. Ranks: average over tasks of each method's rank by mean {} (1 = best); \"tied\": the best is not distinguishable from the default (Holm-corrected Wilcoxon). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. {}: tasks on which `{}`, compared with `{ru}`, is {} (paired interval and margin per task).",
+            "Default `{}`, runner-up `{ru}`. Ranks: average over tasks of each method's rank by mean {} (1 = best); \"tied\": the best is not distinguishable from the default (Holm-corrected Wilcoxon signed-rank test over tasks). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. Ranks, ties, CD and the Friedman p treat the tasks as independent cases. {}: tasks on which `{}`, compared with `{ru}`, is {} — each mark from that task's paired interval (the suite's interval over repeats) read against the task's margin δ, as in the legend, not from a test across tasks.",
             d.default,
             d.metric,
             marks_slashed(),
@@ -362,13 +362,13 @@ fn rank_blocks(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> 
         t.rows.push(tasks_row);
         t.rows.push(cd_row);
         t.rows.push(p_row);
-        t.notes.push("Methods in order of the decision rule (mean of the average ranks over sizes); bold: best at that size.".into());
+        t.notes.push("Methods in order of the decision rule (mean of the average ranks over sizes); bold: best at that size. Friedman / Iman–Davenport and the Nemenyi CD treat the tasks as independent cases; tasks that share a dataset are not, so these are optimistic (the Bayesian signed-rank table in the decision section takes the dataset as unit).".into());
         out.push(Block::Table(t));
         if detail == Detail::Full {
             out.push(Block::Figure(
                 format!("figures/ranks--{}.svg", d.metric),
                 format!(
-                    "average ranks with Nemenyi critical difference, {}",
+                    "average ranks with Nemenyi critical difference, {} (tasks treated as independent)",
                     d.metric
                 ),
             ));
@@ -547,6 +547,10 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
     }
     for (i, d) in a.decisions.iter().enumerate() {
         b.extend(decision_blocks(d, i == 0));
+        if i == 0 {
+            // The primary decision's default, datasets as units.
+            b.extend(super::evidence::dataset_evidence_blocks(a));
+        }
     }
     b.extend(evidence_blocks(a, ctx));
     b.push(Block::Caution(CAUTION.into()));

@@ -1,0 +1,199 @@
+//! Evidence across datasets for the decision: the team default against every
+//! other method at each calibration size by the Bayesian signed-rank test
+//! with a region of practical equivalence ([`crate::stats::bayes`]), with the
+//! dataset — not the task — as the unit.
+//!
+//! Tasks `<dataset>.<model>` that share a dataset are not independent cases,
+//! so the tests across tasks (Friedman, Nemenyi, Wilcoxon) are optimistic.
+//! Here each dataset contributes one difference:
+//!
+//! * per task, the mean over the repeats where both methods have a value of
+//!   (default − competitor) of the compared metric, turned so that below
+//!   zero means the default is better (as the paired intervals);
+//! * per dataset, D = the mean of these over the dataset's tasks that enter
+//!   the comparison across tasks at this size (every method has a value);
+//! * the rope: each dataset's own margin δ = the mean over the same tasks of
+//!   the task's equivalence margin (the suite's `[decision]` margin: a share
+//!   of the reference method's mean loss, or the metric's absolute margin).
+//!   The test takes one rope for all cases, so each D is divided by its δ
+//!   and the rope is 1: a dataset's difference counts in units of its own
+//!   margin. With an absolute margin this is the same as D with rope δ. With
+//!   a margin of 0 the raw D enter with no rope (better / worse only).
+//!
+//! Prior strength 0.5 at zero and 50 000 posterior samples (the paper's and
+//! `baycomp`'s defaults); the seed is fixed and derived from the metric, the
+//! size and the two method names, so a report is reproducible byte for byte.
+
+use std::collections::BTreeMap;
+
+use super::steps::Cells;
+use super::{higher_is_better, pair_up, task_parts, AcrossRow, Decision, Margins};
+use crate::run::table::UnitTable;
+use crate::split::{fnv1a, mix};
+use crate::stats::bayes::{signed_rank, SignedRank, DEFAULT_PRIOR, DEFAULT_SAMPLES};
+
+/// Domain tag of the posterior sampling seeds ("bsrt").
+const TAG_BAYES: u64 = 0x6273_7274;
+
+/// The default against one competitor at one size, datasets as units.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DatasetEvidence {
+    pub metric: String,
+    pub size: usize,
+    pub default: String,
+    pub competitor: String,
+    /// Datasets that entered (one difference each).
+    pub datasets: usize,
+    /// Tasks behind them.
+    pub tasks: usize,
+    /// True when each dataset's difference was divided by its margin (rope 1).
+    pub scaled: bool,
+    pub result: Result<SignedRank, String>,
+}
+
+/// The seed of one comparison.
+pub fn evidence_seed(metric: &str, size: usize, default: &str, competitor: &str) -> u64 {
+    mix(
+        TAG_BAYES,
+        &[
+            fnv1a(metric.as_bytes()),
+            size as u64,
+            fnv1a(default.as_bytes()),
+            fnv1a(competitor.as_bytes()),
+        ],
+    )
+}
+
+/// Differences (and margins) per dataset → (scaled differences, rope, scaled).
+/// Errors name the dataset whose margin is missing.
+pub fn dataset_cases(per_dataset: &[(String, f64, f64)]) -> Result<(Vec<f64>, f64, bool), String> {
+    if per_dataset.iter().all(|(_, _, m)| *m == 0.0) {
+        return Ok((per_dataset.iter().map(|(_, d, _)| *d).collect(), 0.0, false));
+    }
+    let mut z = Vec::with_capacity(per_dataset.len());
+    for (name, d, m) in per_dataset {
+        if !(m.is_finite() && *m > 0.0) {
+            return Err(format!(
+                "dataset `{name}` has no positive equivalence margin (got {m}): the reference method has no values there"
+            ));
+        }
+        z.push(d / m);
+    }
+    Ok((z, 1.0, true))
+}
+
+/// The evidence for `decision`'s default against every other method at
+/// every size of its metric.
+pub fn dataset_evidence(
+    decision: &Decision,
+    across: &[AcrossRow],
+    table: &UnitTable,
+    cells: &Cells,
+    margins: &Margins,
+) -> Vec<DatasetEvidence> {
+    let metric = decision.metric.as_str();
+    let Some(mi) = table.metric_index(metric) else {
+        return Vec::new();
+    };
+    let sign = if higher_is_better(metric) { -1.0 } else { 1.0 };
+    let mut out = Vec::new();
+    for row in across
+        .iter()
+        .filter(|r| r.metric == metric && r.result.is_ok())
+    {
+        for competitor in row.methods.iter().filter(|m| **m != decision.default) {
+            // dataset → (Σ task differences, Σ task margins, tasks), first-seen order.
+            let mut order: Vec<String> = Vec::new();
+            let mut sums: BTreeMap<String, (f64, f64, usize)> = BTreeMap::new();
+            for task in &row.tasks {
+                let key = |m: &str| (task.clone(), row.size, m.to_string());
+                let (Some(ca), Some(cb)) = (
+                    cells.get(&key(&decision.default)),
+                    cells.get(&key(competitor)),
+                ) else {
+                    continue;
+                };
+                let pr = pair_up(table, ca, cb, mi, metric);
+                if pr.diffs.is_empty() {
+                    continue;
+                }
+                let d = sign * pr.diffs.iter().sum::<f64>() / pr.diffs.len() as f64;
+                let margin = margins
+                    .get(&(task.clone(), row.size, metric.to_string()))
+                    .copied()
+                    .unwrap_or(f64::NAN);
+                let ds = task_parts(task).0.to_string();
+                if !sums.contains_key(&ds) {
+                    order.push(ds.clone());
+                }
+                let e = sums.entry(ds).or_insert((0.0, 0.0, 0));
+                e.0 += d;
+                e.1 += margin;
+                e.2 += 1;
+            }
+            let per_dataset: Vec<(String, f64, f64)> = order
+                .iter()
+                .map(|ds| {
+                    let (d, m, k) = sums[ds];
+                    (ds.clone(), d / k as f64, m / k as f64)
+                })
+                .collect();
+            let tasks = sums.values().map(|s| s.2).sum();
+            let (result, scaled) = match dataset_cases(&per_dataset) {
+                Ok((z, rope, scaled)) => (
+                    signed_rank(
+                        &z,
+                        rope,
+                        DEFAULT_PRIOR,
+                        DEFAULT_SAMPLES,
+                        evidence_seed(metric, row.size, &decision.default, competitor),
+                    )
+                    .map_err(|e| e.to_string()),
+                    scaled,
+                ),
+                Err(e) => (Err(e), false),
+            };
+            out.push(DatasetEvidence {
+                metric: metric.to_string(),
+                size: row.size,
+                default: decision.default.clone(),
+                competitor: competitor.clone(),
+                datasets: per_dataset.len(),
+                tasks,
+                scaled,
+                result,
+            });
+        }
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn relative_margins_scale_each_dataset_and_zero_margins_drop_the_rope() {
+        let (z, rope, scaled) =
+            dataset_cases(&[("a".into(), -0.02, 0.01), ("b".into(), 0.003, 0.002)]).unwrap();
+        assert_eq!(rope, 1.0);
+        assert!(scaled);
+        assert!((z[0] + 2.0).abs() < 1e-12 && (z[1] - 1.5).abs() < 1e-12);
+        let (z, rope, scaled) =
+            dataset_cases(&[("a".into(), -0.02, 0.0), ("b".into(), 0.003, 0.0)]).unwrap();
+        assert_eq!((rope, scaled), (0.0, false));
+        assert_eq!(z, vec![-0.02, 0.003]);
+        let e =
+            dataset_cases(&[("a".into(), -0.02, 0.01), ("b".into(), 0.003, f64::NAN)]).unwrap_err();
+        assert!(e.contains("`b`"), "{e}");
+    }
+
+    #[test]
+    fn seeds_differ_by_comparison() {
+        let a = evidence_seed("log_loss", 100, "beta", "platt");
+        assert_eq!(a, evidence_seed("log_loss", 100, "beta", "platt"));
+        assert_ne!(a, evidence_seed("log_loss", 200, "beta", "platt"));
+        assert_ne!(a, evidence_seed("log_loss", 100, "beta", "identity"));
+        assert_ne!(a, evidence_seed("brier", 100, "beta", "platt"));
+    }
+}
