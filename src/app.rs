@@ -184,6 +184,12 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
         pairs: plan.pairs.clone(),
         margin: plan.decision.margin,
         absolute_margins: plan.decision.absolute_margins.clone(),
+        raw_method: plan
+            .methods
+            .iter()
+            .find(|m| m.spec.kind() == "identity")
+            .map(|m| m.id.clone()),
+        max_fallback: plan.decision.max_fallback,
     }
 }
 
@@ -590,6 +596,19 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
             .as_ref()
             .map(|s| s.absolute_margins.clone())
             .unwrap_or_default(),
+        // Results written before the field existed: a method named `identity`.
+        raw_method: match &from_manifest {
+            Some(s) if s.raw_method.is_some() => s.raw_method.clone(),
+            _ => table
+                .rows
+                .iter()
+                .any(|r| r.method == "identity")
+                .then(|| "identity".to_string()),
+        },
+        max_fallback: from_manifest
+            .as_ref()
+            .map(|s| s.max_fallback)
+            .unwrap_or(analysis::DEFAULT_MAX_FALLBACK),
     };
     let a = analysis::analyse(&table, &settings);
     let suite_info = manifest.as_ref().and_then(|m| m.get("suite"));

@@ -696,7 +696,7 @@ fn decision_table_is_checked_with_file_line_and_key() {
     // Good values: a relative margin and absolute margins per metric.
     let suite = fx.suite(
         "ok.toml",
-        &with("margin = 0.02\nabsolute_margins = { brier = 0.0005 }"),
+        &with("margin = 0.02\nabsolute_margins = { brier = 0.0005 }\nmax_fallback = 0.25"),
     );
     let out = fx.path("ok-out");
     run_ok(&fx, &suite, &out, "1");
@@ -704,6 +704,7 @@ fn decision_table_is_checked_with_file_line_and_key() {
         serde_json::from_str(&fs::read_to_string(out.join("manifest.json")).unwrap()).unwrap();
     assert_eq!(manifest["analysis"]["margin"], 0.02);
     assert_eq!(manifest["analysis"]["absolute_margins"]["brier"], 0.0005);
+    assert_eq!(manifest["analysis"]["max_fallback"], 0.25);
     let v = verdicts(&fs::read_to_string(out.join("paired.csv")).unwrap());
     for ((_, metric), (d, _)) in &v {
         if metric == "brier" {
@@ -741,6 +742,16 @@ fn decision_table_is_checked_with_file_line_and_key() {
             "decision.absolute_margins.auc_roc",
             "not one of the suite's metrics",
         ],
+    );
+    must_fail(
+        &fx,
+        &with("max_fallback = 1.5"),
+        &[&format!("bad.toml:{at}"), "decision.max_fallback", "1.5"],
+    );
+    must_fail(
+        &fx,
+        &with("max_fallback = -0.1"),
+        &[&format!("bad.toml:{at}"), "decision.max_fallback", "-0.1"],
     );
     must_fail(
         &fx,

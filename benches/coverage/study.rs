@@ -524,6 +524,8 @@ fn run_replicate(
             pairs: Vec::new(),
             margin: plumbline::analysis::DEFAULT_MARGIN,
             absolute_margins: Default::default(),
+            raw_method: None,
+            max_fallback: plumbline::analysis::DEFAULT_MAX_FALLBACK,
         };
         let src = PairSource {
             table: &table,

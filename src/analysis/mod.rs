@@ -9,9 +9,14 @@ pub mod evidence;
 pub mod gaps;
 pub mod steps;
 
-pub use decision::{decide, task_parts, Decision, SizeVerdict};
+pub use decision::{
+    decide, task_parts, Decision, DecisionInput, FallbackShare, RawAtSize, Recommendation,
+    SizeVerdict,
+};
 pub use evidence::{dataset_evidence, DatasetEvidence};
-pub use steps::{across_step, decision_metrics, threshold_step, StepInput};
+pub use steps::{
+    across_step, decision_metrics, pair_thresholds, raw_pairs, threshold_step, StepInput,
+};
 
 use crate::metrics::{Goal, MetricId};
 use crate::run::table::UnitTable;
@@ -44,13 +49,31 @@ pub struct AnalysisSettings {
     /// they replace the relative margin for their metric.
     #[serde(default)]
     pub absolute_margins: BTreeMap<String, f64>,
+    /// The method that passes the scores through unchanged (kind
+    /// `identity`), when the suite has one: the decision asks whether
+    /// calibrating pays against it.
+    #[serde(default)]
+    pub raw_method: Option<String>,
+    /// Largest share of a method's draws at a calibration size (over the
+    /// tasks) that may have fallen back to the base rate for the method to
+    /// be recommended at that size (the suite's `[decision] max_fallback`).
+    #[serde(default = "default_max_fallback")]
+    pub max_fallback: f64,
 }
 
 /// The default relative equivalence margin: 1% of the reference's mean loss.
 pub const DEFAULT_MARGIN: f64 = 0.01;
 
+/// The default `[decision] max_fallback`: the share above which the Fallback
+/// fits section flags a cell as large (`report::fallback::LARGE_SHARE`).
+pub const DEFAULT_MAX_FALLBACK: f64 = 0.10;
+
 fn default_margin() -> f64 {
     DEFAULT_MARGIN
+}
+
+fn default_max_fallback() -> f64 {
+    DEFAULT_MAX_FALLBACK
 }
 
 impl AnalysisSettings {
@@ -163,6 +186,10 @@ pub struct Analysis {
     pub thresholds: Vec<ThresholdRow>,
     /// Per metric and pair: the summary over tasks.
     pub threshold_summaries: Vec<(String, (String, String), ThresholdSummary)>,
+    /// Thresholds of every method against the raw scores
+    /// ([`AnalysisSettings::raw_method`]) on each decision metric: from which
+    /// size calibrating pays off on each task (empty without a raw method).
+    pub raw_thresholds: Vec<ThresholdRow>,
     /// The recommendation on each decision metric (the primary metric first).
     pub decisions: Vec<Decision>,
     /// The equivalence margin δ of each (task, size, metric) with a reference.
@@ -486,6 +513,13 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
     let mut across = Vec::new();
     let mut thresholds = Vec::new();
     let mut threshold_summaries = Vec::new();
+    let mut raw_thresholds = Vec::new();
+    let raw = settings
+        .raw_method
+        .as_ref()
+        .filter(|r| methods.contains(r))
+        .map(|r| raw_pairs(&methods, r))
+        .unwrap_or_default();
     for metric in &metrics {
         let Some(mi) = table.metric_index(metric) else {
             continue;
@@ -505,10 +539,22 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         let (rows, sums) = threshold_step(&ctx, metric, mi);
         thresholds.extend(rows);
         threshold_summaries.extend(sums.into_iter().map(|(pair, s)| (metric.clone(), pair, s)));
+        raw_thresholds.extend(pair_thresholds(&ctx, metric, mi, &raw).0);
     }
     let decisions: Vec<Decision> = metrics
         .iter()
-        .filter_map(|m| decide(&across, table, &cells, &margins, settings, m))
+        .filter_map(|m| {
+            let input = decision::DecisionInput {
+                across: &across,
+                table,
+                cells: &cells,
+                margins: &margins,
+                settings,
+                fallback_counts: &fallback_counts,
+                raw_thresholds: &raw_thresholds,
+            };
+            decide(&input, m)
+        })
         .collect();
     let dataset_evidence = decisions
         .first()
@@ -526,6 +572,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         across,
         thresholds,
         threshold_summaries,
+        raw_thresholds,
         decisions,
         margins,
         dataset_evidence,

@@ -159,6 +159,27 @@ pub fn pair_interval(
 
 /// Data-size thresholds of every (flexible, parametric) pair on every task.
 pub fn threshold_step(c: &StepInput, metric: &str, mi: usize) -> ThresholdOutput {
+    pair_thresholds(c, metric, mi, &c.settings.pairs)
+}
+
+/// Every method of the suite against the raw scores (`raw`): the pairs
+/// whose thresholds say from which size calibrating pays off on a task.
+pub fn raw_pairs(methods: &[String], raw: &str) -> Vec<(String, String)> {
+    methods
+        .iter()
+        .filter(|m| *m != raw)
+        .map(|m| (m.clone(), raw.to_string()))
+        .collect()
+}
+
+/// Data-size thresholds of the given (first, second) method pairs on every
+/// task: from which size the first is reliably better than the second.
+pub fn pair_thresholds(
+    c: &StepInput,
+    metric: &str,
+    mi: usize,
+    pairs: &[(String, String)],
+) -> ThresholdOutput {
     let mut thresholds = Vec::new();
     let mut summaries = Vec::new();
     let src = PairSource {
@@ -166,7 +187,7 @@ pub fn threshold_step(c: &StepInput, metric: &str, mi: usize) -> ThresholdOutput
         cells: c.cells,
         settings: c.settings,
     };
-    for (flex, para) in &c.settings.pairs {
+    for (flex, para) in pairs {
         let mut per_task = Vec::new();
         for task in c.tasks {
             let mut pts = Vec::new();

@@ -53,11 +53,22 @@ pub const THRESHOLDS_HEADER: &str =
 /// `thresholds.csv`: per task and (flexible, parametric) pair, the smallest
 /// size from which the flexible method is reliably better at every larger
 /// tested size, the largest size at which it is reliably worse, and the
-/// interpolated crossover of the mean difference on log size.
+/// interpolated crossover of the mean difference on log size. Then every
+/// method against the raw scores (`parametric` = the suite's identity
+/// method), on the decision metrics, unless the pair is already listed.
 pub fn thresholds_csv(a: &Analysis) -> String {
     let mut s = String::from(THRESHOLDS_HEADER);
     s.push('\n');
-    for t in &a.thresholds {
+    let listed = |t: &crate::analysis::ThresholdRow| {
+        a.thresholds.iter().any(|x| {
+            x.task == t.task
+                && x.flexible == t.flexible
+                && x.parametric == t.parametric
+                && x.metric == t.metric
+        })
+    };
+    let raw = a.raw_thresholds.iter().filter(|t| !listed(t));
+    for t in a.thresholds.iter().chain(raw) {
         let sizes = t
             .points
             .iter()

@@ -5,7 +5,7 @@
 
 use super::document::{anchor, legend, Block};
 use super::{figures, fmt_diff, fmt_value, Table};
-use crate::analysis::{task_parts, Analysis, AnalysisSettings, Decision};
+use crate::analysis::{task_parts, Analysis, AnalysisSettings, Decision, Recommendation};
 use crate::metrics::reliability::CurveRecord;
 use crate::stats::paired::IntervalKind;
 use crate::stats::verdict::{marks_slashed, Verdict};
@@ -149,6 +149,73 @@ fn size_range(a: usize, b: usize) -> String {
     }
 }
 
+/// "Calibrate at all?": the raw scores against the calibrating methods, size
+/// by size, and from which size calibrating pays off per task.
+fn raw_words(d: &Decision, raw: &str) -> String {
+    let keep: Vec<String> = d
+        .per_size
+        .iter()
+        .filter(|v| v.raw.as_ref().is_some_and(|r| r.keep_raw))
+        .map(|v| v.size.to_string())
+        .collect();
+    let verdict = if keep.is_empty() {
+        "at no size does the evidence say to keep the raw scores".to_string()
+    } else {
+        format!("**keep the raw scores at n = {}**", keep.join(", "))
+    };
+    let counts: Vec<String> = d
+        .per_size
+        .iter()
+        .filter_map(|v| {
+            let r = v.raw.as_ref()?;
+            let most = r
+                .most_better
+                .as_ref()
+                .map(|(m, k)| format!(", most `{m}` {k}"))
+                .unwrap_or_default();
+            Some(format!(
+                "n = {}: {}/{}{most}{}",
+                v.size,
+                r.any_better,
+                v.tasks,
+                if r.raw_holds {
+                    ", raw ranked best or tied"
+                } else {
+                    ""
+                }
+            ))
+        })
+        .collect();
+    let mut out = format!(
+        "**Calibrate at all?** Against the uncalibrated scores `{raw}`, {verdict}. Rule: keep the raw scores at a size when they rank best there or are not distinguishable from the best (Holm-corrected Wilcoxon) and no single method is reliably better than them on more than half of the tasks. Tasks on which some method is reliably better than the raw scores — {}.",
+        counts.join("; ")
+    );
+    let pays: Vec<String> = d
+        .pays_from
+        .iter()
+        .map(|(m, s)| {
+            let who = match m {
+                None => "some method".to_string(),
+                Some(m) => format!("`{m}`"),
+            };
+            match &s.better_from {
+                Some(b) => format!(
+                    "{who} on {} of {} tasks, from a median n = {:.0} [{:.0}, {:.0}]",
+                    b.tasks, s.tasks, b.median, b.min, b.max
+                ),
+                None => format!("{who} on none of {} tasks", s.tasks),
+            }
+        })
+        .collect();
+    if !pays.is_empty() {
+        out.push_str(&format!(
+            " Calibration pays off within the sizes tried (reliably better than the raw scores at a size and at every larger tested size): {}; per task and method in `thresholds.csv` (rows with `parametric` = `{raw}`).",
+            pays.join("; ")
+        ));
+    }
+    out
+}
+
 /// The decision on one metric as blocks.
 fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
     let mut out = Vec::new();
@@ -158,13 +225,18 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
         .map(|r| format!("; runner-up **`{r}`**"))
         .unwrap_or_default();
     out.push(Block::Para(format!(
-        "{} **team default: `{}`**{runner}.",
+        "{} **team default: `{}`**{}{runner}.",
         if primary {
             format!("On `{}` (the primary metric):", d.metric)
         } else {
             format!("On `{}`:", d.metric)
         },
-        d.default
+        d.default,
+        if d.raw.as_ref() == Some(&d.default) {
+            " (the uncalibrated scores: do not calibrate)"
+        } else {
+            ""
+        }
     )));
     let changes: Vec<String> = d
         .segments
@@ -178,33 +250,102 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
         d.default,
         d.per_size.len()
     )));
+    let raw = d.raw.as_ref();
+    let recs: Vec<(usize, usize, String)> = d.per_size.iter().fold(Vec::new(), |mut acc, v| {
+        match acc.last_mut() {
+            Some(s) if s.2 == v.recommended => s.1 = v.size,
+            _ => acc.push((v.size, v.size, v.recommended.clone())),
+        }
+        acc
+    });
+    if recs.iter().any(|r| r.2 != d.default) {
+        let parts: Vec<String> = recs
+            .iter()
+            .map(|(lo, hi, m)| {
+                let what = if m.is_empty() {
+                    "no method (every one fell back too often)".to_string()
+                } else if Some(m) == d.raw.as_ref() {
+                    format!("keep the raw scores (`{m}`)")
+                } else {
+                    format!("`{m}`")
+                };
+                format!("{}: {what}", size_range(*lo, *hi))
+            })
+            .collect();
+        out.push(Block::Para(format!(
+            "**Recommended by calibration size** — {}.",
+            parts.join("; ")
+        )));
+    }
+    if let Some(raw) = raw {
+        out.push(Block::Para(raw_words(d, raw)));
+    }
+    for v in &d.per_size {
+        if let Recommendation::PassedOver(passed) = &v.why {
+            let list: Vec<String> = passed
+                .iter()
+                .map(|(m, sh)| format!("`{m}` {:.1}%", sh * 100.0))
+                .collect();
+            out.push(Block::Para(format!(
+                "**Not recommended at n = {} for fallbacks:** {} of the draws there fell back to the smoothed base rate (status `fallback:base-rate`), more than the limit of {:.0}% (`[decision] max_fallback`); {}.",
+                v.size,
+                list.join(", "),
+                d.max_fallback * 100.0,
+                if v.recommended.is_empty() {
+                    "no method stays within the limit".to_string()
+                } else {
+                    format!("`{}` is recommended there instead", v.recommended)
+                }
+            )));
+        }
+    }
     let ru = d.runner_up.clone().unwrap_or_else(|| "–".into());
+    let mut header = vec![
+        "n".into(),
+        "tasks (datasets)".into(),
+        "best".into(),
+        "rank (default)".into(),
+        "rank (runner-up)".into(),
+        "CD".into(),
+        format!("vs runner-up {}", marks_slashed()),
+    ];
+    if raw.is_some() {
+        header.push(format!("vs raw {}", marks_slashed()));
+    }
+    header.extend([
+        "default fell back".to_string(),
+        "recommended".to_string(),
+        "Friedman p".to_string(),
+    ]);
+    let mut notes = vec![format!(
+        "Default `{}`, runner-up `{ru}`. Tasks (datasets): tasks with a value for every method at that size, and the datasets they come from. Ranks: average over tasks of each method's rank by mean {} (1 = best); \"tied\": the best is not distinguishable from the default (Holm-corrected Wilcoxon signed-rank test over tasks). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. Ranks, ties, CD and the Friedman p treat the tasks as independent cases. {}: tasks on which `{}`, compared with `{ru}`, is {} — each mark from that task's paired interval (the suite's interval over repeats) read against the task's margin δ, as in the legend, not from a test across tasks.",
+        d.default,
+        d.metric,
+        marks_slashed(),
+        d.default,
+        Verdict::ALL.map(|v| v.words()).join(" / ")
+    )];
+    if let Some(raw) = raw {
+        notes.push(format!(
+            "Vs raw: the same counts for `{}` against the uncalibrated scores `{raw}`.",
+            d.default
+        ));
+    }
+    notes.push(format!(
+        "Default fell back: share of `{}`'s draws over the tasks at that size that could not be fitted and predicted the smoothed base rate (status `fallback:base-rate`), and the task with the largest share. A method above {:.0}% (`[decision] max_fallback`) is not recommended at that size: at one draw in ten replaced by a constant, its results there are partly the base rate's (the share the Fallback fits section flags as large).",
+        d.default,
+        d.max_fallback * 100.0
+    ));
     let mut t = Table {
         title: format!("Decision by calibration size ({})", d.metric),
-        header: vec![
-            "n".into(),
-            "tasks".into(),
-            "best".into(),
-            "rank (default)".into(),
-            "rank (runner-up)".into(),
-            "CD".into(),
-            format!("vs runner-up {}", marks_slashed()),
-            "Friedman p".into(),
-        ],
+        header,
         rows: Vec::new(),
-        notes: vec![format!(
-            "Default `{}`, runner-up `{ru}`. Ranks: average over tasks of each method's rank by mean {} (1 = best); \"tied\": the best is not distinguishable from the default (Holm-corrected Wilcoxon signed-rank test over tasks). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. Ranks, ties, CD and the Friedman p treat the tasks as independent cases. {}: tasks on which `{}`, compared with `{ru}`, is {} — each mark from that task's paired interval (the suite's interval over repeats) read against the task's margin δ, as in the legend, not from a test across tasks.",
-            d.default,
-            d.metric,
-            marks_slashed(),
-            d.default,
-            Verdict::ALL.map(|v| v.words()).join(" / ")
-        )],
+        notes,
     };
     for v in &d.per_size {
-        t.rows.push(vec![
+        let mut row = vec![
             v.size.to_string(),
-            v.tasks.to_string(),
+            format!("{} ({})", v.tasks, v.datasets),
             if v.default_holds && v.best != d.default {
                 format!("`{}` (tied with `{}`)", v.best, d.default)
             } else {
@@ -220,8 +361,33 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
             v.versus_runner_up
                 .map(|r| r.slashed())
                 .unwrap_or_else(|| "–".into()),
-            fmt_p(v.friedman_p),
-        ]);
+        ];
+        if raw.is_some() {
+            row.push(
+                v.raw
+                    .as_ref()
+                    .and_then(|r| r.default_vs_raw)
+                    .map(|r| r.slashed())
+                    .unwrap_or_else(|| "–".into()),
+            );
+        }
+        row.push(match &v.worst_fallback {
+            Some((task, w)) => format!(
+                "{:.1}%; most {}/{} on `{task}`",
+                v.default_fallback.share() * 100.0,
+                w.fallback,
+                w.draws
+            ),
+            None => "0%".into(),
+        });
+        row.push(match &v.why {
+            Recommendation::Default => format!("`{}`", v.recommended),
+            Recommendation::KeepRaw => format!("`{}` (raw scores)", v.recommended),
+            Recommendation::PassedOver(_) if v.recommended.is_empty() => "none (fallbacks)".into(),
+            Recommendation::PassedOver(_) => format!("`{}` (fallbacks)", v.recommended),
+        });
+        row.push(fmt_p(v.friedman_p));
+        t.rows.push(row);
     }
     out.push(Block::Table(t));
     out

@@ -143,6 +143,8 @@ struct RawDecision {
     margin: Option<Spanned<f64>>,
     #[serde(default)]
     absolute_margins: Option<std::collections::BTreeMap<String, Spanned<f64>>>,
+    #[serde(default)]
+    max_fallback: Option<Spanned<f64>>,
 }
 
 /// The equivalence margin of the verdicts (the `[decision]` table): a share
@@ -152,6 +154,9 @@ struct RawDecision {
 pub struct DecisionPlan {
     pub margin: f64,
     pub absolute_margins: std::collections::BTreeMap<String, f64>,
+    /// Largest share of a method's draws at a size that may fall back to the
+    /// base rate for the method to be recommended there.
+    pub max_fallback: f64,
 }
 
 impl Default for DecisionPlan {
@@ -159,6 +164,7 @@ impl Default for DecisionPlan {
         DecisionPlan {
             margin: crate::analysis::DEFAULT_MARGIN,
             absolute_margins: Default::default(),
+            max_fallback: crate::analysis::DEFAULT_MAX_FALLBACK,
         }
     }
 }
@@ -1368,6 +1374,17 @@ fn decision_plan(
             ));
         }
         plan.margin = v;
+    }
+    if let Some(m) = &r.max_fallback {
+        let v = *m.get_ref();
+        if !(v.is_finite() && (0.0..=1.0).contains(&v)) {
+            return Err(ctx.err(
+                m.span(),
+                "decision.max_fallback",
+                format!("{v}: expected a share of draws between 0 and 1, e.g. 0.1 for 10%"),
+            ));
+        }
+        plan.max_fallback = v;
     }
     if let Some(a) = &r.absolute_margins {
         for (id, v) in a {

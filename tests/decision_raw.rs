@@ -1,0 +1,206 @@
+//! "Calibrate at all?" and the default's fallbacks in the decision, through
+//! the run engine on small seeded score files.
+//!
+//! * Scores that are already calibrated (p ~ U(0, 1), y ~ Bernoulli(p), the
+//!   tests' own SplitMix64 draws from seed 7_001 + task index): no method can
+//!   be reliably better than the raw scores, so the decision keeps them at
+//!   small sizes. The same suite on miscalibrated scores (the label drawn
+//!   from p³ instead of p, seed 7_101 + task index) is the control: there
+//!   calibrating pays, and the raw scores are not kept at the largest size.
+//! * Scores that are exactly 0 or 1 on 95% of rows (saturated, as a naive
+//!   Bayes model gives): a sample of 10 rows often holds fewer than the three
+//!   distinct scores the full beta map needs, so beta falls back to the base
+//!   rate in a large share of its draws at n = 10 and in none at n = 400.
+//!   Platt fits saturated samples (smoothed targets) and never falls back
+//!   here; one-class samples, where every method falls back alike, are made
+//!   rare by a 40% positive rate (0.6¹⁰ < 1%).
+
+use std::fs;
+use std::path::{Path, PathBuf};
+
+use plumbline::analysis::{self, Analysis, Recommendation};
+use plumbline::app::{self, RunArgs};
+use plumbline::run::table::{read_units_file, units_path};
+use tempfile::TempDir;
+
+fn splitmix(x: &mut u64) -> u64 {
+    *x = x.wrapping_add(0x9E37_79B9_7F4A_7C15);
+    let mut z = *x;
+    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+    z ^ (z >> 31)
+}
+
+fn uniform(x: &mut u64) -> f64 {
+    (splitmix(x) >> 11) as f64 / (1u64 << 53) as f64
+}
+
+/// `rows` scores p ~ U(0.02, 0.98) with labels y ~ Bernoulli(p^power).
+fn calibrated_csv(rows: usize, seed: u64, power: f64) -> String {
+    let mut s = String::from("score,label\n");
+    let mut x = seed;
+    for _ in 0..rows {
+        let p = 0.02 + 0.96 * uniform(&mut x);
+        let y = uniform(&mut x) < p.powf(power);
+        s.push_str(&format!("{p:.6},{}\n", y as u8));
+    }
+    s
+}
+
+/// Beta-shaped scores with many exact 0s and 1s: 88% of rows are saturated
+/// (score 1 for a positive, 0 for a negative), the rest s ~ U(0.05, 0.95)
+/// with y ~ Bernoulli(σ(2 ln s − 0.5 ln(1 − s) + 1)), a map the full beta
+/// family holds and a logistic curve in the log-odds does not.
+fn saturated_csv(rows: usize, seed: u64) -> String {
+    let mut s = String::from("score,label\n");
+    let mut x = seed;
+    for _ in 0..rows {
+        if uniform(&mut x) < 0.88 {
+            let y = uniform(&mut x) < 0.4;
+            s.push_str(&format!("{},{}\n", y as u8, y as u8));
+        } else {
+            let p = 0.05 + 0.9 * uniform(&mut x);
+            let eta = 2.0 * p.ln() - 0.5 * (1.0 - p).ln() + 1.0;
+            let y = uniform(&mut x) < 1.0 / (1.0 + (-eta).exp());
+            s.push_str(&format!("{p:.6},{}\n", y as u8));
+        }
+    }
+    s
+}
+
+fn suite(methods: &[(&str, &str)], sizes: &str, tasks: usize) -> String {
+    let mut s = format!(
+        r#"name = "raw"
+seed = 5
+repeats = 20
+sizes = [{sizes}]
+reference = "platt"
+metrics = ["log_loss", "brier"]
+primary_metric = "log_loss"
+
+[test_set]
+rows = 2000
+"#
+    );
+    for (id, kind) in methods {
+        s.push_str(&format!("\n[[method]]\nid = \"{id}\"\nkind = \"{kind}\"\n"));
+    }
+    for t in 0..tasks {
+        s.push_str(&format!(
+            "\n[[task]]\nid = \"set{t}.model\"\nscores = \"t{t}.csv\"\nscore_column = \"score\"\nlabel_column = \"label\"\nscore_kind = \"probability\"\n"
+        ));
+    }
+    s
+}
+
+/// Run the suite over the given score files; the analysis of the results
+/// and the folder.
+fn run(files: &[String], suite_text: &str) -> (Analysis, PathBuf, TempDir) {
+    let dir = TempDir::new().unwrap();
+    for (i, f) in files.iter().enumerate() {
+        fs::write(dir.path().join(format!("t{i}.csv")), f).unwrap();
+    }
+    let suite = dir.path().join("suite.toml");
+    fs::write(&suite, suite_text).unwrap();
+    let out = dir.path().join("out");
+    app::run_suite(&RunArgs {
+        suite: suite.clone(),
+        out: Some(out.clone()),
+        threads: Some(1),
+        quiet: true,
+        force: false,
+        shard: None,
+    })
+    .unwrap();
+    let table = read_units_file(&units_path(&out).unwrap()).unwrap();
+    let plan = app::load_plan(&suite).unwrap();
+    let a = analysis::analyse(&table, &app::settings_of(&plan));
+    (a, out, dir)
+}
+
+fn summary(out: &Path) -> String {
+    fs::read_to_string(out.join("summary.md")).unwrap()
+}
+
+const RAW_METHODS: [(&str, &str); 4] = [
+    ("platt", "platt"),
+    ("identity", "identity"),
+    ("beta", "beta"),
+    ("isotonic", "isotonic"),
+];
+
+#[test]
+fn calibrated_scores_are_kept_at_small_sizes() {
+    let files: Vec<String> = (0..4)
+        .map(|t| calibrated_csv(3000, 7_001 + t, 1.0))
+        .collect();
+    let (a, out, _dir) = run(&files, &suite(&RAW_METHODS, "30, 100", 4));
+    let d = &a.decisions[0];
+    assert_eq!(d.raw.as_deref(), Some("identity"));
+    let small = &d.per_size[0];
+    assert_eq!(small.size, 30);
+    let raw = small.raw.as_ref().unwrap();
+    assert!(raw.raw_holds, "{small:?}");
+    assert!(raw.keep_raw, "{small:?}");
+    assert_eq!(small.recommended, "identity");
+    assert!(
+        matches!(small.why, Recommendation::KeepRaw | Recommendation::Default),
+        "{small:?}"
+    );
+    let text = summary(&out);
+    assert!(
+        text.contains("keep the raw scores") || text.contains("do not calibrate"),
+        "{}",
+        &text[..3000.min(text.len())]
+    );
+    // Every method against the raw scores is a row of thresholds.csv.
+    let th = fs::read_to_string(out.join("thresholds.csv")).unwrap();
+    for m in ["platt", "beta", "isotonic"] {
+        assert!(
+            th.contains(&format!("set0.model,{m},identity,log_loss,")),
+            "{th}"
+        );
+    }
+}
+
+#[test]
+fn miscalibrated_scores_are_calibrated_at_large_sizes() {
+    let files: Vec<String> = (0..4)
+        .map(|t| calibrated_csv(3000, 7_101 + t, 3.0))
+        .collect();
+    let (a, _out, _dir) = run(&files, &suite(&RAW_METHODS, "30, 800", 4));
+    let d = &a.decisions[0];
+    let large = d.per_size.last().unwrap();
+    assert_eq!(large.size, 800);
+    let raw = large.raw.as_ref().unwrap();
+    assert!(!raw.keep_raw, "{large:?}");
+    assert_ne!(large.recommended, "identity");
+    assert!(
+        raw.most_better.as_ref().is_some_and(|(_, k)| *k == 4),
+        "{large:?}"
+    );
+    // Calibration pays on every task within the sizes tried.
+    let any = &d.pays_from[0];
+    assert!(any.0.is_none());
+    assert_eq!(any.1.better_from.as_ref().map(|b| b.tasks), Some(4));
+}
+
+#[test]
+fn a_default_that_falls_back_often_is_not_recommended_there() {
+    let files: Vec<String> = (0..3).map(|t| saturated_csv(3000, 7_201 + t)).collect();
+    let methods = [("beta", "beta"), ("platt", "platt")];
+    let (a, out, _dir) = run(&files, &suite(&methods, "10, 400", 3));
+    let d = &a.decisions[0];
+    let (small, large) = (&d.per_size[0], &d.per_size[1]);
+    assert_eq!(d.default, "beta", "{d:?}");
+    {
+        assert!(small.default_fallback.share() > 0.1, "{small:?}");
+        assert_eq!(small.recommended, "platt");
+        assert!(matches!(&small.why, Recommendation::PassedOver(p) if p[0].0 == "beta"));
+        assert_eq!(large.default_fallback.fallback, 0, "{large:?}");
+        assert_eq!(large.recommended, "beta");
+        let text = summary(&out);
+        assert!(text.contains("**Not recommended at n = 10 for fallbacks:** `beta`"));
+        assert!(text.contains("`platt` (fallbacks)"));
+    }
+}
