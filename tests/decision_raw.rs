@@ -15,25 +15,16 @@
 //!   here; one-class samples, where every method falls back alike, are made
 //!   rare by a 40% positive rate (0.6¹⁰ < 1%).
 
+mod common;
+
 use std::fs;
 use std::path::{Path, PathBuf};
 
+use common::uniform;
 use plumbline::analysis::{self, Analysis, Recommendation};
 use plumbline::app::{self, RunArgs};
 use plumbline::run::table::{read_units_file, units_path};
 use tempfile::TempDir;
-
-fn splitmix(x: &mut u64) -> u64 {
-    *x = x.wrapping_add(0x9E37_79B9_7F4A_7C15);
-    let mut z = *x;
-    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
-}
-
-fn uniform(x: &mut u64) -> f64 {
-    (splitmix(x) >> 11) as f64 / (1u64 << 53) as f64
-}
 
 /// `rows` scores p ~ U(0.02, 0.98) with labels y ~ Bernoulli(p^power).
 fn calibrated_csv(rows: usize, seed: u64, power: f64) -> String {

@@ -5,31 +5,20 @@
 //! limit and is killed past it, so a hang fails the test instead of stalling
 //! the suite (the limit is a guard, not a measurement).
 
+mod common;
+
 use std::fs;
-use std::io::{BufRead, BufReader, Read, Write};
+use std::io::{BufRead, BufReader, Write};
 use std::os::unix::fs::FileTypeExt;
 use std::os::unix::process::ExitStatusExt;
 use std::path::{Path, PathBuf};
-use std::process::{Child, Command, ExitStatus, Stdio};
+use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
+use common::{bin_path, finish, uniform, Done};
 use tempfile::TempDir;
 
-const LIMIT: Duration = Duration::from_secs(60);
-
-fn bin() -> PathBuf {
-    assert_cmd::cargo::cargo_bin("plumbline")
-}
-
-/// SplitMix64 uniform in [0, 1).
-fn unif(state: &mut u64) -> f64 {
-    *state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
-    let mut z = *state;
-    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^= z >> 31;
-    (z >> 11) as f64 / (1u64 << 53) as f64
-}
+const LIMIT: Duration = common::HANG_LIMIT;
 
 /// `id,score,label` rows: probabilities rounded to 3 decimals, labels drawn
 /// from a distorted curve.
@@ -37,8 +26,8 @@ fn scores_csv(n: usize, seed: u64) -> String {
     let mut st = seed;
     let mut s = String::from("id,score,label\n");
     for i in 0..n {
-        let q = 0.02 + 0.96 * unif(&mut st);
-        let y = unif(&mut st) < q;
+        let q = 0.02 + 0.96 * uniform(&mut st);
+        let y = uniform(&mut st) < q;
         s.push_str(&format!("r{i},{:.3},{}\n", q * q, y as u8));
     }
     s
@@ -52,7 +41,7 @@ fn setup(n: usize) -> (TempDir, PathBuf, PathBuf) {
     let train = d.join("train.csv");
     fs::write(&train, scores_csv(400, 3)).unwrap();
     let map = d.join("map.json");
-    let out = Command::new(bin())
+    let out = Command::new(bin_path())
         .args(["fit", "--method", "isotonic", "--scores"])
         .arg(&train)
         .arg("--out")
@@ -70,7 +59,7 @@ fn setup(n: usize) -> (TempDir, PathBuf, PathBuf) {
 }
 
 fn apply_cmd(map: &Path, scores: &Path, out: &Path) -> Command {
-    let mut c = Command::new(bin());
+    let mut c = Command::new(bin_path());
     c.arg("apply")
         .arg(map)
         .arg("--scores")
@@ -78,60 +67,6 @@ fn apply_cmd(map: &Path, scores: &Path, out: &Path) -> Command {
         .arg("--out")
         .arg(out);
     c
-}
-
-/// What a finished child left: its status, stdout and stderr.
-struct Done {
-    status: ExitStatus,
-    stdout: String,
-    stderr: String,
-}
-
-/// Wait for `child` (stdout and stderr piped or null), draining its pipes;
-/// kill it and fail the test if it has not ended within [`LIMIT`].
-fn finish(mut child: Child, what: &str) -> Done {
-    let drain = |r: Option<Box<dyn Read + Send>>| {
-        std::thread::spawn(move || {
-            let mut s = String::new();
-            if let Some(mut r) = r {
-                let _ = r.read_to_string(&mut s);
-            }
-            s
-        })
-    };
-    let out = drain(
-        child
-            .stdout
-            .take()
-            .map(|r| Box::new(r) as Box<dyn Read + Send>),
-    );
-    let err = drain(
-        child
-            .stderr
-            .take()
-            .map(|r| Box::new(r) as Box<dyn Read + Send>),
-    );
-    let status = wait_or_kill(&mut child, what);
-    Done {
-        status,
-        stdout: out.join().unwrap(),
-        stderr: err.join().unwrap(),
-    }
-}
-
-fn wait_or_kill(child: &mut Child, what: &str) -> ExitStatus {
-    let start = Instant::now();
-    loop {
-        if let Some(st) = child.try_wait().unwrap() {
-            return st;
-        }
-        if start.elapsed() > LIMIT {
-            let _ = child.kill();
-            let _ = child.wait();
-            panic!("{what}: still running after {LIMIT:?}, killed (a hang)");
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    }
 }
 
 fn run(mut c: Command, what: &str) -> Done {
@@ -178,7 +113,7 @@ fn write_failure_under_a_file_size_limit_names_the_target() {
         let mut c = Command::new("sh");
         c.arg("-c")
             .arg("ulimit -f 64 && exec \"$0\" \"$@\"")
-            .arg(bin())
+            .arg(bin_path())
             .arg("apply")
             .arg(&map)
             .arg("--scores")

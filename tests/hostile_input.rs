@@ -11,12 +11,8 @@ use std::fs;
 use std::io::{Read, Write};
 use std::path::Path;
 use std::process::{Command, Stdio};
-use std::time::{Duration, Instant};
 
 use tempfile::TempDir;
-
-/// The longest any one command may take before it counts as hung.
-const KILL_AFTER: Duration = Duration::from_secs(60);
 
 struct Out {
     code: i32,
@@ -25,7 +21,7 @@ struct Out {
 }
 
 /// Run the binary in `dir` with `args` and extra environment, killing it
-/// after [`KILL_AFTER`] (then the test fails).
+/// after [`common::HANG_LIMIT`] (then the test fails).
 fn run_bounded(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Out {
     let mut cmd = Command::new(common::bin_path());
     cmd.current_dir(dir)
@@ -36,36 +32,11 @@ fn run_bounded(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Out {
     for (k, v) in env {
         cmd.env(k, v);
     }
-    let mut child = cmd.spawn().unwrap();
-    // Drain the pipes on threads so a chatty child never blocks on them.
-    let mut so = child.stdout.take().unwrap();
-    let mut se = child.stderr.take().unwrap();
-    let t_out = std::thread::spawn(move || {
-        let mut s = Vec::new();
-        let _ = so.read_to_end(&mut s);
-        s
-    });
-    let t_err = std::thread::spawn(move || {
-        let mut s = Vec::new();
-        let _ = se.read_to_end(&mut s);
-        s
-    });
-    let t0 = Instant::now();
-    let status = loop {
-        if let Some(st) = child.try_wait().unwrap() {
-            break st;
-        }
-        if t0.elapsed() > KILL_AFTER {
-            let _ = child.kill();
-            let _ = child.wait();
-            panic!("plumbline {args:?} did not finish within {KILL_AFTER:?}: killed");
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    };
+    let done = common::finish(cmd.spawn().unwrap(), &format!("plumbline {args:?}"));
     Out {
-        code: status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&t_out.join().unwrap()).into_owned(),
-        stderr: String::from_utf8_lossy(&t_err.join().unwrap()).into_owned(),
+        code: done.status.code().unwrap_or(-1),
+        stdout: done.stdout,
+        stderr: done.stderr,
     }
 }
 

@@ -11,26 +11,16 @@
 //! sample. For the posterior means of θ ∈ [0, 1], whose spread is at most ½,
 //! 3·½·√(1/N₁ + 1/N₂).
 
+mod common;
+
+use common::floats;
 use plumbline::stats::bayes::{signed_rank, DEFAULT_PRIOR};
 use serde_json::Value;
 
 const RUST_SAMPLES: usize = 100_000;
 
 fn fixture() -> Value {
-    let text = std::fs::read_to_string(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/fixtures/bayes_signed_rank.json"
-    ))
-    .expect("fixture present");
-    serde_json::from_str(&text).expect("fixture is JSON")
-}
-
-fn floats(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
+    common::json_fixture("bayes_signed_rank.json")
 }
 
 #[test]

@@ -220,7 +220,8 @@ pub fn default_suite_methods() -> Methods {
 }
 
 /// Fit and predict as the engine does: a method that cannot fit predicts the
-/// smoothed base rate (k + 1)/(n + 2) of its sample.
+/// engine's fallback, the smoothed base rate of its sample
+/// ([`run::fallback_rate`]).
 fn fit_predict(cal: &dyn Calibrator, s: &[f64], y: &[bool], at: &[f64]) -> (Vec<f64>, bool) {
     let mut p = vec![0.0; at.len()];
     match cal.fit(s, y) {
@@ -229,8 +230,7 @@ fn fit_predict(cal: &dyn Calibrator, s: &[f64], y: &[bool], at: &[f64]) -> (Vec<
             (p, false)
         }
         Err(_) => {
-            let k = y.iter().filter(|&&v| v).count() as f64;
-            p.fill((k + 1.0) / (y.len() as f64 + 2.0));
+            p.fill(run::fallback_rate(y));
             (p, true)
         }
     }

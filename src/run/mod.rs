@@ -258,6 +258,14 @@ pub(crate) fn stop_message(
 /// it could not fit (`on_fit_failure = "fallback"`).
 pub const FALLBACK_BASE_RATE: &str = "fallback:base-rate";
 
+/// The prediction of a method that could not fit its calibration sample:
+/// the smoothed base rate (k + 1)/(n + 2) of the sample's labels (k
+/// positives of n), which stays inside (0, 1) even for one-class samples.
+pub fn fallback_rate(labels: &[bool]) -> f64 {
+    let k = labels.iter().filter(|&&y| y).count() as f64;
+    (k + 1.0) / (labels.len() as f64 + 2.0)
+}
+
 /// The outcome of a method in a unit whose calibration sample has one class,
 /// when the unit is dropped (`on_fit_failure = "drop"`).
 pub(crate) fn one_class_outcome(plan: &Plan, name: &str) -> MethodOutcome {
@@ -338,9 +346,7 @@ pub(crate) fn fit_score(
         Err(e) => match plan.on_fit_failure {
             FitFailurePolicy::Stop => Err(e),
             FitFailurePolicy::Fallback => {
-                let k = cal_y.iter().filter(|&&y| y).count() as f64;
-                let rate = (k + 1.0) / (cal_y.len() as f64 + 2.0);
-                let pred = vec![rate; test_s.len()];
+                let pred = vec![fallback_rate(cal_y); test_s.len()];
                 let o = scored(
                     plan,
                     name,

@@ -1,9 +1,13 @@
-//! Helpers shared by the scaling tests (shards, merge, verify, crash safety,
-//! the Slurm test).
+//! Helpers shared by the integration tests: the binary, seeded draws, small
+//! suites and score files, runs bounded by a hang limit, and the reference
+//! fixtures.
 #![allow(dead_code)]
 
 use std::fs;
+use std::io::Read;
 use std::path::{Path, PathBuf};
+use std::process::{Child, ExitStatus};
+use std::time::{Duration, Instant};
 
 use assert_cmd::Command;
 
@@ -179,4 +183,73 @@ pub fn copy_dir(from: &Path, to: &Path) {
             fs::copy(&p, to.join(e.file_name())).unwrap();
         }
     }
+}
+
+/// How long a child process may run before a test counts it as hung (a
+/// guard, not a measurement).
+pub const HANG_LIMIT: Duration = Duration::from_secs(60);
+
+/// What a finished child left: its status, stdout and stderr.
+pub struct Done {
+    pub status: ExitStatus,
+    pub stdout: String,
+    pub stderr: String,
+}
+
+/// Wait for `child` (stdout and stderr piped or null), draining its pipes on
+/// threads so a chatty child never blocks; kill it and fail the test if it
+/// has not ended within [`HANG_LIMIT`].
+pub fn finish(mut child: Child, what: &str) -> Done {
+    fn drain(r: Option<impl Read + Send + 'static>) -> std::thread::JoinHandle<String> {
+        std::thread::spawn(move || {
+            let mut b = Vec::new();
+            if let Some(mut r) = r {
+                let _ = r.read_to_end(&mut b);
+            }
+            String::from_utf8_lossy(&b).into_owned()
+        })
+    }
+    let out = drain(child.stdout.take());
+    let err = drain(child.stderr.take());
+    let status = wait_or_kill(&mut child, what);
+    Done {
+        status,
+        stdout: out.join().unwrap(),
+        stderr: err.join().unwrap(),
+    }
+}
+
+/// Wait for `child`; kill it and fail the test past [`HANG_LIMIT`].
+pub fn wait_or_kill(child: &mut Child, what: &str) -> ExitStatus {
+    let start = Instant::now();
+    loop {
+        if let Some(st) = child.try_wait().unwrap() {
+            return st;
+        }
+        if start.elapsed() > HANG_LIMIT {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("{what}: still running after {HANG_LIMIT:?}, killed (a hang)");
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    }
+}
+
+/// A committed reference fixture under `tests/fixtures/`, parsed as JSON.
+pub fn json_fixture(rel: &str) -> serde_json::Value {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/fixtures")
+        .join(rel);
+    let text =
+        fs::read_to_string(&path).unwrap_or_else(|e| panic!("fixture {}: {e}", path.display()));
+    serde_json::from_str(&text).unwrap_or_else(|e| panic!("fixture {}: {e}", path.display()))
+}
+
+/// A JSON array of numbers.
+pub fn floats(v: &serde_json::Value) -> Vec<f64> {
+    v.as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_f64().unwrap())
+        .collect()
 }
