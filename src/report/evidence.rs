@@ -94,5 +94,6 @@ pub fn dataset_evidence_blocks(a: &Analysis) -> Vec<Block> {
         }
     ));
     t.notes.push("Unlike the ranks, the Wilcoxon ties and the critical differences above, which treat the tasks as independent cases, this test does not count a dataset once per base model; with few datasets the prior's pseudo-observation at zero weighs more.".into());
+    t.notes.push("A dataset's difference is a mean of its base models' loss differences, so one base model with far larger losses (for example raw scores of exactly 0 or 1 under log loss) can decide its dataset's value on its own; where this table and the per-task marks disagree — the default against the raw scores is the usual case — read both: this table says which way the dataset-level average goes, the per-task marks how many base models gain.".into());
     vec![Block::Table(t)]
 }
