@@ -478,14 +478,14 @@ pub fn load(path: &Path) -> Result<Plan, SuiteError> {
             key: "(file)".into(),
             message: format!("cannot read the suite: {e}"),
         })?;
-    let text = String::from_utf8(bytes.clone()).map_err(|e| SuiteError {
+    let sha = hex(&Sha256::digest(&bytes));
+    let text = String::from_utf8(bytes).map_err(|e| SuiteError {
         file: file.clone(),
         line: 0,
         column: 0,
         key: "(file)".into(),
         message: format!("the suite is not UTF-8 text: {e}"),
     })?;
-    let sha = hex(&Sha256::digest(&bytes));
     parse(&text, path, sha)
 }
 
