@@ -7,6 +7,8 @@
 //!   small sizes. The same suite on miscalibrated scores (the label drawn
 //!   from p³ instead of p, seed 7_101 + task index) is the control: there
 //!   calibrating pays, and the raw scores are not kept at the largest size.
+//!   Four datasets of one base model: the Bayesian signed-rank test over
+//!   datasets decides both.
 //! * Scores that are exactly 0 or 1 on 95% of rows (saturated, as a naive
 //!   Bayes model gives): a sample of 10 rows often holds fewer than the three
 //!   distinct scores the full beta map needs, so beta falls back to the base
@@ -21,7 +23,7 @@ use std::fs;
 use std::path::{Path, PathBuf};
 
 use common::uniform;
-use plumbline::analysis::{self, Analysis, Recommendation};
+use plumbline::analysis::{self, Analysis, DecidedBy, Recommendation};
 use plumbline::app::{self, RunArgs};
 use plumbline::run::table::{read_units_file, units_path};
 use tempfile::TempDir;
@@ -33,6 +35,25 @@ fn calibrated_csv(rows: usize, seed: u64, power: f64) -> String {
     for _ in 0..rows {
         let p = 0.02 + 0.96 * uniform(&mut x);
         let y = uniform(&mut x) < p.powf(power);
+        s.push_str(&format!("{p:.6},{}\n", y as u8));
+    }
+    s
+}
+
+/// Scores p ~ U(0.02, 0.98) whose true probability is a hockey stick: 0.05
+/// below p = 0.7, then rising linearly to 0.95 at p = 0.98 — a map no
+/// logistic curve in the log-odds follows.
+fn hockey_csv(rows: usize, seed: u64) -> String {
+    let mut s = String::from("score,label\n");
+    let mut x = seed;
+    for _ in 0..rows {
+        let p = 0.02 + 0.96 * uniform(&mut x);
+        let q = if p < 0.7 {
+            0.05
+        } else {
+            0.05 + 0.9 * (p - 0.7) / 0.28
+        };
+        let y = uniform(&mut x) < q;
         s.push_str(&format!("{p:.6},{}\n", y as u8));
     }
     s
@@ -60,6 +81,12 @@ fn saturated_csv(rows: usize, seed: u64) -> String {
 }
 
 fn suite(methods: &[(&str, &str)], sizes: &str, tasks: usize) -> String {
+    let ids: Vec<String> = (0..tasks).map(|t| format!("set{t}.model")).collect();
+    suite_of(methods, sizes, &ids)
+}
+
+/// A suite over score files `t0.csv` … with the given task ids.
+fn suite_of(methods: &[(&str, &str)], sizes: &str, ids: &[String]) -> String {
     let mut s = format!(
         r#"name = "raw"
 seed = 5
@@ -76,9 +103,9 @@ rows = 2000
     for (id, kind) in methods {
         s.push_str(&format!("\n[[method]]\nid = \"{id}\"\nkind = \"{kind}\"\n"));
     }
-    for t in 0..tasks {
+    for (t, id) in ids.iter().enumerate() {
         s.push_str(&format!(
-            "\n[[task]]\nid = \"set{t}.model\"\nscores = \"t{t}.csv\"\nscore_column = \"score\"\nlabel_column = \"label\"\nscore_kind = \"probability\"\n"
+            "\n[[task]]\nid = \"{id}\"\nscores = \"t{t}.csv\"\nscore_column = \"score\"\nlabel_column = \"label\"\nscore_kind = \"probability\"\n"
         ));
     }
     s
@@ -131,8 +158,14 @@ fn calibrated_scores_are_kept_at_small_sizes() {
     let small = &d.per_size[0];
     assert_eq!(small.size, 30);
     let raw = small.raw.as_ref().unwrap();
-    assert!(raw.raw_holds, "{small:?}");
     assert!(raw.keep_raw, "{small:?}");
+    // One base model (`model`) over four datasets: the Bayesian signed-rank
+    // test decides, and it does not find the default reliably better.
+    // The raw scores rank first overall here, so they are the default and
+    // no calibrator is tested against them.
+    assert_eq!(d.default, "identity");
+    assert_eq!(raw.groups.len(), 1);
+    assert!(raw.groups[0].evidence.is_none());
     assert_eq!(small.recommended, "identity");
     assert!(
         matches!(small.why, Recommendation::KeepRaw | Recommendation::Default),
@@ -165,6 +198,9 @@ fn miscalibrated_scores_are_calibrated_at_large_sizes() {
     assert_eq!(large.size, 800);
     let raw = large.raw.as_ref().unwrap();
     assert!(!raw.keep_raw, "{large:?}");
+    let e = raw.groups[0].evidence.as_ref().unwrap();
+    assert_eq!(e.decided_by, DecidedBy::Datasets);
+    assert!(e.first_better, "{e:?}");
     assert_ne!(large.recommended, "identity");
     assert!(
         raw.most_better.as_ref().is_some_and(|(_, k)| *k == 4),
@@ -174,6 +210,46 @@ fn miscalibrated_scores_are_calibrated_at_large_sizes() {
     let any = &d.pays_from[0];
     assert!(any.0.is_none());
     assert_eq!(any.1.better_from.as_ref().map(|b| b.tasks), Some(4));
+}
+
+/// Two base models over the same four datasets: `good` gives calibrated
+/// scores, `bad` miscalibrated ones (p³). Calibrating is decided per base
+/// model: the calibrator is recommended, but the raw scores are kept for
+/// `good`, where it is not reliably better than them across the datasets.
+#[test]
+fn the_raw_scores_are_kept_per_base_model() {
+    let mut files = Vec::new();
+    let mut ids = Vec::new();
+    for t in 0..4u64 {
+        files.push(calibrated_csv(3000, 7_001 + t, 1.0));
+        ids.push(format!("set{t}.good"));
+        files.push(calibrated_csv(3000, 7_101 + t, 3.0));
+        ids.push(format!("set{t}.bad"));
+    }
+    let (a, out, _dir) = run(&files, &suite_of(&RAW_METHODS, "400", &ids));
+    let d = &a.decisions[0];
+    assert_ne!(d.default, "identity", "{d:?}");
+    let v = &d.per_size[0];
+    assert_eq!((v.tasks, v.datasets), (8, 4));
+    let raw = v.raw.as_ref().unwrap();
+    assert!(!raw.keep_raw, "{v:?}");
+    assert_eq!(raw.raw_for(), vec!["good"], "{v:?}");
+    for g in &raw.groups {
+        let e = g.evidence.as_ref().unwrap();
+        assert_eq!(e.decided_by, DecidedBy::Datasets);
+        assert_eq!((e.test.datasets, e.test.tasks), (4, 4), "{e:?}");
+        assert_eq!(e.first_better, g.model == "bad", "{e:?}");
+    }
+    assert_ne!(v.recommended, "identity");
+    let text = summary(&out);
+    assert!(
+        text.contains(&format!(
+            "`{}`, but keep the raw scores for `good`",
+            v.recommended
+        )),
+        "{}",
+        &text[..4000.min(text.len())]
+    );
 }
 
 #[test]
@@ -194,4 +270,64 @@ fn a_default_that_falls_back_often_is_not_recommended_there() {
         assert!(text.contains("**Not recommended at n = 10 for fallbacks:** `beta`"));
         assert!(text.contains("`platt` (fallbacks)"));
     }
+}
+
+/// Two base models' scores of one dataset (a team's own data): the test
+/// across datasets cannot decide with one case, so the dataset's paired
+/// intervals do.
+#[test]
+fn one_dataset_is_decided_by_its_paired_intervals() {
+    let files = vec![
+        calibrated_csv(3000, 7_101, 3.0),
+        calibrated_csv(3000, 7_102, 3.0),
+    ];
+    let ids = vec!["mine.first".to_string(), "mine.second".to_string()];
+    let (a, _out, _dir) = run(&files, &suite_of(&RAW_METHODS, "800", &ids));
+    let d = &a.decisions[0];
+    let v = &d.per_size[0];
+    assert_eq!((v.tasks, v.datasets), (2, 1));
+    for (m, e) in &v.versus {
+        assert_eq!(e.decided_by, DecidedBy::Intervals, "{m}");
+        assert_eq!(e.test.datasets, 1, "{m}");
+    }
+    let raw = v.raw.as_ref().unwrap();
+    assert_eq!(raw.groups.len(), 2);
+    for g in &raw.groups {
+        let e = g.evidence.as_ref().unwrap();
+        assert_eq!(e.decided_by, DecidedBy::Intervals);
+        // p³ labels: the calibrators beat the raw scores at n = 800 (the
+        // control of the tests above), and the interval says so.
+        assert!(e.first_better, "{e:?}");
+    }
+    assert!(!raw.keep_raw);
+}
+
+/// A default that a method beats reliably at one size is replaced there:
+/// On the Brier score, Platt ranks first at the three small sizes and is the
+/// default, but on a hockey-stick map its logistic curve cannot follow, and
+/// at n = 2000 the penalized spline is reliably better across the four
+/// datasets.
+#[test]
+fn a_method_reliably_better_than_the_default_is_recommended_at_its_size() {
+    let files: Vec<String> = (0..4).map(|t| hockey_csv(6000, 7_301 + t)).collect();
+    let methods = [("platt", "platt"), ("spline", "spline")];
+    let text = suite(&methods, "20, 30, 40, 2000", 4).replace(
+        "primary_metric = \"log_loss\"",
+        "primary_metric = \"brier\"",
+    );
+    let (a, out, _dir) = run(&files, &text);
+    let d = &a.decisions[0];
+    assert_eq!(d.default, "platt", "{:?}", d.standing);
+    let (small, large) = (&d.per_size[0], &d.per_size[3]);
+    assert_eq!(small.why, Recommendation::Default, "{small:?}");
+    assert_eq!(large.size, 2000);
+    assert_eq!(d.metric, "brier");
+    let e = large.against("spline").unwrap();
+    assert_eq!(e.decided_by, DecidedBy::Datasets);
+    assert!(e.second_better, "{e:?}");
+    assert_eq!(large.recommended, "spline");
+    assert_eq!(large.why, Recommendation::Beaten(vec!["spline".into()]));
+    assert!(!large.default_holds);
+    let text = summary(&out);
+    assert!(text.contains("`spline` (beats `platt`)"), "{text}");
 }

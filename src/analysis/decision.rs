@@ -1,31 +1,50 @@
 //! The recommendation: one team default under a stated rule, the runner-up,
-//! where the answer changes with the calibration size, and how strong the
-//! evidence is.
+//! what to use at each calibration size, whether to calibrate at all, and
+//! how strong the evidence is.
 //!
-//! Rule (ours, stated in every report): at each calibration size, methods are
-//! ranked on each task by their mean loss and the ranks are averaged over the
-//! tasks (Demšar 2006); the team default is the method with the lowest mean
-//! of these average ranks over the sizes, each size weighing the same; the
-//! runner-up is second. Ties go to the method listed first in the suite.
+//! Every mark across tasks comes from one test: the Bayesian signed-rank test
+//! with a region of practical equivalence, the dataset as unit
+//! ([`super::evidence`]); "reliably" means a posterior probability of at
+//! least 0.95. With one dataset (a team's own score file, say) that test
+//! cannot decide, and the dataset's own paired intervals over the repeats do:
+//! "reliably better" there means the verdict *better* on every task of it.
+//! The ranks, Friedman/Iman–Davenport and Nemenyi's critical difference stay
+//! as pictures of the whole field; they treat tasks as independent and
+//! decide nothing.
 //!
-//! Calibrate at all? When the suite has a method that passes the scores
-//! through (kind `identity`, the raw scores), the answer at a size is to keep
-//! the raw scores when (a) they are the best-ranked method there or not
-//! distinguishable from the best (Holm-corrected Wilcoxon), and (b) no single
-//! method is reliably better than them (verdict *better*, paired interval and
-//! margin per task) on more than half of the tasks at that size. Both must
-//! hold: a rank near the top alone can come from many small losses, and a
-//! method that wins on a minority of tasks does not make calibrating the
-//! better rule for a team.
+//! Rule (ours, stated in every report):
 //!
-//! Fallbacks: a method whose draws at a size fell back to the smoothed base
-//! rate (status `fallback:base-rate`) in more than `max_fallback` of all its
-//! draws over the tasks there is not recommended at that size; the next
-//! method of the standing that stays within the limit is, and the decision
-//! says so.
+//! 1. *Standing.* At each calibration size, methods are ranked on each task
+//!    by their mean loss and the ranks averaged over the tasks (Demšar 2006).
+//!    A method's standing is the mean of these average ranks over the sizes,
+//!    each size weighted by the number of datasets behind it, so a size that
+//!    rests on 4 datasets counts a third as much as one that rests on 12. The
+//!    team default is first, the runner-up second; ties go to the method
+//!    listed first in the suite.
+//! 2. *Fallbacks.* A method whose draws at a size fell back to the smoothed
+//!    base rate (status `fallback:base-rate`) in more than `max_fallback` of
+//!    its draws over the tasks there is not recommended at that size; when
+//!    that is the default, the next method of the standing that stays within
+//!    the limit is.
+//! 3. *Per size, the default unless beaten.* At a size where some method
+//!    within the fallback limit is reliably better than the default, the
+//!    best-standing such method is recommended there instead.
+//! 4. *Calibrate at all?* When the suite has a method that passes the scores
+//!    through (kind `identity`, the raw scores), the method chosen by 2–3 is
+//!    tested against them separately for each base model (task ids
+//!    `<dataset>.<model>`; ids without a model form one group), datasets as
+//!    units: the raw scores are kept for a base model at a size unless the
+//!    chosen method is reliably better than them there. The burden of
+//!    evidence is on calibrating, which adds a fitted map to maintain; a
+//!    method equivalent within the margin keeps the raw scores too.
+//!
+//! The per-task counts (better / equivalent / undetermined / worse from each
+//! task's paired interval) are shown beside the test as a description: how
+//! many base models and datasets gain, not a test across tasks.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, BTreeSet};
 
+use super::evidence::{compare, DatasetEvidence, EvidenceSource};
 use super::steps::{pair_interval, Cells, PairSource};
 use super::{AcrossRow, AnalysisSettings, Margins, ThresholdRow};
 use crate::run::table::UnitTable;
@@ -50,10 +69,14 @@ pub struct DecisionInput<'a> {
 pub enum Recommendation {
     /// The team default.
     Default,
-    /// The raw scores, under the rule of this module.
+    /// These methods are reliably better than the default at this size (best
+    /// standing first); the first is recommended.
+    Beaten(Vec<String>),
+    /// The raw scores, for every base model, under the rule of this module.
     KeepRaw,
-    /// The default fell back too often; these methods (with their fallback
-    /// shares) were passed over, in the standing's order.
+    /// The method chosen by the rule fell back too often; these methods
+    /// (with their fallback shares) were passed over, in the standing's
+    /// order.
     PassedOver(Vec<(String, f64)>),
 }
 
@@ -74,6 +97,39 @@ impl FallbackShare {
     }
 }
 
+/// The test that decided a comparison.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum DecidedBy {
+    /// The Bayesian signed-rank test over two or more datasets.
+    Datasets,
+    /// One dataset: its tasks' paired intervals.
+    Intervals,
+}
+
+/// One comparison of the decision: the dataset-level evidence and what it
+/// decided.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Evidence {
+    pub test: DatasetEvidence,
+    pub decided_by: DecidedBy,
+    /// The first method is reliably better than the second.
+    pub first_better: bool,
+    /// The second method is reliably better than the first.
+    pub second_better: bool,
+}
+
+/// The chosen method against the raw scores on one base model's tasks.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RawGroup {
+    /// The base model (empty: task ids without a model part).
+    pub model: String,
+    /// The chosen method (first) against the raw scores; `None` when the
+    /// chosen method is the raw scores.
+    pub evidence: Option<Evidence>,
+    /// Keep the raw scores for this base model at this size.
+    pub keep_raw: bool,
+}
+
 /// The raw scores against the calibrating methods at one size.
 #[derive(Debug, Clone, PartialEq)]
 pub struct RawAtSize {
@@ -81,15 +137,29 @@ pub struct RawAtSize {
     /// (`None` when the raw scores are the default).
     pub default_vs_raw: Option<VerdictCounts>,
     /// Tasks on which at least one method is reliably better than the raw
-    /// scores.
+    /// scores (paired interval per task).
     pub any_better: usize,
     /// The method reliably better than the raw scores on the most tasks, and
     /// on how many (first in the standing on ties).
     pub most_better: Option<(String, usize)>,
-    /// The raw scores are the best-ranked method or tied with it.
-    pub raw_holds: bool,
-    /// The rule of this module says keep the raw scores.
+    /// The decision per base model.
+    pub groups: Vec<RawGroup>,
+    /// Every base model keeps the raw scores at this size.
     pub keep_raw: bool,
+}
+
+impl RawAtSize {
+    /// Base models that keep the raw scores while others calibrate.
+    pub fn raw_for(&self) -> Vec<&str> {
+        if self.keep_raw {
+            return Vec::new();
+        }
+        self.groups
+            .iter()
+            .filter(|g| g.keep_raw)
+            .map(|g| g.model.as_str())
+            .collect()
+    }
 }
 
 /// The verdict at one calibration size.
@@ -99,23 +169,17 @@ pub struct SizeVerdict {
     pub tasks: usize,
     /// Distinct datasets behind the tasks ([`task_parts`]).
     pub datasets: usize,
-    /// Lowest average rank at this size.
+    /// Lowest average rank at this size (a picture, not a test).
     pub best: String,
     pub default_rank: f64,
     pub runner_up_rank: Option<f64>,
-    /// Methods the Holm-corrected Wilcoxon test cannot tell from the best.
-    pub tied_with_best: Vec<String>,
-    /// The default is the best or not distinguishable from it.
+    /// The default against every other method, in the standing's order.
+    pub versus: Vec<(String, Evidence)>,
+    /// No method is reliably better than the default at this size.
     pub default_holds: bool,
-    /// Nemenyi critical difference at α = 0.05.
-    pub cd_05: Option<f64>,
-    /// The default's and the runner-up's average ranks differ by more than the CD.
-    pub default_vs_runner_up_cd: Option<bool>,
-    /// Iman–Davenport p-value.
-    pub friedman_p: f64,
     /// Tasks on which the default gets each verdict against the runner-up
     /// (paired interval of the suite's estimator on each task, the task's
-    /// equivalence margin).
+    /// equivalence margin): a description beside the test.
     pub versus_runner_up: Option<VerdictCounts>,
     /// The raw scores against the methods (`None` without a raw method).
     pub raw: Option<RawAtSize>,
@@ -124,21 +188,31 @@ pub struct SizeVerdict {
     pub default_fallback: FallbackShare,
     /// The task where the largest share of the default's draws fell back.
     pub worst_fallback: Option<(String, FallbackShare)>,
-    /// The method recommended at this size, and why.
+    /// The method recommended at this size, and why (for the base models
+    /// in [`RawAtSize::raw_for`], the raw scores instead).
     pub recommended: String,
     pub why: Recommendation,
+}
+
+impl SizeVerdict {
+    /// The default against `method` at this size.
+    pub fn against(&self, method: &str) -> Option<&Evidence> {
+        self.versus.iter().find(|v| v.0 == method).map(|v| &v.1)
+    }
 }
 
 /// The recommendation on one metric.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Decision {
     pub metric: String,
-    /// Every method with its mean average rank over the sizes, best first.
+    /// Every method with its standing (the mean of its average ranks over
+    /// the sizes, weighted by datasets), best first.
     pub standing: Vec<(String, f64)>,
     pub default: String,
     pub runner_up: Option<String>,
     pub per_size: Vec<SizeVerdict>,
-    /// Runs of consecutive sizes with the same best method: (first, last, best).
+    /// Runs of consecutive sizes with the same best-ranked method: (first,
+    /// last, best).
     pub segments: Vec<(usize, usize, String)>,
     /// Distinct tasks, datasets and base models that enter any size (a task id
     /// `<dataset>.<model>` names both; other ids count as their own dataset).
@@ -164,6 +238,58 @@ pub fn task_parts(task: &str) -> (&str, Option<&str>) {
     }
 }
 
+/// `a` against `b` at one size over `tasks`: the Bayesian signed-rank test
+/// over datasets, or with a single dataset its tasks' paired intervals
+/// (reliably better: the verdict *better* on every one of its tasks).
+fn evidence(
+    input: &DecisionInput,
+    metric: &str,
+    size: usize,
+    (a, b): (&str, &str),
+    tasks: &[String],
+    group: Option<&str>,
+) -> Evidence {
+    let src = EvidenceSource {
+        table: input.table,
+        cells: input.cells,
+        margins: input.margins,
+    };
+    let test = compare(&src, metric, size, (a, b), tasks, group);
+    if test.datasets >= 2 {
+        return Evidence {
+            first_better: test.first_better(),
+            second_better: test.second_better(),
+            test,
+            decided_by: DecidedBy::Datasets,
+        };
+    }
+    let mut verdicts = Vec::new();
+    if let Some(mi) = input.table.metric_index(metric) {
+        let ps = PairSource {
+            table: input.table,
+            cells: input.cells,
+            settings: input.settings,
+        };
+        for task in tasks {
+            if let Some(iv) = pair_interval(&ps, task, size, a, b, metric, mi) {
+                let margin = input
+                    .margins
+                    .get(&(task.clone(), size, metric.to_string()))
+                    .copied()
+                    .unwrap_or(f64::NAN);
+                verdicts.push(Verdict::of_interval(&iv, margin));
+            }
+        }
+    }
+    let all = |v: Verdict| !verdicts.is_empty() && verdicts.iter().all(|x| *x == v);
+    Evidence {
+        first_better: all(Verdict::Better),
+        second_better: all(Verdict::Worse),
+        test,
+        decided_by: DecidedBy::Intervals,
+    }
+}
+
 pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
     let DecisionInput {
         across,
@@ -182,16 +308,26 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
     let (first, _) = rows.first()?;
     let methods = &first.methods;
     let k = methods.len();
+    let datasets_of = |tasks: &[String]| -> usize {
+        tasks
+            .iter()
+            .map(|t| task_parts(t).0)
+            .collect::<BTreeSet<_>>()
+            .len()
+    };
     let mut total = vec![0.0; k];
-    for (_, x) in &rows {
-        for (t, r) in total.iter_mut().zip(&x.friedman.avg_ranks) {
-            *t += r;
+    let mut weight = 0.0;
+    for (r, x) in &rows {
+        let w = datasets_of(&r.tasks) as f64;
+        weight += w;
+        for (t, rank) in total.iter_mut().zip(&x.friedman.avg_ranks) {
+            *t += w * rank;
         }
     }
     let mut standing: Vec<(String, f64)> = methods
         .iter()
         .cloned()
-        .zip(total.iter().map(|t| t / rows.len() as f64))
+        .zip(total.iter().map(|t| t / weight))
         .collect();
     // Stable sort: ties keep the suite's order.
     standing.sort_by(|a, b| a.1.total_cmp(&b.1));
@@ -205,13 +341,23 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
     let raw_method = settings.raw_method.clone().filter(|r| methods.contains(r));
     let mut per_size = Vec::new();
     for (r, x) in &rows {
-        let tied: Vec<String> = x
-            .versus_best
-            .iter()
-            .filter(|v| !v.differs)
-            .map(|v| r.methods[v.method].clone())
-            .collect();
         let best = r.methods[x.best].clone();
+        let versus: Vec<(String, Evidence)> = standing
+            .iter()
+            .map(|s| &s.0)
+            .filter(|m| **m != default)
+            .map(|m| {
+                (
+                    m.clone(),
+                    evidence(input, metric, r.size, (&default, m), &r.tasks, None),
+                )
+            })
+            .collect();
+        let beaten_by: Vec<String> = versus
+            .iter()
+            .filter(|v| v.1.second_better)
+            .map(|v| v.0.clone())
+            .collect();
         let versus_runner_up = runner_up.as_ref().map(|ru| {
             let mut rec = VerdictCounts::default();
             for task in &r.tasks {
@@ -230,8 +376,61 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
             }
             rec
         });
-        let datasets: std::collections::BTreeSet<&str> =
-            r.tasks.iter().map(|t| task_parts(t).0).collect();
+        let share_of = |m: &str| -> FallbackShare {
+            let mut f = FallbackShare::default();
+            for t in &r.tasks {
+                if let Some(&(k, n)) = fallback_counts.get(&(t.clone(), r.size, m.to_string())) {
+                    f.fallback += k;
+                    f.draws += n;
+                }
+            }
+            f
+        };
+        let default_fallback = share_of(&default);
+        let mut worst_fallback: Option<(String, FallbackShare)> = None;
+        for t in &r.tasks {
+            if let Some(&(k, n)) = fallback_counts.get(&(t.clone(), r.size, default.clone())) {
+                let f = FallbackShare {
+                    fallback: k,
+                    draws: n,
+                };
+                if k > 0
+                    && worst_fallback
+                        .as_ref()
+                        .is_none_or(|w| f.share() > w.1.share())
+                {
+                    worst_fallback = Some((t.clone(), f));
+                }
+            }
+        }
+        // Steps 2 and 3 of the rule: a default beyond the fallback limit is
+        // passed over for the next method of the standing within it;
+        // otherwise the default, unless a method within the limit is
+        // reliably better than it.
+        let too_many = |m: &str| share_of(m).share() > settings.max_fallback;
+        let beaten_by: Vec<String> = beaten_by.into_iter().filter(|m| !too_many(m)).collect();
+        let (mut recommended, mut why) = if too_many(&default) {
+            let mut passed = Vec::new();
+            let mut pick = None;
+            for (m, _) in &standing {
+                if too_many(m) {
+                    passed.push((m.clone(), share_of(m).share()));
+                } else {
+                    pick = Some(m.clone());
+                    break;
+                }
+            }
+            match pick {
+                Some(m) => (m, Recommendation::PassedOver(passed)),
+                // Every method fell back too often: none is recommended.
+                None => (String::new(), Recommendation::PassedOver(passed)),
+            }
+        } else if let Some(first) = beaten_by.first() {
+            (first.clone(), Recommendation::Beaten(beaten_by.clone()))
+        } else {
+            (default.clone(), Recommendation::Default)
+        };
+        // Step 4: calibrate at all, per base model.
         let raw = raw_method.as_ref().map(|raw| {
             // Verdict of each method against the raw scores on each task
             // at this size, read off the raw-score threshold rows.
@@ -279,87 +478,58 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
                     most_better = Some(((*m).clone(), k));
                 }
             }
-            let raw_holds = r.methods[x.best] == *raw || tied.contains(raw);
-            let majority = most_better
-                .as_ref()
-                .is_some_and(|b| 2 * b.1 > r.tasks.len());
+            let mut by_model: BTreeMap<&str, Vec<String>> = BTreeMap::new();
+            for t in &r.tasks {
+                by_model
+                    .entry(task_parts(t).1.unwrap_or(""))
+                    .or_default()
+                    .push(t.clone());
+            }
+            let groups: Vec<RawGroup> = by_model
+                .into_iter()
+                .map(|(model, tasks)| {
+                    if recommended.is_empty() || recommended == *raw {
+                        return RawGroup {
+                            model: model.to_string(),
+                            evidence: None,
+                            keep_raw: true,
+                        };
+                    }
+                    let group = (!model.is_empty()).then_some(model);
+                    let e = evidence(input, metric, r.size, (&recommended, raw), &tasks, group);
+                    RawGroup {
+                        model: model.to_string(),
+                        keep_raw: !e.first_better,
+                        evidence: Some(e),
+                    }
+                })
+                .collect();
+            let keep_raw = !groups.is_empty() && groups.iter().all(|g| g.keep_raw);
             RawAtSize {
                 default_vs_raw,
                 any_better,
                 most_better,
-                raw_holds,
-                keep_raw: raw_holds && !majority,
+                groups,
+                keep_raw,
             }
         });
-        let share_of = |m: &str| -> FallbackShare {
-            let mut f = FallbackShare::default();
-            for t in &r.tasks {
-                if let Some(&(k, n)) = fallback_counts.get(&(t.clone(), r.size, m.to_string())) {
-                    f.fallback += k;
-                    f.draws += n;
-                }
-            }
-            f
-        };
-        let default_fallback = share_of(&default);
-        let mut worst_fallback: Option<(String, FallbackShare)> = None;
-        for t in &r.tasks {
-            if let Some(&(k, n)) = fallback_counts.get(&(t.clone(), r.size, default.clone())) {
-                let f = FallbackShare {
-                    fallback: k,
-                    draws: n,
-                };
-                if k > 0
-                    && worst_fallback
-                        .as_ref()
-                        .is_none_or(|w| f.share() > w.1.share())
-                {
-                    worst_fallback = Some((t.clone(), f));
-                }
+        if raw.as_ref().is_some_and(|x| x.keep_raw) {
+            recommended = raw_method.clone().unwrap_or_default();
+            if !matches!(why, Recommendation::PassedOver(_)) {
+                why = Recommendation::KeepRaw;
             }
         }
-        let too_many = |m: &str| share_of(m).share() > settings.max_fallback;
-        let (recommended, why) = if raw.as_ref().is_some_and(|x| x.keep_raw) {
-            (
-                raw_method.clone().unwrap_or_default(),
-                Recommendation::KeepRaw,
-            )
-        } else if too_many(&default) {
-            let mut passed = Vec::new();
-            let mut pick = None;
-            for (m, _) in &standing {
-                if too_many(m) {
-                    passed.push((m.clone(), share_of(m).share()));
-                } else {
-                    pick = Some(m.clone());
-                    break;
-                }
-            }
-            match pick {
-                Some(m) => (m, Recommendation::PassedOver(passed)),
-                // Every method fell back too often: none is recommended.
-                None => (String::new(), Recommendation::PassedOver(passed)),
-            }
-        } else {
-            (default.clone(), Recommendation::Default)
-        };
         let dr = x.friedman.avg_ranks[di];
         let rr = ri.map(|i| x.friedman.avg_ranks[i]);
         per_size.push(SizeVerdict {
             size: r.size,
             tasks: r.tasks.len(),
-            datasets: datasets.len(),
-            default_holds: best == default || tied.contains(&default),
+            datasets: datasets_of(&r.tasks),
+            default_holds: beaten_by.is_empty(),
             best,
             default_rank: dr,
             runner_up_rank: rr,
-            tied_with_best: tied,
-            cd_05: x.cd_05,
-            default_vs_runner_up_cd: match (x.cd_05, rr) {
-                (Some(cd), Some(rr)) => Some((dr - rr).abs() > cd),
-                _ => None,
-            },
-            friedman_p: x.friedman.ff_p,
+            versus,
             versus_runner_up,
             raw,
             default_fallback,
@@ -375,14 +545,12 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
             _ => segments.push((v.size, v.size, v.best.clone())),
         }
     }
-    let mut tasks = std::collections::BTreeSet::new();
+    let mut tasks = BTreeSet::new();
     for (r, _) in &rows {
         tasks.extend(r.tasks.iter().map(|t| t.as_str()));
     }
-    let datasets: std::collections::BTreeSet<&str> =
-        tasks.iter().map(|t| task_parts(t).0).collect();
-    let models: std::collections::BTreeSet<&str> =
-        tasks.iter().filter_map(|t| task_parts(t).1).collect();
+    let datasets: BTreeSet<&str> = tasks.iter().map(|t| task_parts(t).0).collect();
+    let models: BTreeSet<&str> = tasks.iter().filter_map(|t| task_parts(t).1).collect();
     let pays_from = match &raw_method {
         Some(raw) => {
             let per_task = |m: Option<&String>| -> Vec<Thresholds> {

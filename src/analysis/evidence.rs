@@ -20,17 +20,33 @@
 //!   margin. With an absolute margin this is the same as D with rope δ. With
 //!   a margin of 0 the raw D enter with no rope (better / worse only).
 //!
+//! For "calibrate at all?" the same test runs on the tasks of one base model
+//! at a time (`<dataset>.<model>` with one model): there every dataset
+//! gives one task, the cases are independent without averaging, and a base
+//! model whose raw scores are far off (naive Bayes under log loss) cannot
+//! decide the answer for the others.
+//!
+//! A posterior probability of at least [`DECISIVE`] (0.95) decides; with
+//! one dataset the test cannot reach it (the prior's pseudo-observation
+//! keeps P(better) near 0.84 at most), and the decision then reads the
+//! dataset's own paired intervals instead ([`super::decision`]).
+//!
 //! Prior strength 0.5 at zero and 50 000 posterior samples (the paper's and
 //! `baycomp`'s defaults); the seed is fixed and derived from the metric, the
-//! size and the two method names, so a report is reproducible byte for byte.
+//! size, the two method names and the base model, so a report is
+//! reproducible byte for byte.
 
 use std::collections::BTreeMap;
 
 use super::steps::Cells;
-use super::{higher_is_better, pair_up, task_parts, AcrossRow, Decision, Margins};
+use super::{higher_is_better, pair_up, task_parts, Margins};
 use crate::run::table::UnitTable;
 use crate::split::{fnv1a, mix};
 use crate::stats::bayes::{signed_rank, SignedRank, DEFAULT_PRIOR, DEFAULT_SAMPLES};
+
+/// A posterior probability at or above this decides (the threshold Benavoli
+/// et al. 2017 use for a decision); the report marks it in bold.
+pub const DECISIVE: f64 = 0.95;
 
 /// Domain tag of the posterior sampling seeds ("bsrt").
 const TAG_BAYES: u64 = 0x6273_7274;
@@ -46,9 +62,24 @@ pub struct DatasetEvidence {
     pub datasets: usize,
     /// Tasks behind them.
     pub tasks: usize,
+    /// The base model whose tasks alone entered (`None`: every task).
+    pub group: Option<String>,
     /// True when each dataset's difference was divided by its margin (rope 1).
     pub scaled: bool,
     pub result: Result<SignedRank, String>,
+}
+
+impl DatasetEvidence {
+    /// The posterior says the first method is better with at least
+    /// [`DECISIVE`] probability.
+    pub fn first_better(&self) -> bool {
+        self.result.as_ref().is_ok_and(|r| r.better >= DECISIVE)
+    }
+
+    /// The posterior says the second method is better (the first worse).
+    pub fn second_better(&self) -> bool {
+        self.result.as_ref().is_ok_and(|r| r.worse >= DECISIVE)
+    }
 }
 
 /// The seed of one comparison.
@@ -82,90 +113,99 @@ pub fn dataset_cases(per_dataset: &[(String, f64, f64)]) -> Result<(Vec<f64>, f6
     Ok((z, 1.0, true))
 }
 
-/// The evidence for `decision`'s default against every other method at
-/// every size of its metric.
-pub fn dataset_evidence(
-    decision: &Decision,
-    across: &[AcrossRow],
-    table: &UnitTable,
-    cells: &Cells,
-    margins: &Margins,
-) -> Vec<DatasetEvidence> {
-    let metric = decision.metric.as_str();
-    let Some(mi) = table.metric_index(metric) else {
-        return Vec::new();
-    };
+/// What a comparison reads.
+pub struct EvidenceSource<'a> {
+    pub table: &'a UnitTable,
+    pub cells: &'a Cells,
+    pub margins: &'a Margins,
+}
+
+/// `a` against `b` on `metric` at calibration size `size` over `tasks`
+/// (the tasks of one size's comparison across tasks, or the part of them
+/// that one base model gave, named by `group`), datasets as units.
+pub fn compare(
+    src: &EvidenceSource,
+    metric: &str,
+    size: usize,
+    (a, b): (&str, &str),
+    tasks: &[String],
+    group: Option<&str>,
+) -> DatasetEvidence {
+    let EvidenceSource {
+        table,
+        cells,
+        margins,
+    } = *src;
     let sign = if higher_is_better(metric) { -1.0 } else { 1.0 };
-    let mut out = Vec::new();
-    for row in across
-        .iter()
-        .filter(|r| r.metric == metric && r.result.is_ok())
-    {
-        for competitor in row.methods.iter().filter(|m| **m != decision.default) {
-            // dataset → (Σ task differences, Σ task margins, tasks), first-seen order.
-            let mut order: Vec<String> = Vec::new();
-            let mut sums: BTreeMap<String, (f64, f64, usize)> = BTreeMap::new();
-            for task in &row.tasks {
-                let key = |m: &str| (task.clone(), row.size, m.to_string());
-                let (Some(ca), Some(cb)) = (
-                    cells.get(&key(&decision.default)),
-                    cells.get(&key(competitor)),
-                ) else {
-                    continue;
-                };
-                let pr = pair_up(table, ca, cb, mi, metric);
-                if pr.diffs.is_empty() {
-                    continue;
-                }
-                let d = sign * pr.diffs.iter().sum::<f64>() / pr.diffs.len() as f64;
-                let margin = margins
-                    .get(&(task.clone(), row.size, metric.to_string()))
-                    .copied()
-                    .unwrap_or(f64::NAN);
-                let ds = task_parts(task).0.to_string();
-                if !sums.contains_key(&ds) {
-                    order.push(ds.clone());
-                }
-                let e = sums.entry(ds).or_insert((0.0, 0.0, 0));
-                e.0 += d;
-                e.1 += margin;
-                e.2 += 1;
-            }
-            let per_dataset: Vec<(String, f64, f64)> = order
-                .iter()
-                .map(|ds| {
-                    let (d, m, k) = sums[ds];
-                    (ds.clone(), d / k as f64, m / k as f64)
-                })
-                .collect();
-            let tasks = sums.values().map(|s| s.2).sum();
-            let (result, scaled) = match dataset_cases(&per_dataset) {
-                Ok((z, rope, scaled)) => (
-                    signed_rank(
-                        &z,
-                        rope,
-                        DEFAULT_PRIOR,
-                        DEFAULT_SAMPLES,
-                        evidence_seed(metric, row.size, &decision.default, competitor),
-                    )
-                    .map_err(|e| e.to_string()),
-                    scaled,
-                ),
-                Err(e) => (Err(e), false),
-            };
-            out.push(DatasetEvidence {
-                metric: metric.to_string(),
-                size: row.size,
-                default: decision.default.clone(),
-                competitor: competitor.clone(),
-                datasets: per_dataset.len(),
-                tasks,
-                scaled,
-                result,
-            });
+    let Some(mi) = table.metric_index(metric) else {
+        return DatasetEvidence {
+            metric: metric.to_string(),
+            size,
+            default: a.to_string(),
+            competitor: b.to_string(),
+            group: group.map(str::to_string),
+            datasets: 0,
+            tasks: 0,
+            scaled: false,
+            result: Err(format!("no metric `{metric}` in the results")),
+        };
+    };
+    // dataset → (Σ task differences, Σ task margins, tasks), first-seen order.
+    let mut order: Vec<String> = Vec::new();
+    let mut sums: BTreeMap<String, (f64, f64, usize)> = BTreeMap::new();
+    for task in tasks {
+        let key = |m: &str| (task.clone(), size, m.to_string());
+        let (Some(ca), Some(cb)) = (cells.get(&key(a)), cells.get(&key(b))) else {
+            continue;
+        };
+        let pr = pair_up(table, ca, cb, mi, metric);
+        if pr.diffs.is_empty() {
+            continue;
         }
+        let d = sign * pr.diffs.iter().sum::<f64>() / pr.diffs.len() as f64;
+        let margin = margins
+            .get(&(task.clone(), size, metric.to_string()))
+            .copied()
+            .unwrap_or(f64::NAN);
+        let ds = task_parts(task).0.to_string();
+        if !sums.contains_key(&ds) {
+            order.push(ds.clone());
+        }
+        let e = sums.entry(ds).or_insert((0.0, 0.0, 0));
+        e.0 += d;
+        e.1 += margin;
+        e.2 += 1;
     }
-    out
+    let per_dataset: Vec<(String, f64, f64)> = order
+        .iter()
+        .map(|ds| {
+            let (d, m, k) = sums[ds];
+            (ds.clone(), d / k as f64, m / k as f64)
+        })
+        .collect();
+    let n_tasks = sums.values().map(|s| s.2).sum();
+    let mut seed = evidence_seed(metric, size, a, b);
+    if let Some(g) = group {
+        seed = mix(seed, &[fnv1a(g.as_bytes())]);
+    }
+    let (result, scaled) = match dataset_cases(&per_dataset) {
+        Ok((z, rope, scaled)) => (
+            signed_rank(&z, rope, DEFAULT_PRIOR, DEFAULT_SAMPLES, seed).map_err(|e| e.to_string()),
+            scaled,
+        ),
+        Err(e) => (Err(e), false),
+    };
+    DatasetEvidence {
+        metric: metric.to_string(),
+        size,
+        default: a.to_string(),
+        competitor: b.to_string(),
+        group: group.map(str::to_string),
+        datasets: per_dataset.len(),
+        tasks: n_tasks,
+        scaled,
+        result,
+    }
 }
 
 #[cfg(test)]

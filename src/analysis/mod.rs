@@ -10,10 +10,10 @@ pub mod gaps;
 pub mod steps;
 
 pub use decision::{
-    decide, task_parts, Decision, DecisionInput, FallbackShare, RawAtSize, Recommendation,
-    SizeVerdict,
+    decide, task_parts, DecidedBy, Decision, DecisionInput, Evidence, FallbackShare, RawAtSize,
+    RawGroup, Recommendation, SizeVerdict,
 };
-pub use evidence::{dataset_evidence, DatasetEvidence};
+pub use evidence::{DatasetEvidence, DECISIVE};
 pub use steps::{
     across_step, decision_metrics, pair_thresholds, raw_pairs, threshold_step, StepInput,
 };
@@ -194,9 +194,6 @@ pub struct Analysis {
     pub decisions: Vec<Decision>,
     /// The equivalence margin δ of each (task, size, metric) with a reference.
     pub margins: Margins,
-    /// The primary decision's default against every other method at each
-    /// size, datasets as units (Bayesian signed-rank test with rope).
-    pub dataset_evidence: Vec<DatasetEvidence>,
 }
 
 /// (task, size, metric) → equivalence margin δ.
@@ -556,10 +553,6 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
             decide(&input, m)
         })
         .collect();
-    let dataset_evidence = decisions
-        .first()
-        .map(|d| dataset_evidence(d, &across, table, &cells, &margins))
-        .unwrap_or_default();
     Analysis {
         tasks,
         methods,
@@ -575,7 +568,6 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         raw_thresholds,
         decisions,
         margins,
-        dataset_evidence,
     }
 }
 

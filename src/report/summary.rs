@@ -5,7 +5,10 @@
 
 use super::document::{anchor, legend, Block};
 use super::{figures, fmt_diff, fmt_value, Table};
-use crate::analysis::{task_parts, Analysis, AnalysisSettings, Decision, Recommendation};
+use crate::analysis::{
+    task_parts, Analysis, AnalysisSettings, DecidedBy, Decision, Evidence, Recommendation,
+    SizeVerdict, DECISIVE,
+};
 use crate::metrics::reliability::CurveRecord;
 use crate::stats::paired::IntervalKind;
 use crate::stats::verdict::{marks_slashed, Verdict};
@@ -149,8 +152,40 @@ fn size_range(a: usize, b: usize) -> String {
     }
 }
 
-/// "Calibrate at all?": the raw scores against the calibrating methods, size
-/// by size, and from which size calibrating pays off per task.
+/// `m` as a base-model name in text.
+fn model_name(m: &str) -> String {
+    if m.is_empty() {
+        "tasks without a base model".to_string()
+    } else {
+        format!("`{m}`")
+    }
+}
+
+/// What is recommended at one size, in words: the method, and the base
+/// models that keep the raw scores.
+fn recommended_words(d: &Decision, v: &SizeVerdict) -> String {
+    if v.recommended.is_empty() {
+        return "no method (every one fell back too often)".to_string();
+    }
+    if Some(&v.recommended) == d.raw.as_ref() {
+        return format!("keep the raw scores (`{}`)", v.recommended);
+    }
+    let raw_for = v.raw.as_ref().map(|r| r.raw_for()).unwrap_or_default();
+    if raw_for.is_empty() {
+        format!("`{}`", v.recommended)
+    } else {
+        let list: Vec<String> = raw_for.iter().map(|m| model_name(m)).collect();
+        format!(
+            "`{}`, but keep the raw scores for {}",
+            v.recommended,
+            list.join(", ")
+        )
+    }
+}
+
+/// "Calibrate at all?": the recommended method against the raw scores per
+/// base model, size by size, and from which size calibrating pays off per
+/// task.
 fn raw_words(d: &Decision, raw: &str) -> String {
     let keep: Vec<String> = d
         .per_size
@@ -158,11 +193,38 @@ fn raw_words(d: &Decision, raw: &str) -> String {
         .filter(|v| v.raw.as_ref().is_some_and(|r| r.keep_raw))
         .map(|v| v.size.to_string())
         .collect();
-    let verdict = if keep.is_empty() {
-        "at no size does the evidence say to keep the raw scores".to_string()
+    let partly: Vec<String> = d
+        .per_size
+        .iter()
+        .filter_map(|v| {
+            let r = v.raw.as_ref()?;
+            let list = r.raw_for();
+            (!list.is_empty()).then(|| {
+                format!(
+                    "n = {}: {}",
+                    v.size,
+                    list.iter()
+                        .map(|m| model_name(m))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )
+            })
+        })
+        .collect();
+    let mut verdict = if keep.is_empty() {
+        "at no size for every base model".to_string()
     } else {
-        format!("**keep the raw scores at n = {}**", keep.join(", "))
+        format!(
+            "**keep the raw scores at n = {} for every base model**",
+            keep.join(", ")
+        )
     };
+    if !partly.is_empty() {
+        verdict.push_str(&format!(
+            "; keep them for some base models only — {}",
+            partly.join("; ")
+        ));
+    }
     let counts: Vec<String> = d
         .per_size
         .iter()
@@ -174,20 +236,13 @@ fn raw_words(d: &Decision, raw: &str) -> String {
                 .map(|(m, k)| format!(", most `{m}` {k}"))
                 .unwrap_or_default();
             Some(format!(
-                "n = {}: {}/{}{most}{}",
-                v.size,
-                r.any_better,
-                v.tasks,
-                if r.raw_holds {
-                    ", raw ranked best or tied"
-                } else {
-                    ""
-                }
+                "n = {}: {}/{}{most}",
+                v.size, r.any_better, v.tasks
             ))
         })
         .collect();
     let mut out = format!(
-        "**Calibrate at all?** Against the uncalibrated scores `{raw}`, {verdict}. Rule: keep the raw scores at a size when they rank best there or are not distinguishable from the best (Holm-corrected Wilcoxon) and no single method is reliably better than them on more than half of the tasks. Tasks on which some method is reliably better than the raw scores — {}.",
+        "**Calibrate at all?** Against the uncalibrated scores `{raw}`: {verdict}. Rule: for each base model separately, keep the raw scores at a size unless the method recommended there is reliably better than them across that model's datasets (Bayesian signed-rank test, P(better) ≥ {DECISIVE}; one dataset: better on its paired interval); a method only equivalent within the margin keeps the raw scores too, since a calibrator is one more fitted map to maintain. Per task, for description: tasks on which some method is reliably better than the raw scores on its paired interval — {}.",
         counts.join("; ")
     );
     let pays: Vec<String> = d
@@ -216,6 +271,34 @@ fn raw_words(d: &Decision, raw: &str) -> String {
     out
 }
 
+/// P(better) / P(equivalent) / P(worse) of a comparison, or how it was
+/// decided on one dataset.
+pub fn posterior_cell(e: &Evidence) -> String {
+    match (&e.decided_by, &e.test.result) {
+        (DecidedBy::Intervals, _) => {
+            if e.first_better {
+                "✓ (1 dataset)".into()
+            } else if e.second_better {
+                "✗ (1 dataset)".into()
+            } else {
+                "– (1 dataset)".into()
+            }
+        }
+        (DecidedBy::Datasets, Ok(r)) => {
+            let s = format!("{:.2}/{:.2}/{:.2}", r.better, r.equivalent, r.worse);
+            if [r.better, r.equivalent, r.worse]
+                .iter()
+                .any(|&p| p >= DECISIVE)
+            {
+                format!("**{s}**")
+            } else {
+                s
+            }
+        }
+        (DecidedBy::Datasets, Err(_)) => "–".into(),
+    }
+}
+
 /// The decision on one metric as blocks.
 fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
     let mut out = Vec::new();
@@ -238,45 +321,56 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
             ""
         }
     )));
+    let parts: Vec<String> = {
+        let mut acc: Vec<(usize, usize, String)> = Vec::new();
+        for v in &d.per_size {
+            let w = recommended_words(d, v);
+            match acc.last_mut() {
+                Some(s) if s.2 == w => s.1 = v.size,
+                _ => acc.push((v.size, v.size, w)),
+            }
+        }
+        acc.into_iter()
+            .map(|(lo, hi, w)| format!("{}: {w}", size_range(lo, hi)))
+            .collect()
+    };
+    out.push(Block::Para(format!(
+        "**Recommended by calibration size** — {}.",
+        parts.join("; ")
+    )));
+    let holds = d.per_size.iter().filter(|v| v.default_holds).count();
+    let beaten: Vec<String> = d
+        .per_size
+        .iter()
+        .filter_map(|v| match &v.why {
+            Recommendation::Beaten(b) => Some(format!(
+                "n = {}: {}",
+                v.size,
+                b.iter()
+                    .map(|m| format!("`{m}`"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            )),
+            _ => None,
+        })
+        .collect();
     let changes: Vec<String> = d
         .segments
         .iter()
         .map(|(lo, hi, m)| format!("{}: `{m}`", size_range(*lo, *hi)))
         .collect();
-    let holds = d.per_size.iter().filter(|v| v.default_holds).count();
     out.push(Block::Para(format!(
-        "Best average rank by calibration size — {}. `{}` is the best or not reliably distinguishable from the best (Holm-corrected Wilcoxon, α = 0.05) at {holds} of {} sizes.",
-        changes.join("; "),
+        "No method is reliably better than `{}` across datasets (Bayesian signed-rank test, P ≥ {DECISIVE}) at {holds} of {} sizes{}. Best average rank by calibration size (a picture, not a test) — {}.",
         d.default,
-        d.per_size.len()
+        d.per_size.len(),
+        if beaten.is_empty() {
+            String::new()
+        } else {
+            format!("; reliably better than it — {}", beaten.join("; "))
+        },
+        changes.join("; "),
     )));
     let raw = d.raw.as_ref();
-    let recs: Vec<(usize, usize, String)> = d.per_size.iter().fold(Vec::new(), |mut acc, v| {
-        match acc.last_mut() {
-            Some(s) if s.2 == v.recommended => s.1 = v.size,
-            _ => acc.push((v.size, v.size, v.recommended.clone())),
-        }
-        acc
-    });
-    if recs.iter().any(|r| r.2 != d.default) {
-        let parts: Vec<String> = recs
-            .iter()
-            .map(|(lo, hi, m)| {
-                let what = if m.is_empty() {
-                    "no method (every one fell back too often)".to_string()
-                } else if Some(m) == d.raw.as_ref() {
-                    format!("keep the raw scores (`{m}`)")
-                } else {
-                    format!("`{m}`")
-                };
-                format!("{}: {what}", size_range(*lo, *hi))
-            })
-            .collect();
-        out.push(Block::Para(format!(
-            "**Recommended by calibration size** — {}.",
-            parts.join("; ")
-        )));
-    }
     if let Some(raw) = raw {
         out.push(Block::Para(raw_words(d, raw)));
     }
@@ -303,31 +397,30 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
     let mut header = vec![
         "n".into(),
         "tasks (datasets)".into(),
-        "best".into(),
+        "best rank".into(),
         "rank (default)".into(),
         "rank (runner-up)".into(),
-        "CD".into(),
-        format!("vs runner-up {}", marks_slashed()),
+        "vs runner-up P(✓/=/✗)".into(),
+        format!("tasks vs runner-up {}", marks_slashed()),
     ];
     if raw.is_some() {
-        header.push(format!("vs raw {}", marks_slashed()));
+        header.push(format!("tasks vs raw {}", marks_slashed()));
     }
-    header.extend([
-        "default fell back".to_string(),
-        "recommended".to_string(),
-        "Friedman p".to_string(),
-    ]);
+    header.extend(["default fell back".to_string(), "recommended".to_string()]);
     let mut notes = vec![format!(
-        "Default `{}`, runner-up `{ru}`. Tasks (datasets): tasks with a value for every method at that size, and the datasets they come from. Ranks: average over tasks of each method's rank by mean {} (1 = best); \"tied\": the best is not distinguishable from the default (Holm-corrected Wilcoxon signed-rank test over tasks). CD: Nemenyi critical difference at α = 0.05; average ranks closer than the CD are not distinguishable. Ranks, ties, CD and the Friedman p treat the tasks as independent cases. {}: tasks on which `{}`, compared with `{ru}`, is {} — each mark from that task's paired interval (the suite's interval over repeats) read against the task's margin δ, as in the legend, not from a test across tasks.",
+        "Default `{}`, runner-up `{ru}`. Tasks (datasets): tasks with a value for every method at that size, and the datasets they come from. Ranks: average over tasks of each method's rank by mean {} (1 = best) — a picture of the field that treats tasks as independent; it decides nothing. Vs runner-up P(✓/=/✗): the test this decision rests on — the Bayesian signed-rank test with the dataset as unit and the margin as region of practical equivalence (table below): the posterior probability that `{}` is better than, practically equivalent to, or worse than `{ru}`; bold: one reaches {DECISIVE}. With a single dataset it cannot decide, and the dataset's paired interval does (✓ / ✗ when every task of it says so).",
         d.default,
         d.metric,
+        d.default,
+    ), format!(
+        "Tasks vs runner-up {}: a description, not a test across tasks — tasks on which `{}` is {} than `{ru}`, each from that task's paired interval over the repeats read against the task's margin δ (see the legend).",
         marks_slashed(),
         d.default,
         Verdict::ALL.map(|v| v.words()).join(" / ")
     )];
     if let Some(raw) = raw {
         notes.push(format!(
-            "Vs raw: the same counts for `{}` against the uncalibrated scores `{raw}`.",
+            "Tasks vs raw: the same counts for `{}` against the uncalibrated scores `{raw}`. Recommended: the method chosen by the rule; \"keep the raw scores for\" names the base models on which the test does not show it reliably better than the raw scores (the per-model table below).",
             d.default
         ));
     }
@@ -346,17 +439,15 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
         let mut row = vec![
             v.size.to_string(),
             format!("{} ({})", v.tasks, v.datasets),
-            if v.default_holds && v.best != d.default {
-                format!("`{}` (tied with `{}`)", v.best, d.default)
-            } else {
-                format!("`{}`", v.best)
-            },
+            format!("`{}`", v.best),
             format!("{:.2}", v.default_rank),
             v.runner_up_rank
                 .map(|r| format!("{r:.2}"))
                 .unwrap_or_else(|| "–".into()),
-            v.cd_05
-                .map(|c| format!("{c:.2}"))
+            d.runner_up
+                .as_ref()
+                .and_then(|ru| v.against(ru))
+                .map(posterior_cell)
                 .unwrap_or_else(|| "–".into()),
             v.versus_runner_up
                 .map(|r| r.slashed())
@@ -380,16 +471,35 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
             ),
             None => "0%".into(),
         });
+        let raw_for = v.raw.as_ref().map(|r| r.raw_for()).unwrap_or_default();
+        let raw_note = if raw_for.is_empty() {
+            String::new()
+        } else {
+            format!(
+                "; raw for {}",
+                raw_for
+                    .iter()
+                    .map(|m| model_name(m))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            )
+        };
         row.push(match &v.why {
-            Recommendation::Default => format!("`{}`", v.recommended),
+            Recommendation::Default => format!("`{}`{raw_note}", v.recommended),
+            Recommendation::Beaten(_) => {
+                format!("`{}` (beats `{}`){raw_note}", v.recommended, d.default)
+            }
             Recommendation::KeepRaw => format!("`{}` (raw scores)", v.recommended),
             Recommendation::PassedOver(_) if v.recommended.is_empty() => "none (fallbacks)".into(),
-            Recommendation::PassedOver(_) => format!("`{}` (fallbacks)", v.recommended),
+            Recommendation::PassedOver(_) => {
+                format!("`{}` (fallbacks){raw_note}", v.recommended)
+            }
         });
-        row.push(fmt_p(v.friedman_p));
         t.rows.push(row);
     }
     out.push(Block::Table(t));
+    out.extend(super::evidence::versus_blocks(d));
+    out.extend(super::evidence::raw_blocks(d));
     out
 }
 
@@ -406,12 +516,12 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
         String::new()
     };
     out.push(Block::Para(format!(
-        "**How strong the evidence is.** {} tasks from {} datasets{models}, {} methods, every method fitted on the same calibration sample and scored on the same test set in each of the suite's repeats. The rule: at each calibration size, rank the methods on each task by mean loss and average the ranks over tasks (Demšar 2006); the team default has the lowest mean of these average ranks over the sizes, each size weighing the same.{}",
+        "**How strong the evidence is.** {} tasks from {} datasets{models}, {} methods, every method fitted on the same calibration sample and scored on the same test set in each of the suite's repeats. The rule: at each calibration size, rank the methods on each task by mean loss and average the ranks over tasks (Demšar 2006); the team default has the lowest mean of these average ranks over the sizes, each size weighted by the number of datasets behind it; at each size it is recommended unless a method is reliably better than it across datasets (Bayesian signed-rank test, dataset as unit), it falls back too often, or the raw scores hold for a base model.{}",
         d.tasks,
         d.datasets,
         a.methods.len(),
         if d.datasets < d.tasks {
-            format!(" Tasks that share a dataset are not independent evidence, so the tests across tasks are optimistic; the effective number of cases is nearer {} than {}.", d.datasets, d.tasks)
+            format!(" Tasks that share a dataset are not independent evidence: every test the decision rests on counts each of the {} datasets once (the ranks, the Friedman test and the critical differences, which count all {} tasks, are pictures only).", d.datasets, d.tasks)
         } else {
             String::new()
         }
@@ -713,10 +823,6 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
     }
     for (i, d) in a.decisions.iter().enumerate() {
         b.extend(decision_blocks(d, i == 0));
-        if i == 0 {
-            // The primary decision's default, datasets as units.
-            b.extend(super::evidence::dataset_evidence_blocks(a));
-        }
     }
     b.extend(evidence_blocks(a, ctx));
     b.push(Block::Caution(CAUTION.into()));
