@@ -38,11 +38,53 @@ fn reported_fixture() -> (TempDir, PathBuf, String) {
     (tmp, dir, String::from_utf8(out).unwrap())
 }
 
+/// Whether the snapshots are to be rewritten: only `PLUMBLINE_UPDATE_SNAPSHOTS=1`
+/// says so. Unset means compare; any other value (`0`, `true`, empty, ...) is
+/// refused rather than guessed at, so a typo can neither rewrite the snapshots
+/// nor silently leave them unchecked.
+fn update_snapshots() -> bool {
+    match std::env::var_os("PLUMBLINE_UPDATE_SNAPSHOTS") {
+        None => false,
+        Some(v) if v == "1" => true,
+        Some(v) => panic!(
+            "PLUMBLINE_UPDATE_SNAPSHOTS={v:?} is not understood: set it to 1 to rewrite the snapshots, or unset it to compare with them"
+        ),
+    }
+}
+
+/// Any value of the update switch but `1` is refused: the snapshot test, run
+/// in a child process of this very test binary with `0`, `true` and the empty
+/// string, fails with the message that says what to set.
+#[test]
+fn snapshot_update_switch_takes_only_1() {
+    let me = std::env::current_exe().unwrap();
+    for value in ["0", "true", ""] {
+        let out = std::process::Command::new(&me)
+            .args(["--exact", "every_table_format_matches_its_snapshot"])
+            .env("PLUMBLINE_UPDATE_SNAPSHOTS", value)
+            .output()
+            .unwrap();
+        let text = format!(
+            "{}{}",
+            String::from_utf8_lossy(&out.stdout),
+            String::from_utf8_lossy(&out.stderr)
+        );
+        assert!(!out.status.success(), "value {value:?} accepted:\n{text}");
+        assert!(
+            text.contains(&format!(
+                "PLUMBLINE_UPDATE_SNAPSHOTS={value:?} is not understood: set it to 1"
+            )),
+            "value {value:?}:\n{text}"
+        );
+        assert!(text.contains("1 failed"), "value {value:?}:\n{text}");
+    }
+}
+
 /// Compare with a committed snapshot in `tests/snapshots/report/`; with
 /// `PLUMBLINE_UPDATE_SNAPSHOTS=1` the snapshot is rewritten instead.
 fn check_snapshot(name: &str, actual: &[u8]) {
     let path = root().join("tests/snapshots/report").join(name);
-    if std::env::var_os("PLUMBLINE_UPDATE_SNAPSHOTS").is_some() {
+    if update_snapshots() {
         fs::create_dir_all(path.parent().unwrap()).unwrap();
         fs::write(&path, actual).unwrap();
         return;
@@ -72,6 +114,8 @@ fn check_snapshot(name: &str, actual: &[u8]) {
 
 #[test]
 fn every_table_format_matches_its_snapshot() {
+    // Refuse an unknown switch value before any work.
+    update_snapshots();
     let (_tmp, dir, terminal) = reported_fixture();
     for f in [
         "summary.md",
