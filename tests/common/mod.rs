@@ -1,6 +1,6 @@
 //! Helpers shared by the integration tests: the binary, seeded draws, small
-//! suites and score files, runs bounded by a hang limit, and the reference
-//! fixtures.
+//! suites and score files, runs bounded by a hang limit, the reference
+//! fixtures and the case count of the property tests.
 #![allow(dead_code)]
 
 use std::fs;
@@ -252,4 +252,27 @@ pub fn floats(v: &serde_json::Value) -> Vec<f64> {
         .iter()
         .map(|x| x.as_f64().unwrap())
         .collect()
+}
+
+/// Cases for a file's property tests: `floor` (stated beside each
+/// `proptest_config`) unless `PROPTEST_CASES` asks for more. A lower value, or
+/// one that is not a whole number, is refused with a message saying what to
+/// set, so the variable can raise the number of cases but never silently
+/// shrink the tests to a handful.
+pub fn proptest_cases(floor: u32) -> u32 {
+    match std::env::var("PROPTEST_CASES") {
+        Err(std::env::VarError::NotPresent) => floor,
+        Err(std::env::VarError::NotUnicode(v)) => panic!(
+            "PROPTEST_CASES={v:?} is not a whole number of cases: unset it or set at least {floor}"
+        ),
+        Ok(v) => match v.trim().parse::<u32>() {
+            Ok(n) if n >= floor => n,
+            Ok(n) => panic!(
+                "PROPTEST_CASES={n} is below this file's floor of {floor} cases: unset it or set at least {floor}"
+            ),
+            Err(_) => panic!(
+                "PROPTEST_CASES={v:?} is not a whole number of cases: unset it or set at least {floor}"
+            ),
+        },
+    }
 }
