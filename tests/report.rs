@@ -401,6 +401,13 @@ fn demo(stem: &str, rows: usize, seed: u64) -> (Vec<f64>, Vec<bool>) {
 /// seeds; the test prints both shares — 0.971 for the diagonal when it was
 /// written: the band is centred near the diagonal, so it holds it more often
 /// than the nominal level).
+///
+/// Coverage alone would pass a band that is simply too wide, so the mean band
+/// width is bounded above too. Measured on these seeds: mean 0.0873 (largest
+/// 0.1818) at the 90% level, and 0.1028 with the same draws at 95% — the ratio
+/// 1.18 of the normal quantiles 1.960/1.645 = 1.19, as for a binomial
+/// proportion's interval. The bound 0.095 sits between them: a band of the
+/// next common level, or quantiles taken further out, fails.
 #[test]
 fn the_band_holds_the_diagonal_on_calibrated_scores() {
     use plumbline::metrics::reliability::{curve, BandSettings};
@@ -409,6 +416,7 @@ fn the_band_holds_the_diagonal_on_calibrated_scores() {
         level: 0.9,
     };
     let (mut inside, mut curve_inside, mut total) = (0, 0, 0);
+    let (mut width_sum, mut width_max) = (0.0f64, 0.0f64);
     for seed in 1..=5u64 {
         let (p, y) = demo("eta-calibrated", 4000, seed);
         let c = curve("calibrated", &p, &y, band, seed + 100).unwrap();
@@ -419,10 +427,15 @@ fn the_band_holds_the_diagonal_on_calibrated_scores() {
             .count();
         curve_inside += c.points.len() - c.outside;
         total += c.points.len();
+        for q in &c.points {
+            width_sum += q.high - q.low;
+            width_max = width_max.max(q.high - q.low);
+        }
     }
     let share = inside as f64 / total as f64;
     let curve_share = curve_inside as f64 / total as f64;
-    eprintln!("of {total} curve points: diagonal inside the 90% band at {share:.3}, observed curve inside at {curve_share:.3}");
+    let width_mean = width_sum / total as f64;
+    eprintln!("of {total} curve points: diagonal inside the 90% band at {share:.3}, observed curve inside at {curve_share:.3}; band width mean {width_mean:.4}, largest {width_max:.4}");
     assert!(
         share >= 0.75,
         "diagonal inside the band at {share:.3} of {total} points"
@@ -430,6 +443,10 @@ fn the_band_holds_the_diagonal_on_calibrated_scores() {
     assert!(
         curve_share >= 0.75,
         "observed curve inside the band at {curve_share:.3} of {total} points"
+    );
+    assert!(
+        width_mean <= 0.095,
+        "mean band width {width_mean:.4} over {total} points (measured 0.0873 at 90%)"
     );
 }
 

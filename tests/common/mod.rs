@@ -245,13 +245,35 @@ pub fn json_fixture(rel: &str) -> serde_json::Value {
     serde_json::from_str(&text).unwrap_or_else(|e| panic!("fixture {}: {e}", path.display()))
 }
 
-/// A JSON array of numbers.
+/// A JSON array of numbers (a fixture array); panics naming what is not one.
 pub fn floats(v: &serde_json::Value) -> Vec<f64> {
     v.as_array()
-        .unwrap()
+        .unwrap_or_else(|| panic!("fixture: expected an array of numbers, found {v}"))
         .iter()
-        .map(|x| x.as_f64().unwrap())
+        .map(|x| {
+            x.as_f64()
+                .unwrap_or_else(|| panic!("fixture: {x} is not a number"))
+        })
         .collect()
+}
+
+/// The element pairs of two equally long sequences: a fixture array and what
+/// it is checked against. `zip` alone stops at the shorter one, so a truncated
+/// or over-long fixture array would pass unnoticed; this fails first, naming
+/// `what` and both lengths.
+pub fn pairs<'a, A, B>(
+    ours: &'a [A],
+    fixture: &'a [B],
+    what: &str,
+) -> std::iter::Zip<std::slice::Iter<'a, A>, std::slice::Iter<'a, B>> {
+    assert_eq!(
+        ours.len(),
+        fixture.len(),
+        "{what}: {} values against {} in the fixture",
+        ours.len(),
+        fixture.len()
+    );
+    ours.iter().zip(fixture)
 }
 
 /// Cases for a file's property tests: `floor` (stated beside each
