@@ -116,10 +116,21 @@ fn csv_rows(path: &Path) -> Vec<BTreeMap<String, String>> {
     let mut lines = text.lines();
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
     lines
-        .map(|l| {
+        .enumerate()
+        .map(|(i, l)| {
+            let cells: Vec<&str> = l.split(',').collect();
+            assert_eq!(
+                cells.len(),
+                header.len(),
+                "{}: line {} has {} cells, the header {}",
+                path.display(),
+                i + 2,
+                cells.len(),
+                header.len()
+            );
             header
                 .iter()
-                .zip(l.split(','))
+                .zip(cells)
                 .map(|(h, v)| (h.to_string(), v.to_string()))
                 .collect()
         })
@@ -160,6 +171,7 @@ fn every_draw_counts_with_the_base_rate_fallback() {
         .iter()
         .map(|&i| plan.tasks[0].pool.scores[i])
         .collect();
+    assert_eq!(test_scores.len(), TEST_LABELS.len(), "test rows");
     let (mut one_class, mut separable) = (0, 0);
     for r in &units {
         let k: usize = r["positives"].parse().unwrap();

@@ -6,6 +6,8 @@
 use plumbline::calibrate::{FitError, Fitted, MethodSpec, ScoreKind};
 use proptest::prelude::*;
 
+mod common;
+
 struct Case {
     spec: &'static str,
     kind: ScoreKind,
@@ -173,10 +175,9 @@ fn predict(f: &Fitted, s: &[f64]) -> Vec<f64> {
 }
 
 proptest! {
-    // 96 cases by default; `PROPTEST_CASES` raises or lowers it.
-    #![proptest_config(ProptestConfig::with_cases(
-        std::env::var("PROPTEST_CASES").ok().and_then(|v| v.parse().ok()).unwrap_or(96)
-    ))]
+    // Floor: 96 cases (the count these properties were written and timed
+    // with); `PROPTEST_CASES` may raise it, a lower value is refused.
+    #![proptest_config(ProptestConfig::with_cases(common::proptest_cases(96)))]
 
     #[test]
     fn maps_are_probabilities_monotone_and_order_free((s01, y, keys) in sample()) {

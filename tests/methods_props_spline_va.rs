@@ -7,6 +7,8 @@ use plumbline::calibrate::venn_abers::{brute_force_pair, VennAbers, VennAbersTab
 use plumbline::calibrate::{Calibrator, ScoreKind};
 use proptest::prelude::*;
 
+mod common;
+
 /// Calibration samples with both classes; scores on a coarse grid so that ties
 /// are common.
 fn sample() -> impl Strategy<Value = (Vec<f64>, Vec<bool>)> {
@@ -56,7 +58,9 @@ fn spline(kind: ScoreKind) -> Spline {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig::with_cases(64))]
+    // Floor: 64 cases (each fits a spline by AIC over a penalty grid);
+    // `PROPTEST_CASES` may raise it, a lower value is refused.
+    #![proptest_config(ProptestConfig::with_cases(common::proptest_cases(64)))]
 
     #[test]
     fn venn_abers_is_a_monotone_probability((s, y) in sample()) {

@@ -50,6 +50,21 @@ fn labels(v: &Value) -> Vec<bool> {
         .collect()
 }
 
+/// A case's calibration sample: its scores and labels, checked to be equally
+/// long (a fit would otherwise see a silently shortened sample).
+fn sample(c: &Value) -> (Vec<f64>, Vec<bool>) {
+    let (s, y) = (f64s(&c["scores"]), labels(&c["labels"]));
+    assert_eq!(
+        s.len(),
+        y.len(),
+        "{}: {} scores against {} labels",
+        c["name"],
+        s.len(),
+        y.len()
+    );
+    (s, y)
+}
+
 fn spec(toml_src: &str) -> MethodSpec {
     #[derive(serde::Deserialize)]
     struct W {
@@ -85,8 +100,7 @@ fn assert_close(got: &[f64], want: &[f64], tol: f64, what: &str) {
 #[test]
 fn platt_matches_statsmodels_logit() {
     for c in load(include_str!("fixtures/methods/platt.json")) {
-        let s = f64s(&c["scores"]);
-        let y = labels(&c["labels"]);
+        let (s, y) = sample(&c);
         let kind = if c["name"].as_str().unwrap().starts_with("margin") {
             ScoreKind::Margin
         } else {
@@ -114,8 +128,7 @@ fn platt_matches_statsmodels_logit() {
 #[test]
 fn isotonic_matches_scipy_and_sklearn() {
     for c in load(include_str!("fixtures/methods/isotonic.json")) {
-        let s = f64s(&c["scores"]);
-        let y = labels(&c["labels"]);
+        let (s, y) = sample(&c);
         let f = fit("{ kind = \"isotonic\" }", ScoreKind::Probability, &s, &y);
         let name = c["name"].as_str().unwrap();
         if c.get("fitted").is_some() {
@@ -139,8 +152,7 @@ fn isotonic_matches_scipy_and_sklearn() {
 fn beta_matches_statsmodels_logit() {
     for c in load(include_str!("fixtures/methods/beta.json")) {
         let name = c["name"].as_str().unwrap();
-        let s = f64s(&c["scores"]);
-        let y = labels(&c["labels"]);
+        let (s, y) = sample(&c);
         let kind = match c["score_kind"].as_str() {
             Some("margin") => ScoreKind::Margin,
             _ => ScoreKind::Probability,
@@ -223,8 +235,7 @@ fn temperature_recovers_one_on_calibrated_scores() {
 fn binning_matches_numpy() {
     for c in load(include_str!("fixtures/methods/binning.json")) {
         let name = c["name"].as_str().unwrap();
-        let s = f64s(&c["scores"]);
-        let y = labels(&c["labels"]);
+        let (s, y) = sample(&c);
         let spec_src = format!(
             "{{ kind = \"binning\", bins = {}, pseudo_count = {:?} }}",
             c["bins"].as_u64().unwrap(),
@@ -248,8 +259,7 @@ fn binning_matches_numpy() {
 fn temperature_matches_scipy_minimize_scalar() {
     for c in load(include_str!("fixtures/methods/temperature.json")) {
         let name = c["name"].as_str().unwrap();
-        let s = f64s(&c["scores"]);
-        let y = labels(&c["labels"]);
+        let (s, y) = sample(&c);
         let kind = match c["score_kind"].as_str().unwrap() {
             "margin" => ScoreKind::Margin,
             _ => ScoreKind::Probability,
@@ -278,8 +288,7 @@ fn temperature_matches_scipy_minimize_scalar() {
 fn centered_isotonic_matches_sklearn_construction() {
     for c in load(include_str!("fixtures/methods/centered.json")) {
         let name = c["name"].as_str().unwrap();
-        let s = f64s(&c["scores"]);
-        let y = labels(&c["labels"]);
+        let (s, y) = sample(&c);
         let f = fit(
             "{ kind = \"centered-isotonic\" }",
             ScoreKind::Probability,
@@ -349,8 +358,7 @@ fn beta_separation_rule_matches_linear_programme() {
     let cases = load(include_str!("fixtures/methods/separation.json"));
     let (mut full_sep, mut one_sep) = (0, 0);
     for (i, c) in cases.iter().enumerate() {
-        let s = f64s(&c["scores"]);
-        let y = labels(&c["labels"]);
+        let (s, y) = sample(c);
         let classes: Vec<i8> = plumbline::calibrate::isotonic::merge_ties(&s, &y)
             .iter()
             .map(|&(_, w, k)| {

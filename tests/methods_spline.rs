@@ -6,17 +6,12 @@ use plumbline::calibrate::{sigmoid, Calibrator, ScoreKind};
 use plumbline::split::rng;
 use rand_chacha::rand_core::Rng;
 
+mod common;
+use common::{floats, pairs};
+
 fn fixture() -> serde_json::Value {
     let text = include_str!("fixtures/methods/spline_reference.json");
     serde_json::from_str(text).expect("fixture parses")
-}
-
-fn floats(v: &serde_json::Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
 }
 
 /// Coefficients, edf and predictions (inside and beyond the data range) agree
@@ -33,6 +28,7 @@ fn fixed_lambda_matches_scipy_reference() {
         .iter()
         .map(|v| v.as_i64().unwrap() == 1)
         .collect();
+    assert_eq!(x.len(), y.len(), "fixture x and y lengths");
     let fits = doc["fits"].as_array().unwrap();
     assert_eq!(fits.len(), 3);
     for f in fits {
@@ -41,8 +37,7 @@ fn fixed_lambda_matches_scipy_reference() {
         let ours = fit_spline(&x, &y, intervals, Some(lambda), Criterion::Aic).unwrap();
         assert!(!ours.separable);
         let want = floats(&f["coefficients"]);
-        assert_eq!(ours.chosen.beta.len(), want.len());
-        for (a, b) in ours.chosen.beta.iter().zip(&want) {
+        for (a, b) in pairs(&ours.chosen.beta, &want, "coefficients") {
             assert!(
                 (a - b).abs() < 1e-6,
                 "lambda {lambda}: coefficient {a} vs {b}"
@@ -62,7 +57,7 @@ fn fixed_lambda_matches_scipy_reference() {
         );
         let grid = floats(&f["grid"]);
         let pred = floats(&f["predictions"]);
-        for (g, p) in grid.iter().zip(&pred) {
+        for (g, p) in pairs(&grid, &pred, "grid and predictions") {
             let q = sigmoid(ours.basis.eval(&ours.chosen.beta, *g));
             assert!((q - p).abs() < 1e-7, "lambda {lambda}, x = {g}: {q} vs {p}");
         }

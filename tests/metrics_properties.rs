@@ -3,6 +3,8 @@
 use plumbline::metrics::{decompose, smooth_ece, MetricId, MetricSettings};
 use proptest::prelude::*;
 
+mod common;
+
 fn sample() -> impl Strategy<Value = (Vec<f64>, Vec<bool>)> {
     (2usize..150).prop_flat_map(|n| {
         (
@@ -35,6 +37,10 @@ fn sigmoid(z: f64) -> f64 {
 }
 
 proptest! {
+    // Floor: 256 cases (proptest's default count); `PROPTEST_CASES` may raise
+    // it, a lower value is refused.
+    #![proptest_config(ProptestConfig::with_cases(common::proptest_cases(256)))]
+
     /// Murphy (1973): grouping by distinct forecast, REL − RES + UNC = Brier.
     #[test]
     fn murphy_terms_sum_to_brier((p, y) in tied_sample()) {
@@ -183,6 +189,10 @@ fn murphy_gap_with_spread_bins() {
 }
 
 proptest! {
+    // Floor: 256 cases (proptest's default count); `PROPTEST_CASES` may raise
+    // it, a lower value is refused.
+    #![proptest_config(ProptestConfig::with_cases(common::proptest_cases(256)))]
+
     /// Robustness (common practice): any input, including NaN, infinities and
     /// values outside [0, 1], and unvalidated settings, yields a number or NaN,
     /// never a panic or a hang.
@@ -210,4 +220,39 @@ proptest! {
             let _ = id.compute(&p, &y, &s);
         }
     }
+}
+
+/// `PROPTEST_CASES` below the floor (or not a number) makes a property test
+/// fail with the message saying what to set, and a value above it runs: one
+/// property, run in a child process of this very test binary.
+#[test]
+fn proptest_cases_below_the_floor_are_refused() {
+    let me = std::env::current_exe().unwrap();
+    let run = |value: &str| {
+        let out = std::process::Command::new(&me)
+            .args(["--exact", "murphy_terms_sum_to_brier"])
+            .env("PROPTEST_CASES", value)
+            .output()
+            .unwrap();
+        let text = format!(
+            "{}{}",
+            String::from_utf8_lossy(&out.stdout),
+            String::from_utf8_lossy(&out.stderr)
+        );
+        (out.status.success(), text)
+    };
+    let (ok, text) = run("5");
+    assert!(!ok, "5 cases accepted:\n{text}");
+    assert!(
+        text.contains("PROPTEST_CASES=5 is below this file's floor of 256 cases"),
+        "{text}"
+    );
+    let (ok, text) = run("many");
+    assert!(!ok, "\"many\" accepted:\n{text}");
+    assert!(
+        text.contains("PROPTEST_CASES=\"many\" is not a whole number of cases"),
+        "{text}"
+    );
+    let (ok, text) = run("300");
+    assert!(ok && text.contains("1 passed"), "300 cases:\n{text}");
 }

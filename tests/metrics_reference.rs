@@ -31,6 +31,18 @@ fn load() -> Fixture {
     let text = std::fs::read_to_string(path).expect("fixture present");
     let f: Fixture = serde_json::from_str(&text).expect("fixture parses");
     assert!(f.versions.get("statsmodels").is_some());
+    // A metric pairs p with y row by row; unequal lengths would score a
+    // silently shortened test set.
+    for c in &f.cases {
+        assert_eq!(
+            c.p.len(),
+            c.y.len(),
+            "{}: {} predictions against {} labels",
+            c.name,
+            c.p.len(),
+            c.y.len()
+        );
+    }
     f
 }
 

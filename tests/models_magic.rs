@@ -6,7 +6,8 @@
 //! AUC floors catch an inverted probability orientation (an inverted score
 //! would give AUC ≈ 1 − floor) and a broken fit. The floors sit below the
 //! figures we measured on this split (see docs/performance.md, "Base models";
-//! the margins are common practice). The file is owned by the open-data part
+//! the margins are common practice); the measured figures themselves are
+//! pinned as seeded regression values. The file is owned by the open-data part
 //! of the repository.
 
 use std::io::Read;
@@ -103,19 +104,35 @@ fn every_model_scores_p_of_the_positive_class() {
     // 10,000 training rows, 9,020 test rows.
     let (train, test) = partition(d.rows(), 9_020, 2024);
     let y: Vec<bool> = test.iter().map(|&r| d.labels[r]).collect();
-    // Floors (common practice margins below our measured AUCs on this split).
-    for (spec, floor) in [
-        (ModelSpec::logistic(), 0.80),
-        (ModelSpec::naive_bayes(), 0.70),
-        (ModelSpec::forest(), 0.90),
-        (ModelSpec::boosting(), 0.90),
+    // Floors: common-practice margins below the measured AUCs; they catch an
+    // inverted orientation or a broken fit whatever the exact value.
+    //
+    // Pinned: seeded regression values, not outside facts. The split (seed
+    // 2024) and the fits (seed 7) are deterministic, so the AUC is what this
+    // code computed when the pin was set (also in docs/performance.md, "Base
+    // models"), to a relative 1e-9; a change that moves a base model's scores
+    // shows here. The independent checks are elsewhere: logistic regression
+    // and naive Bayes against scikit-learn and statsmodels in
+    // tests/models_reference.rs, the AUC function against the hand example
+    // above. Forest and boosting (smartcore and forust-ml fits) have no
+    // outside reference beyond their floors.
+    for (spec, floor, pinned) in [
+        (ModelSpec::logistic(), 0.80, 0.8405137779891877),
+        (ModelSpec::naive_bayes(), 0.70, 0.7546519422606223),
+        (ModelSpec::forest(), 0.90, 0.9350289288241719),
+        (ModelSpec::boosting(), 0.90, 0.9380520869910721),
     ] {
         let m = spec.fit(&d, &train, 7).unwrap();
         let p = m.score(&d, &test).unwrap();
         assert!(p.iter().all(|v| (0.0..=1.0).contains(v)), "{}", spec.kind());
         let a = auc(&p, &y);
-        eprintln!("{}: test AUC {a:.4}", spec.kind());
+        eprintln!("{}: test AUC {a:?}", spec.kind());
         assert!(a > floor, "{}: AUC {a:.4} ≤ {floor}", spec.kind());
+        assert!(
+            (a - pinned).abs() <= 1e-9 * pinned,
+            "{}: AUC {a:?}, pinned seeded value {pinned:?}",
+            spec.kind()
+        );
         // Probability orientation also in the mean: positives score higher.
         let mean = |want: bool| {
             let v: Vec<f64> = p

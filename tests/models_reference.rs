@@ -7,6 +7,9 @@
 use plumbline::data::{Dataset, FeatureKind};
 use plumbline::models::{logistic, naive_bayes, Model, ModelSpec};
 
+mod common;
+use common::{floats, pairs};
+
 const DIR: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/fixtures/models");
 
 fn synthetic() -> (Dataset, Vec<usize>, Vec<usize>) {
@@ -46,14 +49,6 @@ fn reference() -> serde_json::Value {
     serde_json::from_str(&text).unwrap()
 }
 
-fn floats(v: &serde_json::Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
-}
-
 #[test]
 fn logistic_matches_scikit_learn_and_statsmodels() {
     let (d, train, test) = synthetic();
@@ -78,21 +73,19 @@ fn logistic_matches_scikit_learn_and_statsmodels() {
             "{source}: intercept {} vs {b}",
             m.intercept
         );
-        for (j, (got, want)) in m.coef.iter().zip(&want).enumerate() {
+        for (j, (got, want)) in pairs(&m.coef, &want, source).enumerate() {
             assert!(
                 (got - want).abs() < tol,
                 "{source}: coef {j}: {got} vs {want}"
             );
         }
-        let dmax = m
-            .coef
-            .iter()
-            .zip(&want)
+        let dmax = pairs(&m.coef, &want, source)
             .map(|(a, b)| (a - b).abs())
             .fold((m.intercept - b).abs(), f64::max);
         eprintln!("{source}: largest parameter difference {dmax:.2e}");
         let p = m.score(&d, &test).unwrap();
-        for (got, want) in p.iter().zip(floats(&case["test_proba"])) {
+        let proba = floats(&case["test_proba"]);
+        for (got, want) in pairs(&p, &proba, &format!("{source}: test_proba")) {
             assert!((got - want).abs() < 1e-7, "{source}: P {got} vs {want}");
         }
     }
@@ -117,11 +110,13 @@ fn naive_bayes_matches_scikit_learn_gaussian_nb() {
         m.epsilon
     );
     let prior = floats(&r["class_prior"]);
+    assert_eq!(prior.len(), 2, "class_prior");
     for c in 0..2 {
         assert!((m.log_prior[c].exp() - prior[c]).abs() < 1e-14);
         let theta = floats(&r["theta"][c]);
         let var = floats(&r["var"][c]);
-        assert_eq!(theta.len(), m.mean[c].len());
+        assert_eq!(theta.len(), m.mean[c].len(), "theta[{c}]");
+        assert_eq!(var.len(), m.var[c].len(), "var[{c}]");
         for j in 0..theta.len() {
             assert!((m.mean[c][j] - theta[j]).abs() < 1e-12, "theta[{c}][{j}]");
             assert!(
@@ -131,7 +126,8 @@ fn naive_bayes_matches_scikit_learn_gaussian_nb() {
         }
     }
     let p = m.score(&d, &test).unwrap();
-    for (got, want) in p.iter().zip(floats(&r["test_proba"])) {
+    let proba = floats(&r["test_proba"]);
+    for (got, want) in pairs(&p, &proba, "naive Bayes test_proba") {
         assert!((got - want).abs() < 1e-10, "P {got} vs {want}");
     }
 }

@@ -38,11 +38,53 @@ fn reported_fixture() -> (TempDir, PathBuf, String) {
     (tmp, dir, String::from_utf8(out).unwrap())
 }
 
+/// Whether the snapshots are to be rewritten: only `PLUMBLINE_UPDATE_SNAPSHOTS=1`
+/// says so. Unset means compare; any other value (`0`, `true`, empty, ...) is
+/// refused rather than guessed at, so a typo can neither rewrite the snapshots
+/// nor silently leave them unchecked.
+fn update_snapshots() -> bool {
+    match std::env::var_os("PLUMBLINE_UPDATE_SNAPSHOTS") {
+        None => false,
+        Some(v) if v == "1" => true,
+        Some(v) => panic!(
+            "PLUMBLINE_UPDATE_SNAPSHOTS={v:?} is not understood: set it to 1 to rewrite the snapshots, or unset it to compare with them"
+        ),
+    }
+}
+
+/// Any value of the update switch but `1` is refused: the snapshot test, run
+/// in a child process of this very test binary with `0`, `true` and the empty
+/// string, fails with the message that says what to set.
+#[test]
+fn snapshot_update_switch_takes_only_1() {
+    let me = std::env::current_exe().unwrap();
+    for value in ["0", "true", ""] {
+        let out = std::process::Command::new(&me)
+            .args(["--exact", "every_table_format_matches_its_snapshot"])
+            .env("PLUMBLINE_UPDATE_SNAPSHOTS", value)
+            .output()
+            .unwrap();
+        let text = format!(
+            "{}{}",
+            String::from_utf8_lossy(&out.stdout),
+            String::from_utf8_lossy(&out.stderr)
+        );
+        assert!(!out.status.success(), "value {value:?} accepted:\n{text}");
+        assert!(
+            text.contains(&format!(
+                "PLUMBLINE_UPDATE_SNAPSHOTS={value:?} is not understood: set it to 1"
+            )),
+            "value {value:?}:\n{text}"
+        );
+        assert!(text.contains("1 failed"), "value {value:?}:\n{text}");
+    }
+}
+
 /// Compare with a committed snapshot in `tests/snapshots/report/`; with
 /// `PLUMBLINE_UPDATE_SNAPSHOTS=1` the snapshot is rewritten instead.
 fn check_snapshot(name: &str, actual: &[u8]) {
     let path = root().join("tests/snapshots/report").join(name);
-    if std::env::var_os("PLUMBLINE_UPDATE_SNAPSHOTS").is_some() {
+    if update_snapshots() {
         fs::create_dir_all(path.parent().unwrap()).unwrap();
         fs::write(&path, actual).unwrap();
         return;
@@ -72,6 +114,8 @@ fn check_snapshot(name: &str, actual: &[u8]) {
 
 #[test]
 fn every_table_format_matches_its_snapshot() {
+    // Refuse an unknown switch value before any work.
+    update_snapshots();
     let (_tmp, dir, terminal) = reported_fixture();
     for f in [
         "summary.md",
@@ -357,6 +401,13 @@ fn demo(stem: &str, rows: usize, seed: u64) -> (Vec<f64>, Vec<bool>) {
 /// seeds; the test prints both shares — 0.971 for the diagonal when it was
 /// written: the band is centred near the diagonal, so it holds it more often
 /// than the nominal level).
+///
+/// Coverage alone would pass a band that is simply too wide, so the mean band
+/// width is bounded above too. Measured on these seeds: mean 0.0873 (largest
+/// 0.1818) at the 90% level, and 0.1028 with the same draws at 95% — the ratio
+/// 1.18 of the normal quantiles 1.960/1.645 = 1.19, as for a binomial
+/// proportion's interval. The bound 0.095 sits between them: a band of the
+/// next common level, or quantiles taken further out, fails.
 #[test]
 fn the_band_holds_the_diagonal_on_calibrated_scores() {
     use plumbline::metrics::reliability::{curve, BandSettings};
@@ -365,6 +416,7 @@ fn the_band_holds_the_diagonal_on_calibrated_scores() {
         level: 0.9,
     };
     let (mut inside, mut curve_inside, mut total) = (0, 0, 0);
+    let (mut width_sum, mut width_max) = (0.0f64, 0.0f64);
     for seed in 1..=5u64 {
         let (p, y) = demo("eta-calibrated", 4000, seed);
         let c = curve("calibrated", &p, &y, band, seed + 100).unwrap();
@@ -375,10 +427,15 @@ fn the_band_holds_the_diagonal_on_calibrated_scores() {
             .count();
         curve_inside += c.points.len() - c.outside;
         total += c.points.len();
+        for q in &c.points {
+            width_sum += q.high - q.low;
+            width_max = width_max.max(q.high - q.low);
+        }
     }
     let share = inside as f64 / total as f64;
     let curve_share = curve_inside as f64 / total as f64;
-    eprintln!("of {total} curve points: diagonal inside the 90% band at {share:.3}, observed curve inside at {curve_share:.3}");
+    let width_mean = width_sum / total as f64;
+    eprintln!("of {total} curve points: diagonal inside the 90% band at {share:.3}, observed curve inside at {curve_share:.3}; band width mean {width_mean:.4}, largest {width_max:.4}");
     assert!(
         share >= 0.75,
         "diagonal inside the band at {share:.3} of {total} points"
@@ -386,6 +443,10 @@ fn the_band_holds_the_diagonal_on_calibrated_scores() {
     assert!(
         curve_share >= 0.75,
         "observed curve inside the band at {curve_share:.3} of {total} points"
+    );
+    assert!(
+        width_mean <= 0.095,
+        "mean band width {width_mean:.4} over {total} points (measured 0.0873 at 90%)"
     );
 }
 

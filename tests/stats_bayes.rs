@@ -13,7 +13,7 @@
 
 mod common;
 
-use common::floats;
+use common::{floats, pairs};
 use plumbline::stats::bayes::{signed_rank, DEFAULT_PRIOR};
 use serde_json::Value;
 
@@ -52,7 +52,7 @@ fn signed_rank_matches_baycomp_within_monte_carlo_error() {
         }
         let mean = floats(&case["mean_theta"]);
         let tol = 1.5 * (1.0 / n_py + 1.0 / n_rs).sqrt();
-        for (k, (ours, theirs)) in r.mean_theta.iter().zip(&mean).enumerate() {
+        for (k, (ours, theirs)) in pairs(&r.mean_theta, &mean, name).enumerate() {
             assert!(
                 (ours - theirs).abs() <= tol,
                 "{name} mean θ[{k}]: ours {ours}, baycomp {theirs}, tolerance {tol}"

@@ -4,7 +4,7 @@
 
 mod common;
 
-use common::floats;
+use common::{floats, pairs};
 use plumbline::stats::across::{friedman, holm, nemenyi_q, wilcoxon, PMethod};
 use plumbline::stats::paired::{interval, IntervalKind, PairedInput};
 use plumbline::stats::t_quantile;
@@ -102,7 +102,7 @@ fn holm_matches_statsmodels() {
     let p = floats(&f["holm"]["p"]);
     let want = floats(&f["holm"]["adjusted"]);
     // statsmodels.stats.multitest.multipletests(p, method = "holm").
-    for (a, b) in holm(&p).iter().zip(&want) {
+    for (a, b) in pairs(&holm(&p), &want, "holm adjusted") {
         close(*a, *b, 1e-12, "holm");
     }
 }

@@ -1,6 +1,6 @@
 //! Helpers shared by the integration tests: the binary, seeded draws, small
-//! suites and score files, runs bounded by a hang limit, and the reference
-//! fixtures.
+//! suites and score files, runs bounded by a hang limit, the reference
+//! fixtures and the case count of the property tests.
 #![allow(dead_code)]
 
 use std::fs;
@@ -245,11 +245,56 @@ pub fn json_fixture(rel: &str) -> serde_json::Value {
     serde_json::from_str(&text).unwrap_or_else(|e| panic!("fixture {}: {e}", path.display()))
 }
 
-/// A JSON array of numbers.
+/// A JSON array of numbers (a fixture array); panics naming what is not one.
 pub fn floats(v: &serde_json::Value) -> Vec<f64> {
     v.as_array()
-        .unwrap()
+        .unwrap_or_else(|| panic!("fixture: expected an array of numbers, found {v}"))
         .iter()
-        .map(|x| x.as_f64().unwrap())
+        .map(|x| {
+            x.as_f64()
+                .unwrap_or_else(|| panic!("fixture: {x} is not a number"))
+        })
         .collect()
+}
+
+/// The element pairs of two equally long sequences: a fixture array and what
+/// it is checked against. `zip` alone stops at the shorter one, so a truncated
+/// or over-long fixture array would pass unnoticed; this fails first, naming
+/// `what` and both lengths.
+pub fn pairs<'a, A, B>(
+    ours: &'a [A],
+    fixture: &'a [B],
+    what: &str,
+) -> std::iter::Zip<std::slice::Iter<'a, A>, std::slice::Iter<'a, B>> {
+    assert_eq!(
+        ours.len(),
+        fixture.len(),
+        "{what}: {} values against {} in the fixture",
+        ours.len(),
+        fixture.len()
+    );
+    ours.iter().zip(fixture)
+}
+
+/// Cases for a file's property tests: `floor` (stated beside each
+/// `proptest_config`) unless `PROPTEST_CASES` asks for more. A lower value, or
+/// one that is not a whole number, is refused with a message saying what to
+/// set, so the variable can raise the number of cases but never silently
+/// shrink the tests to a handful.
+pub fn proptest_cases(floor: u32) -> u32 {
+    match std::env::var("PROPTEST_CASES") {
+        Err(std::env::VarError::NotPresent) => floor,
+        Err(std::env::VarError::NotUnicode(v)) => panic!(
+            "PROPTEST_CASES={v:?} is not a whole number of cases: unset it or set at least {floor}"
+        ),
+        Ok(v) => match v.trim().parse::<u32>() {
+            Ok(n) if n >= floor => n,
+            Ok(n) => panic!(
+                "PROPTEST_CASES={n} is below this file's floor of {floor} cases: unset it or set at least {floor}"
+            ),
+            Err(_) => panic!(
+                "PROPTEST_CASES={v:?} is not a whole number of cases: unset it or set at least {floor}"
+            ),
+        },
+    }
 }
