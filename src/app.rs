@@ -477,6 +477,8 @@ pub struct ReportArgs {
     pub interval: Option<String>,
     /// Relative equivalence margin (share of the reference's mean).
     pub margin: Option<f64>,
+    /// Fallback share above which a method is not recommended at a size.
+    pub max_fallback: Option<f64>,
     /// Print this task's table instead of the summary.
     pub task: Option<String>,
 }
@@ -570,6 +572,13 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
             suite::MAX_MARGIN
         );
     }
+    let max_fallback = args
+        .max_fallback
+        .or(from_manifest.as_ref().map(|s| s.max_fallback))
+        .unwrap_or(analysis::DEFAULT_MAX_FALLBACK);
+    if !(max_fallback.is_finite() && (0.0..=1.0).contains(&max_fallback)) {
+        bail!("--max-fallback {max_fallback}: expected a share of draws between 0 and 1, e.g. 0.1 for 10%");
+    }
     let settings = AnalysisSettings {
         reference,
         primary_metric: primary,
@@ -605,10 +614,7 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
                 .any(|r| r.method == "identity")
                 .then(|| "identity".to_string()),
         },
-        max_fallback: from_manifest
-            .as_ref()
-            .map(|s| s.max_fallback)
-            .unwrap_or(analysis::DEFAULT_MAX_FALLBACK),
+        max_fallback,
     };
     let a = analysis::analyse(&table, &settings);
     let suite_info = manifest.as_ref().and_then(|m| m.get("suite"));

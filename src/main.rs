@@ -116,6 +116,11 @@ nothing.")]
         /// [default: as recorded, else 0.01].
         #[arg(long)]
         margin: Option<f64>,
+        /// Share of a method's draws at a size that may fall back to the base
+        /// rate before it is not recommended there, e.g. 0.1
+        /// [default: as recorded, else 0.1].
+        #[arg(long, value_name = "SHARE")]
+        max_fallback: Option<f64>,
     },
     /// Fit one method on a score file and save it as a map file.
     Fit(plumbline::cli::fit::FitArgs),
@@ -204,6 +209,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
             confidence,
             interval,
             margin,
+            max_fallback,
         } => {
             let t = app::report_dir(&app::ReportArgs {
                 dir,
@@ -212,6 +218,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 confidence,
                 interval,
                 margin,
+                max_fallback,
                 task,
             })?;
             println!("{t}");

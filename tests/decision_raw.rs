@@ -270,6 +270,23 @@ fn a_default_that_falls_back_often_is_not_recommended_there() {
         assert!(text.contains("**Not recommended at n = 10 for fallbacks:** `beta`"));
         assert!(text.contains("`platt` (fallbacks)"));
     }
+    // `report --max-fallback` overrides the suite's limit: at 100% nothing is
+    // passed over; a share outside [0, 1] is refused and writes nothing.
+    let report = |share: &str| {
+        std::process::Command::new(env!("CARGO_BIN_EXE_plumbline"))
+            .args(["report", out.to_str().unwrap(), "--max-fallback", share])
+            .output()
+            .unwrap()
+    };
+    let before = summary(&out);
+    let bad = report("1.5");
+    assert!(!bad.status.success());
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("--max-fallback 1.5"));
+    assert_eq!(summary(&out), before);
+    assert!(report("1").status.success());
+    let text = summary(&out);
+    assert!(!text.contains("for fallbacks:**"), "{text}");
+    assert!(text.contains("A method above 100% (`[decision] max_fallback`)"));
 }
 
 /// Two base models' scores of one dataset (a team's own data): the test

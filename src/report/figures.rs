@@ -617,7 +617,7 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
     let (w, ml, mr) = (900.0, 230.0, 230.0);
     let aw = w - ml - mr;
     let strip = 58.0 + 15.0 * half as f64;
-    let mt = 50.0;
+    let mt = 66.0;
     let h = mt + strip * rows.len() as f64 + 10.0;
     let mut s = open_svg(
         w,
@@ -628,7 +628,8 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
         "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">Average rank of mean {} across tasks (1 = best)</text>\n",
         esc(metric)
     ));
-    s.push_str("<text x=\"10\" y=\"34\" fill=\"#444\">thick bars join methods whose average ranks differ by less than the Nemenyi critical difference (CD, α = 0.05): no reliable difference between them</text>\n");
+    s.push_str("<text x=\"10\" y=\"34\" fill=\"#444\">thick bars join methods whose average ranks differ by less than the Nemenyi critical difference (CD, α = 0.05)</text>\n");
+    s.push_str("<text x=\"10\" y=\"50\" fill=\"#444\">tasks counted as independent (tasks that share a dataset are not): a picture of the field; the decision rests on the dataset-level test</text>\n");
     for (ri, (r, x)) in rows.iter().enumerate() {
         let y0 = mt + ri as f64 * strip;
         let mut order: Vec<usize> = (0..k).collect();
