@@ -76,8 +76,8 @@ pub fn versus_blocks(d: &Decision) -> Vec<Block> {
 }
 
 /// The method recommended at each size against the raw scores, per base
-/// model.
-pub fn raw_blocks(d: &Decision) -> Vec<Block> {
+/// model; `brief`: the answers alone (the terminal).
+pub fn raw_blocks(d: &Decision, brief: bool) -> Vec<Block> {
     let Some(raw) = d.raw.as_ref() else {
         return Vec::new();
     };
@@ -130,6 +130,7 @@ pub fn raw_blocks(d: &Decision) -> Vec<Block> {
                     let word = if g.keep_raw { "raw" } else { "calibrate" };
                     match &g.evidence {
                         None => word.into(),
+                        Some(_) if brief => word.into(),
                         Some(e) => {
                             scaled |= e.test.scaled;
                             format!("{word}: {}", posterior_cell(e))
@@ -139,6 +140,10 @@ pub fn raw_blocks(d: &Decision) -> Vec<Block> {
             });
         }
         t.rows.push(row);
+    }
+    if brief {
+        t.notes.push(format!("Each cell: \"calibrate\" when the method tested is reliably better than the raw scores across that base model's datasets (Bayesian signed-rank test, P ≥ {DECISIVE}), else \"raw\"; the posterior probabilities are in summary.md."));
+        return vec![Block::Table(t)];
     }
     t.notes.push(format!(
         "Each cell: the answer for that base model at that size — \"calibrate\" when the method recommended there (row \"method tested\") is reliably better than the raw scores across the model's datasets, else \"raw\" — and the test behind it. {}",

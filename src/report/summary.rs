@@ -193,37 +193,47 @@ fn raw_words(d: &Decision, raw: &str) -> String {
         .filter(|v| v.raw.as_ref().is_some_and(|r| r.keep_raw))
         .map(|v| v.size.to_string())
         .collect();
-    let partly: Vec<String> = d
-        .per_size
-        .iter()
-        .filter_map(|v| {
-            let r = v.raw.as_ref()?;
-            let list = r.raw_for();
-            (!list.is_empty()).then(|| {
-                format!(
-                    "n = {}: {}",
-                    v.size,
-                    list.iter()
-                        .map(|m| model_name(m))
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                )
-            })
-        })
+    // Runs of consecutive sizes that keep the raw scores for the same base
+    // models while others calibrate.
+    let mut runs: Vec<(usize, usize, String)> = Vec::new();
+    for v in &d.per_size {
+        let list = v.raw.as_ref().map(|r| r.raw_for()).unwrap_or_default();
+        let w = list
+            .iter()
+            .map(|m| model_name(m))
+            .collect::<Vec<_>>()
+            .join(", ");
+        match runs.last_mut() {
+            Some(r) if r.2 == w && !w.is_empty() => r.1 = v.size,
+            _ => runs.push((v.size, v.size, w)),
+        }
+    }
+    let partly: Vec<String> = runs
+        .into_iter()
+        .filter(|r| !r.2.is_empty())
+        .map(|(lo, hi, w)| format!("{}: {w}", size_range(lo, hi)))
         .collect();
-    let mut verdict = if keep.is_empty() {
-        "at no size for every base model".to_string()
+    let every = if d.models > 1 {
+        " for every base model"
     } else {
-        format!(
-            "**keep the raw scores at n = {} for every base model**",
-            keep.join(", ")
-        )
+        ""
+    };
+    let mut verdict = if keep.is_empty() {
+        String::new()
+    } else {
+        format!("**keep the raw scores at n = {}{every}**", keep.join(", "))
     };
     if !partly.is_empty() {
+        if !verdict.is_empty() {
+            verdict.push_str("; ");
+        }
         verdict.push_str(&format!(
-            "; keep them for some base models only — {}",
+            "**calibrate some base models and keep the raw scores of others** — raw scores kept for {}",
             partly.join("; ")
         ));
+    }
+    if verdict.is_empty() {
+        verdict = "calibrate at every size".to_string();
     }
     let counts: Vec<String> = d
         .per_size
@@ -300,7 +310,7 @@ pub fn posterior_cell(e: &Evidence) -> String {
 }
 
 /// The decision on one metric as blocks.
-fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
+fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
     let mut out = Vec::new();
     let runner = d
         .runner_up
@@ -497,9 +507,35 @@ fn decision_blocks(d: &Decision, primary: bool) -> Vec<Block> {
         });
         t.rows.push(row);
     }
+    if detail == Detail::Brief {
+        // The terminal keeps the columns a decision is read from; the counts
+        // and ranks are in summary.md.
+        let keep: Vec<usize> = t
+            .header
+            .iter()
+            .enumerate()
+            .filter(|(_, h)| {
+                h.as_str() == "n"
+                    || h.starts_with("tasks (")
+                    || h.starts_with("vs runner-up")
+                    || h.as_str() == "default fell back"
+                    || h.as_str() == "recommended"
+            })
+            .map(|(i, _)| i)
+            .collect();
+        let pick = |row: &[String]| keep.iter().map(|&i| row[i].clone()).collect::<Vec<_>>();
+        t.header = pick(&t.header);
+        t.rows = t.rows.iter().map(|r| pick(r)).collect();
+        t.notes = vec![format!(
+            "Vs runner-up P(✓/=/✗): the posterior probability that `{}` is better than, practically equivalent to, or worse than `{ru}` (Bayesian signed-rank test, dataset as unit; {DECISIVE} decides). Ranks, per-task counts and the test's full tables are in summary.md.",
+            d.default
+        )];
+    }
     out.push(Block::Table(t));
-    out.extend(super::evidence::versus_blocks(d));
-    out.extend(super::evidence::raw_blocks(d));
+    if detail == Detail::Full {
+        out.extend(super::evidence::versus_blocks(d));
+    }
+    out.extend(super::evidence::raw_blocks(d, detail == Detail::Brief));
     out
 }
 
@@ -822,7 +858,7 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
         b.push(Block::Para("Too few tasks share a calibration size for a comparison across tasks (it needs at least two tasks with a value for every method).".into()));
     }
     for (i, d) in a.decisions.iter().enumerate() {
-        b.extend(decision_blocks(d, i == 0));
+        b.extend(decision_blocks(d, i == 0, detail));
     }
     b.extend(evidence_blocks(a, ctx));
     b.push(Block::Caution(CAUTION.into()));
