@@ -9,6 +9,12 @@ One table per population for INTERVAL (default: the default interval
 `decomposed-skew`): a row per (method − reference, metric), a column per
 calibration size, the coverage of the nominal interval in percent; cells
 outside 93–97% are set in bold. Then a summary line per interval kind.
+Last, the "Rare classes" table: per population and size, the expected rows
+of the rarer class in a calibration sample (n × min(π, 1 − π), π the
+population's base rate: the values stated with each population in
+benches/coverage/study.rs; two-step's 0.482 is the integral of its map over
+its Kumaraswamy(2, 3) scores), and the coverage of the cells there. It is the
+evidence for the report's 10-row flag (`RARE_CLASS_ROWS`).
 Standard library only.
 """
 import csv
@@ -16,6 +22,15 @@ import sys
 from collections import OrderedDict
 
 DEFAULT = "decomposed-skew"
+
+# Base rates of the study's populations (see the docstring).
+BASE_RATE = {
+    "calibrated": 0.457,
+    "over-confident": 0.51,
+    "rare-under-confident": 0.030,
+    "two-step": 0.482,
+}
+RARE_ROWS = 10
 
 
 def main() -> None:
@@ -77,6 +92,33 @@ def main() -> None:
         above = sum(c > 0.97 for c in cov)
         name = f"**`{k}`**" if k == kind else f"`{k}`"
         print(f"| {name} | {len(cov)} | {below} | {above} | {100 * min(cov):.1f}% | {100 * max(cov):.1f}% |")
+
+    print()
+    print(f"Rare classes: interval `{kind}` by expected rows of the rarer class in the "
+          f"calibration sample (flagged below {RARE_ROWS}):\n")
+    print("| population | base rate | n | rarer-class rows | cells | below 93% | median | lowest |")
+    print("|---|---|---|---|---|---|---|---|")
+    groups = {True: [], False: []}
+    for pop in pops:
+        if pop not in BASE_RATE:
+            continue
+        pi = BASE_RATE[pop]
+        for n in sizes:
+            sel = [int(r["covered"]) / int(r["replicates"]) for r in rows
+                   if r["population"] == pop and r["interval"] == kind and int(r["size"]) == n]
+            if not sel:
+                continue
+            m = n * min(pi, 1 - pi)
+            groups[m < RARE_ROWS].extend(sel)
+            sel.sort()
+            med = (sel[(len(sel) - 1) // 2] + sel[len(sel) // 2]) / 2
+            print(f"| `{pop}` | {pi:.3f} | {n} | {m:.1f} | {len(sel)} | {sum(c < 0.93 for c in sel)} | "
+                  f"{100 * med:.1f}% | {100 * sel[0]:.1f}% |")
+    print()
+    for flagged, cov in groups.items():
+        if cov:
+            print(f"- {'fewer' if flagged else 'at least'} {RARE_ROWS} rows: {len(cov)} cells, "
+                  f"{sum(c < 0.93 for c in cov)} below 93% ({100 * sum(c < 0.93 for c in cov) / len(cov):.1f}%)")
 
 
 if __name__ == "__main__":

@@ -348,3 +348,55 @@ fn a_method_reliably_better_than_the_default_is_recommended_at_its_size() {
     let text = summary(&out);
     assert!(text.contains("`spline` (beats `platt`)"), "{text}");
 }
+
+/// Scores with a 4% base rate: at n = 50 a calibration sample holds about 2
+/// positives, at n = 1000 about 40. The report flags the intervals of the
+/// small size as approximate (fewer than 10 rows of the rarer class) in
+/// `paired.csv`, beside each interval (†) and in its evidence paragraph.
+#[test]
+fn rare_class_intervals_are_flagged_approximate() {
+    let rare = |seed: u64| {
+        let mut s = String::from("score,label\n");
+        let mut x = seed;
+        for _ in 0..4000 {
+            let p = 0.08 * uniform(&mut x);
+            let y = uniform(&mut x) < p;
+            s.push_str(&format!("{p:.6},{}\n", y as u8));
+        }
+        s
+    };
+    let files: Vec<String> = (0..2).map(|t| rare(7_401 + t)).collect();
+    let methods = [("platt", "platt"), ("beta", "beta")];
+    let (a, out, _dir) = run(&files, &suite(&methods, "50, 1000", 2));
+    let (mut small, mut large) = (0, 0);
+    for p in &a.paired {
+        // Positives per sample average n·4%: about 2 at n = 50, 40 at 1000.
+        if p.size == 50 {
+            assert!(p.minority_rows < 5.0, "{p:?}");
+            assert!(p.rare_class);
+            small += 1;
+        } else {
+            assert!(p.minority_rows > 25.0, "{p:?}");
+            assert!(!p.rare_class);
+            large += 1;
+        }
+    }
+    assert!(small > 0 && large > 0);
+    let csv = fs::read_to_string(out.join("paired.csv")).unwrap();
+    let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+    assert_eq!(&header[header.len() - 2..], ["minority_rows", "rare_class"]);
+    assert!(csv
+        .lines()
+        .any(|l| l.contains(",50,") && l.ends_with(",true")));
+    let text = summary(&out);
+    assert!(
+        text.contains("**Approximate intervals (†):** 4 of 8 comparisons"),
+        "{text}"
+    );
+    assert!(
+        text.contains("] ? †")
+            || text.contains("] ✓ †")
+            || text.contains("] ✗ †")
+            || text.contains("] = †")
+    );
+}

@@ -64,6 +64,15 @@ pub struct AnalysisSettings {
 /// The default relative equivalence margin: 1% of the reference's mean loss.
 pub const DEFAULT_MARGIN: f64 = 0.01;
 
+/// Below this many rows of the rarer class in the average calibration sample
+/// a paired interval is flagged as approximate. In the coverage study
+/// (`docs/statistics.md`, "Rare classes") the cells with 1.5–6 expected rows
+/// of the rarer class fell below 93% coverage in about a quarter of cases,
+/// against a few percent from 15 rows up; 10 is the events-per-variable rule
+/// of thumb of logistic modelling (Peduzzi, Concato, Kemper, Holford &
+/// Feinstein 1996, J. Clin. Epidemiol. 49), which sits between the two.
+pub const RARE_CLASS_ROWS: f64 = 10.0;
+
 /// The default `[decision] max_fallback`: the share above which the Fallback
 /// fits section flags a cell as large (`report::fallback::LARGE_SHARE`).
 pub const DEFAULT_MAX_FALLBACK: f64 = 0.10;
@@ -166,6 +175,11 @@ pub struct Paired {
     /// The verdict of [`crate::stats::verdict`] on the interval and δ,
     /// oriented for the metric.
     pub verdict: Verdict,
+    /// Rows of the rarer class in the calibration sample, averaged over the
+    /// repeats (min(positives, n − positives)).
+    pub minority_rows: f64,
+    /// Fewer than [`RARE_CLASS_ROWS`] of them: the interval is approximate.
+    pub rare_class: bool,
 }
 
 /// Everything the reports show.
@@ -480,6 +494,16 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                             v.iter().sum::<f64>() / v.len() as f64
                         }
                     };
+                    // The calibration sample is the same for every method of
+                    // a repeat: read its class counts off the reference's units.
+                    let minority: Vec<f64> = rc
+                        .values()
+                        .map(|&i| {
+                            let r = &table.rows[i];
+                            r.positives.min(r.size.saturating_sub(r.positives)) as f64
+                        })
+                        .collect();
+                    let minority_rows = mean_of(&minority);
                     paired.push(Paired {
                         task: task.clone(),
                         size,
@@ -501,6 +525,8 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         reservoir_order: iv.reservoir_order,
                         margin,
                         verdict: Verdict::of_metric(lo, hi, margin, hib),
+                        minority_rows,
+                        rare_class: minority_rows < RARE_CLASS_ROWS,
                     });
                 }
             }

@@ -4,7 +4,7 @@ use crate::analysis::Analysis;
 use crate::run::table::num;
 
 pub const PAIRED_HEADER: &str =
-    "task,size,method,reference,metric,repeats,mean_method,mean_reference,mean_diff,ci_low,ci_high,se,wins,ties,losses,interval,confidence,reservoir_order,margin,verdict";
+    "task,size,method,reference,metric,repeats,mean_method,mean_reference,mean_diff,ci_low,ci_high,se,wins,ties,losses,interval,confidence,reservoir_order,margin,verdict,minority_rows,rare_class";
 
 /// Seven significant digits: more than the intervals resolve, and half the
 /// bytes of the shortest round-trip form.
@@ -21,7 +21,7 @@ pub fn paired_csv(a: &Analysis) -> String {
     s.push('\n');
     for p in &a.paired {
         s.push_str(&format!(
-            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
+            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
             p.task,
             p.size,
             p.method,
@@ -41,7 +41,9 @@ pub fn paired_csv(a: &Analysis) -> String {
             num(p.confidence),
             p.reservoir_order.map(|k| k.to_string()).unwrap_or_default(),
             f(p.margin),
-            p.verdict.as_str()
+            p.verdict.as_str(),
+            f(p.minority_rows),
+            p.rare_class
         ));
     }
     s

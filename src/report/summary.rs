@@ -84,11 +84,12 @@ pub fn task_table(
                 .find(|p| p.task == *task && p.size == n && p.method == *m && p.metric == metric)
             {
                 let diff = format!(
-                    "{} [{}, {}] {}",
+                    "{} [{}, {}] {}{}",
                     fmt_diff(p.mean_diff),
                     fmt_diff(p.ci_low),
                     fmt_diff(p.ci_high),
-                    p.verdict.mark()
+                    p.verdict.mark(),
+                    if p.rare_class { " †" } else { "" }
                 );
                 let diff = if markdown && p.verdict != Verdict::Undetermined {
                     format!("**{diff}**")
@@ -102,7 +103,7 @@ pub fn task_table(
         rows.push(row);
     }
     let pct = (s.confidence * 100.0).round();
-    let notes = vec![format!(
+    let mut notes = vec![format!(
             "Each cell: mean {metric} over repeats; below it the mean difference to `{}` with its {pct}% {} interval and the verdict against the reference: {}.",
             s.reference,
             s.interval,
@@ -110,6 +111,12 @@ pub fn task_table(
                 .map(|v| format!("{} {}", v.mark(), v.words()))
                 .join(" / ")
         )];
+    if a.paired
+        .iter()
+        .any(|p| p.task == *task && p.metric == metric && p.rare_class)
+    {
+        notes.push(RARE_NOTE.to_string());
+    }
     Table {
         title: format!("Task `{task}` — {metric}"),
         header,
@@ -117,6 +124,9 @@ pub fn task_table(
         notes,
     }
 }
+
+/// What † means, under every table that has one.
+const RARE_NOTE: &str = "†: approximate interval — the calibration samples held fewer than 10 rows of the rarer class on average; in the coverage study such intervals fell short of their nominal level far more often (docs/statistics.md, \"Rare classes\").";
 
 /// The standing caution, in every report.
 pub const CAUTION: &str = "These results come from benchmark data. They do not replace validating the chosen calibrator on the population where it will be deployed, nor monitoring its calibration after deployment: populations drift, and a map that was right on last year's data can be wrong on this year's. Where calibrated probabilities inform decisions about people — credit, health, insurance, employment, fraud holds and the like — the regulations, local codes and licensed professional practice that apply there govern; this tool's recommendation is evidence for that process, not a substitute for it.";
@@ -580,6 +590,23 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
         out.push(Block::Para(format!(
             "The default interval took its wider first-order reservoir term for {wide} of {} log-loss comparisons, where a method gave the observed class a probability at or below the log-loss clip (an exact 0 or 1) on some test row; see `docs/statistics.md`.",
             log_loss.len()
+        )));
+    }
+    let rare: Vec<&crate::analysis::Paired> = a.paired.iter().filter(|p| p.rare_class).collect();
+    if !rare.is_empty() {
+        let mut cells: Vec<(&str, usize)> =
+            rare.iter().map(|p| (p.task.as_str(), p.size)).collect();
+        cells.dedup();
+        cells.sort();
+        cells.dedup();
+        let sizes: std::collections::BTreeSet<usize> = rare.iter().map(|p| p.size).collect();
+        out.push(Block::Para(format!(
+            "**Approximate intervals (†):** {} of {} comparisons, on {} task and size cells (n = {}), rest on calibration samples with fewer than {} rows of the rarer class on average. In the coverage study such intervals fell short of their nominal level far more often than the rest, so read their verdicts as approximate; the decision's test across datasets uses the mean differences, not these intervals (`docs/statistics.md`, \"Rare classes\").",
+            rare.len(),
+            a.paired.len(),
+            cells.len(),
+            sizes.iter().map(|n| n.to_string()).collect::<Vec<_>>().join(", "),
+            crate::analysis::RARE_CLASS_ROWS
         )));
     }
     if kind == Some(IntervalKind::default()) {
