@@ -1,6 +1,6 @@
-//! The published run in `results/open-uci/` is what the documented command
-//! produces: the default suite is run again into a temporary folder and every
-//! committed file is compared byte for byte (manifest.json without its
+//! The published runs in `results/open-uci/` and `results/protocol-study/`
+//! are what the documented commands produce: each suite is run again into a
+//! temporary folder and every committed file is compared byte for byte (manifest.json without its
 //! machine-dependent fields: times, thread count, cache use).
 //!
 //! Ignored by a plain `cargo test` (listed as ignored), because it reruns the
@@ -47,10 +47,10 @@ fn stable_manifest(text: &str) -> serde_json::Value {
     m
 }
 
-#[test]
-#[ignore = "reruns the whole default suite (minutes); run with `cargo test --locked --test published -- --ignored`, or all tests with `cargo test --locked -- --include-ignored` as .ci/run does"]
-fn committed_published_run_matches_the_documented_command() {
-    let published = root().join("results/open-uci");
+/// Rerun `args` (from the repository root, into a temporary folder) and
+/// compare every file of the committed folder `results/<name>` byte for byte.
+fn matches_a_fresh_run(name: &str, args: &[&str], regenerate: &str) {
+    let published = root().join("results").join(name);
     // Fit times depend on the machine (and are not committed).
     let committed: Vec<String> = files(&published)
         .into_iter()
@@ -65,17 +65,16 @@ fn committed_published_run_matches_the_documented_command() {
     ] {
         assert!(
             committed.iter().any(|f| f == needed),
-            "results/open-uci/{needed} is not committed"
+            "results/{name}/{needed} is not committed"
         );
     }
     let tmp = TempDir::new().unwrap();
-    let out = tmp.path().join("open-uci");
-    // The documented command is `plumbline run` from the repository root
-    // (default suite suites/open-uci.toml); only the folder differs here.
+    let out = tmp.path().join(name);
     Command::cargo_bin("plumbline")
         .unwrap()
         .current_dir(root())
-        .args(["run", "--out", out.to_str().unwrap(), "--quiet"])
+        .args(args)
+        .args(["--out", out.to_str().unwrap(), "--quiet"])
         .assert()
         .success();
     let mut differ = Vec::new();
@@ -94,6 +93,24 @@ fn committed_published_run_matches_the_documented_command() {
     }
     assert!(
         differ.is_empty(),
-        "results/open-uci differs from a fresh run in: {differ:?}\nregenerate with `cargo run --release -- run --force` and commit"
+        "results/{name} differs from a fresh run in: {differ:?}\nregenerate with `{regenerate}` and commit"
+    );
+}
+
+#[test]
+#[ignore = "reruns the whole default suite (minutes); run with `cargo test --locked --test published -- --ignored`, or all tests with `cargo test --locked -- --include-ignored` as .ci/run does"]
+fn committed_published_run_matches_the_documented_command() {
+    // The documented command is `plumbline run` from the repository root
+    // (default suite suites/open-uci.toml); only the folder differs here.
+    matches_a_fresh_run("open-uci", &["run"], "cargo run --release -- run --force");
+}
+
+#[test]
+#[ignore = "reruns the protocol study (a few minutes); run with `cargo test --locked --test published -- --ignored`, or all tests with `cargo test --locked -- --include-ignored` as .ci/run does"]
+fn committed_protocol_study_matches_the_documented_command() {
+    matches_a_fresh_run(
+        "protocol-study",
+        &["run", "suites/protocol-study.toml"],
+        "cargo run --release -- run suites/protocol-study.toml --force",
     );
 }
