@@ -11,6 +11,12 @@
 //! feature removed (a = 0 or b = 0), and when the remaining coefficient is also
 //! negative (or both were negative) the map falls back to the constant base rate
 //! of the calibration sample. A refit is noted `refit` in the unit's status.
+//! For one feature the sign of the fitted slope is the sign of the covariance
+//! of the feature with the labels (see `slope_sign`), computed from exact
+//! counts: a slope that is zero in exact arithmetic gives a = 0 and no refit,
+//! rather than a rounding-level value of either sign. The shared fitter sums
+//! the rows in a canonical order, so the map and its notes do not depend on
+//! the order of the calibration rows.
 //!
 //! The tied (two-parameter) form a = b is logit p = a·logit(s) + c, i.e. logistic
 //! calibration of the log-odds (the paper's comparison baseline); a negative a
@@ -166,12 +172,76 @@ fn targets(labels: &[bool], smoothed: bool) -> Vec<f64> {
 /// (slope, intercept, smoothed targets used) of a one-feature fit.
 type OneFit = (f64, f64, bool);
 
+/// Sign of the maximum-likelihood slope of the one-feature model
+/// σ(a·x + c) on 0/1 labels (or on Platt's smoothed targets, which keep the
+/// order t₋ < t₊).
+///
+/// The likelihood profiled over c is convex in a, with derivative
+/// −Σ (y_i − ȳ) x_i at a = 0, so the optimal slope has the sign of the
+/// covariance S = Σ (y_i − ȳ)(x_i − x̄) (zero: a = 0 is optimal). S is read
+/// here rather than off the fitted coefficient, because a slope that is 0 in
+/// exact arithmetic (for example every tied score carrying the base rate)
+/// comes out of an iterative fit as a rounding-level value of either sign,
+/// and a negative sign would trigger a refit. Summed per distinct x with the
+/// exact integer weights k = N·pos − n·P (N rows, P positives; n rows and pos
+/// positives at that x, Σ k = 0, so the centre x̄ only conditions the sum),
+/// compensated (Neumaier 1974), and in sorted order, S has a rounding error
+/// of about 5e-16·Σ|terms|; it counts as zero below 1e-13·Σ|terms|, far above
+/// that error and far below any covariance that moves a fit. Everything is
+/// computed from the sorted rows, so the answer does not depend on row order.
+fn slope_sign(x: &[f64], labels: &[bool]) -> std::cmp::Ordering {
+    let mut rows: Vec<(f64, bool)> = x.iter().copied().zip(labels.iter().copied()).collect();
+    rows.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    let total = rows.len() as i128;
+    let positives = rows.iter().filter(|r| r.1).count() as i128;
+    let centre = rows.iter().map(|r| r.0).sum::<f64>() / rows.len() as f64;
+    let (mut sum, mut comp, mut size) = (0.0f64, 0.0f64, 0.0f64);
+    let mut i = 0;
+    while i < rows.len() {
+        let xg = rows[i].0;
+        let (mut n, mut pos) = (0i128, 0i128);
+        while i < rows.len() && rows[i].0 == xg {
+            n += 1;
+            pos += rows[i].1 as i128;
+            i += 1;
+        }
+        let term = (xg - centre) * (total * pos - n * positives) as f64;
+        let next = sum + term;
+        comp += if sum.abs() >= term.abs() {
+            (sum - next) + term
+        } else {
+            (term - next) + sum
+        };
+        sum = next;
+        size += term.abs();
+    }
+    let s = sum + comp;
+    if s.abs() <= 1e-13 * size {
+        std::cmp::Ordering::Equal
+    } else if s > 0.0 {
+        std::cmp::Ordering::Greater
+    } else {
+        std::cmp::Ordering::Less
+    }
+}
+
 /// Fit a one-feature logistic model with the separation rule; returns
 /// (slope, intercept, smoothed), or `None` when the slope is negative, and
-/// whether the sample was separable for this model.
+/// whether the sample was separable for this model. The sign comes from
+/// [`slope_sign`], so the refit decision does not rest on rounding; a zero
+/// slope gives the constant base rate without a refit.
 fn fit_one(x: &[f64], labels: &[bool], classes: &[i8]) -> Result<(Option<OneFit>, bool), FitError> {
     let sep = separable_with_cuts(classes, 1);
+    match slope_sign(x, labels) {
+        std::cmp::Ordering::Less => return Ok((None, sep)),
+        std::cmp::Ordering::Equal => {
+            return Ok((Some((0.0, base_rate_intercept(labels), false)), sep));
+        }
+        std::cmp::Ordering::Greater => {}
+    }
     let m = fit_logistic(&[x], &targets(labels, sep))?;
+    // The optimum is positive here; a negative fitted slope could only come
+    // from a fit that stopped short, and the monotone answer is then flat.
     if m.coef[0] < 0.0 {
         return Ok((None, sep));
     }
@@ -363,6 +433,62 @@ mod tests {
         }
         let t = fit(BetaShape::Tied, &s, &y);
         assert_eq!(t.notes, vec!["refit"]);
+    }
+
+    /// Every row order of `s`, `y` (Heap's algorithm); returns how many.
+    fn for_each_order(
+        s: &[f64],
+        y: &[bool],
+        mut check: impl FnMut(&[f64], &[bool], &[usize]),
+    ) -> usize {
+        let n = s.len();
+        let mut order: Vec<usize> = (0..n).collect();
+        let mut c = vec![0usize; n];
+        let mut visit = |o: &[usize]| {
+            let s2: Vec<f64> = o.iter().map(|&i| s[i]).collect();
+            let y2: Vec<bool> = o.iter().map(|&i| y[i]).collect();
+            check(&s2, &y2, o);
+        };
+        visit(&order);
+        let (mut i, mut seen) = (1, 1);
+        while i < n {
+            if c[i] < i {
+                order.swap(if i % 2 == 0 { 0 } else { c[i] }, i);
+                visit(&order);
+                seen += 1;
+                c[i] += 1;
+                i = 1;
+            } else {
+                c[i] = 0;
+                i += 1;
+            }
+        }
+        seen
+    }
+
+    /// Each score carries one positive and one negative, so the covariance of
+    /// the log-odds with the labels is exactly zero: the maximum-likelihood
+    /// slope is a = 0 (score equation Σ (p − y) x = 0 at p = 1/2), which is
+    /// monotone, so no refit happens and the map is the base rate 1/2. This
+    /// holds in every row order, although the floating-point fit of a zero
+    /// slope can round to either sign.
+    #[test]
+    fn tied_balanced_ties_need_no_refit_in_any_row_order() {
+        for (s, y) in [
+            ([0.0, 0.875, 0.0, 0.875], [true, false, false, true]),
+            ([0.625, 0.0, 0.0, 0.625], [true, false, true, false]),
+        ] {
+            let seen = for_each_order(&s, &y, |s2, y2, o| {
+                let f = fit(BetaShape::Tied, s2, y2);
+                assert!(f.notes.is_empty(), "{s:?} order {o:?}: {:?}", f.notes);
+                let mut out = [0.0; 3];
+                f.map.predict(&[0.0, 0.5, 1.0], &mut out);
+                for p in out {
+                    assert!((p - 0.5).abs() < 1e-15, "{s:?} order {o:?}: {p}");
+                }
+            });
+            assert_eq!(seen, 24);
+        }
     }
 
     #[test]

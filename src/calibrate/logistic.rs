@@ -47,6 +47,10 @@
 //! damping up to μ = 1e10 decreases F at machine precision (the current point
 //! is then the optimum to that precision); or 500 iterations.
 //!
+//! Row order: the rows are summed in a canonical order (sorted by features,
+//! then target), so the fitted model does not depend on the order of the
+//! calibration rows, not even in the last bit.
+//!
 //! The optimum is finite unless the sample is (quasi-)separable; callers detect
 //! separation beforehand and pass smoothed targets in that case. The design is
 //! checked before fitting: a constant feature or features collinear with each
@@ -136,6 +140,28 @@ pub fn fit_logistic(cols: &[&[f64]], t: &[f64]) -> Result<LogisticModel, FitErro
             "logistic fit: feature and target lengths differ".into(),
         ));
     }
+    // Canonical row order. Every sum below is rounded, and the rounding
+    // depends on the order of its terms, so a fit of the same rows in another
+    // order could land a few ulps away, and a coefficient whose optimum is 0
+    // could come out with either sign. Callers act on such signs (beta
+    // calibration refits when a slope is negative), so the rows are summed
+    // sorted by (features, target): the fitted model is then a function of
+    // the set of rows alone, bit for bit, whatever order they came in.
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_unstable_by(|&i, &j| {
+        cols.iter()
+            .fold(std::cmp::Ordering::Equal, |o, c| {
+                o.then_with(|| c[i].total_cmp(&c[j]))
+            })
+            .then_with(|| t[i].total_cmp(&t[j]))
+    });
+    let sorted: Vec<Vec<f64>> = cols
+        .iter()
+        .map(|c| order.iter().map(|&i| c[i]).collect())
+        .collect();
+    let cols: Vec<&[f64]> = sorted.iter().map(|c| c.as_slice()).collect();
+    let t: Vec<f64> = order.iter().map(|&i| t[i]).collect();
+    let t = t.as_slice();
     let nf = n as f64;
     // Standardise each column.
     let mut mean = [0.0; MAX_FEATURES];
@@ -475,6 +501,37 @@ mod tests {
         let one = fit_logistic(&[&x1], &t).unwrap();
         let p = fit_logistic_1d(&x1, &t).unwrap();
         assert_eq!((one.coef[0], one.intercept), (p.a, p.b));
+    }
+
+    /// Rows are exchangeable in the likelihood, so any row order must give the
+    /// same model; the canonical summation order makes it the same to the bit
+    /// (every cyclic shift and the reversal of a 40-row sample, two features).
+    #[test]
+    fn row_order_does_not_change_a_single_bit() {
+        use crate::split::splitmix64;
+        let unit = |h: u64| ((h >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
+        let n = 40u64;
+        let x1: Vec<f64> = (0..n).map(|i| unit(splitmix64(3 * i))).collect();
+        let x2: Vec<f64> = (0..n)
+            .map(|i| (unit(splitmix64(3 * i + 1)) * 7.0).ln())
+            .collect();
+        let t: Vec<f64> = (0..n)
+            .map(|i| (unit(splitmix64(3 * i + 2)) < x1[i as usize]) as u8 as f64)
+            .collect();
+        let base = fit_logistic(&[&x1, &x2], &t).unwrap();
+        let permuted = |o: &[usize]| {
+            let a: Vec<f64> = o.iter().map(|&i| x1[i]).collect();
+            let b: Vec<f64> = o.iter().map(|&i| x2[i]).collect();
+            let u: Vec<f64> = o.iter().map(|&i| t[i]).collect();
+            fit_logistic(&[&a, &b], &u).unwrap()
+        };
+        let n = n as usize;
+        let rev: Vec<usize> = (0..n).rev().collect();
+        assert_eq!(permuted(&rev), base);
+        for shift in 1..n {
+            let o: Vec<usize> = (0..n).map(|i| (i + shift) % n).collect();
+            assert_eq!(permuted(&o), base, "shift {shift}");
+        }
     }
 
     /// Intercept-only: the optimum is the logit of the mean target (score
