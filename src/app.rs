@@ -509,6 +509,13 @@ pub fn read_curves(dir: &Path) -> Result<Vec<reliability::CurveRecord>> {
 /// folder's `units.csv`; settings from
 /// `manifest.json` when present, else from the flags).
 pub fn report_dir(args: &ReportArgs) -> Result<String> {
+    // Rewriting the folder's tables makes `report` a writer: it holds the
+    // folder's lock, so it neither reads a folder another run is writing nor
+    // writes over one. `--task` only reads.
+    let _lock = match &args.task {
+        None => Some(output::Lock::acquire(&args.dir)?),
+        Some(_) => None,
+    };
     let units_path = run::table::units_path(&args.dir).with_context(|| {
         format!(
             "{}: no unit table ({} or units.csv)",

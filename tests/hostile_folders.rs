@@ -207,6 +207,33 @@ fn a_second_writer_is_refused_while_the_lock_is_held() {
     let err = fails_in(&p.root, &run_args(p.s(), "r"));
     has(&err, &["PID"]);
     assert_eq!(snapshot(&out), before);
+    // `report` rewrites the folder's tables: it is a writer too and is
+    // refused while the lock is held, leaving the folder as it was; `report
+    // --task` only reads and still answers.
+    let err = fails_in(&p.root, &["report", "r"]);
+    has(
+        &err,
+        &["r is being written by another plumbline process", "PID"],
+    );
+    assert_eq!(snapshot(&out), before);
+    let ok = std::process::Command::new(env!("CARGO_BIN_EXE_plumbline"))
+        .current_dir(&p.root)
+        .args(["report", "r", "--task", "a"])
+        .output()
+        .unwrap();
+    assert!(
+        ok.status.success(),
+        "{}",
+        String::from_utf8_lossy(&ok.stderr)
+    );
+    fs::remove_file(&lock).unwrap();
+    std::process::Command::new(env!("CARGO_BIN_EXE_plumbline"))
+        .current_dir(&p.root)
+        .args(["report", "r"])
+        .output()
+        .map(|o| assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr)))
+        .unwrap();
+    assert!(!lock.exists(), "report left its lock behind");
 }
 
 #[cfg(target_os = "linux")]
