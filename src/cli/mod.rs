@@ -232,6 +232,18 @@ pub fn guard_signals() {
     }
 }
 
+/// Refuse an empty or blank value of a flag that names something
+/// (`--column ''`), naming the flag and the value; `what` says what to give.
+pub fn require_name(flag: &str, value: &str, what: &str) -> Result<()> {
+    if value.trim().is_empty() {
+        bail!(
+            "{flag} {}: the name is empty; {what}",
+            crate::limits::quoted_prefix(value.as_bytes(), 40)
+        );
+    }
+    Ok(())
+}
+
 /// Write a whole file atomically.
 pub fn write_atomic(target: &Path, bytes: &[u8]) -> Result<()> {
     let f = AtomicFile::create(target)?;
