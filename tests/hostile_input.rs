@@ -236,7 +236,7 @@ fn oversized_suite_and_map_files_are_refused_by_size() {
     assert_eq!(o.code, 2, "{}", o.stderr);
     assert!(
         o.stderr
-            .contains("s.toml:0:0: (file): cannot read the suite: the file ("),
+            .contains("error: s.toml: cannot read the suite: the file ("),
         "{}",
         o.stderr
     );
@@ -247,6 +247,16 @@ fn oversized_suite_and_map_files_are_refused_by_size() {
     );
     let o = run_bounded(d.path(), &["check", "s.toml"], &[]);
     assert_eq!(o.code, 0, "{}", o.stderr);
+    // A suite that is not text: the file is named, with no made-up position.
+    fs::write(d.path().join("bin.toml"), b"name = \"x\"\n\xff\xfe\n").unwrap();
+    let o = run_bounded(d.path(), &["check", "bin.toml"], &[]);
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .starts_with("error: bin.toml: the suite is not UTF-8 text: invalid utf-8"),
+        "{}",
+        o.stderr
+    );
     if Path::new("/dev/zero").exists() {
         std::os::unix::fs::symlink("/dev/zero", d.path().join("zero.toml")).unwrap();
         let o = run_bounded(d.path(), &["check", "zero.toml"], &[]);
