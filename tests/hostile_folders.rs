@@ -4,7 +4,8 @@
 //! writer is refused while the folder's lock is held, a stale lock is taken
 //! over, and suite names and ids that would become unsafe paths or clash with
 //! the report's figures are refused by `check` with their line. The same
-//! guard covers `merge` and `diagnose`.
+//! guard covers `merge` and `diagnose`. An interrupted `verify` removes its
+//! scratch folder at once.
 
 mod common;
 
@@ -484,4 +485,77 @@ fn diagnose_uses_the_same_guard() {
         .success();
     assert!(p.root.join("d").join("metrics.csv").exists());
     no_leftovers(&p.root.join("d"));
+}
+
+/// A full `verify` interrupted while it reruns the suite (SIGINT, SIGTERM,
+/// SIGHUP) removes its scratch at once (the rerun's staging folder, its lock
+/// and the scratch folder), ends by that signal, and leaves the verified
+/// folder as it was.
+#[cfg(unix)]
+#[test]
+fn interrupted_verify_removes_its_scratch_at_once() {
+    use std::os::unix::process::ExitStatusExt;
+    use std::process::{Command, Stdio};
+    use std::time::{Duration, Instant};
+
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    // Enough units that the rerun is still going when the signal arrives.
+    let suite = write_suite(d, 11, 60, "100, 200, 400, 800");
+    let out = d.join("out");
+    run(&suite, &out, &[]);
+    let before = snapshot(&out);
+    let verify_entries = || -> Vec<String> {
+        fs::read_dir(d)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .filter(|n| n.contains(".verify-"))
+            .collect()
+    };
+    for (sig, name) in [(2, "INT"), (15, "TERM"), (1, "HUP")] {
+        let mut child = Command::new(bin_path())
+            .current_dir(d)
+            .args(["verify", "out", "--threads", "1"])
+            .stdout(Stdio::null())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        // The rerun's staging folder appears once it has taken its lock.
+        let staging = d.join(format!("..out.verify-{}.partial", child.id()));
+        let start = Instant::now();
+        while !staging.exists() {
+            if let Some(st) = child.try_wait().unwrap() {
+                panic!("{name}: verify ended ({st:?}) before its rerun could be interrupted");
+            }
+            if start.elapsed() > HANG_LIMIT {
+                let _ = child.kill();
+                let _ = child.wait();
+                panic!("{name}: no rerun staging folder after {HANG_LIMIT:?}");
+            }
+            std::thread::sleep(Duration::from_millis(5));
+        }
+        assert!(Command::new("kill")
+            .arg(format!("-{name}"))
+            .arg(child.id().to_string())
+            .status()
+            .unwrap()
+            .success());
+        let done = finish(child, &format!("verify after SIG{name}"));
+        assert_eq!(
+            done.status.signal(),
+            Some(sig),
+            "{name}: {:?} {}",
+            done.status,
+            done.stderr
+        );
+        assert_eq!(
+            verify_entries(),
+            Vec::<String>::new(),
+            "{name}: scratch left"
+        );
+        assert!(
+            snapshot(&out) == before,
+            "{name}: the verified folder changed"
+        );
+    }
 }

@@ -1,6 +1,7 @@
 //! Hostile and mistaken inputs through the real binary: endless score files,
 //! gzip bombs, oversized suites and map files, a suite of very many methods,
-//! non-CSV files, empty column names, out-of-range parameters, `verify
+//! non-CSV files, empty column names and empty name flags (`apply --column
+//! ''`, `fit --method ''`, `diagnose --compare ''`), out-of-range parameters, `verify
 //! --sample 0`, scratch left by a killed verify, and unit tables with missing
 //! repeats or NaN values. Every command runs under a kill bound, so a
 //! regression that hangs or fills memory fails instead of stalling the suite.
@@ -235,7 +236,7 @@ fn oversized_suite_and_map_files_are_refused_by_size() {
     assert_eq!(o.code, 2, "{}", o.stderr);
     assert!(
         o.stderr
-            .contains("s.toml:0:0: (file): cannot read the suite: the file ("),
+            .contains("error: s.toml: cannot read the suite: the file ("),
         "{}",
         o.stderr
     );
@@ -246,6 +247,16 @@ fn oversized_suite_and_map_files_are_refused_by_size() {
     );
     let o = run_bounded(d.path(), &["check", "s.toml"], &[]);
     assert_eq!(o.code, 0, "{}", o.stderr);
+    // A suite that is not text: the file is named, with no made-up position.
+    fs::write(d.path().join("bin.toml"), b"name = \"x\"\n\xff\xfe\n").unwrap();
+    let o = run_bounded(d.path(), &["check", "bin.toml"], &[]);
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .starts_with("error: bin.toml: the suite is not UTF-8 text: invalid utf-8"),
+        "{}",
+        o.stderr
+    );
     if Path::new("/dev/zero").exists() {
         std::os::unix::fs::symlink("/dev/zero", d.path().join("zero.toml")).unwrap();
         let o = run_bounded(d.path(), &["check", "zero.toml"], &[]);
@@ -387,6 +398,99 @@ fn empty_column_names_are_refused() {
         "{}",
         o.stderr
     );
+}
+
+/// Flags that name something new (the added column of `apply`, the method
+/// of `fit`, the compared column of `diagnose`) refuse an empty or blank
+/// name before any work, naming the flag and the value; nothing is written.
+#[test]
+fn empty_name_flags_are_refused_with_the_flag_and_value() {
+    let d = TempDir::new().unwrap();
+    fs::write(d.path().join("a.csv"), common::score_csv(300, 3)).unwrap();
+    let fit_args = [
+        "fit",
+        "--method",
+        "platt",
+        "--score-kind",
+        "margin",
+        "--scores",
+        "a.csv",
+        "--out",
+        "m.json",
+    ];
+    let o = run_bounded(d.path(), &fit_args, &[]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    // A probability file for diagnose: the map's output.
+    let o = run_bounded(
+        d.path(),
+        &["apply", "m.json", "--scores", "a.csv", "--out", "p.csv"],
+        &[],
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for value in ["", " ", "\t"] {
+        let value = value.to_string();
+        let cases: Vec<(Vec<&str>, &str, &str)> = vec![
+            (
+                vec![
+                    "apply", "m.json", "--scores", "a.csv", "--out", "o.csv", "--column", &value,
+                ],
+                "--column",
+                "o.csv",
+            ),
+            (
+                vec![
+                    "fit",
+                    "--method",
+                    &value,
+                    "--score-kind",
+                    "margin",
+                    "--scores",
+                    "a.csv",
+                    "--out",
+                    "o.json",
+                ],
+                "--method",
+                "o.json",
+            ),
+            (
+                vec![
+                    "diagnose",
+                    "p.csv",
+                    "--score-column",
+                    "calibrated",
+                    "--out",
+                    "dd",
+                    "--bootstrap",
+                    "10",
+                    "--compare",
+                    &value,
+                ],
+                "--compare",
+                "dd",
+            ),
+        ];
+        for (args, flag, out) in cases {
+            let o = run_bounded(d.path(), &args, &[]);
+            assert_eq!(o.code, 2, "{args:?}: {}", o.stderr);
+            let shown = value.replace('\t', "\\t");
+            let want = format!("error: {flag} `{shown}`: the name is empty; ");
+            assert!(
+                o.stderr.starts_with(&want),
+                "{args:?}: expected `{want}` in: {}",
+                o.stderr
+            );
+            assert!(!d.path().join(out).exists(), "{args:?}: {out} written");
+        }
+    }
+    // The untouched commands still work.
+    let o = run_bounded(
+        d.path(),
+        &[
+            "apply", "m.json", "--scores", "a.csv", "--out", "o.csv", "--column", "p",
+        ],
+        &[],
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
 }
 
 #[test]

@@ -209,7 +209,12 @@ impl StepLinear {
         if x1 == x0 {
             return v1;
         }
-        let t = (s - x0) / (x1 - x0);
+        let mut t = (s - x0) / (x1 - x0);
+        if !(x1 - x0).is_finite() {
+            // Knots at opposite ends of the double range: their distance
+            // overflows (∞/∞ would be NaN), half of it does not.
+            t = (s / 2.0 - x0 / 2.0) / (x1 / 2.0 - x0 / 2.0);
+        }
         (v0 + t * (v1 - v0)).clamp(v0.min(v1), v0.max(v1))
     }
 }

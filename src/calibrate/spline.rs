@@ -158,6 +158,18 @@ impl Basis {
         (j, b, d)
     }
 
+    /// f(x) and f′(x) for x in [lo, hi].
+    pub fn value_and_slope(&self, beta: &[f64], x: f64) -> (f64, f64) {
+        let (j, b, d) = self.local(x);
+        let mut f = 0.0;
+        let mut df = 0.0;
+        for k in 0..4 {
+            f += b[k] * beta[j + k];
+            df += d[k] * beta[j + k];
+        }
+        (f, df)
+    }
+
     /// f(x) = Σ β_j B_j(x), continued linearly outside [lo, hi].
     pub fn eval(&self, beta: &[f64], x: f64) -> f64 {
         let edge = if x < self.lo {
@@ -167,14 +179,7 @@ impl Basis {
         } else {
             None
         };
-        let at = edge.unwrap_or(x);
-        let (j, b, d) = self.local(at);
-        let mut f = 0.0;
-        let mut df = 0.0;
-        for k in 0..4 {
-            f += b[k] * beta[j + k];
-            df += d[k] * beta[j + k];
-        }
+        let (f, df) = self.value_and_slope(beta, edge.unwrap_or(x));
         match edge {
             // A flat end stays flat even at an infinite margin (0·∞ would be NaN).
             Some(_) if df == 0.0 => f,

@@ -298,6 +298,27 @@ impl MapState {
                 for (i, &c) in coefficients.iter().enumerate() {
                     finite(&format!("coefficients[{i}]"), c)?;
                 }
+                if !(hi - lo).is_finite() {
+                    return Err(format!(
+                        "the knot range [{lo:?}, {hi:?}] is wider than the largest double"
+                    ));
+                }
+                // Beyond the knot range the spline continues with its value
+                // and slope at the ends: both must be numbers.
+                let basis = Basis {
+                    lo: *lo,
+                    hi: *hi,
+                    intervals: *intervals,
+                };
+                for (name, at) in [("lo", *lo), ("hi", *hi)] {
+                    let (value, slope) = basis.value_and_slope(coefficients, at);
+                    if !value.is_finite() || !slope.is_finite() {
+                        return Err(format!(
+                            "the spline's {} at {name} = {at:?} is not a finite number (value {value:?}, slope {slope:?}); the knot intervals of [{lo:?}, {hi:?}] are too narrow or the coefficients too large",
+                            if value.is_finite() { "slope" } else { "value" }
+                        ));
+                    }
+                }
                 finite("lambda", *lambda)?;
                 finite("edf", *edf)
             }

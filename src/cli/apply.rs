@@ -179,6 +179,11 @@ fn io_of(e: csv::Error) -> std::io::Error {
 /// its reader goes away (a closed pipe) the command stops quietly and returns
 /// with [`ApplySummary::closed`] set, the filter's convention (`| head`).
 pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
+    super::require_name(
+        "--column",
+        &args.column,
+        "name the added column of calibrated probabilities (default `calibrated`)",
+    )?;
     let target = Target::of(&args.out)?;
     super::guard_signals();
     let loaded = mapfile::load(&args.map)?;

@@ -478,6 +478,13 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
     if args.bootstrap < 2 {
         bail!("--bootstrap {}: need at least 2 resamples", args.bootstrap);
     }
+    if let Some(c) = &args.compare {
+        super::require_name(
+            "--compare",
+            c,
+            "name the second probability column of the file",
+        )?;
+    }
     if args.compare.is_some() && args.file.as_os_str() == "-" {
         bail!("--compare reads the file twice; give a file name instead of `-`");
     }

@@ -89,6 +89,11 @@ fn toml_value(raw: &str) -> toml::Value {
 
 /// The method spec of `--method` and `--set`, checked for `kind` scores.
 pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<MethodSpec> {
+    super::require_name(
+        "--method",
+        method,
+        "give a method kind: identity, platt, isotonic, beta, binning, temperature, centered-isotonic, spline or venn-abers",
+    )?;
     let mut table = toml::Table::new();
     table.insert("kind".into(), toml::Value::String(method.to_string()));
     for s in set {

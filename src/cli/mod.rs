@@ -146,8 +146,41 @@ impl Drop for AtomicFile {
     }
 }
 
-/// Staging files of this process not yet committed or removed.
+/// Staging files of this process not yet committed or removed, and scratch
+/// files and folders registered with [`remove_on_interrupt`].
 static STAGED: Mutex<Vec<PathBuf>> = Mutex::new(Vec::new());
+
+/// Remove `path` (a file, or a folder with everything below it) if the
+/// process is interrupted (SIGINT, SIGTERM, SIGHUP) before
+/// [`forget_on_interrupt`] is called for it. For scratch output that must not
+/// outlive its command, such as the rerun folder of `verify`.
+pub fn remove_on_interrupt(path: &Path) {
+    guard_signals();
+    staged().push(path.to_path_buf());
+}
+
+/// Stop removing `path` on an interrupt (it was removed or kept on purpose).
+pub fn forget_on_interrupt(path: &Path) {
+    unstage(path);
+}
+
+/// Remove a registered path: a folder with everything below it (a few
+/// rounds, as worker threads may still be adding files to it), else a file.
+fn remove_registered(p: &Path) {
+    match std::fs::symlink_metadata(p) {
+        Ok(m) if m.is_dir() => {
+            for _ in 0..5 {
+                if std::fs::remove_dir_all(p).is_ok() || !p.exists() {
+                    break;
+                }
+            }
+        }
+        Ok(_) => {
+            let _ = std::fs::remove_file(p);
+        }
+        Err(_) => {}
+    }
+}
 
 fn staged() -> MutexGuard<'static, Vec<PathBuf>> {
     STAGED
@@ -161,8 +194,9 @@ fn unstage(tmp: &Path) {
 
 /// Handle the signals a writing command must not die of silently (once per
 /// process; every [`AtomicFile`] calls it):
-/// - SIGINT, SIGTERM, SIGHUP remove the uncommitted staging files, then end
-///   the process as the signal would have (the parent sees the same signal);
+/// - SIGINT, SIGTERM, SIGHUP remove the uncommitted staging files (and the
+///   paths of [`remove_on_interrupt`]), then end the process as the signal
+///   would have (the parent sees the same signal);
 /// - SIGXFSZ (a file-size limit) is caught and dropped, so the write that
 ///   crosses the limit fails with "File too large" and the command reports it
 ///   and cleans up instead of being killed with its staging file left behind.
@@ -187,7 +221,7 @@ pub fn guard_signals() {
                         // The lock is kept: no commit renames after this.
                         let staged = staged();
                         for p in staged.iter() {
-                            let _ = std::fs::remove_file(p);
+                            remove_registered(p);
                         }
                         let _ = signal_hook::low_level::emulate_default_handler(sig);
                         std::process::exit(128 + sig);
@@ -196,6 +230,18 @@ pub fn guard_signals() {
             drop(spawned);
         });
     }
+}
+
+/// Refuse an empty or blank value of a flag that names something
+/// (`--column ''`), naming the flag and the value; `what` says what to give.
+pub fn require_name(flag: &str, value: &str, what: &str) -> Result<()> {
+    if value.trim().is_empty() {
+        bail!(
+            "{flag} {}: the name is empty; {what}",
+            crate::limits::quoted_prefix(value.as_bytes(), 40)
+        );
+    }
+    Ok(())
 }
 
 /// Write a whole file atomically.

@@ -72,6 +72,8 @@ pub enum OpenDataError {
         expected: String,
         found: String,
     },
+    #[error("{file}: not a readable gzip stream: {message}")]
+    Gzip { file: PathBuf, message: String },
     #[error("{file}, line {line}: {message}")]
     Parse {
         file: PathBuf,
@@ -526,10 +528,9 @@ fn parse_table(
     let mut text = Vec::new();
     flate2::read::GzDecoder::new(gz)
         .read_to_end(&mut text)
-        .map_err(|e| OpenDataError::Parse {
+        .map_err(|e| OpenDataError::Gzip {
             file: file.to_path_buf(),
-            line: 0,
-            message: format!("not a readable gzip stream: {e}"),
+            message: e.to_string(),
         })?;
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)

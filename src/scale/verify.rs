@@ -374,6 +374,18 @@ fn verify_sample(
 fn verify_all(args: &VerifyArgs, suite: &Path, manifest: &Value) -> Result<VerifyReport> {
     let dir = &args.dir;
     let scratch = scratch_dir(dir, std::process::id());
+    // The scratch folder, the staging folder and the lock of the rerun go
+    // when verify ends, however it ends: done, failed or interrupted
+    // (SIGINT, SIGTERM, SIGHUP). Only a SIGKILL leaves them, for the next
+    // verify of the folder to remove ([`remove_stale_scratch`]).
+    let leftovers = [
+        scratch.clone(),
+        crate::run::output::staging_dir(&scratch),
+        crate::run::output::lock_path(&scratch),
+    ];
+    for p in &leftovers {
+        crate::cli::remove_on_interrupt(p);
+    }
     let res = app::run_suite(&RunArgs {
         suite: suite.to_path_buf(),
         out: Some(scratch.clone()),
@@ -384,6 +396,12 @@ fn verify_all(args: &VerifyArgs, suite: &Path, manifest: &Value) -> Result<Verif
     });
     let out = res.and_then(|_| compare_folders(dir, &scratch, manifest));
     let _ = std::fs::remove_dir_all(&scratch);
+    // A rerun that failed keeps its staging folder for a resume; verify's
+    // does not.
+    let _ = std::fs::remove_dir_all(&leftovers[1]);
+    for p in &leftovers {
+        crate::cli::forget_on_interrupt(p);
+    }
     out
 }
 

@@ -27,15 +27,45 @@ use crate::models::{protocol::Protocol, ModelSpec};
 use crate::split;
 use crate::stats::paired::IntervalKind;
 
-/// A problem with a suite, located in its file.
+/// A problem with a suite, located in its file: `FILE:LINE:COLUMN: KEY:
+/// MESSAGE`. A problem with the file as a whole (it cannot be read, it is
+/// too large, it is not UTF-8) has `line` 0 and no key, and reads `FILE:
+/// MESSAGE`, without a position.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
-#[error("{file}:{line}:{column}: {key}: {message}")]
 pub struct SuiteError {
     pub file: String,
+    /// 1-based; 0 for the whole file.
     pub line: usize,
     pub column: usize,
     pub key: String,
     pub message: String,
+}
+
+impl std::fmt::Display for SuiteError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        if self.line == 0 {
+            write!(f, "{}: {}", self.file, self.message)
+        } else {
+            write!(
+                f,
+                "{}:{}:{}: {}: {}",
+                self.file, self.line, self.column, self.key, self.message
+            )
+        }
+    }
+}
+
+impl SuiteError {
+    /// A problem with the whole file (no position).
+    fn whole_file(file: &str, message: String) -> SuiteError {
+        SuiteError {
+            file: file.to_string(),
+            line: 0,
+            column: 0,
+            key: String::new(),
+            message,
+        }
+    }
 }
 
 /// Where a byte offset sits in a text: 1-based line and column.
@@ -470,22 +500,11 @@ pub const DEFAULT_TEST_FRACTION: f64 = 0.3;
 /// Read, parse and validate a suite file.
 pub fn load(path: &Path) -> Result<Plan, SuiteError> {
     let file = path.display().to_string();
-    let bytes =
-        crate::limits::read_bounded(path, &crate::limits::MAX_SUITE).map_err(|e| SuiteError {
-            file: file.clone(),
-            line: 0,
-            column: 0,
-            key: "(file)".into(),
-            message: format!("cannot read the suite: {e}"),
-        })?;
+    let bytes = crate::limits::read_bounded(path, &crate::limits::MAX_SUITE)
+        .map_err(|e| SuiteError::whole_file(&file, format!("cannot read the suite: {e}")))?;
     let sha = hex(&Sha256::digest(&bytes));
-    let text = String::from_utf8(bytes).map_err(|e| SuiteError {
-        file: file.clone(),
-        line: 0,
-        column: 0,
-        key: "(file)".into(),
-        message: format!("the suite is not UTF-8 text: {e}"),
-    })?;
+    let text = String::from_utf8(bytes)
+        .map_err(|e| SuiteError::whole_file(&file, format!("the suite is not UTF-8 text: {e}")))?;
     parse(&text, path, sha)
 }
 
