@@ -9,6 +9,7 @@
 //! |---|---|---|---|
 //! | one line or record of a CSV score file | `PLUMBLINE_MAX_LINE_BYTES` | 1 MiB | a score-file row is a few numbers and ids, well under 1 KiB; 1 MiB leaves room for wide files with hundreds of columns |
 //! | decompressed text of one gzip score file | `PLUMBLINE_MAX_DECOMPRESSED_BYTES` | 16 GiB | about 400 million rows of 40 bytes, beyond the largest score file a calibration comparison reads into memory; larger inputs can be uncompressed CSV or Parquet |
+//! | one row group of a Parquet score file, uncompressed (as its metadata states) | `PLUMBLINE_MAX_ROW_GROUP_BYTES` | 4 GiB | a row group is decoded whole; writers default to 64–128 MiB or a million rows (pyarrow), and four score columns of a million rows are about 32 MB |
 //! | a suite file | `PLUMBLINE_MAX_SUITE_BYTES` | 64 MiB | a suite of 100,000 methods is about 5 MB |
 //! | a map file | `PLUMBLINE_MAX_MAP_BYTES` | 256 MiB | the largest fitted state (an isotonic map with a breakpoint per distinct score of a multi-million-row sample) is tens of MB of JSON |
 //!
@@ -33,6 +34,12 @@ pub const MAX_DECOMPRESSED: Limit = Limit {
     var: "PLUMBLINE_MAX_DECOMPRESSED_BYTES",
     default: 16 << 30,
     what: "the decompressed text of a gzip score file",
+};
+
+pub const MAX_ROW_GROUP: Limit = Limit {
+    var: "PLUMBLINE_MAX_ROW_GROUP_BYTES",
+    default: 4 << 30,
+    what: "one uncompressed row group of a Parquet score file",
 };
 
 pub const MAX_SUITE: Limit = Limit {

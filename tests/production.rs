@@ -533,6 +533,41 @@ fn nan_and_non_numeric_scores_name_the_row_and_leave_no_output() {
         "{err}"
     );
     assert!(!out.exists());
+    // Parquet rows are bounded like CSV records: a row whose text passes
+    // PLUMBLINE_MAX_LINE_BYTES is refused with its row number, and a row
+    // group whose stated uncompressed size passes
+    // PLUMBLINE_MAX_ROW_GROUP_BYTES is refused before it is decoded.
+    let mut r = rows(10, 9, ScoreKind::Probability);
+    r[4].0 = "x".repeat(5000);
+    let p = d.join("long.parquet");
+    write_parquet(&p, &r);
+    let bounded = |var: &str, value: &str| {
+        let a = bin()
+            .env(var, value)
+            .arg("apply")
+            .arg(&map)
+            .arg("--scores")
+            .arg(&p)
+            .arg("--out")
+            .arg(&out)
+            .assert()
+            .failure();
+        assert!(!out.exists());
+        String::from_utf8_lossy(&a.get_output().stderr).into_owned()
+    };
+    let err = bounded("PLUMBLINE_MAX_LINE_BYTES", "1000");
+    assert!(
+        err.contains("long.parquet:5: a line or record longer than 1000 bytes"),
+        "{err}"
+    );
+    let err = bounded("PLUMBLINE_MAX_ROW_GROUP_BYTES", "1000");
+    assert!(
+        err.contains("long.parquet: row group 0 (rows 1–10) holds")
+            && err.contains("PLUMBLINE_MAX_ROW_GROUP_BYTES"),
+        "{err}"
+    );
+    // Within the default limits the same file is read.
+    apply(&map, &p, &out).success();
 }
 
 #[test]

@@ -181,7 +181,8 @@ impl Format {
 
 enum Inner {
     Csv(csv::Reader<Bounded<Box<dyn Read + Send>>>, Arc<AtomicU64>),
-    Parquet(Box<RowIter<'static>>),
+    /// Rows, and the limit on one row's text (as for a CSV record).
+    Parquet(Box<RowIter<'static>>, u64),
 }
 
 /// An open score file, read row by row.
@@ -262,7 +263,10 @@ impl RowSource {
             _ => None,
         };
         let reader: Box<dyn Read + Send> = match format {
-            Format::Parquet => return Self::open_parquet(path, label),
+            Format::Parquet => {
+                let max_group = limit(&limits::MAX_ROW_GROUP)?;
+                return Self::open_parquet(path, label, max_line, max_group);
+            }
             Format::Stdin => Box::new(BufReader::with_capacity(1 << 16, std::io::stdin())),
             Format::Csv | Format::CsvGz => {
                 let f = File::open(path).map_err(|e| io_err(&label, e))?;
@@ -297,9 +301,32 @@ impl RowSource {
         })
     }
 
-    fn open_parquet(path: &Path, label: String) -> Result<RowSource, ScoreFileError> {
+    fn open_parquet(
+        path: &Path,
+        label: String,
+        max_line: u64,
+        max_group: u64,
+    ) -> Result<RowSource, ScoreFileError> {
         let f = File::open(path).map_err(|e| io_err(&label, e))?;
         let reader = SerializedFileReader::new(f).map_err(|e| parquet_err(&label, None, e))?;
+        // A row group is decoded whole: refuse one whose uncompressed size,
+        // as the file's metadata states it, passes the limit, before reading.
+        let mut first_row = 1u64;
+        for (i, g) in reader.metadata().row_groups().iter().enumerate() {
+            let bytes = g.total_byte_size().max(0) as u64;
+            if bytes > max_group {
+                return Err(ScoreFileError::Limit {
+                    path: label,
+                    message: format!(
+                        "row group {i} (rows {first_row}–{}) holds {} uncompressed, more than {}; rewrite the file with smaller row groups (pyarrow: `row_group_size=`) or as CSV",
+                        first_row + g.num_rows().max(1) as u64 - 1,
+                        limits::human(bytes),
+                        limits::MAX_ROW_GROUP.describe(max_group)
+                    ),
+                });
+            }
+            first_row += g.num_rows().max(0) as u64;
+        }
         let schema = reader.metadata().file_metadata().schema_descr_ptr();
         let mut headers = Vec::new();
         for field in schema.root_schema().get_fields() {
@@ -318,7 +345,7 @@ impl RowSource {
         Ok(RowSource {
             path: label,
             headers,
-            inner: Inner::Parquet(Box::new(reader.into_iter())),
+            inner: Inner::Parquet(Box::new(reader.into_iter()), max_line),
             loc: Loc::Row(0),
         })
     }
@@ -351,7 +378,7 @@ impl RowSource {
                 }
                 Err(e) => Err(super::scorefile::csv_error(&self.path, e)),
             },
-            Inner::Parquet(it) => {
+            Inner::Parquet(it, max_line) => {
                 let Loc::Row(n) = self.loc else {
                     unreachable!("a Parquet source counts rows")
                 };
@@ -371,6 +398,13 @@ impl RowSource {
                         column: name.clone(),
                     })?;
                     rec.push_field(text.as_bytes());
+                }
+                if rec.as_slice().len() as u64 > *max_line {
+                    return Err(ScoreFileError::LineTooLong {
+                        path: self.path.clone(),
+                        line: n + 1,
+                        limit: limits::MAX_LINE.describe(*max_line),
+                    });
                 }
                 Ok(true)
             }
