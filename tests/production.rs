@@ -361,6 +361,97 @@ score_kind = "probability"
     assert_eq!(checked, 6);
 }
 
+/// The same score file, method and options give the same map bytes, hence
+/// the same checksum: the map records the input's SHA-256 and the tool
+/// version, never the time. The recorded hash is checked against a digest
+/// of the file's bytes by the RustCrypto `sha2` crate (FIPS 180-4 SHA-256);
+/// a stream read from stdin is recorded without one.
+#[test]
+fn fitting_twice_gives_identical_map_bytes() {
+    use sha2::Digest;
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let text = csv_text(&rows(2000, 31, ScoreKind::Probability));
+    let train = d.join("train.csv.gz");
+    write_gz(&train, &text);
+    let want_sha: String = sha2::Sha256::digest(fs::read(&train).unwrap())
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    for (method, set) in [
+        ("spline", &[][..]),
+        ("venn-abers", &[]),
+        ("isotonic", &["pseudo_count=1"]),
+    ] {
+        let mut maps = Vec::new();
+        for name in ["first.json", "second.json"] {
+            let out = d.join(name);
+            let mut c = bin();
+            c.args(["fit", "--method", method, "--scores"])
+                .arg(&train)
+                .arg("--out")
+                .arg(&out);
+            for s in set {
+                c.args(["--set", s]);
+            }
+            c.assert().success();
+            maps.push(fs::read(&out).unwrap());
+        }
+        assert!(
+            maps[0] == maps[1],
+            "{method}: two fits gave different bytes"
+        );
+        let v: serde_json::Value = serde_json::from_slice(&maps[0]).unwrap();
+        assert_eq!(
+            v["training"]["source_sha256"],
+            want_sha.as_str(),
+            "{method}"
+        );
+        assert!(v["training"].get("fit_seconds").is_none(), "{method}");
+        assert_eq!(v["tool_version"], env!("CARGO_PKG_VERSION"));
+    }
+    // Standard input: no hash, still the same bytes every time.
+    let mut maps = Vec::new();
+    for _ in 0..2 {
+        let out = d.join("stdin.json");
+        bin()
+            .args(["fit", "--method", "platt", "--scores", "-", "--out"])
+            .arg(&out)
+            .write_stdin(text.clone())
+            .assert()
+            .success();
+        maps.push(fs::read(&out).unwrap());
+    }
+    assert!(maps[0] == maps[1], "stdin: two fits gave different bytes");
+    let v: serde_json::Value = serde_json::from_slice(&maps[0]).unwrap();
+    assert!(v["training"]["source_sha256"].is_null());
+    assert_eq!(v["training"]["source"], "<stdin>");
+}
+
+/// A map written before the input hash was recorded (with the fit time and
+/// no `source_sha256`) still applies, with the same predictions.
+#[test]
+fn maps_with_a_fit_time_still_apply() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let map = small_map(d);
+    let mut v: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(&map).unwrap()).unwrap();
+    let t = v["training"].as_object_mut().unwrap();
+    t.remove("source_sha256");
+    t.insert("fit_seconds".into(), serde_json::json!(0.0123));
+    reseal(&mut v);
+    let old = d.join("old.json");
+    fs::write(&old, serde_json::to_string_pretty(&v).unwrap()).unwrap();
+    let train = d.join("train.csv");
+    apply(&map, &train, &d.join("new-out.csv")).success();
+    apply(&old, &train, &d.join("old-out.csv")).success();
+    assert_eq!(
+        fs::read(d.join("new-out.csv")).unwrap(),
+        fs::read(d.join("old-out.csv")).unwrap()
+    );
+}
+
 fn small_map(d: &Path) -> PathBuf {
     let train = d.join("train.csv");
     fs::write(&train, csv_text(&rows(400, 3, ScoreKind::Probability))).unwrap();

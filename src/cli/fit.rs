@@ -72,6 +72,9 @@ pub struct FitArgs {
 pub struct FitSummary {
     pub content: MapContent,
     pub out: PathBuf,
+    /// Wall-clock time of the fit alone (shown, not saved: the map file is
+    /// the same bytes for the same inputs and options).
+    pub fit_seconds: f64,
 }
 
 /// One `KEY=VALUE` as a TOML value: numbers, booleans and quoted strings as
@@ -164,6 +167,16 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
     } else {
         args.scores.display().to_string()
     };
+    // The bytes of a regular file identify the input; a stream (stdin, a
+    // pipe) was consumed by the load and is recorded without a hash.
+    let source_sha256 = if args.scores.as_os_str() != "-" && args.scores.is_file() {
+        Some(
+            crate::suite::file_sha256(&args.scores)
+                .with_context(|| format!("{}: cannot hash", args.scores.display()))?,
+        )
+    } else {
+        None
+    };
     let content = MapContent {
         format: mapfile::FORMAT.into(),
         schema_version: mapfile::SCHEMA_VERSION,
@@ -182,7 +195,8 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
             distinct_scores: distinct.len() as u64,
             folds,
             notes: fitted.notes.iter().map(|s| s.to_string()).collect(),
-            fit_seconds,
+            source_sha256,
+            fit_seconds: None,
         },
         fitted: fitted.map.state(),
     };
@@ -208,6 +222,7 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
     Ok(FitSummary {
         content,
         out: args.out.clone(),
+        fit_seconds,
     })
 }
 
@@ -232,7 +247,7 @@ pub fn describe(s: &FitSummary) -> String {
         t.distinct_scores,
         t.score_min,
         t.score_max,
-        t.fit_seconds,
+        s.fit_seconds,
         s.out.display()
     )
 }
