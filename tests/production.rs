@@ -763,7 +763,10 @@ fn fit_checks_parameters_like_a_suite() {
             vec!["--method", "spline", "--set", "intervals=0"],
             "intervals = 0",
         ),
-        (vec!["--method", "platypus"], "unknown variant `platypus`"),
+        (
+            vec!["--method", "platypus"],
+            "--method platypus: not a method id of suites/open-uci.toml (identity, platt,",
+        ),
         (
             vec!["--method", "platt", "--set", "x"],
             "--set x: expected KEY=VALUE",
@@ -791,6 +794,148 @@ fn fit_checks_parameters_like_a_suite() {
         assert!(err.contains(needle), "{args:?}: {err}");
         assert!(!out.exists());
     }
+}
+
+/// Every method id of the default suite (read here from the committed
+/// `suites/open-uci.toml` with the `toml` crate) is accepted by
+/// `fit --method ID` and gives the same map bytes as its kind with each of
+/// the suite's parameters given by `--set`.
+#[test]
+fn fit_accepts_the_method_ids_of_the_default_suite() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let train = d.join("t.csv");
+    fs::write(&train, csv_text(&rows(300, 5, ScoreKind::Probability))).unwrap();
+    let suite: toml::Table = toml::from_str(
+        &fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("suites/open-uci.toml"))
+            .unwrap(),
+    )
+    .unwrap();
+    let methods = suite["method"].as_array().unwrap();
+    assert!(methods.len() >= 10, "{}", methods.len());
+    let fit_to = |out: &Path, args: &[String]| {
+        bin()
+            .arg("fit")
+            .args(args)
+            .arg("--scores")
+            .arg(&train)
+            .arg("--out")
+            .arg(out)
+            .assert()
+            .success();
+        fs::read(out).unwrap()
+    };
+    let mut with_parameters = 0;
+    for m in methods {
+        let t = m.as_table().unwrap();
+        let id = t["id"].as_str().unwrap();
+        let kind = t["kind"].as_str().unwrap();
+        let mut by_kind = vec!["--method".to_string(), kind.to_string()];
+        for (k, v) in t.iter().filter(|(k, _)| *k != "id" && *k != "kind") {
+            let v = match v {
+                toml::Value::String(s) => s.clone(),
+                other => other.to_string(),
+            };
+            by_kind.extend(["--set".to_string(), format!("{k}={v}")]);
+        }
+        with_parameters += usize::from(by_kind.len() > 2);
+        let a = fit_to(
+            &d.join("by-id.json"),
+            &["--method".to_string(), id.to_string()],
+        );
+        let b = fit_to(&d.join("by-kind.json"), &by_kind);
+        assert!(
+            a == b,
+            "{id}: `--method {id}` and `{}` differ",
+            by_kind.join(" ")
+        );
+    }
+    assert!(with_parameters >= 3, "the suite has ids with parameters");
+    // The map records the parameters of the id.
+    fit_to(
+        &d.join("iso.json"),
+        &["--method".into(), "isotonic-bounded".into()],
+    );
+    let v: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(d.join("iso.json")).unwrap()).unwrap();
+    assert_eq!(
+        v["method"],
+        serde_json::json!({"kind": "isotonic", "pseudo_count": 1.0})
+    );
+    // --set replaces a parameter of the id.
+    fit_to(
+        &d.join("bins.json"),
+        &[
+            "--method".into(),
+            "binning-bounded".into(),
+            "--set".into(),
+            "bins=5".into(),
+        ],
+    );
+    let v: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(d.join("bins.json")).unwrap()).unwrap();
+    assert_eq!(
+        v["method"],
+        serde_json::json!({"kind": "binning", "bins": 5, "pseudo_count": 1.0})
+    );
+}
+
+/// `--suite FILE` resolves the ids of another suite's method table; an
+/// unknown id lists that suite's ids, and a bad method table is reported
+/// with its file, line and column.
+#[test]
+fn fit_resolves_ids_in_a_given_suite() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let train = d.join("t.csv");
+    fs::write(&train, csv_text(&rows(300, 6, ScoreKind::Probability))).unwrap();
+    let suite = d.join("mine.toml");
+    fs::write(
+        &suite,
+        "name = \"mine\"\n\n[[method]]\nid = \"platt-smoothed\"\nkind = \"platt\"\ntarget_smoothing = true\n\n[[method]]\nid = \"fine-spline\"\nkind = \"spline\"\nintervals = 30\n",
+    )
+    .unwrap();
+    let out = d.join("m.json");
+    let run = |method: &str, suite: &Path| {
+        bin()
+            .args(["fit", "--method", method, "--suite"])
+            .arg(suite)
+            .arg("--scores")
+            .arg(&train)
+            .arg("--out")
+            .arg(&out)
+            .assert()
+    };
+    run("platt-smoothed", &suite).success();
+    let v: serde_json::Value = serde_json::from_str(&fs::read_to_string(&out).unwrap()).unwrap();
+    assert_eq!(
+        v["method"],
+        serde_json::json!({"kind": "platt", "target_smoothing": true})
+    );
+    fs::remove_file(&out).unwrap();
+    let a = run("isotonic-bounded", &suite).failure();
+    let err = String::from_utf8_lossy(&a.get_output().stderr).into_owned();
+    assert!(
+        err.contains("--method isotonic-bounded: not a method id of")
+            && err.contains(
+                "mine.toml (platt-smoothed, fine-spline) nor a method kind (identity, platt,"
+            ),
+        "{err}"
+    );
+    assert!(!out.exists());
+    let bad = d.join("bad.toml");
+    fs::write(
+        &bad,
+        "name = \"bad\"\n\n[[method]]\nid = \"p\"\nkind = \"platt\"\nsmoothing = true\n",
+    )
+    .unwrap();
+    let a = run("p", &bad).failure();
+    let err = String::from_utf8_lossy(&a.get_output().stderr).into_owned();
+    assert!(
+        err.contains("bad.toml:3:1: method `p`: unknown field `smoothing`"),
+        "{err}"
+    );
+    assert!(!out.exists());
 }
 
 /// Many batches (the reader and writer stages hand over rows in batches):

@@ -1,14 +1,18 @@
 //! `plumbline fit`: fit one method on a score file and save the map file.
 //!
-//! The method is given as a kind (`--method isotonic`) plus parameters
-//! (`--set pseudo_count=1`), read into the same [`MethodSpec`] a suite's method
-//! table becomes and checked by the same `MethodSpec::validate`, so the map is
-//! fitted by exactly the implementation a benchmark run compares. Before the map
+//! The method is given as a method id of a suite's method table
+//! (`--method isotonic-bounded`: the built-in default suite's, or that of
+//! `--suite FILE`), or as a kind (`--method isotonic`); either takes further
+//! parameters (`--set pseudo_count=1`). Both are read into the same
+//! [`MethodSpec`] a suite's method table becomes and checked by the same
+//! `MethodSpec::validate`, so the map is fitted by exactly the implementation
+//! a benchmark run compares. Before the map
 //! file is written it is read back through [`mapfile::from_bytes`] and its
 //! predictions on the training scores are compared bit for bit with the fitted
 //! map's, so a map that would not reproduce its fit is never saved.
 
-use std::path::PathBuf;
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use anyhow::{bail, Context, Result};
@@ -17,6 +21,34 @@ use serde::Deserialize;
 use crate::calibrate::{MethodSpec, ScoreKind};
 use crate::data::scorefile::{self, Origin, ScoreFileSpec};
 use crate::mapfile::{self, FoldSummary, MapContent, Training};
+use crate::suite::{self, MethodEntry};
+
+/// The default suite's file, built into the binary so that `fit --method ID`
+/// resolves its method ids wherever plumbline runs.
+pub const DEFAULT_SUITE_TEXT: &str = include_str!("../../suites/open-uci.toml");
+
+/// Every method kind with its `--set` keys and the values each takes.
+pub const METHOD_KEYS: &[(&str, &[(&str, &str)])] = &[
+    ("identity", &[]),
+    ("platt", &[("target_smoothing", "true or false")]),
+    ("isotonic", &[("pseudo_count", "a number >= 0")]),
+    ("beta", &[("shape", "full or tied")]),
+    (
+        "binning",
+        &[("bins", "1 to 10000"), ("pseudo_count", "a number >= 0")],
+    ),
+    ("temperature", &[]),
+    ("centered-isotonic", &[("pseudo_count", "a number >= 0")]),
+    (
+        "spline",
+        &[
+            ("intervals", "1 to 200"),
+            ("lambda", "a number > 0"),
+            ("criterion", "aic or bic"),
+        ],
+    ),
+    ("venn-abers", &[]),
+];
 
 /// Score kinds on the command line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -38,13 +70,21 @@ impl From<KindArg> for ScoreKind {
 
 #[derive(Debug, Clone, clap::Args)]
 pub struct FitArgs {
-    /// Method kind, as in a suite's `kind` key: identity, platt, isotonic, beta,
-    /// binning, temperature, centered-isotonic, spline, venn-abers.
+    /// Method: an id of the suite's method table (see --suite), e.g.
+    /// `isotonic-bounded`, or a method kind as in a suite's `kind` key:
+    /// identity, platt, isotonic, beta, binning, temperature,
+    /// centered-isotonic, spline, venn-abers. A suite id is looked up first.
     #[arg(long, value_name = "ID")]
     pub method: String,
-    /// A method parameter, as in a suite (repeatable), e.g. `--set pseudo_count=1`.
+    /// A method parameter, as in a suite (repeatable), e.g. `--set pseudo_count=1`;
+    /// added to (or replacing) those of a suite method id.
     #[arg(long = "set", value_name = "KEY=VALUE")]
     pub set: Vec<String>,
+    /// Suite file whose `[[method]]` tables give the method ids --method
+    /// accepts (only that table is read) [default: the built-in default
+    /// suite, suites/open-uci.toml].
+    #[arg(long, value_name = "FILE")]
+    pub suite: Option<PathBuf>,
     /// Score file: CSV, gzip CSV (`.gz`), Parquet (`.parquet`, `.pq`), or `-` for CSV on stdin.
     #[arg(long, value_name = "FILE")]
     pub scores: PathBuf,
@@ -70,6 +110,8 @@ pub struct FitArgs {
 /// What `fit` did, for the terminal.
 #[derive(Debug, Clone)]
 pub struct FitSummary {
+    /// The method as given to `--method` (a suite id or a kind).
+    pub method: String,
     pub content: MapContent,
     pub out: PathBuf,
     /// Wall-clock time of the fit alone (shown, not saved: the map file is
@@ -90,7 +132,8 @@ fn toml_value(raw: &str) -> toml::Value {
     }
 }
 
-/// The method spec of `--method` and `--set`, checked for `kind` scores.
+/// The method spec of a method kind (`--method`) and `--set`, checked for
+/// `kind` scores.
 pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<MethodSpec> {
     super::require_name(
         "--method",
@@ -99,6 +142,67 @@ pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<Meth
     )?;
     let mut table = toml::Table::new();
     table.insert("kind".into(), toml::Value::String(method.to_string()));
+    with_set(table, method, set, kind)
+}
+
+/// The method table of the suite `--suite` names, or of the built-in default
+/// suite, with the name to show for it.
+pub fn suite_methods(suite: Option<&Path>) -> Result<(String, Vec<MethodEntry>)> {
+    match suite {
+        Some(p) => Ok((p.display().to_string(), suite::load_methods(p)?)),
+        None => {
+            let name = crate::app::DEFAULT_SUITE;
+            Ok((
+                name.to_string(),
+                suite::parse_methods(DEFAULT_SUITE_TEXT, name)?,
+            ))
+        }
+    }
+}
+
+/// The method spec of `--method` and `--set`: `method` is looked up among
+/// the ids of `table` (the method table of `suite_name`) first, then among
+/// the method kinds; `--set` adds or replaces parameters. Checked for `kind`
+/// scores.
+pub fn resolve_method(
+    method: &str,
+    set: &[String],
+    kind: ScoreKind,
+    suite_name: &str,
+    table: &[MethodEntry],
+) -> Result<MethodSpec> {
+    super::require_name(
+        "--method",
+        method,
+        &format!("give a method id of {suite_name} (e.g. isotonic-bounded) or a method kind: identity, platt, isotonic, beta, binning, temperature, centered-isotonic, spline or venn-abers"),
+    )?;
+    if let Some(entry) = table.iter().find(|m| m.id == method) {
+        let Ok(toml::Value::Table(t)) = toml::Value::try_from(&entry.spec) else {
+            bail!("internal error: the method `{method}` of {suite_name} is not a table");
+        };
+        return with_set(t, method, set, kind);
+    }
+    if METHOD_KEYS.iter().any(|(k, _)| *k == method) {
+        return method_spec(method, set, kind);
+    }
+    let kinds: Vec<&str> = METHOD_KEYS.iter().map(|(k, _)| *k).collect();
+    let ids: Vec<&str> = table.iter().map(|m| m.id.as_str()).collect();
+    bail!(
+        "--method {method}: not a method id of {suite_name} ({}) nor a method kind ({}); --suite FILE looks ids up in another suite",
+        ids.join(", "),
+        kinds.join(", ")
+    )
+}
+
+/// A method table (`kind` plus parameters) with the `--set` parameters
+/// added, read into a checked [`MethodSpec`].
+fn with_set(
+    mut table: toml::Table,
+    method: &str,
+    set: &[String],
+    kind: ScoreKind,
+) -> Result<MethodSpec> {
+    let mut given = BTreeSet::new();
     for s in set {
         let Some((k, v)) = s.split_once('=') else {
             bail!("--set {s}: expected KEY=VALUE");
@@ -109,9 +213,10 @@ pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<Meth
                 "--set {s}: give the method with --method and its parameters with --set KEY=VALUE"
             );
         }
-        if table.insert(k.to_string(), toml_value(v.trim())).is_some() {
+        if !given.insert(k.to_string()) {
             bail!("--set {s}: `{k}` is set twice");
         }
+        table.insert(k.to_string(), toml_value(v.trim()));
     }
     let spec = MethodSpec::deserialize(toml::Value::Table(table))
         .map_err(|e| anyhow::anyhow!("--method {method}: {}", e.message()))?;
@@ -123,7 +228,8 @@ pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<Meth
 /// Run `plumbline fit`.
 pub fn run(args: &FitArgs) -> Result<FitSummary> {
     let kind: ScoreKind = args.score_kind.into();
-    let spec = method_spec(&args.method, &args.set, kind)?;
+    let (suite_name, table) = suite_methods(args.suite.as_deref())?;
+    let spec = resolve_method(&args.method, &args.set, kind, &suite_name, &table)?;
     let fspec = ScoreFileSpec {
         path: args.scores.clone(),
         score_column: args.score_column.clone(),
@@ -220,10 +326,32 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
     }
     super::write_atomic(&args.out, &bytes)?;
     Ok(FitSummary {
+        method: args.method.clone(),
         content,
         out: args.out.clone(),
         fit_seconds,
     })
+}
+
+/// The method as given, with its kind (when the name is a suite id) and
+/// every parameter: `isotonic-bounded (isotonic, pseudo_count = 1.0)`.
+pub fn method_label(given: &str, spec: &MethodSpec) -> String {
+    let mut parts: Vec<String> = Vec::new();
+    if given != spec.kind() {
+        parts.push(spec.kind().to_string());
+    }
+    if let Ok(toml::Value::Table(t)) = toml::Value::try_from(spec) {
+        parts.extend(
+            t.iter()
+                .filter(|(k, _)| k.as_str() != "kind")
+                .map(|(k, v)| format!("{k} = {v}")),
+        );
+    }
+    if parts.is_empty() {
+        given.to_string()
+    } else {
+        format!("{given} ({})", parts.join(", "))
+    }
 }
 
 /// One line about a written map, for the terminal.
@@ -241,7 +369,7 @@ pub fn describe(s: &FitSummary) -> String {
         .unwrap_or_default();
     format!(
         "{} fitted on {} rows ({} positive, {} distinct scores in [{}, {}]){folds} in {:.3} s{notes} → {}",
-        s.content.method.kind(),
+        method_label(&s.method, &s.content.method),
         t.rows,
         t.positives,
         t.distinct_scores,
