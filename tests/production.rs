@@ -938,6 +938,103 @@ fn fit_resolves_ids_in_a_given_suite() {
     assert!(!out.exists());
 }
 
+/// A case of a committed reference fixture (`tests/fixtures/methods/`, made
+/// by `scripts/fixtures_methods.py`) written as a score file.
+fn fixture_case(d: &Path, file: &str, case: &str) -> (PathBuf, serde_json::Value) {
+    let all: serde_json::Value = serde_json::from_str(
+        &fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join(format!("tests/fixtures/methods/{file}")),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let c = all["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == case)
+        .unwrap()
+        .clone();
+    let mut text = String::from("score,label\n");
+    for (s, y) in c["scores"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(c["labels"].as_array().unwrap())
+    {
+        let y = y
+            .as_f64()
+            .unwrap_or_else(|| y.as_bool().map_or(f64::NAN, f64::from));
+        text.push_str(&format!("{},{}\n", s.as_f64().unwrap(), y));
+    }
+    let p = d.join(format!("{case}.csv"));
+    fs::write(&p, text).unwrap();
+    (p, c)
+}
+
+/// The number after `NAME = ` on a line of `fit`'s terminal output.
+fn printed(err: &str, name: &str) -> f64 {
+    let line = err
+        .lines()
+        .find(|l| l.trim_start().starts_with(&format!("{name} = ")))
+        .unwrap_or_else(|| panic!("no `{name} = ` line in: {err}"));
+    let rest = &line.trim_start()[name.len() + 3..];
+    rest.split_whitespace().next().unwrap().parse().unwrap()
+}
+
+/// `fit` prints the fitted parameters: Platt's a and b and beta's a, b and c
+/// agree with statsmodels' Logit (fixtures of `scripts/fixtures_methods.py`)
+/// to the six significant digits printed; an isotonic map prints its number
+/// of steps, the distinct values of scipy's `isotonic_regression` fit.
+#[test]
+fn fit_prints_the_fitted_parameters() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let fit_err = |method: &str, scores: &Path| {
+        let a = bin()
+            .args(["fit", "--method", method, "--scores"])
+            .arg(scores)
+            .arg("--out")
+            .arg(d.join("m.json"))
+            .assert()
+            .success();
+        assert!(a.get_output().stdout.is_empty());
+        String::from_utf8_lossy(&a.get_output().stderr).into_owned()
+    };
+    let close = |got: f64, want: f64, what: &str| {
+        assert!(
+            (got - want).abs() <= 1e-5 * want.abs().max(1e-3),
+            "{what}: printed {got}, reference {want}"
+        );
+    };
+    let (p, c) = fixture_case(d, "platt.json", "prob-400");
+    let err = fit_err("platt", &p);
+    close(printed(&err, "a"), c["a"].as_f64().unwrap(), "platt a");
+    close(printed(&err, "b"), c["b"].as_f64().unwrap(), "platt b");
+
+    let (p, c) = fixture_case(d, "beta.json", "beta-200");
+    let err = fit_err("beta", &p);
+    for k in ["a", "b", "c"] {
+        close(printed(&err, k), c["full"][k].as_f64().unwrap(), k);
+    }
+
+    let (p, c) = fixture_case(d, "isotonic.json", "distinct-300");
+    let err = fit_err("isotonic", &p);
+    let mut levels: Vec<f64> = c["fitted"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    levels.sort_by(f64::total_cmp);
+    levels.dedup_by(|a, b| (*a - *b).abs() < 1e-12);
+    assert!(
+        err.contains(&format!("\n  {} steps (", levels.len())),
+        "{} steps expected in: {err}",
+        levels.len()
+    );
+}
+
 /// Many batches (the reader and writer stages hand over rows in batches):
 /// every row arrives once, in order, for a file that ends mid-batch.
 #[test]

@@ -354,7 +354,10 @@ pub fn method_label(given: &str, spec: &MethodSpec) -> String {
     }
 }
 
-/// One line about a written map, for the terminal.
+/// About a written map, for the terminal: one line on the fit, then one
+/// indented line per fitted parameter ([`MapState::summary`]).
+///
+/// [`MapState::summary`]: crate::calibrate::state::MapState::summary
 pub fn describe(s: &FitSummary) -> String {
     let t = &s.content.training;
     let notes = if t.notes.is_empty() {
@@ -367,7 +370,7 @@ pub fn describe(s: &FitSummary) -> String {
         .as_ref()
         .map(|f| format!(" · {} folds", f.len()))
         .unwrap_or_default();
-    format!(
+    let mut text = format!(
         "{} fitted on {} rows ({} positive, {} distinct scores in [{}, {}]){folds} in {:.3} s{notes} → {}",
         method_label(&s.method, &s.content.method),
         t.rows,
@@ -377,5 +380,10 @@ pub fn describe(s: &FitSummary) -> String {
         t.score_max,
         s.fit_seconds,
         s.out.display()
-    )
+    );
+    for line in s.content.fitted.summary() {
+        text.push_str("\n  ");
+        text.push_str(&line);
+    }
+    text
 }
