@@ -1035,6 +1035,78 @@ fn fit_prints_the_fitted_parameters() {
     );
 }
 
+/// A probability score outside [0, 1] is refused with a hint in the terms of
+/// the command: `fit` names its `--score-kind` flag, `apply` the map's score
+/// kind, `diagnose` what it reads, and only a suite names the suite key.
+#[test]
+fn out_of_range_hints_name_what_the_user_can_change() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let scores = d.join("wide.csv");
+    fs::write(&scores, "score,label\n0.2,0\n0.7,1\n1.5,1\n0.4,0\n").unwrap();
+    let stderr = |a: assert_cmd::assert::Assert| {
+        String::from_utf8_lossy(&a.get_output().stderr).into_owned()
+    };
+    let at = "wide.csv:4: column `score` (field 1): a probability score must lie in [0, 1]";
+
+    let err = stderr(
+        bin()
+            .args(["fit", "--method", "platt", "--scores"])
+            .arg(&scores)
+            .arg("--out")
+            .arg(d.join("m.json"))
+            .assert()
+            .failure(),
+    );
+    assert!(
+        err.contains(&format!(
+            "{at} (use --score-kind margin for other scores): `1.5`"
+        )),
+        "{err}"
+    );
+    assert!(!err.contains("score_kind ="), "{err}");
+
+    let map = small_map(d);
+    let err = stderr(apply(&map, &scores, &d.join("o.csv")).failure());
+    assert!(
+        err.contains(&format!("{at} (the map was fitted on probabilities; fit one with --score-kind margin for other scores)")),
+        "{err}"
+    );
+
+    let err = stderr(
+        bin()
+            .arg("diagnose")
+            .arg(&scores)
+            .arg("--out")
+            .arg(d.join("diag"))
+            .assert()
+            .failure(),
+    );
+    assert!(
+        err.contains(&format!("{at} (diagnose reads probabilities)")),
+        "{err}"
+    );
+    assert!(!err.contains("score_kind ="), "{err}");
+
+    let suite = d.join("s.toml");
+    fs::write(
+        &suite,
+        "name = \"s\"\nseed = 1\nrepeats = 2\nsizes = [2]\nreference = \"platt\"\n\
+         metrics = [\"log_loss\"]\nprimary_metric = \"log_loss\"\n\n\
+         [[method]]\nid = \"platt\"\nkind = \"platt\"\n\n\
+         [[task]]\nid = \"w\"\nscores = \"wide.csv\"\nscore_column = \"score\"\n\
+         label_column = \"label\"\nscore_kind = \"probability\"\n",
+    )
+    .unwrap();
+    let err = stderr(bin().arg("check").arg(&suite).assert().failure());
+    assert!(
+        err.contains(&format!(
+            "{at} (use score_kind = \"margin\" for other scores)"
+        )),
+        "{err}"
+    );
+}
+
 /// Many batches (the reader and writer stages hand over rows in batches):
 /// every row arrives once, in order, for a file that ends mid-batch.
 #[test]

@@ -377,8 +377,11 @@ fn read_batches(
             if !src.next_row(rec)? {
                 return Ok(false);
             }
-            b.scores[b.len] =
-                parse_score(&rec[si], kind).map_err(|problem| bad_value(src, rec, si, problem))?;
+            b.scores[b.len] = parse_score(&rec[si], kind).map_err(|problem| {
+                bad_value(src, rec, si, problem).with_range_hint(
+                    "the map was fitted on probabilities; fit one with --score-kind margin for other scores",
+                )
+            })?;
             b.len += 1;
         }
         Ok(true)

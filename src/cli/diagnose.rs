@@ -403,7 +403,8 @@ fn load(
         truth_column: None,
         fold_column: None,
         origin: Origin::CommandLine,
-    })?;
+    })
+    .map_err(|e| e.with_range_hint("diagnose reads probabilities"))?;
     Ok((l.pool.scores, l.pool.labels))
 }
 

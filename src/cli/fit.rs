@@ -240,7 +240,8 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
         fold_column: args.fold_column.clone(),
         origin: Origin::CommandLine,
     };
-    let loaded = scorefile::load(&fspec)?;
+    let loaded = scorefile::load(&fspec)
+        .map_err(|e| e.with_range_hint("use --score-kind margin for other scores"))?;
     let (scores, labels) = (&loaded.pool.scores, &loaded.pool.labels);
     let calibrator = spec.build(kind)?;
     let t0 = Instant::now();
