@@ -28,7 +28,7 @@ use super::{FittedMap, ScoreKind};
 #[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
 pub enum MapState {
     /// p = s clamped to [0, 1].
-    Identity,
+    Identity {},
     /// p = σ(a·s + b).
     Platt {
         a: f64,
@@ -191,7 +191,7 @@ impl MapState {
     /// map for a sample with one distinct log-odds).
     pub fn kind(&self) -> &'static str {
         match self {
-            MapState::Identity => "identity",
+            MapState::Identity {} => "identity",
             MapState::Platt { .. } => "platt",
             MapState::Isotonic { .. } => "isotonic",
             MapState::Beta { .. } => "beta",
@@ -223,7 +223,7 @@ impl MapState {
             }
         };
         match self {
-            MapState::Identity => vec!["p = score, clamped to [0, 1] (nothing fitted)".into()],
+            MapState::Identity {} => vec!["p = score, clamped to [0, 1] (nothing fitted)".into()],
             MapState::Platt {
                 a,
                 b,
@@ -355,7 +355,7 @@ impl MapState {
     /// Check that the state describes a usable map of its kind.
     pub fn check(&self) -> Result<(), String> {
         match self {
-            MapState::Identity => Ok(()),
+            MapState::Identity {} => Ok(()),
             MapState::Platt { a, b, .. } => {
                 finite("a", *a)?;
                 finite("b", *b)
@@ -531,7 +531,7 @@ impl MapState {
     pub fn rebuild(&self) -> Result<Box<dyn FittedMap>, String> {
         self.check()?;
         Ok(match self.clone() {
-            MapState::Identity => Box::new(super::identity::IdentityMap),
+            MapState::Identity {} => Box::new(super::identity::IdentityMap),
             MapState::Platt {
                 a,
                 b,

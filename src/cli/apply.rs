@@ -86,7 +86,7 @@ impl ApplySummary {
 /// How a map treats scores outside its fitted range (docs/map-format.md).
 pub fn range_rule(state: &MapState) -> &'static str {
     match state {
-        MapState::Identity => "the identity map passes them through unchanged",
+        MapState::Identity {} => "the identity map passes them through unchanged",
         MapState::Isotonic { .. } | MapState::CenteredIsotonic { .. } => {
             "the map is flat beyond its ends, so they get the end values (clamped to the fitted range)"
         }
