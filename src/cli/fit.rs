@@ -50,6 +50,25 @@ pub const METHOD_KEYS: &[(&str, &[(&str, &str)])] = &[
     ("venn-abers", &[]),
 ];
 
+/// The long help of `--set`: every kind's keys ([`METHOD_KEYS`]).
+fn set_help() -> String {
+    let mut s = String::from(
+        "A method parameter, as in a suite (repeatable), e.g. `--set pseudo_count=1`; \
+         added to (or replacing) those of a suite method id. Keys by method kind \
+         (docs/methods.md):",
+    );
+    for (kind, keys) in METHOD_KEYS {
+        s.push_str(&format!("\n  {kind}: "));
+        if keys.is_empty() {
+            s.push_str("no parameters");
+        } else {
+            let k: Vec<String> = keys.iter().map(|(k, v)| format!("{k} ({v})")).collect();
+            s.push_str(&k.join(", "));
+        }
+    }
+    s
+}
+
 /// Score kinds on the command line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
 pub enum KindArg {
@@ -78,7 +97,7 @@ pub struct FitArgs {
     pub method: String,
     /// A method parameter, as in a suite (repeatable), e.g. `--set pseudo_count=1`;
     /// added to (or replacing) those of a suite method id.
-    #[arg(long = "set", value_name = "KEY=VALUE")]
+    #[arg(long = "set", value_name = "KEY=VALUE", long_help = set_help())]
     pub set: Vec<String>,
     /// Suite file whose `[[method]]` tables give the method ids --method
     /// accepts (only that table is read) [default: the built-in default
@@ -387,4 +406,69 @@ pub fn describe(s: &FitSummary) -> String {
         text.push_str(&line);
     }
     text
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The names a serde error lists after "expected" (in backticks).
+    fn expected_names(message: &str) -> BTreeSet<String> {
+        let tail = message.split("expected").nth(1).unwrap_or("");
+        tail.split('`')
+            .skip(1)
+            .step_by(2)
+            .map(str::to_string)
+            .collect()
+    }
+
+    /// [`METHOD_KEYS`] (shown by `fit --help`) is the parameter list of
+    /// [`MethodSpec`]: every kind, every key, each key accepted with a value
+    /// of the kind described, and no key left out (serde's unknown-field
+    /// error lists the keys a kind takes).
+    #[test]
+    fn method_keys_match_the_method_spec() {
+        let e = method_spec("no-such-kind", &[], ScoreKind::Probability)
+            .err()
+            .unwrap()
+            .to_string();
+        let kinds: BTreeSet<String> = METHOD_KEYS.iter().map(|(k, _)| k.to_string()).collect();
+        assert_eq!(expected_names(&e), kinds, "{e}");
+        let sample = |key: &str| match key {
+            "target_smoothing" => "true",
+            "pseudo_count" => "1",
+            "shape" => "tied",
+            "bins" => "5",
+            "intervals" => "8",
+            "lambda" => "2",
+            "criterion" => "bic",
+            other => panic!("no sample value for `{other}`"),
+        };
+        for (kind, keys) in METHOD_KEYS {
+            for (key, _) in *keys {
+                let set = vec![format!("{key}={}", sample(key))];
+                method_spec(kind, &set, ScoreKind::Margin)
+                    .unwrap_or_else(|e| panic!("{kind} {set:?}: {e}"));
+            }
+            let e = method_spec(kind, &["zz_unknown=1".into()], ScoreKind::Probability)
+                .err()
+                .unwrap()
+                .to_string();
+            assert!(e.contains("unknown field `zz_unknown`"), "{kind}: {e}");
+            let want: BTreeSet<String> = keys.iter().map(|(k, _)| k.to_string()).collect();
+            assert_eq!(expected_names(&e), want, "{kind}: {e}");
+        }
+        // The long help shows every key.
+        let mut cmd = <FitArgs as clap::Args>::augment_args(clap::Command::new("fit"));
+        let help = cmd.render_long_help().to_string();
+        for (kind, keys) in METHOD_KEYS {
+            let line = help
+                .lines()
+                .find(|l| l.trim_start().starts_with(&format!("{kind}: ")))
+                .unwrap_or_else(|| panic!("no line for {kind} in {help}"));
+            for (key, _) in *keys {
+                assert!(line.contains(key), "{kind}: {line}");
+            }
+        }
+    }
 }
