@@ -460,7 +460,8 @@ fn map_seeds() -> Vec<Vec<u8>> {
                     distinct_scores: 0,
                     folds: None,
                     notes: fitted.notes.iter().map(|s| s.to_string()).collect(),
-                    fit_seconds: 0.0,
+                    source_sha256: None,
+                    fit_seconds: None,
                 },
                 fitted: fitted.map.state(),
             };

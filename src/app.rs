@@ -505,6 +505,21 @@ pub fn read_curves(dir: &Path) -> Result<Vec<reliability::CurveRecord>> {
         .map_err(|e| anyhow::anyhow!("{}: {e}", dir.display()))
 }
 
+/// The long help of `report --primary-metric`: every metric id a suite can
+/// list (a folder has the columns of its suite's `metrics`).
+pub fn primary_metric_help() -> String {
+    let ids: Vec<&str> = crate::metrics::MetricId::ALL
+        .iter()
+        .map(|m| m.as_str())
+        .collect();
+    format!(
+        "Metric shown in the tables [default: the one recorded in manifest.json]: one of the \
+         folder's metric columns, i.e. of its suite's `metrics`, which are among: {} \
+         (docs/metrics.md). An unknown name is refused with the folder's columns.",
+        ids.join(", ")
+    )
+}
+
 /// `plumbline report`: rebuild every table from `units.csv.gz` (or an older
 /// folder's `units.csv`; settings from
 /// `manifest.json` when present, else from the flags).
@@ -544,9 +559,13 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         )
     };
     if !table.rows.iter().any(|r| r.method == reference) {
+        let mut ids: Vec<&str> = table.rows.iter().map(|r| r.method.as_str()).collect();
+        ids.sort_unstable();
+        ids.dedup();
         bail!(
-            "--reference `{reference}`: no such method in {}",
-            units_path.display()
+            "--reference `{reference}`: no such method in {}; its methods are {}",
+            units_path.display(),
+            ids.join(", ")
         );
     }
     let primary = args

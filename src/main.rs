@@ -97,11 +97,14 @@ nothing.")]
         /// Print the table of this task (an id from the folder) instead of the summary.
         #[arg(long, value_name = "ID")]
         task: Option<String>,
-        /// Reference method [default: the one recorded in manifest.json].
-        #[arg(long)]
+        /// Reference method: a method id of the folder (an unknown id is
+        /// refused with the folder's ids) [default: the one recorded in
+        /// manifest.json].
+        #[arg(long, value_name = "METHOD_ID")]
         reference: Option<String>,
-        /// Metric shown in the tables [default: the one recorded in manifest.json].
-        #[arg(long)]
+        /// Metric shown in the tables: one of the folder's metric columns (the
+        /// suite's `metrics`) [default: the one recorded in manifest.json].
+        #[arg(long, value_name = "METRIC", long_help = app::primary_metric_help())]
         primary_metric: Option<String>,
         /// Confidence level of the intervals [default: as recorded, else 0.95].
         #[arg(long)]

@@ -44,8 +44,15 @@ pub struct Training {
     pub folds: Option<Vec<FoldSummary>>,
     /// The fit's notes (e.g. `separable`), as in the unit status of a run.
     pub notes: Vec<String>,
-    /// Wall-clock time of the fit alone.
-    pub fit_seconds: f64,
+    /// SHA-256 (hex) of the score file's bytes as stored; `None` when the
+    /// scores came from standard input or another stream that cannot be
+    /// read twice. Absent in maps written before it was recorded.
+    #[serde(default)]
+    pub source_sha256: Option<String>,
+    /// Wall-clock time of the fit, kept only in maps written before maps
+    /// became byte-identical for the same inputs; never written now.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fit_seconds: Option<f64>,
 }
 
 /// One fold of cross-fitted calibration data.

@@ -286,6 +286,39 @@ fn existing_results_need_force_and_report_rebuilds() {
     }
     assert_eq!(fs::read(out.join("paired.csv")).unwrap(), paired);
     assert_eq!(fs::read(out.join("summary.md")).unwrap(), summary);
+    // A bad --reference or --primary-metric is refused with the valid values
+    // of the folder, and changes nothing.
+    for (flag, value, needle) in [
+        (
+            "--reference",
+            "beta",
+            "--reference `beta`: no such method in",
+        ),
+        (
+            "--reference",
+            "beta",
+            "its methods are identity, isotonic, platt",
+        ),
+        ("--primary-metric", "auc", "--primary-metric `auc`:"),
+        ("--primary-metric", "auc", "has columns log_loss, brier"),
+    ] {
+        bin()
+            .args(["report", out.to_str().unwrap(), flag, value])
+            .assert()
+            .failure()
+            .stderr(predicates::str::contains(needle));
+    }
+    assert_eq!(fs::read(out.join("summary.md")).unwrap(), summary);
+    // The help lists every metric id a suite can name.
+    let help = bin().args(["report", "--help"]).assert().success();
+    let help = String::from_utf8_lossy(&help.get_output().stdout).into_owned();
+    for m in plumbline::metrics::MetricId::ALL {
+        assert!(
+            help.contains(m.as_str()),
+            "{} missing from {help}",
+            m.as_str()
+        );
+    }
     bin()
         .args([
             "run",

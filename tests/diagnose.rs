@@ -386,3 +386,49 @@ fn calibration_slope_interval_covers_at_the_nominal_rate() {
         eprintln!("true slope {beta}: coverage {covered}/{R}");
     }
 }
+
+/// The printed table heads its point-value column `value` (never the score
+/// column's name, which would read as the scores themselves) and names the
+/// column in its title.
+#[test]
+fn table_heads_the_value_column_value() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let f = write(d, &data(300));
+    let a = bin()
+        .arg("diagnose")
+        .arg(&f)
+        .arg("--out")
+        .arg(d.join("t"))
+        .args(["--bootstrap", "50", "--compare", "other"])
+        .assert()
+        .success();
+    let out = String::from_utf8_lossy(&a.get_output().stdout).into_owned();
+    let title = out.lines().next().unwrap();
+    assert!(
+        title.ends_with("s.csv · column `score` compared with `other` · 300 rows"),
+        "{title}"
+    );
+    let head: Vec<&str> = out
+        .lines()
+        .find(|l| l.contains("metric"))
+        .unwrap()
+        .trim_matches(|c| c == '│' || c == ' ')
+        .split('┆')
+        .map(str::trim)
+        .collect();
+    assert_eq!(
+        head,
+        [
+            "metric",
+            "value",
+            "estimate",
+            "95% interval",
+            "interval kind",
+            "other estimate",
+            "difference (95% paired interval)",
+            "difference kind"
+        ],
+        "{out}"
+    );
+}

@@ -361,6 +361,97 @@ score_kind = "probability"
     assert_eq!(checked, 6);
 }
 
+/// The same score file, method and options give the same map bytes, hence
+/// the same checksum: the map records the input's SHA-256 and the tool
+/// version, never the time. The recorded hash is checked against a digest
+/// of the file's bytes by the RustCrypto `sha2` crate (FIPS 180-4 SHA-256);
+/// a stream read from stdin is recorded without one.
+#[test]
+fn fitting_twice_gives_identical_map_bytes() {
+    use sha2::Digest;
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let text = csv_text(&rows(2000, 31, ScoreKind::Probability));
+    let train = d.join("train.csv.gz");
+    write_gz(&train, &text);
+    let want_sha: String = sha2::Sha256::digest(fs::read(&train).unwrap())
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    for (method, set) in [
+        ("spline", &[][..]),
+        ("venn-abers", &[]),
+        ("isotonic", &["pseudo_count=1"]),
+    ] {
+        let mut maps = Vec::new();
+        for name in ["first.json", "second.json"] {
+            let out = d.join(name);
+            let mut c = bin();
+            c.args(["fit", "--method", method, "--scores"])
+                .arg(&train)
+                .arg("--out")
+                .arg(&out);
+            for s in set {
+                c.args(["--set", s]);
+            }
+            c.assert().success();
+            maps.push(fs::read(&out).unwrap());
+        }
+        assert!(
+            maps[0] == maps[1],
+            "{method}: two fits gave different bytes"
+        );
+        let v: serde_json::Value = serde_json::from_slice(&maps[0]).unwrap();
+        assert_eq!(
+            v["training"]["source_sha256"],
+            want_sha.as_str(),
+            "{method}"
+        );
+        assert!(v["training"].get("fit_seconds").is_none(), "{method}");
+        assert_eq!(v["tool_version"], env!("CARGO_PKG_VERSION"));
+    }
+    // Standard input: no hash, still the same bytes every time.
+    let mut maps = Vec::new();
+    for _ in 0..2 {
+        let out = d.join("stdin.json");
+        bin()
+            .args(["fit", "--method", "platt", "--scores", "-", "--out"])
+            .arg(&out)
+            .write_stdin(text.clone())
+            .assert()
+            .success();
+        maps.push(fs::read(&out).unwrap());
+    }
+    assert!(maps[0] == maps[1], "stdin: two fits gave different bytes");
+    let v: serde_json::Value = serde_json::from_slice(&maps[0]).unwrap();
+    assert!(v["training"]["source_sha256"].is_null());
+    assert_eq!(v["training"]["source"], "<stdin>");
+}
+
+/// A map written before the input hash was recorded (with the fit time and
+/// no `source_sha256`) still applies, with the same predictions.
+#[test]
+fn maps_with_a_fit_time_still_apply() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let map = small_map(d);
+    let mut v: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(&map).unwrap()).unwrap();
+    let t = v["training"].as_object_mut().unwrap();
+    t.remove("source_sha256");
+    t.insert("fit_seconds".into(), serde_json::json!(0.0123));
+    reseal(&mut v);
+    let old = d.join("old.json");
+    fs::write(&old, serde_json::to_string_pretty(&v).unwrap()).unwrap();
+    let train = d.join("train.csv");
+    apply(&map, &train, &d.join("new-out.csv")).success();
+    apply(&old, &train, &d.join("old-out.csv")).success();
+    assert_eq!(
+        fs::read(d.join("new-out.csv")).unwrap(),
+        fs::read(d.join("old-out.csv")).unwrap()
+    );
+}
+
 fn small_map(d: &Path) -> PathBuf {
     let train = d.join("train.csv");
     fs::write(&train, csv_text(&rows(400, 3, ScoreKind::Probability))).unwrap();
@@ -707,7 +798,10 @@ fn fit_checks_parameters_like_a_suite() {
             vec!["--method", "spline", "--set", "intervals=0"],
             "intervals = 0",
         ),
-        (vec!["--method", "platypus"], "unknown variant `platypus`"),
+        (
+            vec!["--method", "platypus"],
+            "--method platypus: not a method id of suites/open-uci.toml (identity, platt,",
+        ),
         (
             vec!["--method", "platt", "--set", "x"],
             "--set x: expected KEY=VALUE",
@@ -735,6 +829,317 @@ fn fit_checks_parameters_like_a_suite() {
         assert!(err.contains(needle), "{args:?}: {err}");
         assert!(!out.exists());
     }
+}
+
+/// Every method id of the default suite (read here from the committed
+/// `suites/open-uci.toml` with the `toml` crate) is accepted by
+/// `fit --method ID` and gives the same map bytes as its kind with each of
+/// the suite's parameters given by `--set`.
+#[test]
+fn fit_accepts_the_method_ids_of_the_default_suite() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let train = d.join("t.csv");
+    fs::write(&train, csv_text(&rows(300, 5, ScoreKind::Probability))).unwrap();
+    let suite: toml::Table = toml::from_str(
+        &fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("suites/open-uci.toml"))
+            .unwrap(),
+    )
+    .unwrap();
+    let methods = suite["method"].as_array().unwrap();
+    assert!(methods.len() >= 10, "{}", methods.len());
+    let fit_to = |out: &Path, args: &[String]| {
+        bin()
+            .arg("fit")
+            .args(args)
+            .arg("--scores")
+            .arg(&train)
+            .arg("--out")
+            .arg(out)
+            .assert()
+            .success();
+        fs::read(out).unwrap()
+    };
+    let mut with_parameters = 0;
+    for m in methods {
+        let t = m.as_table().unwrap();
+        let id = t["id"].as_str().unwrap();
+        let kind = t["kind"].as_str().unwrap();
+        let mut by_kind = vec!["--method".to_string(), kind.to_string()];
+        for (k, v) in t.iter().filter(|(k, _)| *k != "id" && *k != "kind") {
+            let v = match v {
+                toml::Value::String(s) => s.clone(),
+                other => other.to_string(),
+            };
+            by_kind.extend(["--set".to_string(), format!("{k}={v}")]);
+        }
+        with_parameters += usize::from(by_kind.len() > 2);
+        let a = fit_to(
+            &d.join("by-id.json"),
+            &["--method".to_string(), id.to_string()],
+        );
+        let b = fit_to(&d.join("by-kind.json"), &by_kind);
+        assert!(
+            a == b,
+            "{id}: `--method {id}` and `{}` differ",
+            by_kind.join(" ")
+        );
+    }
+    assert!(with_parameters >= 3, "the suite has ids with parameters");
+    // The map records the parameters of the id.
+    fit_to(
+        &d.join("iso.json"),
+        &["--method".into(), "isotonic-bounded".into()],
+    );
+    let v: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(d.join("iso.json")).unwrap()).unwrap();
+    assert_eq!(
+        v["method"],
+        serde_json::json!({"kind": "isotonic", "pseudo_count": 1.0})
+    );
+    // --set replaces a parameter of the id.
+    fit_to(
+        &d.join("bins.json"),
+        &[
+            "--method".into(),
+            "binning-bounded".into(),
+            "--set".into(),
+            "bins=5".into(),
+        ],
+    );
+    let v: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(d.join("bins.json")).unwrap()).unwrap();
+    assert_eq!(
+        v["method"],
+        serde_json::json!({"kind": "binning", "bins": 5, "pseudo_count": 1.0})
+    );
+}
+
+/// `--suite FILE` resolves the ids of another suite's method table; an
+/// unknown id lists that suite's ids, and a bad method table is reported
+/// with its file, line and column.
+#[test]
+fn fit_resolves_ids_in_a_given_suite() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let train = d.join("t.csv");
+    fs::write(&train, csv_text(&rows(300, 6, ScoreKind::Probability))).unwrap();
+    let suite = d.join("mine.toml");
+    fs::write(
+        &suite,
+        "name = \"mine\"\n\n[[method]]\nid = \"platt-smoothed\"\nkind = \"platt\"\ntarget_smoothing = true\n\n[[method]]\nid = \"fine-spline\"\nkind = \"spline\"\nintervals = 30\n",
+    )
+    .unwrap();
+    let out = d.join("m.json");
+    let run = |method: &str, suite: &Path| {
+        bin()
+            .args(["fit", "--method", method, "--suite"])
+            .arg(suite)
+            .arg("--scores")
+            .arg(&train)
+            .arg("--out")
+            .arg(&out)
+            .assert()
+    };
+    run("platt-smoothed", &suite).success();
+    let v: serde_json::Value = serde_json::from_str(&fs::read_to_string(&out).unwrap()).unwrap();
+    assert_eq!(
+        v["method"],
+        serde_json::json!({"kind": "platt", "target_smoothing": true})
+    );
+    fs::remove_file(&out).unwrap();
+    let a = run("isotonic-bounded", &suite).failure();
+    let err = String::from_utf8_lossy(&a.get_output().stderr).into_owned();
+    assert!(
+        err.contains("--method isotonic-bounded: not a method id of")
+            && err.contains(
+                "mine.toml (platt-smoothed, fine-spline) nor a method kind (identity, platt,"
+            ),
+        "{err}"
+    );
+    assert!(!out.exists());
+    let bad = d.join("bad.toml");
+    fs::write(
+        &bad,
+        "name = \"bad\"\n\n[[method]]\nid = \"p\"\nkind = \"platt\"\nsmoothing = true\n",
+    )
+    .unwrap();
+    let a = run("p", &bad).failure();
+    let err = String::from_utf8_lossy(&a.get_output().stderr).into_owned();
+    assert!(
+        err.contains("bad.toml:3:1: method `p`: unknown field `smoothing`"),
+        "{err}"
+    );
+    assert!(!out.exists());
+}
+
+/// A case of a committed reference fixture (`tests/fixtures/methods/`, made
+/// by `scripts/fixtures_methods.py`) written as a score file.
+fn fixture_case(d: &Path, file: &str, case: &str) -> (PathBuf, serde_json::Value) {
+    let all: serde_json::Value = serde_json::from_str(
+        &fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join(format!("tests/fixtures/methods/{file}")),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    let c = all["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == case)
+        .unwrap()
+        .clone();
+    let mut text = String::from("score,label\n");
+    for (s, y) in c["scores"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(c["labels"].as_array().unwrap())
+    {
+        let y = y
+            .as_f64()
+            .unwrap_or_else(|| y.as_bool().map_or(f64::NAN, f64::from));
+        text.push_str(&format!("{},{}\n", s.as_f64().unwrap(), y));
+    }
+    let p = d.join(format!("{case}.csv"));
+    fs::write(&p, text).unwrap();
+    (p, c)
+}
+
+/// The number after `NAME = ` on a line of `fit`'s terminal output.
+fn printed(err: &str, name: &str) -> f64 {
+    let line = err
+        .lines()
+        .find(|l| l.trim_start().starts_with(&format!("{name} = ")))
+        .unwrap_or_else(|| panic!("no `{name} = ` line in: {err}"));
+    let rest = &line.trim_start()[name.len() + 3..];
+    rest.split_whitespace().next().unwrap().parse().unwrap()
+}
+
+/// `fit` prints the fitted parameters: Platt's a and b and beta's a, b and c
+/// agree with statsmodels' Logit (fixtures of `scripts/fixtures_methods.py`)
+/// to the six significant digits printed; an isotonic map prints its number
+/// of steps, the distinct values of scipy's `isotonic_regression` fit.
+#[test]
+fn fit_prints_the_fitted_parameters() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let fit_err = |method: &str, scores: &Path| {
+        let a = bin()
+            .args(["fit", "--method", method, "--scores"])
+            .arg(scores)
+            .arg("--out")
+            .arg(d.join("m.json"))
+            .assert()
+            .success();
+        assert!(a.get_output().stdout.is_empty());
+        String::from_utf8_lossy(&a.get_output().stderr).into_owned()
+    };
+    let close = |got: f64, want: f64, what: &str| {
+        assert!(
+            (got - want).abs() <= 1e-5 * want.abs().max(1e-3),
+            "{what}: printed {got}, reference {want}"
+        );
+    };
+    let (p, c) = fixture_case(d, "platt.json", "prob-400");
+    let err = fit_err("platt", &p);
+    close(printed(&err, "a"), c["a"].as_f64().unwrap(), "platt a");
+    close(printed(&err, "b"), c["b"].as_f64().unwrap(), "platt b");
+
+    let (p, c) = fixture_case(d, "beta.json", "beta-200");
+    let err = fit_err("beta", &p);
+    for k in ["a", "b", "c"] {
+        close(printed(&err, k), c["full"][k].as_f64().unwrap(), k);
+    }
+
+    let (p, c) = fixture_case(d, "isotonic.json", "distinct-300");
+    let err = fit_err("isotonic", &p);
+    let mut levels: Vec<f64> = c["fitted"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    levels.sort_by(f64::total_cmp);
+    levels.dedup_by(|a, b| (*a - *b).abs() < 1e-12);
+    assert!(
+        err.contains(&format!("\n  {} steps (", levels.len())),
+        "{} steps expected in: {err}",
+        levels.len()
+    );
+}
+
+/// A probability score outside [0, 1] is refused with a hint in the terms of
+/// the command: `fit` names its `--score-kind` flag, `apply` the map's score
+/// kind, `diagnose` what it reads, and only a suite names the suite key.
+#[test]
+fn out_of_range_hints_name_what_the_user_can_change() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let scores = d.join("wide.csv");
+    fs::write(&scores, "score,label\n0.2,0\n0.7,1\n1.5,1\n0.4,0\n").unwrap();
+    let stderr = |a: assert_cmd::assert::Assert| {
+        String::from_utf8_lossy(&a.get_output().stderr).into_owned()
+    };
+    let at = "wide.csv:4: column `score` (field 1): a probability score must lie in [0, 1]";
+
+    let err = stderr(
+        bin()
+            .args(["fit", "--method", "platt", "--scores"])
+            .arg(&scores)
+            .arg("--out")
+            .arg(d.join("m.json"))
+            .assert()
+            .failure(),
+    );
+    assert!(
+        err.contains(&format!(
+            "{at} (use --score-kind margin for other scores): `1.5`"
+        )),
+        "{err}"
+    );
+    assert!(!err.contains("score_kind ="), "{err}");
+
+    let map = small_map(d);
+    let err = stderr(apply(&map, &scores, &d.join("o.csv")).failure());
+    assert!(
+        err.contains(&format!("{at} (the map was fitted on probabilities; fit one with --score-kind margin for other scores)")),
+        "{err}"
+    );
+
+    let err = stderr(
+        bin()
+            .arg("diagnose")
+            .arg(&scores)
+            .arg("--out")
+            .arg(d.join("diag"))
+            .assert()
+            .failure(),
+    );
+    assert!(
+        err.contains(&format!("{at} (diagnose reads probabilities)")),
+        "{err}"
+    );
+    assert!(!err.contains("score_kind ="), "{err}");
+
+    let suite = d.join("s.toml");
+    fs::write(
+        &suite,
+        "name = \"s\"\nseed = 1\nrepeats = 2\nsizes = [2]\nreference = \"platt\"\n\
+         metrics = [\"log_loss\"]\nprimary_metric = \"log_loss\"\n\n\
+         [[method]]\nid = \"platt\"\nkind = \"platt\"\n\n\
+         [[task]]\nid = \"w\"\nscores = \"wide.csv\"\nscore_column = \"score\"\n\
+         label_column = \"label\"\nscore_kind = \"probability\"\n",
+    )
+    .unwrap();
+    let err = stderr(bin().arg("check").arg(&suite).assert().failure());
+    assert!(
+        err.contains(&format!(
+            "{at} (use score_kind = \"margin\" for other scores)"
+        )),
+        "{err}"
+    );
 }
 
 /// Many batches (the reader and writer stages hand over rows in batches):

@@ -16,7 +16,7 @@ impl FittedMap for IdentityMap {
         }
     }
     fn state(&self) -> super::state::MapState {
-        super::state::MapState::Identity
+        super::state::MapState::Identity {}
     }
 }
 

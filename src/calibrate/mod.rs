@@ -177,7 +177,7 @@ pub fn check_sample(scores: &[f64], labels: &[bool]) -> Result<(), FitError> {
 #[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
 pub enum MethodSpec {
     /// The raw probability, unchanged (probability tasks only).
-    Identity,
+    Identity {},
     /// Platt scaling.
     Platt {
         /// Use Platt's (1999) smoothed targets instead of 0/1 labels.
@@ -249,7 +249,7 @@ impl MethodSpec {
     /// The kind id as written in suites.
     pub fn kind(&self) -> &'static str {
         match self {
-            MethodSpec::Identity => "identity",
+            MethodSpec::Identity {} => "identity",
             MethodSpec::Platt { .. } => "platt",
             MethodSpec::Isotonic { .. } => "isotonic",
             MethodSpec::Beta { .. } => "beta",
@@ -264,7 +264,7 @@ impl MethodSpec {
     /// Check the parameters for a task whose scores are of `score_kind`.
     pub fn validate(&self, score_kind: ScoreKind) -> Result<(), ParamError> {
         match self {
-            MethodSpec::Identity => {
+            MethodSpec::Identity {} => {
                 if score_kind != ScoreKind::Probability {
                     return Err(ParamError::new(
                         "kind",
@@ -327,7 +327,7 @@ impl MethodSpec {
     pub fn build(&self, score_kind: ScoreKind) -> Result<Box<dyn Calibrator>, ParamError> {
         self.validate(score_kind)?;
         Ok(match self {
-            MethodSpec::Identity => Box::new(identity::Identity),
+            MethodSpec::Identity {} => Box::new(identity::Identity),
             MethodSpec::Platt { target_smoothing } => Box::new(platt::Platt {
                 target_smoothing: *target_smoothing,
             }),
@@ -388,6 +388,22 @@ mod spec_tests {
             .unwrap();
         assert!(e.to_string().contains("smoothing"), "{e}");
         assert!(toml::from_str::<W>("m = { kind = \"platypus\" }").is_err());
+        // The identity map takes no parameters: an unknown key is refused
+        // as for every other kind, in a method and in a saved map.
+        let id: W = toml::from_str("m = { kind = \"identity\" }").unwrap();
+        assert_eq!(id.m, MethodSpec::Identity {});
+        let e = toml::from_str::<W>("m = { kind = \"identity\", foo = 1 }")
+            .err()
+            .unwrap();
+        assert!(e.to_string().contains("unknown field `foo`"), "{e}");
+        let e = serde_json::from_str::<state::MapState>(r#"{"kind": "identity", "foo": 1}"#)
+            .err()
+            .unwrap();
+        assert!(e.to_string().contains("unknown field `foo`"), "{e}");
+        assert_eq!(
+            serde_json::to_string(&state::MapState::Identity {}).unwrap(),
+            r#"{"kind":"identity"}"#
+        );
     }
 
     #[test]

@@ -28,7 +28,7 @@ use super::{FittedMap, ScoreKind};
 #[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
 pub enum MapState {
     /// p = s clamped to [0, 1].
-    Identity,
+    Identity {},
     /// p = σ(a·s + b).
     Platt {
         a: f64,
@@ -87,6 +87,23 @@ pub enum MapState {
         tie_p0: Vec<f64>,
         tie_p1: Vec<f64>,
     },
+}
+
+/// A number with six significant digits, without trailing zeros.
+fn sig(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    if !(1e-4..1e9).contains(&v.abs()) {
+        return format!("{v:.5e}");
+    }
+    let digits = (5 - v.abs().log10().floor() as i32).clamp(0, 17) as usize;
+    let t = format!("{v:.digits$}");
+    if t.contains('.') {
+        t.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        t
+    }
 }
 
 fn finite(name: &str, v: f64) -> Result<(), String> {
@@ -174,7 +191,7 @@ impl MapState {
     /// map for a sample with one distinct log-odds).
     pub fn kind(&self) -> &'static str {
         match self {
-            MapState::Identity => "identity",
+            MapState::Identity {} => "identity",
             MapState::Platt { .. } => "platt",
             MapState::Isotonic { .. } => "isotonic",
             MapState::Beta { .. } => "beta",
@@ -186,10 +203,159 @@ impl MapState {
         }
     }
 
+    /// The fitted parameters in short human lines (six significant digits):
+    /// Platt's a and b, beta's a, b and c, the steps of a step map, the
+    /// spline's knots and smoothing, for the terminal after a fit.
+    pub fn summary(&self) -> Vec<String> {
+        fn levels(vs: impl Iterator<Item = f64>) -> (usize, f64, f64) {
+            let v: Vec<f64> = vs.collect();
+            let mut distinct = v.clone();
+            distinct.dedup();
+            let lo = v.first().copied().unwrap_or(f64::NAN);
+            let hi = v.last().copied().unwrap_or(f64::NAN);
+            (distinct.len(), lo, hi)
+        }
+        let smoothed = |on: bool| {
+            if on {
+                vec!["fitted on Platt's smoothed targets (separable sample)".to_string()]
+            } else {
+                Vec::new()
+            }
+        };
+        match self {
+            MapState::Identity {} => vec!["p = score, clamped to [0, 1] (nothing fitted)".into()],
+            MapState::Platt {
+                a,
+                b,
+                smoothed_targets,
+            } => {
+                let mut v = vec![
+                    "p = σ(a·score + b)".to_string(),
+                    format!("a = {} (slope)", sig(*a)),
+                    format!("b = {} (intercept)", sig(*b)),
+                ];
+                v.extend(smoothed(*smoothed_targets));
+                v
+            }
+            MapState::Isotonic {
+                pseudo_count,
+                blocks,
+            } => {
+                let (n, lo, hi) = levels(blocks.iter().map(|b| b.value));
+                vec![format!(
+                    "{n} steps ({} blocks) from {} to {}, pseudo_count = {}",
+                    blocks.len(),
+                    sig(lo),
+                    sig(hi),
+                    sig(*pseudo_count)
+                )]
+            }
+            MapState::Beta {
+                shape,
+                a,
+                b,
+                c,
+                smoothed_targets,
+                ..
+            } => {
+                let mut v = match shape {
+                    BetaShape::Full => vec![
+                        "logit p = a·ln s − b·ln(1 − s) + c".to_string(),
+                        format!("a = {}", sig(*a)),
+                        format!("b = {}", sig(*b)),
+                        format!("c = {}", sig(*c)),
+                    ],
+                    BetaShape::Tied => vec![
+                        "logit p = a·logit s + c (tied: a = b)".to_string(),
+                        format!("a = {}", sig(*a)),
+                        format!("c = {}", sig(*c)),
+                    ],
+                };
+                v.extend(smoothed(*smoothed_targets));
+                v
+            }
+            MapState::Binning { pseudo_count, bins } => {
+                let (n, lo, hi) = levels(bins.iter().map(|b| b.value));
+                vec![format!(
+                    "{} bins, {n} distinct values from {} to {}, pseudo_count = {}",
+                    bins.len(),
+                    sig(lo),
+                    sig(hi),
+                    sig(*pseudo_count)
+                )]
+            }
+            MapState::Temperature {
+                inverse_temperature,
+                smoothed_targets,
+                ..
+            } => {
+                let mut v = vec![
+                    "p = σ(β·log-odds)".to_string(),
+                    format!(
+                        "β = {} (temperature 1/β = {})",
+                        sig(*inverse_temperature),
+                        sig(1.0 / inverse_temperature)
+                    ),
+                ];
+                v.extend(smoothed(*smoothed_targets));
+                v
+            }
+            MapState::CenteredIsotonic {
+                pseudo_count,
+                x,
+                value,
+            } => {
+                let (n, lo, hi) = levels(value.iter().copied());
+                vec![format!(
+                    "{} points, {n} distinct values from {} to {}, pseudo_count = {}",
+                    x.len(),
+                    sig(lo),
+                    sig(hi),
+                    sig(*pseudo_count)
+                )]
+            }
+            MapState::Spline {
+                lo,
+                hi,
+                intervals,
+                lambda,
+                edf,
+                criterion,
+                smoothed_targets,
+                ..
+            } => {
+                let mut v = vec![
+                    format!(
+                        "{intervals} knot intervals on the log-odds [{}, {}], {} coefficients",
+                        sig(*lo),
+                        sig(*hi),
+                        intervals + 3
+                    ),
+                    format!(
+                        "λ = {}{}, effective degrees of freedom {}",
+                        sig(*lambda),
+                        criterion.map_or(" (fixed)".to_string(), |c| format!(
+                            " (chosen by {})",
+                            c.as_str()
+                        )),
+                        sig(*edf)
+                    ),
+                ];
+                v.extend(smoothed(*smoothed_targets));
+                v
+            }
+            MapState::Constant { p } => vec![format!("p = {} for every score", sig(*p))],
+            MapState::VennAbers { scores, .. } => vec![format!(
+                "{} distinct calibration scores (a probability pair per score and gap)",
+                scores.len()
+            )],
+        }
+    }
+
     /// Check that the state describes a usable map of its kind.
     pub fn check(&self) -> Result<(), String> {
         match self {
-            MapState::Identity => Ok(()),
+            MapState::Identity {} => Ok(()),
             MapState::Platt { a, b, .. } => {
                 finite("a", *a)?;
                 finite("b", *b)
@@ -365,7 +531,7 @@ impl MapState {
     pub fn rebuild(&self) -> Result<Box<dyn FittedMap>, String> {
         self.check()?;
         Ok(match self.clone() {
-            MapState::Identity => Box::new(super::identity::IdentityMap),
+            MapState::Identity {} => Box::new(super::identity::IdentityMap),
             MapState::Platt {
                 a,
                 b,

@@ -86,7 +86,7 @@ impl ApplySummary {
 /// How a map treats scores outside its fitted range (docs/map-format.md).
 pub fn range_rule(state: &MapState) -> &'static str {
     match state {
-        MapState::Identity => "the identity map passes them through unchanged",
+        MapState::Identity {} => "the identity map passes them through unchanged",
         MapState::Isotonic { .. } | MapState::CenteredIsotonic { .. } => {
             "the map is flat beyond its ends, so they get the end values (clamped to the fitted range)"
         }
@@ -377,8 +377,11 @@ fn read_batches(
             if !src.next_row(rec)? {
                 return Ok(false);
             }
-            b.scores[b.len] =
-                parse_score(&rec[si], kind).map_err(|problem| bad_value(src, rec, si, problem))?;
+            b.scores[b.len] = parse_score(&rec[si], kind).map_err(|problem| {
+                bad_value(src, rec, si, problem).with_range_hint(
+                    "the map was fitted on probabilities; fit one with --score-kind margin for other scores",
+                )
+            })?;
             b.len += 1;
         }
         Ok(true)

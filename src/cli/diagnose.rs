@@ -403,7 +403,8 @@ fn load(
         truth_column: None,
         fold_column: None,
         origin: Origin::CommandLine,
-    })?;
+    })
+    .map_err(|e| e.with_range_hint("diagnose reads probabilities"))?;
     Ok((l.pool.scores, l.pool.labels))
 }
 
@@ -578,9 +579,11 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
     }
 
     let pct = format!("{}%", num(100.0 * c));
+    // Headed `value`, not after the score column: the column is named in
+    // the title, and a header "score" would read as the score column itself.
     let mut header = vec![
         "metric".to_string(),
-        format!("{} value", args.score_column),
+        "value".to_string(),
         "estimate".to_string(),
         format!("{pct} interval"),
         "interval kind".to_string(),
@@ -652,7 +655,16 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
         notes.push(format!("reading of {name}: {r}"));
     }
     let table = Table {
-        title: format!("{} · {} rows", args.file.display(), y.len()),
+        title: format!(
+            "{} · column `{}`{} · {} rows",
+            args.file.display(),
+            args.score_column,
+            args.compare
+                .as_ref()
+                .map(|c| format!(" compared with `{c}`"))
+                .unwrap_or_default(),
+            y.len()
+        ),
         header,
         rows,
         notes,

@@ -1,14 +1,18 @@
 //! `plumbline fit`: fit one method on a score file and save the map file.
 //!
-//! The method is given as a kind (`--method isotonic`) plus parameters
-//! (`--set pseudo_count=1`), read into the same [`MethodSpec`] a suite's method
-//! table becomes and checked by the same `MethodSpec::validate`, so the map is
-//! fitted by exactly the implementation a benchmark run compares. Before the map
+//! The method is given as a method id of a suite's method table
+//! (`--method isotonic-bounded`: the built-in default suite's, or that of
+//! `--suite FILE`), or as a kind (`--method isotonic`); either takes further
+//! parameters (`--set pseudo_count=1`). Both are read into the same
+//! [`MethodSpec`] a suite's method table becomes and checked by the same
+//! `MethodSpec::validate`, so the map is fitted by exactly the implementation
+//! a benchmark run compares. Before the map
 //! file is written it is read back through [`mapfile::from_bytes`] and its
 //! predictions on the training scores are compared bit for bit with the fitted
 //! map's, so a map that would not reproduce its fit is never saved.
 
-use std::path::PathBuf;
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use anyhow::{bail, Context, Result};
@@ -17,6 +21,53 @@ use serde::Deserialize;
 use crate::calibrate::{MethodSpec, ScoreKind};
 use crate::data::scorefile::{self, Origin, ScoreFileSpec};
 use crate::mapfile::{self, FoldSummary, MapContent, Training};
+use crate::suite::{self, MethodEntry};
+
+/// The default suite's file, built into the binary so that `fit --method ID`
+/// resolves its method ids wherever plumbline runs.
+pub const DEFAULT_SUITE_TEXT: &str = include_str!("../../suites/open-uci.toml");
+
+/// Every method kind with its `--set` keys and the values each takes.
+pub const METHOD_KEYS: &[(&str, &[(&str, &str)])] = &[
+    ("identity", &[]),
+    ("platt", &[("target_smoothing", "true or false")]),
+    ("isotonic", &[("pseudo_count", "a number >= 0")]),
+    ("beta", &[("shape", "full or tied")]),
+    (
+        "binning",
+        &[("bins", "1 to 10000"), ("pseudo_count", "a number >= 0")],
+    ),
+    ("temperature", &[]),
+    ("centered-isotonic", &[("pseudo_count", "a number >= 0")]),
+    (
+        "spline",
+        &[
+            ("intervals", "1 to 200"),
+            ("lambda", "a number > 0"),
+            ("criterion", "aic or bic"),
+        ],
+    ),
+    ("venn-abers", &[]),
+];
+
+/// The long help of `--set`: every kind's keys ([`METHOD_KEYS`]).
+fn set_help() -> String {
+    let mut s = String::from(
+        "A method parameter, as in a suite (repeatable), e.g. `--set pseudo_count=1`; \
+         added to (or replacing) those of a suite method id. Keys by method kind \
+         (docs/methods.md):",
+    );
+    for (kind, keys) in METHOD_KEYS {
+        s.push_str(&format!("\n  {kind}: "));
+        if keys.is_empty() {
+            s.push_str("no parameters");
+        } else {
+            let k: Vec<String> = keys.iter().map(|(k, v)| format!("{k} ({v})")).collect();
+            s.push_str(&k.join(", "));
+        }
+    }
+    s
+}
 
 /// Score kinds on the command line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -38,13 +89,21 @@ impl From<KindArg> for ScoreKind {
 
 #[derive(Debug, Clone, clap::Args)]
 pub struct FitArgs {
-    /// Method kind, as in a suite's `kind` key: identity, platt, isotonic, beta,
-    /// binning, temperature, centered-isotonic, spline, venn-abers.
+    /// Method: an id of the suite's method table (see --suite), e.g.
+    /// `isotonic-bounded`, or a method kind as in a suite's `kind` key:
+    /// identity, platt, isotonic, beta, binning, temperature,
+    /// centered-isotonic, spline, venn-abers. A suite id is looked up first.
     #[arg(long, value_name = "ID")]
     pub method: String,
-    /// A method parameter, as in a suite (repeatable), e.g. `--set pseudo_count=1`.
-    #[arg(long = "set", value_name = "KEY=VALUE")]
+    /// A method parameter, as in a suite (repeatable), e.g. `--set pseudo_count=1`;
+    /// added to (or replacing) those of a suite method id.
+    #[arg(long = "set", value_name = "KEY=VALUE", long_help = set_help())]
     pub set: Vec<String>,
+    /// Suite file whose `[[method]]` tables give the method ids --method
+    /// accepts (only that table is read) [default: the built-in default
+    /// suite, suites/open-uci.toml].
+    #[arg(long, value_name = "FILE")]
+    pub suite: Option<PathBuf>,
     /// Score file: CSV, gzip CSV (`.gz`), Parquet (`.parquet`, `.pq`), or `-` for CSV on stdin.
     #[arg(long, value_name = "FILE")]
     pub scores: PathBuf,
@@ -70,8 +129,13 @@ pub struct FitArgs {
 /// What `fit` did, for the terminal.
 #[derive(Debug, Clone)]
 pub struct FitSummary {
+    /// The method as given to `--method` (a suite id or a kind).
+    pub method: String,
     pub content: MapContent,
     pub out: PathBuf,
+    /// Wall-clock time of the fit alone (shown, not saved: the map file is
+    /// the same bytes for the same inputs and options).
+    pub fit_seconds: f64,
 }
 
 /// One `KEY=VALUE` as a TOML value: numbers, booleans and quoted strings as
@@ -87,7 +151,8 @@ fn toml_value(raw: &str) -> toml::Value {
     }
 }
 
-/// The method spec of `--method` and `--set`, checked for `kind` scores.
+/// The method spec of a method kind (`--method`) and `--set`, checked for
+/// `kind` scores.
 pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<MethodSpec> {
     super::require_name(
         "--method",
@@ -96,6 +161,67 @@ pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<Meth
     )?;
     let mut table = toml::Table::new();
     table.insert("kind".into(), toml::Value::String(method.to_string()));
+    with_set(table, method, set, kind)
+}
+
+/// The method table of the suite `--suite` names, or of the built-in default
+/// suite, with the name to show for it.
+pub fn suite_methods(suite: Option<&Path>) -> Result<(String, Vec<MethodEntry>)> {
+    match suite {
+        Some(p) => Ok((p.display().to_string(), suite::load_methods(p)?)),
+        None => {
+            let name = crate::app::DEFAULT_SUITE;
+            Ok((
+                name.to_string(),
+                suite::parse_methods(DEFAULT_SUITE_TEXT, name)?,
+            ))
+        }
+    }
+}
+
+/// The method spec of `--method` and `--set`: `method` is looked up among
+/// the ids of `table` (the method table of `suite_name`) first, then among
+/// the method kinds; `--set` adds or replaces parameters. Checked for `kind`
+/// scores.
+pub fn resolve_method(
+    method: &str,
+    set: &[String],
+    kind: ScoreKind,
+    suite_name: &str,
+    table: &[MethodEntry],
+) -> Result<MethodSpec> {
+    super::require_name(
+        "--method",
+        method,
+        &format!("give a method id of {suite_name} (e.g. isotonic-bounded) or a method kind: identity, platt, isotonic, beta, binning, temperature, centered-isotonic, spline or venn-abers"),
+    )?;
+    if let Some(entry) = table.iter().find(|m| m.id == method) {
+        let Ok(toml::Value::Table(t)) = toml::Value::try_from(&entry.spec) else {
+            bail!("internal error: the method `{method}` of {suite_name} is not a table");
+        };
+        return with_set(t, method, set, kind);
+    }
+    if METHOD_KEYS.iter().any(|(k, _)| *k == method) {
+        return method_spec(method, set, kind);
+    }
+    let kinds: Vec<&str> = METHOD_KEYS.iter().map(|(k, _)| *k).collect();
+    let ids: Vec<&str> = table.iter().map(|m| m.id.as_str()).collect();
+    bail!(
+        "--method {method}: not a method id of {suite_name} ({}) nor a method kind ({}); --suite FILE looks ids up in another suite",
+        ids.join(", "),
+        kinds.join(", ")
+    )
+}
+
+/// A method table (`kind` plus parameters) with the `--set` parameters
+/// added, read into a checked [`MethodSpec`].
+fn with_set(
+    mut table: toml::Table,
+    method: &str,
+    set: &[String],
+    kind: ScoreKind,
+) -> Result<MethodSpec> {
+    let mut given = BTreeSet::new();
     for s in set {
         let Some((k, v)) = s.split_once('=') else {
             bail!("--set {s}: expected KEY=VALUE");
@@ -106,9 +232,10 @@ pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<Meth
                 "--set {s}: give the method with --method and its parameters with --set KEY=VALUE"
             );
         }
-        if table.insert(k.to_string(), toml_value(v.trim())).is_some() {
+        if !given.insert(k.to_string()) {
             bail!("--set {s}: `{k}` is set twice");
         }
+        table.insert(k.to_string(), toml_value(v.trim()));
     }
     let spec = MethodSpec::deserialize(toml::Value::Table(table))
         .map_err(|e| anyhow::anyhow!("--method {method}: {}", e.message()))?;
@@ -120,7 +247,8 @@ pub fn method_spec(method: &str, set: &[String], kind: ScoreKind) -> Result<Meth
 /// Run `plumbline fit`.
 pub fn run(args: &FitArgs) -> Result<FitSummary> {
     let kind: ScoreKind = args.score_kind.into();
-    let spec = method_spec(&args.method, &args.set, kind)?;
+    let (suite_name, table) = suite_methods(args.suite.as_deref())?;
+    let spec = resolve_method(&args.method, &args.set, kind, &suite_name, &table)?;
     let fspec = ScoreFileSpec {
         path: args.scores.clone(),
         score_column: args.score_column.clone(),
@@ -131,7 +259,8 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
         fold_column: args.fold_column.clone(),
         origin: Origin::CommandLine,
     };
-    let loaded = scorefile::load(&fspec)?;
+    let loaded = scorefile::load(&fspec)
+        .map_err(|e| e.with_range_hint("use --score-kind margin for other scores"))?;
     let (scores, labels) = (&loaded.pool.scores, &loaded.pool.labels);
     let calibrator = spec.build(kind)?;
     let t0 = Instant::now();
@@ -164,6 +293,16 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
     } else {
         args.scores.display().to_string()
     };
+    // The bytes of a regular file identify the input; a stream (stdin, a
+    // pipe) was consumed by the load and is recorded without a hash.
+    let source_sha256 = if args.scores.as_os_str() != "-" && args.scores.is_file() {
+        Some(
+            crate::suite::file_sha256(&args.scores)
+                .with_context(|| format!("{}: cannot hash", args.scores.display()))?,
+        )
+    } else {
+        None
+    };
     let content = MapContent {
         format: mapfile::FORMAT.into(),
         schema_version: mapfile::SCHEMA_VERSION,
@@ -182,7 +321,8 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
             distinct_scores: distinct.len() as u64,
             folds,
             notes: fitted.notes.iter().map(|s| s.to_string()).collect(),
-            fit_seconds,
+            source_sha256,
+            fit_seconds: None,
         },
         fitted: fitted.map.state(),
     };
@@ -206,12 +346,38 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
     }
     super::write_atomic(&args.out, &bytes)?;
     Ok(FitSummary {
+        method: args.method.clone(),
         content,
         out: args.out.clone(),
+        fit_seconds,
     })
 }
 
-/// One line about a written map, for the terminal.
+/// The method as given, with its kind (when the name is a suite id) and
+/// every parameter: `isotonic-bounded (isotonic, pseudo_count = 1.0)`.
+pub fn method_label(given: &str, spec: &MethodSpec) -> String {
+    let mut parts: Vec<String> = Vec::new();
+    if given != spec.kind() {
+        parts.push(spec.kind().to_string());
+    }
+    if let Ok(toml::Value::Table(t)) = toml::Value::try_from(spec) {
+        parts.extend(
+            t.iter()
+                .filter(|(k, _)| k.as_str() != "kind")
+                .map(|(k, v)| format!("{k} = {v}")),
+        );
+    }
+    if parts.is_empty() {
+        given.to_string()
+    } else {
+        format!("{given} ({})", parts.join(", "))
+    }
+}
+
+/// About a written map, for the terminal: one line on the fit, then one
+/// indented line per fitted parameter ([`MapState::summary`]).
+///
+/// [`MapState::summary`]: crate::calibrate::state::MapState::summary
 pub fn describe(s: &FitSummary) -> String {
     let t = &s.content.training;
     let notes = if t.notes.is_empty() {
@@ -224,15 +390,85 @@ pub fn describe(s: &FitSummary) -> String {
         .as_ref()
         .map(|f| format!(" · {} folds", f.len()))
         .unwrap_or_default();
-    format!(
+    let mut text = format!(
         "{} fitted on {} rows ({} positive, {} distinct scores in [{}, {}]){folds} in {:.3} s{notes} → {}",
-        s.content.method.kind(),
+        method_label(&s.method, &s.content.method),
         t.rows,
         t.positives,
         t.distinct_scores,
         t.score_min,
         t.score_max,
-        t.fit_seconds,
+        s.fit_seconds,
         s.out.display()
-    )
+    );
+    for line in s.content.fitted.summary() {
+        text.push_str("\n  ");
+        text.push_str(&line);
+    }
+    text
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The names a serde error lists after "expected" (in backticks).
+    fn expected_names(message: &str) -> BTreeSet<String> {
+        let tail = message.split("expected").nth(1).unwrap_or("");
+        tail.split('`')
+            .skip(1)
+            .step_by(2)
+            .map(str::to_string)
+            .collect()
+    }
+
+    /// [`METHOD_KEYS`] (shown by `fit --help`) is the parameter list of
+    /// [`MethodSpec`]: every kind, every key, each key accepted with a value
+    /// of the kind described, and no key left out (serde's unknown-field
+    /// error lists the keys a kind takes).
+    #[test]
+    fn method_keys_match_the_method_spec() {
+        let e = method_spec("no-such-kind", &[], ScoreKind::Probability)
+            .err()
+            .unwrap()
+            .to_string();
+        let kinds: BTreeSet<String> = METHOD_KEYS.iter().map(|(k, _)| k.to_string()).collect();
+        assert_eq!(expected_names(&e), kinds, "{e}");
+        let sample = |key: &str| match key {
+            "target_smoothing" => "true",
+            "pseudo_count" => "1",
+            "shape" => "tied",
+            "bins" => "5",
+            "intervals" => "8",
+            "lambda" => "2",
+            "criterion" => "bic",
+            other => panic!("no sample value for `{other}`"),
+        };
+        for (kind, keys) in METHOD_KEYS {
+            for (key, _) in *keys {
+                let set = vec![format!("{key}={}", sample(key))];
+                method_spec(kind, &set, ScoreKind::Margin)
+                    .unwrap_or_else(|e| panic!("{kind} {set:?}: {e}"));
+            }
+            let e = method_spec(kind, &["zz_unknown=1".into()], ScoreKind::Probability)
+                .err()
+                .unwrap()
+                .to_string();
+            assert!(e.contains("unknown field `zz_unknown`"), "{kind}: {e}");
+            let want: BTreeSet<String> = keys.iter().map(|(k, _)| k.to_string()).collect();
+            assert_eq!(expected_names(&e), want, "{kind}: {e}");
+        }
+        // The long help shows every key.
+        let mut cmd = <FitArgs as clap::Args>::augment_args(clap::Command::new("fit"));
+        let help = cmd.render_long_help().to_string();
+        for (kind, keys) in METHOD_KEYS {
+            let line = help
+                .lines()
+                .find(|l| l.trim_start().starts_with(&format!("{kind}: ")))
+                .unwrap_or_else(|| panic!("no line for {kind} in {help}"));
+            for (key, _) in *keys {
+                assert!(line.contains(key), "{kind}: {line}");
+            }
+        }
+    }
 }

@@ -168,6 +168,23 @@ pub fn parse_label(s: &str) -> Option<bool> {
     }
 }
 
+/// The problem of a probability score outside [0, 1]; each command adds
+/// what to do about it in its own terms ([`ScoreFileError::with_range_hint`]).
+pub const NOT_A_PROBABILITY: &str = "a probability score must lie in [0, 1]";
+
+impl ScoreFileError {
+    /// Add `hint` to the message of a probability score outside [0, 1]
+    /// (other errors are returned as they are).
+    pub fn with_range_hint(mut self, hint: &str) -> Self {
+        if let ScoreFileError::BadValue { problem, .. } = &mut self {
+            if problem == NOT_A_PROBABILITY {
+                *problem = format!("{NOT_A_PROBABILITY} ({hint})");
+            }
+        }
+        self
+    }
+}
+
 /// Parse a score field: a finite number, inside [0, 1] for probability scores.
 /// `Err` holds the problem for the message.
 pub fn parse_score(raw: &[u8], kind: ScoreKind) -> Result<f64, &'static str> {
@@ -177,9 +194,7 @@ pub fn parse_score(raw: &[u8], kind: ScoreKind) -> Result<f64, &'static str> {
         return Err("scores must be finite");
     }
     if kind == ScoreKind::Probability && !(0.0..=1.0).contains(&s) {
-        return Err(
-            "a probability score must lie in [0, 1] (use score_kind = \"margin\" for other scores)",
-        );
+        return Err(NOT_A_PROBABILITY);
     }
     Ok(s)
 }
@@ -322,7 +337,13 @@ pub fn load(spec: &ScoreFileSpec) -> Result<LoadedScores, ScoreFileError> {
                 .unwrap_or("\u{fffd}")
                 .trim()
         };
-        let s = parse_score(&record[si], spec.score_kind).map_err(|p| bad(si, p))?;
+        let s = parse_score(&record[si], spec.score_kind).map_err(|p| match spec.origin {
+            Origin::Suite => {
+                bad(si, p).with_range_hint("use score_kind = \"margin\" for other scores")
+            }
+            // The command names its own flag (or says what it reads).
+            Origin::CommandLine => bad(si, p),
+        })?;
         let y =
             parse_label(text(li)).ok_or_else(|| bad(li, "a label must be 0/1 or true/false"))?;
         if let (Some(i), Some(v)) = (pi, sides.as_mut()) {

@@ -499,13 +499,19 @@ pub const DEFAULT_TEST_FRACTION: f64 = 0.3;
 
 /// Read, parse and validate a suite file.
 pub fn load(path: &Path) -> Result<Plan, SuiteError> {
+    let (text, sha) = read_text(path)?;
+    parse(&text, path, sha)
+}
+
+/// A suite file's text and the SHA-256 (hex) of its bytes.
+fn read_text(path: &Path) -> Result<(String, String), SuiteError> {
     let file = path.display().to_string();
     let bytes = crate::limits::read_bounded(path, &crate::limits::MAX_SUITE)
         .map_err(|e| SuiteError::whole_file(&file, format!("cannot read the suite: {e}")))?;
     let sha = hex(&Sha256::digest(&bytes));
     let text = String::from_utf8(bytes)
         .map_err(|e| SuiteError::whole_file(&file, format!("the suite is not UTF-8 text: {e}")))?;
-    parse(&text, path, sha)
+    Ok((text, sha))
 }
 
 /// SHA-256 (hex) of a file's bytes, read in blocks (constant memory). Only
@@ -778,43 +784,8 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
     };
 
     // Methods.
-    if raw.method.is_empty() {
-        return Err(ctx.err(0..0, "method", "the suite lists no [[method]] tables"));
-    }
-    let mut methods: Vec<(MethodEntry, std::ops::Range<usize>)> = Vec::new();
-    // Ids seen so far, for the duplicate check (a set: suites of many
-    // methods are checked in n log n, not by a scan per method).
-    let mut method_ids: BTreeSet<String> = BTreeSet::new();
-    for (i, m) in raw.method.iter().enumerate() {
-        let mut table = m.get_ref().clone();
-        let label = format!("method #{}", i + 1);
-        let id = take_id(&ctx, &mut table, m.span(), &label)?;
-        if !table.contains_key("kind") {
-            return Err(ctx.err(
-                m.span(),
-                &format!("method `{id}`"),
-                "missing key `kind` (which method)",
-            ));
-        }
-        let spec: MethodSpec =
-            toml::Value::Table(table)
-                .try_into()
-                .map_err(|e: toml::de::Error| {
-                    ctx.err(
-                        m.span(),
-                        &format!("method `{id}`"),
-                        e.message().trim().to_string(),
-                    )
-                })?;
-        if !method_ids.insert(id.clone()) {
-            return Err(ctx.err(
-                m.span(),
-                &format!("method `{id}`"),
-                "this id is used by another method",
-            ));
-        }
-        methods.push((MethodEntry { id, spec }, m.span()));
-    }
+    let methods = read_methods(&ctx, &raw.method)?;
+    let method_ids: BTreeSet<String> = methods.iter().map(|(m, _)| m.id.clone()).collect();
     let study = match &raw.protocol_study {
         None => None,
         Some(st) => {
@@ -1511,6 +1482,78 @@ fn reliability_plan(
         plan.band.level = l;
     }
     Ok(plan)
+}
+
+/// The `[[method]]` tables of a suite, each with its id taken and checked and
+/// its parameters read into a [`MethodSpec`], with the span of its table.
+fn read_methods(
+    ctx: &Ctx,
+    raw: &[Spanned<toml::Table>],
+) -> Result<Vec<(MethodEntry, std::ops::Range<usize>)>, SuiteError> {
+    if raw.is_empty() {
+        return Err(ctx.err(0..0, "method", "the suite lists no [[method]] tables"));
+    }
+    let mut methods: Vec<(MethodEntry, std::ops::Range<usize>)> = Vec::new();
+    // Ids seen so far, for the duplicate check (a set: suites of many
+    // methods are checked in n log n, not by a scan per method).
+    let mut method_ids: BTreeSet<String> = BTreeSet::new();
+    for (i, m) in raw.iter().enumerate() {
+        let mut table = m.get_ref().clone();
+        let label = format!("method #{}", i + 1);
+        let id = take_id(ctx, &mut table, m.span(), &label)?;
+        if !table.contains_key("kind") {
+            return Err(ctx.err(
+                m.span(),
+                &format!("method `{id}`"),
+                "missing key `kind` (which method)",
+            ));
+        }
+        let spec: MethodSpec =
+            toml::Value::Table(table)
+                .try_into()
+                .map_err(|e: toml::de::Error| {
+                    ctx.err(
+                        m.span(),
+                        &format!("method `{id}`"),
+                        e.message().trim().to_string(),
+                    )
+                })?;
+        if !method_ids.insert(id.clone()) {
+            return Err(ctx.err(
+                m.span(),
+                &format!("method `{id}`"),
+                "this id is used by another method",
+            ));
+        }
+        methods.push((MethodEntry { id, spec }, m.span()));
+    }
+    Ok(methods)
+}
+
+/// Only the `[[method]]` tables of a suite file, checked as [`load`] checks
+/// them; the rest of the file must be TOML but is not validated (its data
+/// are not read). `plumbline fit --suite` names a method by its id here.
+pub fn load_methods(path: &Path) -> Result<Vec<MethodEntry>, SuiteError> {
+    let (text, _) = read_text(path)?;
+    parse_methods(&text, &path.display().to_string())
+}
+
+/// [`load_methods`] on suite text; `file` names it in messages.
+pub fn parse_methods(text: &str, file: &str) -> Result<Vec<MethodEntry>, SuiteError> {
+    #[derive(Deserialize)]
+    struct RawMethods {
+        #[serde(default)]
+        method: Vec<Spanned<toml::Table>>,
+    }
+    let ctx = Ctx {
+        file: file.to_string(),
+        text,
+    };
+    let raw: RawMethods = toml::from_str(text).map_err(|e| toml_err(&ctx, &e, "(suite)"))?;
+    Ok(read_methods(&ctx, &raw.method)?
+        .into_iter()
+        .map(|(m, _)| m)
+        .collect())
 }
 
 /// Remove and check the `id` key of a `[[method]]` or `[[model]]` table.
