@@ -549,6 +549,44 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
     out
 }
 
+/// The commands that take the primary decision's recommendation to
+/// production, with the suite the method ids come from.
+fn production_block(d: &Decision, ctx: &ReportContext) -> Vec<Block> {
+    // Each calibrating method recommended somewhere, with its sizes.
+    let mut picks: Vec<(String, Vec<usize>)> = Vec::new();
+    for v in &d.per_size {
+        if v.recommended.is_empty() || Some(&v.recommended) == d.raw.as_ref() {
+            continue;
+        }
+        match picks.iter_mut().find(|p| p.0 == v.recommended) {
+            Some(p) => p.1.push(v.size),
+            None => picks.push((v.recommended.clone(), vec![v.size])),
+        }
+    }
+    if picks.is_empty() {
+        return Vec::new();
+    }
+    let suite = if ctx.suite_file.starts_with('(') {
+        String::new()
+    } else {
+        format!(" --suite {}", ctx.suite_file)
+    };
+    let lines: Vec<String> = picks
+        .iter()
+        .map(|(m, sizes)| {
+            format!(
+                "`plumbline fit --method {m}{suite} --scores LABELLED.csv --score-column SCORE --label-column LABEL --out {m}.map` (recommended at n = {})",
+                sizes.iter().map(|n| n.to_string()).collect::<Vec<_>>().join(", ")
+            )
+        })
+        .collect();
+    vec![Block::Para(format!(
+        "**To production.** Fit the recommended method on your own labelled calibration rows — as many as the size it is recommended at, drawn from the population it will serve — then apply the map to new scores with `plumbline apply {}.map --scores NEW.csv --out CALIBRATED.csv`, and check it with `plumbline diagnose` on held-out labelled rows: {}. Add `--score-kind margin` when the scores are log-odds or another unbounded score. Where the decision keeps the raw scores for a base model, use the scores as they are.",
+        picks[0].0,
+        lines.join("; ")
+    ))]
+}
+
 /// The evidence paragraph and the caveats under the decision.
 fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
     let s = &ctx.settings;
@@ -886,6 +924,9 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
     }
     for (i, d) in a.decisions.iter().enumerate() {
         b.extend(decision_blocks(d, i == 0, detail));
+    }
+    if let Some(d) = a.decisions.first() {
+        b.extend(production_block(d, ctx));
     }
     b.extend(evidence_blocks(a, ctx));
     b.push(Block::Caution(CAUTION.into()));
