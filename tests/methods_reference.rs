@@ -2,8 +2,10 @@
 //!
 //! Fixtures under tests/fixtures/methods/ are written by
 //! scripts/fixtures_methods.py (library versions in each file's "generator"
-//! header); the script documents how each reference value is computed.
+//! header); the script documents how each reference value is computed. The
+//! Venn–Abers fixture is written by scripts/fixtures_venn_abers.py.
 
+use plumbline::calibrate::venn_abers::{merge_pair, VennAbersTable};
 use plumbline::calibrate::{beta, logistic, Fitted, MethodSpec, ScoreKind};
 use plumbline::split::splitmix64;
 use serde_json::Value;
@@ -398,4 +400,81 @@ fn beta_separation_rule_matches_linear_programme() {
     // The fixture exercises both outcomes of both rules.
     assert!(full_sep > 20 && full_sep < cases.len() - 20);
     assert!(one_sep > 10 && one_sep < cases.len() - 10);
+}
+
+/// Inductive Venn–Abers vs the definition. Independent reference: scikit-learn
+/// 1.9 IsotonicRegression, refitted on the calibration sample plus (s, 0) and
+/// plus (s, 1) for every test score s (Vovk & Petej 2014), cross-checked in the
+/// script with scipy 1.17 isotonic_regression; versions in the fixture header.
+/// The crate's cumulative-sum-diagram algorithm shares nothing with it.
+///
+/// Tie convention: the reference (scikit-learn) merges rows with equal scores,
+/// the test row included, into one point of weight = count and value = mean
+/// label before PAV, so tied scores share one fitted value ("secondary"
+/// approach, de Leeuw 1977). The crate merges ties the same way, so the
+/// fixture's test scores that equal a calibration score check that convention.
+///
+/// Tolerance 1e-12: the crate divides two exact integers once per value; the
+/// reference pools by floating-point weighted means, so it is off by a few ulps.
+#[test]
+fn venn_abers_matches_sklearn_isotonic_refits() {
+    let v: Value = serde_json::from_str(include_str!("fixtures/methods/venn_abers.json"))
+        .expect("fixture is valid JSON");
+    assert!(
+        v["generator"]["scikit-learn"].is_string(),
+        "fixture names its library versions"
+    );
+    let cases = v["cases"].as_array().unwrap();
+    assert!(cases.len() >= 5, "fixture has its cases");
+    const TOL: f64 = 1e-12;
+    let mut on_calibration_score = 0;
+    for c in cases {
+        let name = c["name"].as_str().unwrap();
+        let (s, y) = sample(c);
+        let test = f64s(&c["test"]);
+        let (p0, p1, merged) = (f64s(&c["p0"]), f64s(&c["p1"]), f64s(&c["merged"]));
+        assert_eq!(p0.len(), test.len(), "{name}: p0 per test score");
+        assert_eq!(p1.len(), test.len(), "{name}: p1 per test score");
+
+        let table = VennAbersTable::new(&s, &y).unwrap();
+        let (mut g0, mut g1, mut gm) = (vec![], vec![], vec![]);
+        for &x in &test {
+            let (a, b) = table.pair(x);
+            g0.push(a);
+            g1.push(b);
+            gm.push(merge_pair(a, b));
+            on_calibration_score += s.contains(&x) as usize;
+        }
+        assert_close(&g0, &p0, TOL, &format!("{name}: p0"));
+        assert_close(&g1, &p1, TOL, &format!("{name}: p1"));
+        assert_close(&gm, &merged, TOL, &format!("{name}: merged"));
+
+        // The same through the method as a suite builds it: predictions and the
+        // `va_width` extra (mean p1 − p0 over the test scores).
+        let kind = if name.starts_with("margin") || name.starts_with("one-negative") {
+            ScoreKind::Margin
+        } else {
+            ScoreKind::Probability
+        };
+        let f = fit("{ kind = \"venn-abers\" }", kind, &s, &y);
+        assert_close(
+            &predict(&f, &test),
+            &merged,
+            TOL,
+            &format!("{name}: predict"),
+        );
+        let extras = f.map.extras(&test);
+        assert_eq!(extras.len(), 1, "{name}: one extra");
+        assert_eq!(extras[0].0, "va_width");
+        assert!(
+            (extras[0].1 - num(c, "width")).abs() <= TOL,
+            "{name}: va_width {} vs {}",
+            extras[0].1,
+            num(c, "width")
+        );
+    }
+    assert!(
+        on_calibration_score > 100,
+        "the fixture probes test scores tied with calibration scores"
+    );
 }

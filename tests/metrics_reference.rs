@@ -3,7 +3,9 @@
 //! The fixture `tests/fixtures/metrics/reference.json` is written by
 //! `scripts/fixtures_metrics.py`, which records the numpy, scipy, scikit-learn
 //! and statsmodels versions it ran with. Each case holds a simulated test set,
-//! its metric settings and the reference values.
+//! its metric settings and the reference values. The binned-ECE fixture
+//! `tests/fixtures/metrics/ece_binned.json` is written by
+//! `scripts/fixtures_ece.py` (numpy version in its `generator` header).
 
 use plumbline::metrics::{smooth_ece, MetricId, MetricSettings};
 use serde::Deserialize;
@@ -130,5 +132,59 @@ fn ici_without_skipping() {
         let want = c.expected["ici_delta_0"];
         let got = MetricId::Ici.compute(&c.p, &y, &s);
         assert!((got - want).abs() < 1e-10, "{}: {got} vs {want}", c.name);
+    }
+}
+
+/// Binned ECE against an independent numpy computation of the published
+/// formula Σ_k (n_k/n)|p̄_k − ȳ_k| (Naeini, Cooper & Hauskrecht 2015; Guo et
+/// al. 2017). Independent reference: numpy 2.4 `histogram(p, bins=K,
+/// range=(0, 1))` (its own edges and bin rule) for `ece_width`; order-statistic
+/// thresholds x[⌊jn/K⌋ − 1] with `searchsorted` for `ece_mass` (ties share a
+/// bin). Neither copies the crate's bin loop.
+///
+/// Edge convention: numpy compares with its linspace edges, so the double
+/// "0.3" (just below 3/10) falls in the bin below 0.3 for K = 10, while the
+/// crate's ⌊p·K⌋ puts it in the bin above. The fixture puts predictions on
+/// edges only where every edge k/K is an exact double (K = 8 and 16, grid
+/// 1/64), where the two agree; elsewhere no prediction is near an edge.
+///
+/// Tolerance 1e-12: the same sums in another order.
+#[test]
+fn binned_ece_matches_numpy_histogram_and_order_statistics() {
+    let v: serde_json::Value =
+        serde_json::from_str(include_str!("fixtures/metrics/ece_binned.json"))
+            .expect("fixture is valid JSON");
+    assert!(
+        v["generator"]["numpy"].is_string(),
+        "fixture names its library versions"
+    );
+    let cases = v["cases"].as_array().unwrap();
+    assert!(cases.len() >= 5, "fixture has its cases");
+    for c in cases {
+        let name = c["name"].as_str().unwrap();
+        let p: Vec<f64> = serde_json::from_value(c["p"].clone()).unwrap();
+        let y: Vec<bool> = c["y"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_i64().unwrap() == 1)
+            .collect();
+        assert_eq!(p.len(), y.len(), "{name}: predictions against labels");
+        let settings = MetricSettings {
+            ece_bins: c["bins"].as_u64().unwrap() as usize,
+            ..MetricSettings::default()
+        };
+        settings.validate().unwrap();
+        for (m, key) in [
+            (MetricId::EceWidth, "ece_width"),
+            (MetricId::EceMass, "ece_mass"),
+        ] {
+            let want = c[key].as_f64().unwrap();
+            let got = m.compute(&p, &y, &settings);
+            assert!(
+                (got - want).abs() <= 1e-12,
+                "{name} {key}: got {got}, reference {want}"
+            );
+        }
     }
 }
