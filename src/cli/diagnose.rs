@@ -692,8 +692,8 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
     let label = args.file.display().to_string();
     let heading = format!(
         "{}: reliability of {} ({} rows)",
-        figures::esc(&label),
-        figures::esc(&names.join(" and ")),
+        label,
+        names.join(" and "),
         y.len()
     );
     let svg = figures::reliability_grid(

@@ -19,55 +19,95 @@
 //!   (flexible, parametric) pair, the size from which the flexible method is
 //!   reliably better at every larger size tried.
 //!
-//! Every method keeps one colour and one marker in every figure ([`style`]),
-//! from the Okabe & Ito (2008) colour-blind-safe palette.
+//! Every method keeps one colour, marker and dash in every figure
+//! ([`style`]; colours from Paul Tol's colour-blind-safe "muted" scheme, each
+//! at least 3:1 against white), no two methods sharing both colour and
+//! marker; every figure carries a key per method (`<g class="key"
+//! data-method="...">`: marker and name). Text is placed to stay inside the
+//! canvas and clear of other text by an estimated width of 0.6 × font size
+//! per character: headings wrap, labels near a panel edge turn inward, and
+//! tick labels carry only the decimals their step needs.
 
-use super::fmt_diff;
 use crate::analysis::Analysis;
 use crate::metrics::reliability::{CurveRecord, LOGIT_RANGE};
 use crate::metrics::MetricId;
 
-/// Okabe & Ito (2008) colour-blind-safe palette (black last).
-const COLOURS: [&str; 8] = [
-    "#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000", "#F0E442",
+/// Line and marker colours: Paul Tol's colour-blind-safe "muted" scheme
+/// (P. Tol, "Colour Schemes", SRON technical note SRON/EPS/TN/09-002, 2021),
+/// without its pale sand (#DDCC77) and pale cyan (#88CCEE), which are too
+/// light on white; its teal #44AA99 is darkened to 90% (#3D9989) for the
+/// same reason; black last. Every colour has a contrast ratio of at least
+/// 3:1 against white (WCAG 2.1, success criterion 1.4.11, checked by a test).
+pub const COLOURS: [&str; 8] = [
+    "#332288", "#CC6677", "#117733", "#999933", "#AA4499", "#3D9989", "#882255", "#000000",
 ];
 
-/// Marker shapes; past eight methods the colours repeat with another shape
-/// and a dashed line.
+/// Marker shapes, cycled independently of the colours.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Marker {
     Circle,
     Square,
     Triangle,
+    Diamond,
+    TriangleDown,
 }
+
+/// The markers in the order methods take them.
+pub const MARKERS: [Marker; 5] = [
+    Marker::Circle,
+    Marker::Square,
+    Marker::Triangle,
+    Marker::Diamond,
+    Marker::TriangleDown,
+];
+
+impl Marker {
+    /// The marker's name, written as the class of every marker drawn.
+    pub fn name(self) -> &'static str {
+        match self {
+            Marker::Circle => "circle",
+            Marker::Square => "square",
+            Marker::Triangle => "triangle",
+            Marker::Diamond => "diamond",
+            Marker::TriangleDown => "triangle-down",
+        }
+    }
+}
+
+/// Line dashes: solid for the first eight methods, then dashed, then dotted.
+const DASHES: [&str; 3] = ["", "6 3", "2 2"];
 
 /// How one method is drawn.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Style {
     pub colour: &'static str,
     pub marker: Marker,
-    pub dashed: bool,
+    /// `stroke-dasharray` of the method's lines; empty = solid.
+    pub dash: &'static str,
 }
 
 /// The style of the method at position `i` in the suite's method list.
+/// Colours cycle with period 8 and markers with period 5, so the first 40
+/// methods all differ in (colour, marker), and neighbours in the list differ
+/// in both; the dash changes with every round of the colours.
 pub fn style(i: usize) -> Style {
-    let round = i / COLOURS.len();
     Style {
         colour: COLOURS[i % COLOURS.len()],
-        marker: [Marker::Circle, Marker::Square, Marker::Triangle][round % 3],
-        dashed: round > 0,
+        marker: MARKERS[i % MARKERS.len()],
+        dash: DASHES[(i / COLOURS.len()) % DASHES.len()],
     }
 }
 
-/// The style of a method by name (`uncalibrated` takes the identity method's
-/// style when the suite has none: black squares).
+/// The style of a method by name; a series outside the suite's method list
+/// (the raw scores, `uncalibrated`) is drawn in a grey that no method takes,
+/// with squares and a dashed line.
 pub fn style_of(a: &Analysis, method: &str) -> Style {
     match a.methods.iter().position(|m| m == method) {
         Some(i) => style(i),
         None => Style {
             colour: "#555555",
             marker: Marker::Square,
-            dashed: true,
+            dash: "6 3",
         },
     }
 }
@@ -104,38 +144,47 @@ fn point_list(pts: impl Iterator<Item = (f64, f64)>) -> String {
     out.join(" ")
 }
 
+/// A marker of radius about `r` at (x, y), its shape named in its class
+/// (`m-circle`, `m-square`, ...).
 fn marker(m: Marker, x: f64, y: f64, r: f64, fill: &str) -> String {
+    let class = m.name();
+    let poly = |pts: &[(f64, f64)]| {
+        let mut d = String::new();
+        for (i, (dx, dy)) in pts.iter().enumerate() {
+            d.push_str(&format!(
+                "{}{} {}",
+                if i == 0 { "M" } else { "L" },
+                f(x + dx * r),
+                f(y + dy * r)
+            ));
+        }
+        format!("<path class=\"m-{class}\" d=\"{d}Z\" fill=\"{fill}\"/>")
+    };
     match m {
         Marker::Circle => format!(
-            "<circle cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"{fill}\"/>",
+            "<circle class=\"m-{class}\" cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"{fill}\"/>",
             f(x),
             f(y),
             f(r)
         ),
         Marker::Square => format!(
-            "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" fill=\"{fill}\"/>",
-            f(x - r),
-            f(y - r),
-            f(2.0 * r),
-            f(2.0 * r)
+            "<rect class=\"m-{class}\" x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" fill=\"{fill}\"/>",
+            f(x - 0.9 * r),
+            f(y - 0.9 * r),
+            f(1.8 * r),
+            f(1.8 * r)
         ),
-        Marker::Triangle => format!(
-            "<path d=\"M{} {}L{} {}L{} {}Z\" fill=\"{fill}\"/>",
-            f(x),
-            f(y - 1.2 * r),
-            f(x + 1.1 * r),
-            f(y + 0.8 * r),
-            f(x - 1.1 * r),
-            f(y + 0.8 * r)
-        ),
+        Marker::Triangle => poly(&[(0.0, -1.2), (1.1, 0.8), (-1.1, 0.8)]),
+        Marker::TriangleDown => poly(&[(0.0, 1.2), (1.1, -0.8), (-1.1, -0.8)]),
+        Marker::Diamond => poly(&[(0.0, -1.3), (1.1, 0.0), (0.0, 1.3), (-1.1, 0.0)]),
     }
 }
 
-fn dash(s: Style) -> &'static str {
-    if s.dashed {
-        " stroke-dasharray=\"6 3\""
+fn dash(s: Style) -> String {
+    if s.dash.is_empty() {
+        String::new()
     } else {
-        ""
+        format!(" stroke-dasharray=\"{}\"", s.dash)
     }
 }
 
@@ -146,8 +195,8 @@ fn open_svg(w: f64, h: f64, label: &str) -> String {
     )
 }
 
-/// "Nice" tick values covering [lo, hi].
-fn ticks(lo: f64, hi: f64, n: usize) -> Vec<f64> {
+/// "Nice" tick values covering [lo, hi], with their step.
+fn ticks(lo: f64, hi: f64, n: usize) -> (Vec<f64>, f64) {
     let span = (hi - lo).abs().max(1e-12);
     let raw = span / n as f64;
     let mag = 10f64.powf(raw.log10().floor());
@@ -163,7 +212,122 @@ fn ticks(lo: f64, hi: f64, n: usize) -> Vec<f64> {
         out.push(if v.abs() < step * 1e-9 { 0.0 } else { v });
         v += step;
     }
-    out
+    (out, step)
+}
+
+/// A tick label with as few decimals as the step needs (0.02 for a step of
+/// 0.01, 0.025 for 0.025, 5 for 5; zero with as many), a true minus sign,
+/// and no sign on zero.
+fn tick_label(v: f64, step: f64) -> String {
+    let mut decimals = 0usize;
+    while decimals < 12 {
+        let scaled = step * 10f64.powi(decimals as i32);
+        if (scaled - scaled.round()).abs() < 1e-6 * scaled.abs().max(1.0) {
+            break;
+        }
+        decimals += 1;
+    }
+    let s = format!("{v:.decimals$}");
+    if s.trim_start_matches('-')
+        .chars()
+        .all(|c| c == '0' || c == '.')
+    {
+        return s.trim_start_matches('-').to_string();
+    }
+    s.replace('-', "−")
+}
+
+/// Estimated width of a line of text: 0.6 × font size per character, a
+/// generous average for sans-serif faces (no font is embedded, so the exact
+/// width is the viewer's); the layout keeps this much room.
+fn text_width(text: &str, font_size: f64) -> f64 {
+    text.chars().count() as f64 * 0.6 * font_size
+}
+
+/// Words of `text` in lines no wider than `width` by [`text_width`] (a
+/// single longer word stands on its own line).
+fn wrap(text: &str, font_size: f64, width: f64) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    let mut cur = String::new();
+    for word in text.split_whitespace() {
+        let next = if cur.is_empty() {
+            word.to_string()
+        } else {
+            format!("{cur} {word}")
+        };
+        if !cur.is_empty() && text_width(&next, font_size) > width {
+            lines.push(std::mem::take(&mut cur));
+            cur = word.to_string();
+        } else {
+            cur = next;
+        }
+    }
+    if !cur.is_empty() || lines.is_empty() {
+        lines.push(cur);
+    }
+    lines
+}
+
+/// The title (bold, 14 px) and notes (grey, 11 px) at the top left of a
+/// figure `width` wide, each wrapped to fit; plain text, escaped here.
+/// Returns the baseline of the last line written.
+fn write_heading(s: &mut String, title: &str, notes: &[String], width: f64) -> f64 {
+    let mut y = 18.0;
+    for (i, l) in wrap(title, 14.0, width - 20.0).iter().enumerate() {
+        if i > 0 {
+            y += 17.0;
+        }
+        s.push_str(&format!(
+            "<text x=\"10\" y=\"{}\" font-size=\"14\" font-weight=\"bold\">{}</text>\n",
+            f(y),
+            esc(l)
+        ));
+    }
+    y += 2.0;
+    for note in notes {
+        for l in wrap(note, 11.0, width - 20.0) {
+            y += 14.0;
+            s.push_str(&format!(
+                "<text x=\"10\" y=\"{}\" fill=\"#444\">{}</text>\n",
+                f(y),
+                esc(&l)
+            ));
+        }
+    }
+    y
+}
+
+/// A method's key: its marker, then its name (`label`, plain text) in its
+/// colour, grouped and naming the method in `data-method`. The text starts
+/// at `x` (or ends there with `end`); the marker sits before the text's
+/// start, or after its end.
+#[allow(clippy::too_many_arguments)]
+fn key(
+    method: &str,
+    label: &str,
+    st: Style,
+    x: f64,
+    y: f64,
+    font_size: f64,
+    bold: bool,
+    end: bool,
+) -> String {
+    let mx = if end {
+        x + 4.0 + 0.35 * font_size
+    } else {
+        x - 4.0 - 0.35 * font_size
+    };
+    format!(
+        "<g class=\"key\" data-method=\"{}\">{}<text x=\"{}\" y=\"{}\"{} font-size=\"{font_size}\"{} fill=\"{}\">{}</text></g>",
+        esc(method),
+        marker(st.marker, mx, y - 0.35 * font_size, 0.3 * font_size, st.colour),
+        f(x),
+        f(y),
+        if end { " text-anchor=\"end\"" } else { "" },
+        if bold { " font-weight=\"bold\"" } else { "" },
+        st.colour,
+        esc(label)
+    )
 }
 
 fn higher_is_better(metric: &str) -> bool {
@@ -206,29 +370,27 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
     let cols = 4usize;
     let rows = panels.len().div_ceil(cols);
     let (pw, ph) = (170.0, 110.0);
-    let (ml, mt, gap_x, gap_y) = (62.0, 56.0, 62.0, 48.0);
+    let (ml, gap_x, gap_y) = (62.0, 62.0, 48.0);
     let w = ml + cols as f64 * (pw + gap_x) + 10.0;
-    let h = mt + rows as f64 * (ph + gap_y) + 10.0;
     let better = if higher_is_better(metric) {
         "above"
     } else {
         "below"
     };
-    let mut s = open_svg(
+    let mut s = String::new();
+    let last = write_heading(
+        &mut s,
+        &format!("{task}: mean {metric} of each method − {reference}"),
+        &[format!("band: paired interval; {better} the zero line is better; dotted line: size from which the method is reliably better than {reference} at every larger size")],
+        w,
+    );
+    let mt = last + 21.0;
+    let h = mt + rows as f64 * (ph + gap_y) + 10.0;
+    s = open_svg(
         w,
         h,
         &format!("{task}: {metric} difference to {reference} by calibration size"),
-    );
-    s.push_str(&format!(
-        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">{}: mean {} of each method − {}</text>\n",
-        esc(task),
-        esc(metric),
-        esc(reference)
-    ));
-    s.push_str(&format!(
-        "<text x=\"10\" y=\"35\" fill=\"#444\">band: paired interval; {better} the zero line is better; dotted line: size from which the method is reliably better than {} at every larger size</text>\n",
-        esc(reference)
-    ));
+    ) + &s;
     for (k, (m, pts)) in panels.iter().enumerate() {
         let st = style_of(a, m);
         let (cx, cy) = (
@@ -248,31 +410,28 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
         let (lo, hi) = (lo - pad, hi + pad);
         let x = |n: usize| cx + ((n as f64).ln() - xmin) / xspan * pw;
         let y = |v: f64| cy + (hi - v) / (hi - lo) * ph;
-        s.push_str(&format!(
-            "<g><text x=\"{}\" y=\"{}\" font-size=\"12\" font-weight=\"bold\" fill=\"{}\">{}</text>\n",
-            f(cx),
-            f(cy - 6.0),
-            st.colour,
-            esc(m)
-        ));
+        s.push_str("<g>");
+        s.push_str(&key(m, m, st, cx + 10.0, cy - 6.0, 12.0, true, false));
+        s.push('\n');
         s.push_str(&format!(
             "<rect x=\"{}\" y=\"{}\" width=\"{pw}\" height=\"{ph}\" fill=\"#fafafa\" stroke=\"#bbb\"/>\n",
             f(cx),
             f(cy)
         ));
-        for t in ticks(lo, hi, 4) {
+        let (tick_values, step) = ticks(lo, hi, 4);
+        for t in tick_values {
             s.push_str(&format!(
                 "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"9\">{}</text>\n",
                 f(cx - 3.0),
                 f(y(t) + 3.0),
-                esc(&fmt_diff(t))
+                esc(&tick_label(t, step))
             ));
         }
         for &n in sizes {
             s.push_str(&format!(
                 "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"9\">{n}</text>\n",
                 f(x(n)),
-                f(cy + ph + 11.0)
+                f(cy + ph + 13.0)
             ));
         }
         s.push_str(&format!(
@@ -319,13 +478,25 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
             }
         }
         if let Some(n) = from {
+            // The label goes right of the line when it fits inside the
+            // panel, else left of it, else as far right as fits.
+            let label = format!("better from {n}");
+            let lw = text_width(&label, 9.0);
+            let xn = x(n);
+            let (tx, anchor) = if xn + 2.0 + lw <= cx + pw - 2.0 {
+                (xn + 2.0, "start")
+            } else if xn - 2.0 - lw >= cx + 2.0 {
+                (xn - 2.0, "end")
+            } else {
+                ((cx + pw - 2.0 - lw).max(cx + 2.0), "start")
+            };
             s.push_str(&format!(
-                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\" stroke-dasharray=\"2 2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\">better from {n}</text>\n",
-                f(x(n)),
-                f(x(n)),
+                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\" stroke-dasharray=\"2 2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\" text-anchor=\"{anchor}\">{label}</text>\n",
+                f(xn),
+                f(xn),
                 f(cy),
                 f(cy + ph),
-                f(x(n) + 2.0),
+                f(tx),
                 f(cy + 10.0)
             ));
         }
@@ -385,7 +556,7 @@ fn reliability_panel(
         let mut t = -(r / step).floor() * step;
         while t <= r + 1e-9 {
             let p = 1.0 / (1.0 + (-t).exp());
-            v.push((p, format!("{t:.0}")));
+            v.push((p, tick_label(t, step)));
             t += step;
         }
         v
@@ -399,9 +570,9 @@ fn reliability_panel(
         s.push_str(&format!(
             "<text x=\"{}\" y=\"{}\" class=\"tm\">{label}</text><text x=\"{}\" y=\"{}\" class=\"te\">{label}</text>",
             f(px(*p)),
-            f(y0 + side + 9.0),
-            f(x0 - 2.0),
-            f(py(*p) + 3.0)
+            f(y0 + side + 11.0),
+            f(x0 - 3.0),
+            f(py(*p) + 2.5)
         ));
     }
     // Diagonal.
@@ -479,9 +650,7 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
     let first = mine.first()?;
     let heading = format!(
         "{}: reliability on the test set ({} rows), repeat {}",
-        esc(task),
-        first.curve.test_rows,
-        first.repeat
+        task, first.curve.test_rows, first.repeat
     );
     Some(reliability_grid(
         task,
@@ -495,7 +664,7 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
 /// The reliability grid behind [`reliability_figure`] (also drawn by
 /// `plumbline diagnose`): rows = series in order of first appearance,
 /// columns = the records' `size` values, titled by `column`; `heading` is
-/// markup-escaped text.
+/// plain text (escaped and wrapped here).
 pub fn reliability_grid(
     task: &str,
     heading: &str,
@@ -513,23 +682,28 @@ pub fn reliability_grid(
         }
     }
     let side = 120.0;
-    let (ml, mt) = (215.0, 78.0);
+    let ml = 215.0;
     let cell_w = 2.0 * side + 70.0;
     let row_h = side + 72.0;
     let w = ml + sizes.len() as f64 * cell_w + 10.0;
-    let h = mt + series.len() as f64 * row_h + 6.0;
-    let mut s = open_svg(w, h, &format!("{task}: reliability diagrams"));
-    s.push_str("<style>.tm{font-size:8px;fill:#555;text-anchor:middle}.te{font-size:8px;fill:#555;text-anchor:end}</style>\n");
     let first = mine[0];
-    s.push_str(&format!(
-        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">{heading}</text>\n"
-    ));
-    s.push_str(&format!(
-        "<text x=\"10\" y=\"34\" fill=\"#444\">line: CORP curve (isotonic fit of outcome on prediction); grey: {:.0}% consistency band ({} label draws under calibration)</text>\n",
-        first.curve.level * 100.0,
-        first.curve.draws
-    ));
-    s.push_str("<text x=\"10\" y=\"48\" fill=\"#444\">left panel: probability scale; right panel: log-odds scale (tails); bars: predictions (square-root height)</text>\n");
+    let mut s = String::new();
+    let last = write_heading(
+        &mut s,
+        heading,
+        &[
+            format!("line: CORP curve (isotonic fit of outcome on prediction); grey: {:.0}% consistency band ({} label draws under calibration)",
+                first.curve.level * 100.0,
+                first.curve.draws),
+            "left panel: probability scale; right panel: log-odds scale (tails); bars: predictions (square-root height)".to_string(),
+        ],
+        w,
+    );
+    let mt = last + 30.0;
+    let h = mt + series.len() as f64 * row_h + 6.0;
+    s = open_svg(w, h, &format!("{task}: reliability diagrams"))
+        + "<style>.tm{font-size:8px;fill:#555;text-anchor:middle}.te{font-size:8px;fill:#555;text-anchor:end}</style>\n"
+        + &s;
     for (j, &n) in sizes.iter().enumerate() {
         s.push_str(&format!(
             "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"12\" font-weight=\"bold\">{}</text>\n",
@@ -541,13 +715,8 @@ pub fn reliability_grid(
     for (i, m) in series.iter().enumerate() {
         let st = style(m);
         let y0 = mt + i as f64 * row_h + 4.0;
-        s.push_str(&format!(
-            "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"12\" font-weight=\"bold\" fill=\"{}\">{}</text>\n",
-            f(ml - 24.0),
-            f(y0 + side / 2.0),
-            st.colour,
-            esc(m)
-        ));
+        s.push_str(&key(m, m, st, ml - 36.0, y0 + side / 2.0, 12.0, true, true));
+        s.push('\n');
         for (j, &n) in sizes.iter().enumerate() {
             let Some(c) = mine.iter().find(|c| c.size == n && c.curve.method == *m) else {
                 continue;
@@ -614,22 +783,34 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
     }
     let k = rows[0].0.methods.len();
     let half = k.div_ceil(2);
-    let (w, ml, mr) = (900.0, 230.0, 230.0);
-    let aw = w - ml - mr;
+    // Side margins wide enough for the longest "method rank" label.
+    let longest = rows[0]
+        .0
+        .methods
+        .iter()
+        .map(|m| text_width(&format!("{m} 0.00"), 11.0))
+        .fold(0.0f64, f64::max);
+    let ml = (longest + 24.0).max(230.0).ceil();
+    let (aw, mr) = (440.0, ml);
+    let w = ml + aw + mr;
     let strip = 58.0 + 15.0 * half as f64;
-    let mt = 66.0;
+    let mut s = String::new();
+    let last = write_heading(
+        &mut s,
+        &format!("Average rank of mean {metric} across tasks (1 = best)"),
+        &[
+            "thick bars join methods whose average ranks differ by less than the Nemenyi critical difference (CD, α = 0.05)".to_string(),
+            "tasks counted as independent (tasks that share a dataset are not): a picture of the field; the decision rests on the dataset-level test".to_string(),
+        ],
+        w,
+    );
+    let mt = last + 16.0;
     let h = mt + strip * rows.len() as f64 + 10.0;
-    let mut s = open_svg(
+    s = open_svg(
         w,
         h,
         &format!("average ranks by calibration size, {metric}"),
-    );
-    s.push_str(&format!(
-        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">Average rank of mean {} across tasks (1 = best)</text>\n",
-        esc(metric)
-    ));
-    s.push_str("<text x=\"10\" y=\"34\" fill=\"#444\">thick bars join methods whose average ranks differ by less than the Nemenyi critical difference (CD, α = 0.05)</text>\n");
-    s.push_str("<text x=\"10\" y=\"50\" fill=\"#444\">tasks counted as independent (tasks that share a dataset are not): a picture of the field; the decision rests on the dataset-level test</text>\n");
+    ) + &s;
     for (ri, (r, x)) in rows.iter().enumerate() {
         let y0 = mt + ri as f64 * strip;
         let mut order: Vec<usize> = (0..k).collect();
@@ -691,7 +872,8 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
             let line_y = axis_y + 26.0 + 15.0 * if left { pos } else { k - 1 - pos } as f64;
             let xt = if left { ml - 8.0 } else { ml + aw + 8.0 };
             s.push_str(&format!(
-                "<path d=\"M{} {}V{}H{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.2\"/>{}<text x=\"{}\" y=\"{}\" text-anchor=\"{}\" fill=\"{}\">{} {rank:.2}</text>\n",
+                "<g class=\"key\" data-method=\"{}\"><path d=\"M{} {}V{}H{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.2\"/>{}<text x=\"{}\" y=\"{}\" text-anchor=\"{}\" fill=\"{}\">{} {rank:.2}</text></g>\n",
+                esc(m),
                 f(xr),
                 f(axis_y),
                 f(line_y),
@@ -750,17 +932,48 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
             0.5
         }
     };
-    let (cw, rh, ml, mt) = (50.0, 15.0, 190.0, 225.0);
-    let w = ml + cw * pairs.len() as f64 + 170.0;
-    let h = mt + rh * tasks.len() as f64 + 60.0;
-    let mut s = open_svg(w, h, &format!("data-size thresholds, {metric}"));
-    s.push_str("<style>.c{stroke:#fff}.v{text-anchor:middle;font-size:9px}</style>\n");
+    // Methods of the pairs, in order of first appearance, for the key.
+    let mut methods: Vec<&str> = Vec::new();
+    for (fl, pa) in &pairs {
+        for m in [*fl, *pa] {
+            if !methods.contains(&m) {
+                methods.push(m);
+            }
+        }
+    }
+    let (cw, rh) = (50.0, 15.0);
+    let longest_task = tasks
+        .iter()
+        .map(|t| text_width(t, 10.0))
+        .fold(0.0f64, f64::max);
+    let ml = (longest_task + 16.0).max(190.0).ceil();
+    let key_x = ml + cw * pairs.len() as f64 + 24.0;
+    let longest_key = methods
+        .iter()
+        .map(|m| text_width(m, 10.0))
+        .fold(0.0f64, f64::max);
+    let w = (key_x + longest_key + 10.0)
+        .max(ml + cw * pairs.len() as f64 + 170.0)
+        .ceil();
+    let mut s = String::new();
+    let last = write_heading(
+        &mut s,
+        &format!("From which calibration size a flexible method is reliably better ({metric})"),
+        &["cell: smallest size tried from which the flexible method beats the parametric one at every larger size; darker = larger; “–” = not within the sizes tried; “?” = no result".to_string()],
+        w,
+    );
+    // Room above the cells for the column labels, rotated by 55°.
+    let (sin, cos) = (55f64.to_radians().sin(), 55f64.to_radians().cos());
+    let longest_pair = pairs
+        .iter()
+        .map(|(fl, pa)| text_width(&format!("{fl} vs {pa}"), 10.0))
+        .fold(0.0f64, f64::max);
+    let mt = (last + 16.0 + longest_pair * sin + 10.0 * cos).ceil();
+    let h = mt + (rh * tasks.len() as f64).max(14.0 * methods.len() as f64) + 20.0;
+    s = open_svg(w, h, &format!("data-size thresholds, {metric}"))
+        + "<style>.c{stroke:#fff}.v{text-anchor:middle;font-size:9px}</style>\n"
+        + &s;
     let (cwi, rhi) = (cw - 1.0, rh - 1.0);
-    s.push_str(&format!(
-        "<text x=\"10\" y=\"18\" font-size=\"14\" font-weight=\"bold\">From which calibration size a flexible method is reliably better ({})</text>\n",
-        esc(metric)
-    ));
-    s.push_str("<text x=\"10\" y=\"34\" fill=\"#444\">cell: smallest size tried from which the flexible method beats the parametric one at every larger size; darker = larger; “–” = not within the sizes tried; “?” = no result</text>\n");
     for (j, (fl, pa)) in pairs.iter().enumerate() {
         let x = ml + cw * j as f64 + cw / 2.0;
         s.push_str(&format!(
@@ -772,6 +985,19 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
             style_of(a, pa).colour,
             esc(pa)
         ));
+    }
+    for (i, m) in methods.iter().enumerate() {
+        s.push_str(&key(
+            m,
+            m,
+            style_of(a, m),
+            key_x + 10.0,
+            mt + 11.0 + 14.0 * i as f64,
+            10.0,
+            false,
+            false,
+        ));
+        s.push('\n');
     }
     for (i, task) in tasks.iter().enumerate() {
         let y = mt + rh * i as f64;
@@ -829,7 +1055,8 @@ mod tests {
 
     #[test]
     fn ticks_cover_the_range() {
-        let t = ticks(-0.013, 0.041, 6);
+        let (t, step) = ticks(-0.013, 0.041, 6);
+        assert_eq!(step, 0.01);
         assert!(t.first().unwrap() >= &-0.013 && t.last().unwrap() <= &0.041);
         assert!(t.contains(&0.0));
         assert!(t.len() >= 3);
@@ -847,13 +1074,69 @@ mod tests {
         assert_eq!(cd_groups(&[1.0, 1.1, 1.2, 3.0], 0.5), vec![(0, 2)]);
     }
 
+    /// The first 40 methods differ in (colour, marker), and so in the
+    /// whole (colour, marker, dash) triple.
     #[test]
-    fn styles_are_distinct_for_twenty_methods() {
-        let v: Vec<Style> = (0..20).map(style).collect();
+    fn colour_and_marker_are_distinct_for_forty_methods() {
+        let v: Vec<Style> = (0..40).map(style).collect();
         for i in 0..v.len() {
             for j in 0..i {
-                assert_ne!(v[i], v[j], "{i} and {j}");
+                assert_ne!(
+                    (v[i].colour, v[i].marker),
+                    (v[j].colour, v[j].marker),
+                    "{i} and {j}"
+                );
             }
         }
+    }
+
+    /// WCAG 2.1 contrast ratio against white, (1.05) / (L + 0.05), with the
+    /// relative luminance L of the sRGB colour as WCAG 2.1 defines it; the
+    /// published worked value: #767676 on white is 4.54:1.
+    fn contrast_on_white(hex: &str) -> f64 {
+        let c = |i: usize| {
+            let v = u8::from_str_radix(&hex[i..i + 2], 16).unwrap() as f64 / 255.0;
+            if v <= 0.04045 {
+                v / 12.92
+            } else {
+                ((v + 0.055) / 1.055).powf(2.4)
+            }
+        };
+        let l = 0.2126 * c(1) + 0.7152 * c(3) + 0.0722 * c(5);
+        1.05 / (l + 0.05)
+    }
+
+    /// Every colour reaches the 3:1 contrast WCAG 2.1 (success criterion
+    /// 1.4.11) asks of graphical objects, against the white background.
+    #[test]
+    fn every_colour_has_contrast_on_white() {
+        assert!((contrast_on_white("#767676") - 4.54).abs() < 0.01);
+        assert!(contrast_on_white("#F0E442") < 3.0);
+        for c in COLOURS {
+            assert!(contrast_on_white(c) >= 3.0, "{c}: {}", contrast_on_white(c));
+        }
+    }
+
+    #[test]
+    fn tick_labels_use_the_decimals_the_step_needs() {
+        assert_eq!(tick_label(0.02, 0.01), "0.02");
+        assert_eq!(tick_label(-0.02, 0.01), "−0.02");
+        assert_eq!(tick_label(0.0, 0.01), "0.00");
+        assert_eq!(tick_label(-0.0, 0.5), "0.0");
+        assert_eq!(tick_label(0.075, 0.025), "0.075");
+        assert_eq!(tick_label(-4.0, 2.0), "−4");
+        assert_eq!(tick_label(0.0004, 0.0002), "0.0004");
+        assert_eq!(tick_label(1000.0, 500.0), "1000");
+    }
+
+    #[test]
+    fn wrap_keeps_lines_within_the_width() {
+        let text = "one two three four five six seven eight nine ten";
+        let lines = wrap(text, 10.0, 60.0);
+        assert_eq!(lines.join(" "), text);
+        for l in &lines {
+            assert!(text_width(l, 10.0) <= 60.0, "{l}");
+        }
+        assert_eq!(wrap("unbreakable-word", 10.0, 20.0), ["unbreakable-word"]);
     }
 }
