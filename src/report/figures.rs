@@ -381,7 +381,7 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
     let last = write_heading(
         &mut s,
         &format!("{task}: mean {metric} of each method − {reference}"),
-        &[format!("band: paired interval; {better} the zero line is better; dotted line: size from which the method is reliably better than {reference} at every larger size")],
+        &[format!("band: paired interval; {better} the zero line is better; dotted line: size from which the method is reliably better than {reference} at every larger size; each panel has its own vertical scale")],
         w,
     );
     let mt = last + 21.0;
