@@ -158,7 +158,7 @@ fn calibrated_scores_are_kept_at_small_sizes() {
     let small = &d.per_size[0];
     assert_eq!(small.size, 30);
     let raw = small.raw.as_ref().unwrap();
-    assert!(raw.keep_raw, "{small:?}");
+    assert!(raw.keep_raw(), "{small:?}");
     // One base model (`model`) over four datasets: the Bayesian signed-rank
     // test decides, and it does not find the default reliably better.
     // The raw scores rank first overall here, so they are the default and
@@ -197,7 +197,7 @@ fn miscalibrated_scores_are_calibrated_at_large_sizes() {
     let large = d.per_size.last().unwrap();
     assert_eq!(large.size, 800);
     let raw = large.raw.as_ref().unwrap();
-    assert!(!raw.keep_raw, "{large:?}");
+    assert!(!raw.keep_raw(), "{large:?}");
     let e = raw.groups[0].evidence.as_ref().unwrap();
     assert_eq!(e.decided_by, DecidedBy::Datasets);
     assert!(e.first_better, "{e:?}");
@@ -232,7 +232,7 @@ fn the_raw_scores_are_kept_per_base_model() {
     let v = &d.per_size[0];
     assert_eq!((v.tasks, v.datasets), (8, 4));
     let raw = v.raw.as_ref().unwrap();
-    assert!(!raw.keep_raw, "{v:?}");
+    assert!(!raw.keep_raw(), "{v:?}");
     assert_eq!(raw.raw_for(), vec!["good"], "{v:?}");
     for g in &raw.groups {
         let e = g.evidence.as_ref().unwrap();
@@ -316,7 +316,7 @@ fn one_dataset_is_decided_by_its_paired_intervals() {
         // control of the tests above), and the interval says so.
         assert!(e.first_better, "{e:?}");
     }
-    assert!(!raw.keep_raw);
+    assert!(!raw.keep_raw());
 }
 
 /// A default that a method beats reliably at one size is replaced there:
@@ -344,7 +344,7 @@ fn a_method_reliably_better_than_the_default_is_recommended_at_its_size() {
     assert!(e.second_better, "{e:?}");
     assert_eq!(large.recommended, "spline");
     assert_eq!(large.why, Recommendation::Beaten(vec!["spline".into()]));
-    assert!(!large.default_holds);
+    assert!(!large.default_holds());
     let text = summary(&out);
     assert!(text.contains("`spline` (beats `platt`)"), "{text}");
 }
@@ -373,11 +373,11 @@ fn rare_class_intervals_are_flagged_approximate() {
         // Positives per sample average n·4%: about 2 at n = 50, 40 at 1000.
         if p.size == 50 {
             assert!(p.minority_rows < 5.0, "{p:?}");
-            assert!(p.rare_class);
+            assert!(p.rare_class());
             small += 1;
         } else {
             assert!(p.minority_rows > 25.0, "{p:?}");
-            assert!(!p.rare_class);
+            assert!(!p.rare_class());
             large += 1;
         }
     }

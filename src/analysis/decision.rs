@@ -46,7 +46,7 @@ use std::collections::{BTreeMap, BTreeSet};
 
 use super::evidence::{compare, DatasetEvidence, EvidenceSource};
 use super::steps::{pair_interval, Cells, PairSource};
-use super::{AcrossRow, AnalysisSettings, Margins, ThresholdRow};
+use super::{margin_of, AcrossRow, AnalysisSettings, Margins, ThresholdRow};
 use crate::run::table::UnitTable;
 use crate::stats::thresholds::{summarize, ThresholdSummary, Thresholds};
 use crate::stats::verdict::{Verdict, VerdictCounts};
@@ -126,8 +126,14 @@ pub struct RawGroup {
     /// The chosen method (first) against the raw scores; `None` when the
     /// chosen method is the raw scores.
     pub evidence: Option<Evidence>,
-    /// Keep the raw scores for this base model at this size.
-    pub keep_raw: bool,
+}
+
+impl RawGroup {
+    /// Keep the raw scores for this base model at this size: the chosen
+    /// method is the raw scores, or not reliably better than them.
+    pub fn keep_raw(&self) -> bool {
+        self.evidence.as_ref().is_none_or(|e| !e.first_better)
+    }
 }
 
 /// The raw scores against the calibrating methods at one size.
@@ -144,19 +150,22 @@ pub struct RawAtSize {
     pub most_better: Option<(String, usize)>,
     /// The decision per base model.
     pub groups: Vec<RawGroup>,
-    /// Every base model keeps the raw scores at this size.
-    pub keep_raw: bool,
 }
 
 impl RawAtSize {
+    /// Every base model keeps the raw scores at this size.
+    pub fn keep_raw(&self) -> bool {
+        !self.groups.is_empty() && self.groups.iter().all(RawGroup::keep_raw)
+    }
+
     /// Base models that keep the raw scores while others calibrate.
     pub fn raw_for(&self) -> Vec<&str> {
-        if self.keep_raw {
+        if self.keep_raw() {
             return Vec::new();
         }
         self.groups
             .iter()
-            .filter(|g| g.keep_raw)
+            .filter(|g| g.keep_raw())
             .map(|g| g.model.as_str())
             .collect()
     }
@@ -175,8 +184,6 @@ pub struct SizeVerdict {
     pub runner_up_rank: Option<f64>,
     /// The default against every other method, in the standing's order.
     pub versus: Vec<(String, Evidence)>,
-    /// No method is reliably better than the default at this size.
-    pub default_holds: bool,
     /// Tasks on which the default gets each verdict against the runner-up
     /// (paired interval of the suite's estimator on each task, the task's
     /// equivalence margin): a description beside the test.
@@ -195,6 +202,11 @@ pub struct SizeVerdict {
 }
 
 impl SizeVerdict {
+    /// No method is reliably better than the default at this size.
+    pub fn default_holds(&self) -> bool {
+        self.versus.iter().all(|(_, e)| !e.second_better)
+    }
+
     /// The default against `method` at this size.
     pub fn against(&self, method: &str) -> Option<&Evidence> {
         self.versus.iter().find(|v| v.0 == method).map(|v| &v.1)
@@ -238,6 +250,35 @@ pub fn task_parts(task: &str) -> (&str, Option<&str>) {
     }
 }
 
+/// The paired-interval verdict of `a` against `b` on each of `tasks` that has
+/// an interval at this size (the suite's estimator, the task's margin).
+fn task_verdicts(
+    input: &DecisionInput,
+    metric: &str,
+    size: usize,
+    (a, b): (&str, &str),
+    tasks: &[String],
+) -> Vec<Verdict> {
+    let Some(mi) = input.table.metric_index(metric) else {
+        return Vec::new();
+    };
+    let ps = PairSource {
+        table: input.table,
+        cells: input.cells,
+        settings: input.settings,
+    };
+    tasks
+        .iter()
+        .filter_map(|task| {
+            let iv = pair_interval(&ps, task, size, a, b, metric, mi)?;
+            Some(Verdict::of_interval(
+                &iv,
+                margin_of(input.margins, task, size, metric),
+            ))
+        })
+        .collect()
+}
+
 /// `a` against `b` at one size over `tasks`: the Bayesian signed-rank test
 /// over datasets, or with a single dataset its tasks' paired intervals
 /// (reliably better: the verdict *better* on every one of its tasks).
@@ -263,24 +304,7 @@ fn evidence(
             decided_by: DecidedBy::Datasets,
         };
     }
-    let mut verdicts = Vec::new();
-    if let Some(mi) = input.table.metric_index(metric) {
-        let ps = PairSource {
-            table: input.table,
-            cells: input.cells,
-            settings: input.settings,
-        };
-        for task in tasks {
-            if let Some(iv) = pair_interval(&ps, task, size, a, b, metric, mi) {
-                let margin = input
-                    .margins
-                    .get(&(task.clone(), size, metric.to_string()))
-                    .copied()
-                    .unwrap_or(f64::NAN);
-                verdicts.push(Verdict::of_interval(&iv, margin));
-            }
-        }
-    }
+    let verdicts = task_verdicts(input, metric, size, (a, b), tasks);
     let all = |v: Verdict| !verdicts.is_empty() && verdicts.iter().all(|x| *x == v);
     Evidence {
         first_better: all(Verdict::Better),
@@ -294,11 +318,11 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
     let DecisionInput {
         across,
         table,
-        cells,
         margins,
         settings,
         fallback_counts,
         raw_thresholds,
+        ..
     } = *input;
     let rows: Vec<_> = across
         .iter()
@@ -337,7 +361,8 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
     let ri = runner_up
         .as_ref()
         .and_then(|r| methods.iter().position(|m| m == r));
-    let mi = table.metric_index(metric)?;
+    // Results without the metric's column have nothing to decide on.
+    table.metric_index(metric)?;
     let raw_method = settings.raw_method.clone().filter(|r| methods.contains(r));
     let mut per_size = Vec::new();
     for (r, x) in &rows {
@@ -359,22 +384,9 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
             .map(|v| v.0.clone())
             .collect();
         let versus_runner_up = runner_up.as_ref().map(|ru| {
-            let mut rec = VerdictCounts::default();
-            for task in &r.tasks {
-                let src = PairSource {
-                    table,
-                    cells,
-                    settings,
-                };
-                if let Some(iv) = pair_interval(&src, task, r.size, &default, ru, metric, mi) {
-                    let margin = margins
-                        .get(&(task.clone(), r.size, metric.to_string()))
-                        .copied()
-                        .unwrap_or(f64::NAN);
-                    rec.add(Verdict::of_interval(&iv, margin));
-                }
-            }
-            rec
+            task_verdicts(input, metric, r.size, (&default, ru), &r.tasks)
+                .into_iter()
+                .collect::<VerdictCounts>()
         });
         let share_of = |m: &str| -> FallbackShare {
             let mut f = FallbackShare::default();
@@ -439,11 +451,11 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
                     t.metric == metric && t.flexible == m && t.parametric == *raw && t.task == task
                 })?;
                 let &(_, _, low, high) = row.points.iter().find(|p| p.0 == r.size)?;
-                let margin = margins
-                    .get(&(task.to_string(), r.size, metric.to_string()))
-                    .copied()
-                    .unwrap_or(f64::NAN);
-                Some(Verdict::of(low, high, margin))
+                Some(Verdict::of(
+                    low,
+                    high,
+                    margin_of(margins, task, r.size, metric),
+                ))
             };
             let default_vs_raw = (default != *raw).then(|| {
                 r.tasks
@@ -492,28 +504,24 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
                         return RawGroup {
                             model: model.to_string(),
                             evidence: None,
-                            keep_raw: true,
                         };
                     }
                     let group = (!model.is_empty()).then_some(model);
                     let e = evidence(input, metric, r.size, (&recommended, raw), &tasks, group);
                     RawGroup {
                         model: model.to_string(),
-                        keep_raw: !e.first_better,
                         evidence: Some(e),
                     }
                 })
                 .collect();
-            let keep_raw = !groups.is_empty() && groups.iter().all(|g| g.keep_raw);
             RawAtSize {
                 default_vs_raw,
                 any_better,
                 most_better,
                 groups,
-                keep_raw,
             }
         });
-        if raw.as_ref().is_some_and(|x| x.keep_raw) {
+        if raw.as_ref().is_some_and(RawAtSize::keep_raw) {
             recommended = raw_method.clone().unwrap_or_default();
             if !matches!(why, Recommendation::PassedOver(_)) {
                 why = Recommendation::KeepRaw;
@@ -525,7 +533,6 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
             size: r.size,
             tasks: r.tasks.len(),
             datasets: datasets_of(&r.tasks),
-            default_holds: beaten_by.is_empty(),
             best,
             default_rank: dr,
             runner_up_rank: rr,

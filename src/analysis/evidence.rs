@@ -39,7 +39,7 @@
 use std::collections::BTreeMap;
 
 use super::steps::Cells;
-use super::{higher_is_better, pair_up, task_parts, Margins};
+use super::{higher_is_better, margin_of, pair_up, task_parts, Margins};
 use crate::run::table::UnitTable;
 use crate::split::{fnv1a, mix};
 use crate::stats::bayes::{signed_rank, SignedRank, DEFAULT_PRIOR, DEFAULT_SAMPLES};
@@ -163,10 +163,7 @@ pub fn compare(
             continue;
         }
         let d = sign * pr.diffs.iter().sum::<f64>() / pr.diffs.len() as f64;
-        let margin = margins
-            .get(&(task.clone(), size, metric.to_string()))
-            .copied()
-            .unwrap_or(f64::NAN);
+        let margin = margin_of(margins, task, size, metric);
         let ds = task_parts(task).0.to_string();
         if !sums.contains_key(&ds) {
             order.push(ds.clone());

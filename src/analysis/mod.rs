@@ -178,8 +178,14 @@ pub struct Paired {
     /// Rows of the rarer class in the calibration sample, averaged over the
     /// repeats (min(positives, n − positives)).
     pub minority_rows: f64,
-    /// Fewer than [`RARE_CLASS_ROWS`] of them: the interval is approximate.
-    pub rare_class: bool,
+}
+
+impl Paired {
+    /// Fewer than [`RARE_CLASS_ROWS`] rows of the rarer class: the interval
+    /// is approximate.
+    pub fn rare_class(&self) -> bool {
+        self.minority_rows < RARE_CLASS_ROWS
+    }
 }
 
 /// Everything the reports show.
@@ -212,6 +218,15 @@ pub struct Analysis {
 
 /// (task, size, metric) → equivalence margin δ.
 pub type Margins = BTreeMap<(String, usize, String), f64>;
+
+/// The margin of one (task, size, metric); NaN where the reference method
+/// has no values (no verdict other than *undetermined* can come of it).
+pub fn margin_of(margins: &Margins, task: &str, size: usize, metric: &str) -> f64 {
+    margins
+        .get(&(task.to_string(), size, metric.to_string()))
+        .copied()
+        .unwrap_or(f64::NAN)
+}
 
 /// Status prefix of a unit whose method predicted a fallback because it could
 /// not fit (`fallback:base-rate`, see `run::FALLBACK_BASE_RATE`).
@@ -483,10 +498,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                     }
                     let iv = paired_interval(table, &pr, metric, settings);
                     let (lo, hi, se) = (iv.low, iv.high, iv.se);
-                    let margin = margins
-                        .get(&(task.clone(), size, metric.clone()))
-                        .copied()
-                        .unwrap_or(f64::NAN);
+                    let margin = margin_of(&margins, task, size, metric);
                     let mean_of = |v: &[f64]| {
                         if v.is_empty() {
                             f64::NAN
@@ -526,7 +538,6 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         margin,
                         verdict: Verdict::of_metric(lo, hi, margin, hib),
                         minority_rows,
-                        rare_class: minority_rows < RARE_CLASS_ROWS,
                     });
                 }
             }

@@ -198,11 +198,7 @@ pub fn pair_thresholds(
                 };
                 pts.push((size, iv.mean, iv.low, iv.high));
                 if iv.low.is_finite() {
-                    let margin = c
-                        .margins
-                        .get(&(task.clone(), size, metric.to_string()))
-                        .copied()
-                        .unwrap_or(f64::NAN);
+                    let margin = super::margin_of(c.margins, task, size, metric);
                     ivs.push((size, iv, margin));
                 }
             }

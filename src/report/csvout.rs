@@ -43,7 +43,7 @@ pub fn paired_csv(a: &Analysis) -> String {
             f(p.margin),
             p.verdict.as_str(),
             f(p.minority_rows),
-            p.rare_class
+            p.rare_class()
         ));
     }
     s

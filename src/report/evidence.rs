@@ -127,7 +127,7 @@ pub fn raw_blocks(d: &Decision, brief: bool) -> Vec<Block> {
             row.push(match g {
                 None => "–".into(),
                 Some(g) => {
-                    let word = if g.keep_raw { "raw" } else { "calibrate" };
+                    let word = if g.keep_raw() { "raw" } else { "calibrate" };
                     match &g.evidence {
                         None => word.into(),
                         Some(_) if brief => word.into(),

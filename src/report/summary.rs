@@ -89,7 +89,7 @@ pub fn task_table(
                     fmt_diff(p.ci_low),
                     fmt_diff(p.ci_high),
                     p.verdict.mark(),
-                    if p.rare_class { " †" } else { "" }
+                    if p.rare_class() { " †" } else { "" }
                 );
                 let diff = if markdown && p.verdict != Verdict::Undetermined {
                     format!("**{diff}**")
@@ -113,7 +113,7 @@ pub fn task_table(
         )];
     if a.paired
         .iter()
-        .any(|p| p.task == *task && p.metric == metric && p.rare_class)
+        .any(|p| p.task == *task && p.metric == metric && p.rare_class())
     {
         notes.push(RARE_NOTE.to_string());
     }
@@ -200,7 +200,7 @@ fn raw_words(d: &Decision, raw: &str) -> String {
     let keep: Vec<String> = d
         .per_size
         .iter()
-        .filter(|v| v.raw.as_ref().is_some_and(|r| r.keep_raw))
+        .filter(|v| v.raw.as_ref().is_some_and(|r| r.keep_raw()))
         .map(|v| v.size.to_string())
         .collect();
     // Runs of consecutive sizes that keep the raw scores for the same base
@@ -358,7 +358,7 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         "**Recommended by calibration size** — {}.",
         parts.join("; ")
     )));
-    let holds = d.per_size.iter().filter(|v| v.default_holds).count();
+    let holds = d.per_size.iter().filter(|v| v.default_holds()).count();
     let beaten: Vec<String> = d
         .per_size
         .iter()
@@ -414,19 +414,23 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         }
     }
     let ru = d.runner_up.clone().unwrap_or_else(|| "–".into());
-    let mut header = vec![
-        "n".into(),
-        "tasks (datasets)".into(),
-        "best rank".into(),
-        "rank (default)".into(),
-        "rank (runner-up)".into(),
-        "vs runner-up P(✓/=/✗)".into(),
-        format!("tasks vs runner-up {}", marks_slashed()),
+    // Each column with whether the terminal keeps it: the columns a decision
+    // is read from; the ranks and per-task counts are in summary.md.
+    let mut columns: Vec<(String, bool)> = vec![
+        ("n".into(), true),
+        ("tasks (datasets)".into(), true),
+        ("best rank".into(), false),
+        ("rank (default)".into(), false),
+        ("rank (runner-up)".into(), false),
+        ("vs runner-up P(✓/=/✗)".into(), true),
+        (format!("tasks vs runner-up {}", marks_slashed()), false),
     ];
     if raw.is_some() {
-        header.push(format!("tasks vs raw {}", marks_slashed()));
+        columns.push((format!("tasks vs raw {}", marks_slashed()), false));
     }
-    header.extend(["default fell back".to_string(), "recommended".to_string()]);
+    columns.push(("default fell back".into(), true));
+    columns.push(("recommended".into(), true));
+    let header: Vec<String> = columns.iter().map(|c| c.0.clone()).collect();
     let mut notes = vec![format!(
         "Default `{}`, runner-up `{ru}`. Tasks (datasets): tasks with a value for every method at that size, and the datasets they come from. Ranks: average over tasks of each method's rank by mean {} (1 = best) — a picture of the field that treats tasks as independent; it decides nothing. Vs runner-up P(✓/=/✗): the test this decision rests on — the Bayesian signed-rank test with the dataset as unit and the margin as region of practical equivalence (table below): the posterior probability that `{}` is better than, practically equivalent to, or worse than `{ru}`; bold: one reaches {DECISIVE}. With a single dataset it cannot decide, and the dataset's paired interval does (✓ / ✗ when every task of it says so).",
         d.default,
@@ -518,21 +522,7 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         t.rows.push(row);
     }
     if detail == Detail::Brief {
-        // The terminal keeps the columns a decision is read from; the counts
-        // and ranks are in summary.md.
-        let keep: Vec<usize> = t
-            .header
-            .iter()
-            .enumerate()
-            .filter(|(_, h)| {
-                h.as_str() == "n"
-                    || h.starts_with("tasks (")
-                    || h.starts_with("vs runner-up")
-                    || h.as_str() == "default fell back"
-                    || h.as_str() == "recommended"
-            })
-            .map(|(i, _)| i)
-            .collect();
+        let keep: Vec<usize> = (0..columns.len()).filter(|&i| columns[i].1).collect();
         let pick = |row: &[String]| keep.iter().map(|&i| row[i].clone()).collect::<Vec<_>>();
         t.header = pick(&t.header);
         t.rows = t.rows.iter().map(|r| pick(r)).collect();
@@ -630,13 +620,10 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
             log_loss.len()
         )));
     }
-    let rare: Vec<&crate::analysis::Paired> = a.paired.iter().filter(|p| p.rare_class).collect();
+    let rare: Vec<&crate::analysis::Paired> = a.paired.iter().filter(|p| p.rare_class()).collect();
     if !rare.is_empty() {
-        let mut cells: Vec<(&str, usize)> =
+        let cells: std::collections::BTreeSet<(&str, usize)> =
             rare.iter().map(|p| (p.task.as_str(), p.size)).collect();
-        cells.dedup();
-        cells.sort();
-        cells.dedup();
         let sizes: std::collections::BTreeSet<usize> = rare.iter().map(|p| p.size).collect();
         out.push(Block::Para(format!(
             "**Approximate intervals (†):** {} of {} comparisons, on {} task and size cells (n = {}), rest on calibration samples with fewer than {} rows of the rarer class on average. In the coverage study such intervals fell short of their nominal level far more often than the rest, so read their verdicts as approximate; the decision's test across datasets uses the mean differences, not these intervals (`docs/statistics.md`, \"Rare classes\").",
