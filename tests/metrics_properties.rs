@@ -227,20 +227,8 @@ proptest! {
 /// property, run in a child process of this very test binary.
 #[test]
 fn proptest_cases_below_the_floor_are_refused() {
-    let me = std::env::current_exe().unwrap();
-    let run = |value: &str| {
-        let out = std::process::Command::new(&me)
-            .args(["--exact", "murphy_terms_sum_to_brier"])
-            .env("PROPTEST_CASES", value)
-            .output()
-            .unwrap();
-        let text = format!(
-            "{}{}",
-            String::from_utf8_lossy(&out.stdout),
-            String::from_utf8_lossy(&out.stderr)
-        );
-        (out.status.success(), text)
-    };
+    let run =
+        |value: &str| common::rerun_with_env("murphy_terms_sum_to_brier", "PROPTEST_CASES", value);
     let (ok, text) = run("5");
     assert!(!ok, "5 cases accepted:\n{text}");
     assert!(

@@ -57,19 +57,13 @@ fn update_snapshots() -> bool {
 /// string, fails with the message that says what to set.
 #[test]
 fn snapshot_update_switch_takes_only_1() {
-    let me = std::env::current_exe().unwrap();
     for value in ["0", "true", ""] {
-        let out = std::process::Command::new(&me)
-            .args(["--exact", "every_table_format_matches_its_snapshot"])
-            .env("PLUMBLINE_UPDATE_SNAPSHOTS", value)
-            .output()
-            .unwrap();
-        let text = format!(
-            "{}{}",
-            String::from_utf8_lossy(&out.stdout),
-            String::from_utf8_lossy(&out.stderr)
+        let (ok, text) = common::rerun_with_env(
+            "every_table_format_matches_its_snapshot",
+            "PLUMBLINE_UPDATE_SNAPSHOTS",
+            value,
         );
-        assert!(!out.status.success(), "value {value:?} accepted:\n{text}");
+        assert!(!ok, "value {value:?} accepted:\n{text}");
         assert!(
             text.contains(&format!(
                 "PLUMBLINE_UPDATE_SNAPSHOTS={value:?} is not understood: set it to 1"

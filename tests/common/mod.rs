@@ -281,6 +281,23 @@ pub fn pairs<'a, A, B>(
 /// one that is not a whole number, is refused with a message saying what to
 /// set, so the variable can raise the number of cases but never silently
 /// shrink the tests to a handful.
+/// Run one test of this very test binary in a child process with `var` set
+/// to `value`: whether it passed, and its standard output and error.
+pub fn rerun_with_env(test: &str, var: &str, value: &str) -> (bool, String) {
+    let me = std::env::current_exe().unwrap();
+    let out = std::process::Command::new(me)
+        .args(["--exact", test])
+        .env(var, value)
+        .output()
+        .unwrap();
+    let text = format!(
+        "{}{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    (out.status.success(), text)
+}
+
 pub fn proptest_cases(floor: u32) -> u32 {
     match std::env::var("PROPTEST_CASES") {
         Err(std::env::VarError::NotPresent) => floor,
