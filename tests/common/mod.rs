@@ -276,11 +276,6 @@ pub fn pairs<'a, A, B>(
     ours.iter().zip(fixture)
 }
 
-/// Cases for a file's property tests: `floor` (stated beside each
-/// `proptest_config`) unless `PROPTEST_CASES` asks for more. A lower value, or
-/// one that is not a whole number, is refused with a message saying what to
-/// set, so the variable can raise the number of cases but never silently
-/// shrink the tests to a handful.
 /// Run one test of this very test binary in a child process with `var` set
 /// to `value`: whether it passed, and its standard output and error.
 pub fn rerun_with_env(test: &str, var: &str, value: &str) -> (bool, String) {
@@ -298,6 +293,11 @@ pub fn rerun_with_env(test: &str, var: &str, value: &str) -> (bool, String) {
     (out.status.success(), text)
 }
 
+/// Cases for a file's property tests: `floor` (stated beside each
+/// `proptest_config`) unless `PROPTEST_CASES` asks for more. A lower value, or
+/// one that is not a whole number, is refused with a message saying what to
+/// set, so the variable can raise the number of cases but never silently
+/// shrink the tests to a handful.
 pub fn proptest_cases(floor: u32) -> u32 {
     match std::env::var("PROPTEST_CASES") {
         Err(std::env::VarError::NotPresent) => floor,
