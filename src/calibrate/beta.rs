@@ -435,37 +435,6 @@ mod tests {
         assert_eq!(t.notes, vec!["refit"]);
     }
 
-    /// Every row order of `s`, `y` (Heap's algorithm); returns how many.
-    fn for_each_order(
-        s: &[f64],
-        y: &[bool],
-        mut check: impl FnMut(&[f64], &[bool], &[usize]),
-    ) -> usize {
-        let n = s.len();
-        let mut order: Vec<usize> = (0..n).collect();
-        let mut c = vec![0usize; n];
-        let mut visit = |o: &[usize]| {
-            let s2: Vec<f64> = o.iter().map(|&i| s[i]).collect();
-            let y2: Vec<bool> = o.iter().map(|&i| y[i]).collect();
-            check(&s2, &y2, o);
-        };
-        visit(&order);
-        let (mut i, mut seen) = (1, 1);
-        while i < n {
-            if c[i] < i {
-                order.swap(if i % 2 == 0 { 0 } else { c[i] }, i);
-                visit(&order);
-                seen += 1;
-                c[i] += 1;
-                i = 1;
-            } else {
-                c[i] = 0;
-                i += 1;
-            }
-        }
-        seen
-    }
-
     /// Each score carries one positive and one negative, so the covariance of
     /// the log-odds with the labels is exactly zero: the maximum-likelihood
     /// slope is a = 0 (score equation Σ (p − y) x = 0 at p = 1/2), which is
@@ -478,7 +447,7 @@ mod tests {
             ([0.0, 0.875, 0.0, 0.875], [true, false, false, true]),
             ([0.625, 0.0, 0.0, 0.625], [true, false, true, false]),
         ] {
-            let seen = for_each_order(&s, &y, |s2, y2, o| {
+            let seen = crate::calibrate::for_each_order(&s, &y, |s2, y2, o| {
                 let f = fit(BetaShape::Tied, s2, y2);
                 assert!(f.notes.is_empty(), "{s:?} order {o:?}: {:?}", f.notes);
                 let mut out = [0.0; 3];

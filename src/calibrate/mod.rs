@@ -363,6 +363,39 @@ impl MethodSpec {
     }
 }
 
+/// Tests: every row order of `s`, `y` (Heap's algorithm), each passed to
+/// `check` with the permutation; returns how many orders were visited.
+#[cfg(test)]
+pub(crate) fn for_each_order(
+    s: &[f64],
+    y: &[bool],
+    mut check: impl FnMut(&[f64], &[bool], &[usize]),
+) -> usize {
+    let n = s.len();
+    let mut order: Vec<usize> = (0..n).collect();
+    let mut c = vec![0usize; n];
+    let mut visit = |o: &[usize]| {
+        let s2: Vec<f64> = o.iter().map(|&i| s[i]).collect();
+        let y2: Vec<bool> = o.iter().map(|&i| y[i]).collect();
+        check(&s2, &y2, o);
+    };
+    visit(&order);
+    let (mut i, mut seen) = (1, 1);
+    while i < n {
+        if c[i] < i {
+            order.swap(if i % 2 == 0 { 0 } else { c[i] }, i);
+            visit(&order);
+            seen += 1;
+            c[i] += 1;
+            i = 1;
+        } else {
+            c[i] = 0;
+            i += 1;
+        }
+    }
+    seen
+}
+
 #[cfg(test)]
 mod spec_tests {
     use super::*;

@@ -198,31 +198,12 @@ mod tests {
             score_kind: ScoreKind::Probability,
         };
         // Every row order (Heap's algorithm over the 6! permutations).
-        let n = s.len();
-        let mut order: Vec<usize> = (0..n).collect();
-        let mut c = vec![0usize; n];
-        let check = |o: &[usize]| {
-            let s2: Vec<f64> = o.iter().map(|&i| s[i]).collect();
-            let y2: Vec<bool> = o.iter().map(|&i| y[i]).collect();
-            let f = cal.fit(&s2, &y2).unwrap();
+        let seen = crate::calibrate::for_each_order(&s, &y, |s2, y2, o| {
+            let f = cal.fit(s2, y2).unwrap();
             assert_eq!(f.notes, vec!["flat"], "order {o:?}");
             let b = f.map.describe()["inverse_temperature"].as_f64().unwrap();
             assert_eq!(b, 0.0, "order {o:?}");
-        };
-        check(&order);
-        let (mut i, mut seen) = (1, 1);
-        while i < n {
-            if c[i] < i {
-                order.swap(if i % 2 == 0 { 0 } else { c[i] }, i);
-                check(&order);
-                seen += 1;
-                c[i] += 1;
-                i = 1;
-            } else {
-                c[i] = 0;
-                i += 1;
-            }
-        }
+        });
         assert_eq!(seen, 720);
     }
 
