@@ -89,8 +89,9 @@ unless --force is given.")]
     #[command(long_about = "\
 Rebuild paired.csv, thresholds.csv, summary.md, index.html, tables.tex and the figures \
 from a results folder's units.csv.gz and reliability*.csv (settings from manifest.json unless \
-overridden), then print the decision. With --task, print that task's table and write \
-nothing.")]
+overridden), then print the decision. It holds the folder's lock while it writes, so it is \
+refused while a run or another report writes there. With --task, print that task's table \
+and write nothing.")]
     Report {
         /// Results folder (holding units.csv.gz, or units.csv).
         dir: PathBuf,
@@ -120,7 +121,7 @@ nothing.")]
         #[arg(long)]
         margin: Option<f64>,
         /// Share of a method's draws at a size that may fall back to the base
-        /// rate before it is not recommended there, e.g. 0.1
+        /// rate before it is not recommended there, e.g. 0.1 (docs/report.md)
         /// [default: as recorded, else 0.1].
         #[arg(long, value_name = "SHARE")]
         max_fallback: Option<f64>,
