@@ -38,12 +38,6 @@ fn fails_in<S: AsRef<std::ffi::OsStr>>(cwd: &Path, args: &[S]) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
-fn has(err: &str, needles: &[&str]) {
-    for n in needles {
-        assert!(err.contains(n), "`{n}` not in: {err}");
-    }
-}
-
 /// No lock, staging or replaced folder left beside `out`.
 fn no_leftovers(out: &Path) {
     let name = out.file_name().unwrap().to_string_lossy();

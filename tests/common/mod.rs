@@ -276,6 +276,13 @@ pub fn pairs<'a, A, B>(
     ours.iter().zip(fixture)
 }
 
+/// Every needle is in `text`; the first missing one is named with the text.
+pub fn has(text: &str, needles: &[&str]) {
+    for n in needles {
+        assert!(text.contains(n), "`{n}` not in: {text}");
+    }
+}
+
 /// Run one test of this very test binary in a child process with `var` set
 /// to `value`: whether it passed, and its standard output and error.
 pub fn rerun_with_env(test: &str, var: &str, value: &str) -> (bool, String) {
