@@ -14,9 +14,12 @@ reference implementation:
                                 delta = ici_delta * range(p)), rows ordered by (p, y)
   murphy_*, ece_*, spiegelhalter_z
                                 numpy, written from the published formulas
-  smooth_ece                    numpy: reflected Gaussian kernel as an explicit sum
-                                of images, trapezoid rule on 8001 points, the same
-                                bisection bracket [0.001, 1] and tolerance 1e-6
+  smooth_ece                    no outside library implements it, so a second
+                                implementation by a different algorithm: reflected
+                                Gaussian images with scipy.stats.norm.pdf, zeros of
+                                the residual density by scipy.optimize.brentq,
+                                Gauss-Legendre pieces between them, and the fixed
+                                point by scipy.optimize.brentq (not bisection)
 
 Library versions are recorded in the fixture's "versions" field. Run:
 
@@ -32,7 +35,9 @@ import scipy
 import sklearn
 import statsmodels
 import statsmodels.api as sm
-from scipy.special import expit, logit, xlogy
+from scipy.optimize import brentq
+from scipy.special import expit, logit, roots_legendre, xlogy
+from scipy.stats import norm
 from sklearn.isotonic import IsotonicRegression
 from sklearn.metrics import brier_score_loss, log_loss, roc_auc_score
 
@@ -106,35 +111,72 @@ def spiegelhalter(p, y):
     return np.sum((y - p) * a) / np.sqrt(np.sum(a * a * p * (1 - p)))
 
 
-T = np.linspace(0.0, 1.0, 8001)
+# smooth ECE: a second implementation by a different algorithm (no outside
+# library implements it). It shares only the definition with src/metrics/smooth_ece.rs:
+# the residual density is a sum of reflected Gaussian images evaluated with
+# scipy.stats.norm.pdf (not the cosine series); the integral of |h| is taken
+# between zeros found by scipy.optimize.brentq, with Gauss-Legendre rules
+# (scipy.special.roots_legendre) on pieces no longer than sigma / 2 (not the
+# antiderivative of the series); the fixed point smECE_sigma = sigma is found by
+# scipy.optimize.brentq to 1e-13 (not by bisection), so the reference is the
+# fixed point itself, not the midpoint of a bracket.
+GL_NODES = 24
+
+
+def residual_density(p, y, sigma):
+    """t -> (1/n) sum_i r_i K_sigma(t, p_i), K the Gaussian reflected at 0 and 1."""
+    r = y - p
+    k_max = int(np.ceil(5.0 * sigma)) + 2
+    shifts = 2.0 * np.arange(-k_max, k_max + 1)
+    centres = np.concatenate([(p[:, None] + shifts).ravel(), (-p[:, None] + shifts).ravel()])
+    weights = np.concatenate([np.repeat(r, len(shifts))] * 2) / len(p)
+    # Images farther than 12 sigma from [0, 1] add less than exp(-72) each.
+    keep = (centres > -12.0 * sigma) & (centres < 1.0 + 12.0 * sigma)
+    centres, weights = centres[keep], weights[keep]
+
+    def h(t):
+        t = np.atleast_1d(np.asarray(t, float))
+        out = np.empty(len(t))
+        for s in range(0, len(t), 256):
+            out[s:s + 256] = norm.pdf(t[s:s + 256, None], loc=centres[None, :], scale=sigma) @ weights
+        return out
+
+    return h
 
 
 def smece_sigma(p, y, sigma):
-    r = y - p
-    h = np.zeros_like(T)
-    images = int(np.ceil(10 * sigma)) + 2
-    norm = 1.0 / (sigma * np.sqrt(2 * np.pi))
-    for k in range(-images, images + 1):
-        for centre in (p + 2 * k, -p + 2 * k):
-            d = (T[None, :] - centre[:, None]) / sigma
-            h += (r[:, None] * np.exp(-0.5 * d * d)).sum(axis=0) * norm
-    h /= len(p)
-    return np.trapezoid(np.abs(h), T)
+    h = residual_density(p, y, sigma)
+    grid = np.linspace(0.0, 1.0, max(2001, int(np.ceil(20.0 / sigma)) + 1))
+    v = h(grid)
+    zeros = [0.0]
+    for j in np.nonzero(np.sign(v[:-1]) * np.sign(v[1:]) < 0)[0]:
+        a, b = grid[j], grid[j + 1]
+        if h(a)[0] * h(b)[0] < 0:
+            zeros.append(brentq(lambda t: h(t)[0], a, b, xtol=1e-15, rtol=1e-15))
+        else:
+            # The sign change is within rounding of zero: either end will do.
+            zeros.append(a if abs(v[j]) < abs(v[j + 1]) else b)
+    zeros.append(1.0)
+    nodes, wts = roots_legendre(GL_NODES)
+    ts, ws, piece = [], [], []
+    for i, (a, b) in enumerate(zip(zeros[:-1], zeros[1:])):
+        edges = np.linspace(a, b, max(1, int(np.ceil((b - a) / (0.5 * sigma)))) + 1)
+        for u, w in zip(edges[:-1], edges[1:]):
+            ts.append(0.5 * (w - u) * nodes + 0.5 * (w + u))
+            ws.append(0.5 * (w - u) * wts)
+            piece.append(np.full(GL_NODES, i))
+    vals = h(np.concatenate(ts)) * np.concatenate(ws)
+    sums = np.bincount(np.concatenate(piece), weights=vals, minlength=len(zeros) - 1)
+    return float(np.abs(sums).sum())
 
 
 def smece(p, y):
+    """smECE at the fixed point sigma* of sigma -> smECE_sigma on [0.001, 1];
+    the value at 0.001 when smECE_0.001 <= 0.001 (the definition's lower end)."""
     lo, hi = 1e-3, 1.0
-    while hi - lo > 1e-6:
-        mid = 0.5 * (lo + hi)
-        if smece_sigma(p, y, mid) > mid:
-            lo = mid
-        else:
-            hi = mid
-    if lo == 1e-3:
-        at_min = smece_sigma(p, y, lo)
-        if at_min <= lo:
-            return at_min
-    return 0.5 * (lo + hi)
+    if smece_sigma(p, y, lo) <= lo:
+        return smece_sigma(p, y, lo)
+    return brentq(lambda s: smece_sigma(p, y, s) - s, lo, hi, xtol=1e-13, rtol=1e-13)
 
 
 def ici(p, y, span, delta):

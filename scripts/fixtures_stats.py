@@ -76,6 +76,45 @@ out["nemenyi_q"] = [{"k": k, "alpha": a,
                      "q": float(st.studentized_range.ppf(1 - a, k, np.inf) / np.sqrt(2))}
                     for a in (0.05, 0.10) for k in range(2, 11)]
 
+# Nemenyi q_alpha where it is computed rather than read from Demsar's Table 5(a):
+# alpha = 0.01, and more methods than the table's 10.
+out["nemenyi_q_computed"] = [{"k": k, "alpha": a,
+                              "q": float(st.studentized_range.ppf(1 - a, k, np.inf) / np.sqrt(2))}
+                             for a, ks in ((0.01, range(2, 11)), (0.05, (11, 12, 15, 20)), (0.10, (12, 20)))
+                             for k in ks]
+
+
+# Wilcoxon signed-rank critical values (the printed tables, e.g. Siegel 1956,
+# Table G): the largest T = min(R+, R-) whose exact two-sided p-value from
+# scipy.stats.wilcoxon(method="exact") is <= alpha, or None when even T = 0 is
+# not. Each T is realised by the differences +-1, ..., +-n whose negative ranks
+# sum to T (chosen greedily from the largest rank).
+def signed_ranks(n, t):
+    d = np.arange(1, n + 1, dtype=float)
+    rest = t
+    for r in range(n, 0, -1):
+        if r <= rest:
+            d[r - 1] = -r
+            rest -= r
+    assert rest == 0
+    return d
+
+
+def wilcoxon_critical(n, alpha):
+    best = None
+    for t in range(n * (n + 1) // 4 + 1):
+        r = st.wilcoxon(signed_ranks(n, t), method="exact")
+        assert r.statistic == t
+        if r.pvalue <= alpha:
+            best = t
+        else:
+            break
+    return best
+
+
+out["wilcoxon_critical"] = [{"n": n, "alpha": a, "t": wilcoxon_critical(n, a)}
+                            for a in (0.05, 0.01) for n in range(5, 31)]
+
 with open("tests/fixtures/stats/reference.json", "w") as f:
     json.dump(out, f, indent=1)
 print("wrote tests/fixtures/stats/reference.json")

@@ -5,7 +5,9 @@
 mod common;
 
 use common::{floats, pairs};
-use plumbline::stats::across::{friedman, holm, nemenyi_q, wilcoxon, PMethod};
+use plumbline::stats::across::{
+    friedman, holm, nemenyi_q, nemenyi_q_computed, wilcoxon, wilcoxon_critical, PMethod,
+};
 use plumbline::stats::paired::{interval, IntervalKind, PairedInput};
 use plumbline::stats::t_quantile;
 use serde_json::Value;
@@ -120,5 +122,46 @@ fn nemenyi_table_matches_studentized_range() {
             (q - case["q"].as_f64().unwrap()).abs() < 1e-3,
             "k = {k}, α = {a}: {q}"
         );
+    }
+}
+
+/// Nemenyi q_α where it is computed (α = 0.01, and more than the 10 methods of
+/// Demšar's Table 5(a)) against scipy.stats.studentized_range.ppf(1 − α, k, ∞)/√2.
+/// Tolerance 1e-6: our quantile inverts a Simpson rule with 4,000 panels by 60
+/// bisection steps, both far finer than that; scipy's own quantile is accurate
+/// to about 1e-8.
+#[test]
+fn computed_nemenyi_q_matches_studentized_range() {
+    let f = fixture();
+    let cases = f["nemenyi_q_computed"].as_array().unwrap();
+    assert!(cases.len() >= 10);
+    for case in cases {
+        let k = case["k"].as_u64().unwrap() as usize;
+        let a = case["alpha"].as_f64().unwrap();
+        let want = case["q"].as_f64().unwrap();
+        let q = nemenyi_q_computed(k, a);
+        assert!((q - want).abs() < 1e-6, "k = {k}, α = {a}: {q} vs {want}");
+        // Outside the table, nemenyi_q is the computed value itself.
+        if a == 0.01 || k > 10 {
+            assert_eq!(nemenyi_q(k, a).unwrap(), q);
+        }
+    }
+}
+
+/// Wilcoxon critical values (the printed tables, e.g. Siegel 1956,
+/// "Nonparametric Statistics", Table G) for N = 5..30 at α = 0.05 and 0.01:
+/// the largest T whose exact two-sided p-value from
+/// scipy.stats.wilcoxon(method = "exact") is at most α, none when even T = 0
+/// is not significant. Integers, compared exactly.
+#[test]
+fn wilcoxon_critical_values_match_scipy_exact() {
+    let f = fixture();
+    let cases = f["wilcoxon_critical"].as_array().unwrap();
+    assert_eq!(cases.len(), 52);
+    for case in cases {
+        let n = case["n"].as_u64().unwrap() as usize;
+        let a = case["alpha"].as_f64().unwrap();
+        let want = case["t"].as_u64().map(|t| t as usize);
+        assert_eq!(wilcoxon_critical(n, a), want, "N = {n}, α = {a}");
     }
 }
