@@ -362,15 +362,16 @@ pub fn table_terminal(t: &Table, term: &Term) -> String {
     let mut groups: Vec<Vec<usize>> = Vec::new();
     let first = floors.first().copied().unwrap_or(0) + 2;
     let mut used = first;
-    for i in 1..ncols {
+    for (i, &f) in floors.iter().enumerate().skip(1) {
+        // Each further column takes its floor and one border.
         match groups.last_mut() {
-            Some(g) if used + floors[i] + 1 <= term.width => {
+            Some(g) if used + f < term.width => {
                 g.push(i);
-                used += floors[i] + 1;
+                used += f + 1;
             }
             _ => {
                 groups.push(vec![i]);
-                used = first + floors[i] + 1;
+                used = first + f + 1;
             }
         }
     }

@@ -527,8 +527,10 @@ pub fn run_outcomes(
     let (finished, threads) = execute(
         &todo,
         keys.len(),
-        "{spinner} {wide_bar} {pos}/{len} units · {rate} · ETA {eta}",
-        "run",
+        (
+            "{spinner} {wide_bar} {pos}/{len} units · {rate} · ETA {eta}",
+            "run",
+        ),
         opts,
         done,
         &|(ti, size, r)| run_unit(plan, &data, ti, size, r).map(|u| vec![u]),
@@ -539,15 +541,15 @@ pub fn run_outcomes(
 
 /// The parallel loop shared by suites and protocol studies: `work` turns one
 /// key into finished units, each handed to `on_done` (the journal) as soon as
-/// it exists. The first journal failure stops the loop. The progress bar
-/// counts keys and starts at those already done. Returns every finished unit
+/// it exists. The first journal failure stops the loop. The progress (bar
+/// template, and the label of progress lines off a terminal) counts keys and
+/// starts at those already done. Returns every finished unit
 /// (`done` first, the rest in completion order; `assemble` sorts) and the
 /// number of worker threads.
 pub(crate) fn execute<K: Copy + Sync>(
     todo: &[K],
     total: usize,
-    bar_template: &str,
-    label: &str,
+    (bar_template, label): (&str, &str),
     opts: &RunOptions,
     done: Vec<UnitOutcome>,
     work: &(dyn Fn(K) -> Result<Vec<UnitOutcome>, String> + Sync),

@@ -80,7 +80,7 @@ fn interval() -> Duration {
         Err(std::env::VarError::NotPresent) => default,
         Ok(v) if v.trim().is_empty() => default,
         Ok(v) => match v.trim().parse::<f64>() {
-            Ok(x) if x.is_finite() && x >= 0.0 && x < 1e9 => Duration::from_secs_f64(x),
+            Ok(x) if (0.0..1e9).contains(&x) => Duration::from_secs_f64(x),
             _ => {
                 eprintln!(
                     "warning: {INTERVAL_VAR}={v:?} is not a number of seconds (0 or more); progress lines every {DEFAULT_INTERVAL_SECONDS} s"

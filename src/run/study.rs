@@ -159,8 +159,10 @@ pub fn run_study(
     let (finished, threads) = super::execute(
         &todo,
         keys.len(),
-        "{spinner} protocol study {wide_bar} {pos}/{len} units · {rate} · ETA {eta}",
-        "protocol study",
+        (
+            "{spinner} protocol study {wide_bar} {pos}/{len} units · {rate} · ETA {eta}",
+            "protocol study",
+        ),
         opts,
         done,
         &work,
