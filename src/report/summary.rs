@@ -1082,3 +1082,43 @@ pub fn task_terminal(a: &Analysis, ctx: &ReportContext, task: &str) -> Option<St
         &super::document::Term::detect(),
     ))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn spread(sizes: &[usize]) -> Spread {
+        let per_task: Vec<crate::stats::thresholds::Thresholds> = sizes
+            .iter()
+            .map(|&n| crate::stats::thresholds::Thresholds {
+                better_from: Some(n),
+                worse_until: None,
+                crossover: None,
+            })
+            .collect();
+        crate::stats::thresholds::summarize(&per_task)
+            .better_from
+            .unwrap()
+    }
+
+    #[test]
+    fn medians_are_told_as_tested_sizes() {
+        // Four tasks: the median 350 is no tested size; 200 and 500 are.
+        let b = spread(&[100, 200, 500, 1000]);
+        assert_eq!(
+            from_sizes(&b),
+            "a median between the tested sizes n = 200 and n = 500 (range 100–1000)"
+        );
+        assert_eq!(median_cell(&b), "between 200 and 500");
+        assert!(!from_sizes(&b).contains("350"));
+        let b = spread(&[50, 400]);
+        assert_eq!(
+            from_sizes(&b),
+            "n = 50 on half of them and n = 400 on the other half"
+        );
+        let b = spread(&[50, 400, 400]);
+        assert_eq!(from_sizes(&b), "a median n = 400 (range 50–400)");
+        assert_eq!(median_cell(&b), "400");
+        assert_eq!(from_sizes(&spread(&[200, 200])), "n = 200 on each");
+    }
+}
