@@ -123,6 +123,14 @@ pub fn describe_plan(plan: &Plan) -> String {
     s
 }
 
+/// A warning as lines for standard error: `warning: ` and the text wrapped
+/// to the terminal width (`COLUMNS`, else the terminal's, else 100), later
+/// lines indented.
+pub fn warning_lines(text: &str) -> String {
+    let width = report::document::Term::detect().width;
+    report::document::wrap(text, width, "warning: ", "  ")
+}
+
 /// Load and validate a suite.
 pub fn load_plan(path: &Path) -> Result<Plan> {
     Ok(suite::load(path)?)
@@ -651,13 +659,19 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         .map(|n| n as usize);
     let gaps = analysis::gaps::table_gaps(&table, repeats);
     for w in gaps.iter().take(20) {
-        eprintln!("warning: {}: {w}", units_path.display());
+        eprint!(
+            "{}",
+            warning_lines(&format!("{}: {w}", units_path.display()))
+        );
     }
     if gaps.len() > 20 {
-        eprintln!(
-            "warning: {}: … and {} more such warnings",
-            units_path.display(),
-            gaps.len() - 20
+        eprint!(
+            "{}",
+            warning_lines(&format!(
+                "{}: … and {} more such warnings",
+                units_path.display(),
+                gaps.len() - 20
+            ))
         );
     }
     let ctx = summary::ReportContext {

@@ -52,6 +52,11 @@ answer changes with the calibration size, the ranks and the data-size thresholds
 (per-task tables: `plumbline report DIR --task ID`). Open-data tasks first build their \
 score pools (cached beside the results folder).
 
+Progress goes to standard error: a bar on a terminal, else a line every 5 seconds \
+(units done, elapsed, estimated time left; PLUMBLINE_PROGRESS_SECONDS sets the interval). \
+The summary is laid out for COLUMNS columns, else the terminal's width, else 100; bold \
+only on a terminal without NO_COLOR (docs/report.md, \"The terminal\").
+
 The folder appears only when complete. Finished units are journaled as they finish: if a \
 run is interrupted, the same command resumes it. An existing results folder is kept \
 unless --force is given.")]
@@ -65,7 +70,7 @@ unless --force is given.")]
         /// depend on it.
         #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..))]
         threads: Option<u16>,
-        /// No progress bar and no table on the terminal.
+        /// No progress on standard error and no summary on standard output.
         #[arg(long)]
         quiet: bool,
         /// Replace an existing results folder; also discard the journal of an
@@ -194,13 +199,14 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 println!("{}", s.terminal);
             }
             for w in &s.warnings {
-                eprintln!("warning: {w}");
+                eprint!("{}", app::warning_lines(w));
             }
             eprintln!(
-                "{} units ({} resumed) on {} threads in {:.1} s → {}",
+                "{} units ({} resumed) on {} thread{} in {:.1} s → {}",
                 s.units,
                 s.resumed,
                 s.threads,
+                if s.threads == 1 { "" } else { "s" },
                 s.seconds,
                 s.out.display()
             );
@@ -238,7 +244,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
                 return Ok(());
             }
             if let Some(w) = s.warning() {
-                eprintln!("warning: {w}");
+                eprint!("{}", app::warning_lines(&w));
             }
             eprintln!("{} rows calibrated → {}", s.rows, args.out.display());
         }

@@ -182,7 +182,7 @@ fn small_suite_writes_the_documented_files() {
     assert!(summary.contains("Task `a`") && summary.contains("Caution"));
     // Plain isotonic regression makes extreme predictions in every log-loss
     // comparison here (see the test below): 4 of the 8 log-loss comparisons.
-    assert!(summary.contains("first-order reservoir term for 4 of 8 log-loss comparisons"));
+    assert!(summary.contains("Wider log-loss intervals: in 4 of 8 log-loss comparisons"));
     // 5 repeats is below the 30 at which the intervals' coverage was checked.
     assert!(summary.contains(
         "Note on intervals:** 16 of 16 comparisons rest on fewer than 30 repeats (as few as 5;"

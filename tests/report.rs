@@ -24,11 +24,16 @@ fn root() -> PathBuf {
 /// and the reliability files of `tests/fixtures/report/suite.toml`) reported
 /// into a temporary copy; returns the copy and the terminal output.
 fn reported_fixture() -> (TempDir, PathBuf, String) {
+    reported_fixture_at("100")
+}
+
+/// [`reported_fixture`] at `columns` columns (`COLUMNS`).
+fn reported_fixture_at(columns: &str) -> (TempDir, PathBuf, String) {
     let tmp = TempDir::new().unwrap();
     let dir = tmp.path().join("folder");
     copy_dir(&root().join("tests/fixtures/report/folder"), &dir);
     let out = bin()
-        .env("COLUMNS", "100")
+        .env("COLUMNS", columns)
         .args(["report", dir.to_str().unwrap()])
         .assert()
         .success()
@@ -130,6 +135,129 @@ fn every_table_format_matches_its_snapshot() {
         .stdout
         .clone();
     check_snapshot("terminal-task.txt", &task);
+    // The same terminal text at 80 columns (output to a pipe, as here, is
+    // laid out for a non-terminal: no escape codes).
+    let (_tmp80, dir80, terminal80) = reported_fixture_at("80");
+    check_snapshot("terminal-80.txt", terminal80.as_bytes());
+    let task80 = bin()
+        .env("COLUMNS", "80")
+        .args(["report", dir80.to_str().unwrap(), "--task", "route-boost"])
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    check_snapshot("terminal-task-80.txt", &task80);
+}
+
+/// Lines of `text` wider than `width` columns, and whether it holds an
+/// escape byte.
+fn too_wide(text: &str, width: usize) -> Vec<String> {
+    text.lines()
+        .filter(|l| l.chars().count() > width)
+        .map(|l| format!("{} chars: {l}", l.chars().count()))
+        .collect()
+}
+
+/// A small run printed to a pipe at `COLUMNS=80`: every line of its
+/// standard output fits 80 columns, holds no escape code (not a terminal;
+/// and `NO_COLOR` set), never says "bold" for bold it cannot show, and
+/// keeps intervals and method names whole; the progress goes to standard
+/// error as plain lines, never to standard output.
+#[test]
+fn a_run_to_a_pipe_fits_80_columns_without_escape_codes() {
+    let tmp = TempDir::new().unwrap();
+    for (k, no_color) in [None, Some("1")].into_iter().enumerate() {
+        let out_dir = tmp.path().join(format!("run{k}"));
+        let mut cmd = bin();
+        cmd.env("COLUMNS", "80")
+            .env("PLUMBLINE_PROGRESS_SECONDS", "0")
+            .env_remove("NO_COLOR")
+            .args([
+                "run",
+                root()
+                    .join("tests/fixtures/report/suite.toml")
+                    .to_str()
+                    .unwrap(),
+                "--out",
+                out_dir.to_str().unwrap(),
+            ]);
+        if let Some(v) = no_color {
+            cmd.env("NO_COLOR", v);
+        }
+        let o = cmd.assert().success().get_output().clone();
+        let stdout = String::from_utf8(o.stdout).unwrap();
+        let stderr = String::from_utf8(o.stderr).unwrap();
+        assert!(stdout.contains("team default"), "{stdout}");
+        assert_eq!(too_wide(&stdout, 80), Vec::<String>::new());
+        assert!(!stdout.contains('\x1b'), "escape code in:\n{stdout}");
+        assert!(!stderr.contains('\x1b'), "escape code in:\n{stderr}");
+        // Bold cannot be shown: the rank tables mark the best with `*`.
+        assert!(!stdout.contains("bold"), "{stdout}");
+        assert!(stdout.contains("marked *: best at that size"), "{stdout}");
+        // Progress: a line for every unit at interval 0, counted to the end.
+        common::has(
+            &stderr,
+            &["run: 1/30 units done · ", "run: 30/30 units done · "],
+        );
+        assert!(!stdout.contains("units done"), "{stdout}");
+        assert!(stderr.contains("30 units (0 resumed) on "), "{stderr}");
+        // One task's table at 80 columns: every interval on one line.
+        let task = bin()
+            .env("COLUMNS", "80")
+            .args(["report", out_dir.to_str().unwrap(), "--task", "route-boost"])
+            .assert()
+            .success()
+            .get_output()
+            .stdout
+            .clone();
+        let task = String::from_utf8(task).unwrap();
+        assert_eq!(too_wide(&task, 80), Vec::<String>::new());
+        let intervals = task.matches(", ").count();
+        assert!(intervals >= 8, "{task}");
+        for l in task.lines().filter(|l| l.contains(", ")) {
+            assert!(
+                l.matches('[').count() == l.matches(']').count(),
+                "interval broken: {l}"
+            );
+        }
+        // Method names whole in the rank tables (one row each per metric).
+        for m in ["identity", "platt", "beta", "isotonic", "venn-abers"] {
+            let rows = stdout
+                .lines()
+                .filter(|l| l.starts_with(&format!("│ {m} ")))
+                .count();
+            assert!(rows >= 2, "method {m}: {rows} rows\n{stdout}");
+        }
+    }
+}
+
+/// A progress interval that is not a number of seconds is reported, and the
+/// run goes on with the default.
+#[test]
+fn a_bad_progress_interval_is_reported() {
+    let tmp = TempDir::new().unwrap();
+    let out_dir = tmp.path().join("run");
+    let o = bin()
+        .env("PLUMBLINE_PROGRESS_SECONDS", "soon")
+        .args([
+            "run",
+            root()
+                .join("tests/fixtures/report/suite.toml")
+                .to_str()
+                .unwrap(),
+            "--out",
+            out_dir.to_str().unwrap(),
+        ])
+        .assert()
+        .success()
+        .get_output()
+        .clone();
+    let stderr = String::from_utf8(o.stderr).unwrap();
+    assert!(
+        stderr.contains("PLUMBLINE_PROGRESS_SECONDS=\"soon\" is not a number of seconds"),
+        "{stderr}"
+    );
 }
 
 #[test]

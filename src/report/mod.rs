@@ -21,7 +21,7 @@ pub fn esc(s: &str) -> String {
         .replace('"', "&quot;")
 }
 
-/// Every published file of a results folder except `units.csv`, `timings.csv`
+/// Every published file of a results folder except `units.csv.gz`, `timings.csv`
 /// and `manifest.json`: (path inside the folder, bytes). The same function
 /// serves `plumbline run` and `plumbline report`, so both publish the same files.
 pub fn publish(a: &Analysis, ctx: &summary::ReportContext) -> Vec<(String, Vec<u8>)> {

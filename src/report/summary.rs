@@ -11,6 +11,7 @@ use crate::analysis::{
 };
 use crate::metrics::reliability::CurveRecord;
 use crate::stats::paired::IntervalKind;
+use crate::stats::thresholds::Spread;
 use crate::stats::verdict::{marks_slashed, Verdict};
 
 /// What the summary says about where the results came from.
@@ -162,6 +163,39 @@ fn size_range(a: usize, b: usize) -> String {
     }
 }
 
+/// Where a spread of tested sizes starts paying off, in words: the median
+/// when it is a tested size, else the two tested sizes it lies between (no
+/// size between them was tried), and the range when it says more.
+fn from_sizes(b: &Spread) -> String {
+    if b.min == b.max {
+        return format!("n = {:.0} on each", b.min);
+    }
+    let range = format!("range {:.0}–{:.0}", b.min, b.max);
+    if b.median_low == b.median_high {
+        format!("a median n = {:.0} ({range})", b.median_low)
+    } else if b.min == b.median_low && b.max == b.median_high {
+        format!(
+            "n = {:.0} on half of them and n = {:.0} on the other half",
+            b.median_low, b.median_high
+        )
+    } else {
+        format!(
+            "a median between the tested sizes n = {:.0} and n = {:.0} ({range})",
+            b.median_low, b.median_high
+        )
+    }
+}
+
+/// The median of a spread of tested sizes for a table cell: the size, or
+/// the two tested sizes it lies between.
+fn median_cell(b: &Spread) -> String {
+    if b.median_low == b.median_high {
+        format!("{:.0}", b.median_low)
+    } else {
+        format!("between {:.0} and {:.0}", b.median_low, b.median_high)
+    }
+}
+
 /// `m` as a base-model name in text.
 fn model_name(m: &str) -> String {
     if m.is_empty() {
@@ -275,8 +309,10 @@ fn raw_words(d: &Decision, raw: &str) -> String {
             };
             match &s.better_from {
                 Some(b) => format!(
-                    "{who} on {} of {} tasks, from a median n = {:.0} [{:.0}, {:.0}]",
-                    b.tasks, s.tasks, b.median, b.min, b.max
+                    "{who} on {} of {} tasks, from {}",
+                    b.tasks,
+                    s.tasks,
+                    from_sizes(b)
                 ),
                 None => format!("{who} on none of {} tasks", s.tasks),
             }
@@ -527,7 +563,7 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         t.header = pick(&t.header);
         t.rows = t.rows.iter().map(|r| pick(r)).collect();
         t.notes = vec![format!(
-            "Vs runner-up P(✓/=/✗): the posterior probability that `{}` is better than, practically equivalent to, or worse than `{ru}` (Bayesian signed-rank test, dataset as unit; {DECISIVE} decides). Ranks, per-task counts and the test's full tables are in summary.md.",
+            "Vs runner-up P(✓/=/✗): the posterior probability that `{}` is better than, practically equivalent to, or worse than `{ru}` (Bayesian signed-rank test, dataset as unit; bold: one reaches {DECISIVE}, which decides). Ranks, per-task counts and the test's full tables are in summary.md.",
             d.default
         )];
     }
@@ -616,7 +652,7 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
     let switches = kind.is_some_and(|k| k.reservoir_order(false) != k.reservoir_order(true));
     if wide > 0 && switches {
         out.push(Block::Para(format!(
-            "The default interval took its wider first-order reservoir term for {wide} of {} log-loss comparisons, where a method gave the observed class a probability at or below the log-loss clip (an exact 0 or 1) on some test row; see `docs/statistics.md`.",
+            "Wider log-loss intervals: in {wide} of {} log-loss comparisons a method predicted exactly 0 or 1 (within the log-loss clip) and was wrong on some test row. A few calibration rows decide where such a method jumps to 0 or 1, so its log loss varies more from one calibration sample to the next, and the interval is widened to allow for that. Why and when: `docs/report.md` (\"Wider log-loss intervals\").",
             log_loss.len()
         )));
     }
@@ -791,7 +827,13 @@ fn threshold_blocks(a: &Analysis, detail: Detail) -> Vec<Block> {
         ));
         return out;
     }
-    out.push(Block::Para("Per task, *better from* is the smallest tested size from which the flexible method is reliably better than the parametric one at every larger tested size. Each cell gives the number of tasks where that happens within the sizes tried, out of the tasks compared, and the median size [range] over those tasks; per-task values (also *worse up to* and the interpolated crossover) are in `thresholds.csv`. A size is only as good as the sizes tested: \"better from 1000\" means better at 1000 and at every larger size in the sweep, not at 700.".into()));
+    out.push(Block::Para(format!("Per task, \"better from\" is the smallest tested size from which the flexible method is reliably better than the parametric one at every larger tested size. Each cell gives the number of tasks where that happens within the sizes tried, out of the tasks compared, and the median size over those tasks{}; per-task values (also \"worse up to\" and the interpolated crossover) are in `thresholds.csv`. A median over an even number of tasks can fall between two tested sizes; the cell then names both (\"between 200 and 500\"), since no size between them was tried. A size is only as good as the sizes tested: \"better from 1000\" means better at 1000 and at every larger size in the sweep, not at 700.",
+        if detail == Detail::Full {
+            " [smallest, largest]"
+        } else {
+            " (their range is in summary.md)"
+        }
+    )));
     let metrics: Vec<String> = a.decisions.iter().map(|d| d.metric.clone()).collect();
     let mut pairs: Vec<(String, String)> = Vec::new();
     for (_, p, _) in &a.threshold_summaries {
@@ -800,7 +842,11 @@ fn threshold_blocks(a: &Analysis, detail: Detail) -> Vec<Block> {
         }
     }
     let mut t = Table {
-        title: "Better from (tasks within the sizes tried / tasks compared; median [range])".into(),
+        title: if detail == Detail::Full {
+            "Better from (tasks within the sizes tried / tasks compared; median [range])".into()
+        } else {
+            "Better from (tasks within the sizes tried / tasks compared; median; range in summary.md)".into()
+        },
         header: std::iter::once("flexible vs parametric".to_string())
             .chain(metrics.iter().map(|m| format!("`{m}`")))
             .collect(),
@@ -816,10 +862,14 @@ fn threshold_blocks(a: &Analysis, detail: Detail) -> Vec<Block> {
                 .find(|(mm, pp, _)| mm == m && pp.0 == *f && pp.1 == *p)
                 .map(|(_, _, s)| match &s.better_from {
                     Some(b) if detail == Detail::Full => format!(
-                        "{}/{}; {:.0} [{:.0}, {:.0}]",
-                        b.tasks, s.tasks, b.median, b.min, b.max
+                        "{}/{}; {} [{:.0}, {:.0}]",
+                        b.tasks,
+                        s.tasks,
+                        median_cell(b),
+                        b.min,
+                        b.max
                     ),
-                    Some(b) => format!("{}/{}; {:.0}", b.tasks, s.tasks, b.median),
+                    Some(b) => format!("{}/{}; {}", b.tasks, s.tasks, median_cell(b)),
                     None => format!("0/{}", s.tasks),
                 })
                 .unwrap_or_else(|| "–".into());
@@ -1002,7 +1052,7 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
     b.extend(super::fallback::fallback_blocks(a));
     b.push(Block::Heading(2, "Reproduce".into(), "reproduce".into()));
     b.push(Block::Para(format!(
-        "Run `plumbline run {}` with the same suite file (check its SHA-256 above) to get byte-identical `units.csv`, `paired.csv`, `thresholds.csv`, `reliability*.csv`, `summary.md`, `index.html` and figures; `plumbline report <folder>` rebuilds the tables and figures from `units.csv` and the reliability files.",
+        "Run `plumbline run {}` with the same suite file (check its SHA-256 above) to get byte-identical `units.csv.gz`, `paired.csv`, `thresholds.csv`, `reliability*.csv`, `summary.md`, `index.html` and figures; `plumbline report <folder>` rebuilds the tables and figures from `units.csv.gz` and the reliability files.",
         ctx.suite_file
     )));
     b
@@ -1013,18 +1063,12 @@ pub fn summary_md(a: &Analysis, ctx: &ReportContext) -> String {
     super::document::to_markdown(&document(a, ctx, Detail::Full))
 }
 
-/// Terminal width: `COLUMNS` when set, at most 100.
-fn width() -> usize {
-    std::env::var("COLUMNS")
-        .ok()
-        .and_then(|c| c.parse::<usize>().ok())
-        .unwrap_or(100)
-        .clamp(60, 100)
-}
-
 /// The terminal report: decision, caution, legend, ranks and thresholds.
 pub fn terminal(a: &Analysis, ctx: &ReportContext) -> String {
-    super::document::to_terminal(&document(a, ctx, Detail::Brief), width())
+    super::document::to_terminal(
+        &document(a, ctx, Detail::Brief),
+        &super::document::Term::detect(),
+    )
 }
 
 /// The terminal table of one task (`plumbline report DIR --task ID`); `None`
@@ -1035,6 +1079,46 @@ pub fn task_terminal(a: &Analysis, ctx: &ReportContext, task: &str) -> Option<St
     }
     Some(super::document::to_terminal(
         &task_blocks(a, ctx, task),
-        width(),
+        &super::document::Term::detect(),
     ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn spread(sizes: &[usize]) -> Spread {
+        let per_task: Vec<crate::stats::thresholds::Thresholds> = sizes
+            .iter()
+            .map(|&n| crate::stats::thresholds::Thresholds {
+                better_from: Some(n),
+                worse_until: None,
+                crossover: None,
+            })
+            .collect();
+        crate::stats::thresholds::summarize(&per_task)
+            .better_from
+            .unwrap()
+    }
+
+    #[test]
+    fn medians_are_told_as_tested_sizes() {
+        // Four tasks: the median 350 is no tested size; 200 and 500 are.
+        let b = spread(&[100, 200, 500, 1000]);
+        assert_eq!(
+            from_sizes(&b),
+            "a median between the tested sizes n = 200 and n = 500 (range 100–1000)"
+        );
+        assert_eq!(median_cell(&b), "between 200 and 500");
+        assert!(!from_sizes(&b).contains("350"));
+        let b = spread(&[50, 400]);
+        assert_eq!(
+            from_sizes(&b),
+            "n = 50 on half of them and n = 400 on the other half"
+        );
+        let b = spread(&[50, 400, 400]);
+        assert_eq!(from_sizes(&b), "a median n = 400 (range 50–400)");
+        assert_eq!(median_cell(&b), "400");
+        assert_eq!(from_sizes(&spread(&[200, 200])), "n = 200 on each");
+    }
 }

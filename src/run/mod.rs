@@ -14,15 +14,14 @@
 pub mod journal;
 pub mod output;
 pub mod pools;
+pub mod progress;
 pub mod study;
 pub mod table;
 
 use std::collections::{BTreeMap, BTreeSet};
-use std::io::IsTerminal;
 use std::sync::Mutex;
 use std::time::Instant;
 
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
 use crate::calibrate::ScoreKind;
@@ -528,7 +527,10 @@ pub fn run_outcomes(
     let (finished, threads) = execute(
         &todo,
         keys.len(),
-        "{spinner} {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
+        (
+            "{spinner} {wide_bar} {pos}/{len} units · {rate} · ETA {eta}",
+            "run",
+        ),
         opts,
         done,
         &|(ti, size, r)| run_unit(plan, &data, ti, size, r).map(|u| vec![u]),
@@ -539,14 +541,15 @@ pub fn run_outcomes(
 
 /// The parallel loop shared by suites and protocol studies: `work` turns one
 /// key into finished units, each handed to `on_done` (the journal) as soon as
-/// it exists. The first journal failure stops the loop. The progress bar
-/// counts keys and starts at those already done. Returns every finished unit
+/// it exists. The first journal failure stops the loop. The progress (bar
+/// template, and the label of progress lines off a terminal) counts keys and
+/// starts at those already done. Returns every finished unit
 /// (`done` first, the rest in completion order; `assemble` sorts) and the
 /// number of worker threads.
 pub(crate) fn execute<K: Copy + Sync>(
     todo: &[K],
     total: usize,
-    bar_template: &str,
+    (bar_template, label): (&str, &str),
     opts: &RunOptions,
     done: Vec<UnitOutcome>,
     work: &(dyn Fn(K) -> Result<Vec<UnitOutcome>, String> + Sync),
@@ -554,7 +557,7 @@ pub(crate) fn execute<K: Copy + Sync>(
 ) -> Result<(Vec<UnitOutcome>, usize), RunError> {
     let pool = thread_pool(opts.threads)?;
     let threads = pool.current_num_threads();
-    let bar = progress_bar(total as u64, bar_template, opts.quiet);
+    let bar = progress::Progress::new(total as u64, bar_template, label, "units", opts.quiet);
     bar.set_position(total.saturating_sub(todo.len()) as u64);
     let finished: Mutex<Vec<UnitOutcome>> = Mutex::new(done);
     let journal_error: Mutex<Option<String>> = Mutex::new(None);
@@ -588,10 +591,10 @@ pub(crate) fn execute<K: Copy + Sync>(
             if let Ok(mut f) = finished.lock() {
                 f.extend(units);
             }
-            bar.inc(1);
+            bar.inc();
         });
     });
-    bar.finish_and_clear();
+    bar.finish();
     if let Some(e) = stop_error.into_inner().unwrap_or(None) {
         return Err(RunError::FitStopped(e));
     }
@@ -608,18 +611,6 @@ pub(crate) fn thread_pool(threads: Option<usize>) -> Result<rayon::ThreadPool, R
         .num_threads(threads.unwrap_or(0))
         .build()
         .map_err(|e| RunError::Threads(e.to_string()))
-}
-
-/// A progress bar on stderr, hidden with `quiet` or when stderr is not a terminal.
-pub(crate) fn progress_bar(len: u64, template: &str, quiet: bool) -> ProgressBar {
-    if quiet || !std::io::stderr().is_terminal() {
-        return ProgressBar::with_draw_target(Some(len), ProgressDrawTarget::hidden());
-    }
-    let b = ProgressBar::with_draw_target(Some(len), ProgressDrawTarget::stderr());
-    b.set_style(
-        ProgressStyle::with_template(template).unwrap_or_else(|_| ProgressStyle::default_bar()),
-    );
-    b
 }
 
 /// Sort units into output order: task order, then (for a protocol study's

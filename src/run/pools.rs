@@ -72,9 +72,11 @@ pub fn resolve_tasks(
         }
     }
     let pool = super::thread_pool(threads).map_err(|e| e.to_string())?;
-    let bar = super::progress_bar(
+    let bar = super::progress::Progress::new(
         open_ids.len() as u64,
         "{spinner} score pools {wide_bar} {pos}/{len} tasks · {elapsed} · {msg}",
+        "score pools",
+        "tasks",
         quiet,
     );
     let seed = plan.seed;
@@ -97,12 +99,12 @@ pub fn resolve_tasks(
                 let r = score_pool(ds, model, protocol, model_seed(seed, data), cache)
                     .map_err(|e| format!("task `{}`: {e}", t.id));
                 bar.set_message(t.id.clone());
-                bar.inc(1);
+                bar.inc();
                 r.map(|(p, info)| (i, p, info))
             })
             .collect()
     });
-    bar.finish_and_clear();
+    bar.finish();
     let mut reports = Vec::new();
     for b in built {
         let (i, p, info) = b?;

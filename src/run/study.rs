@@ -159,7 +159,10 @@ pub fn run_study(
     let (finished, threads) = super::execute(
         &todo,
         keys.len(),
-        "{spinner} protocol study {wide_bar} {pos}/{len} units · {per_sec} · ETA {eta}",
+        (
+            "{spinner} protocol study {wide_bar} {pos}/{len} units · {rate} · ETA {eta}",
+            "protocol study",
+        ),
         opts,
         done,
         &work,

@@ -103,6 +103,11 @@ pub fn thresholds_within(points: &[(usize, Interval, f64)]) -> Result<Thresholds
 pub struct Spread {
     pub tasks: usize,
     pub median: f64,
+    /// The middle value, or with an even count the two middle values, whose
+    /// mean is `median` (equal for an odd count): for tested sizes, the
+    /// sizes the median lies between.
+    pub median_low: f64,
+    pub median_high: f64,
     pub min: f64,
     pub max: f64,
 }
@@ -113,14 +118,16 @@ fn spread(mut v: Vec<f64>) -> Option<Spread> {
     }
     v.sort_by(|a, b| a.total_cmp(b));
     let k = v.len();
-    let median = if k % 2 == 1 {
-        v[k / 2]
+    let (median_low, median_high) = if k % 2 == 1 {
+        (v[k / 2], v[k / 2])
     } else {
-        (v[k / 2 - 1] + v[k / 2]) / 2.0
+        (v[k / 2 - 1], v[k / 2])
     };
     Some(Spread {
         tasks: k,
-        median,
+        median: (median_low + median_high) / 2.0,
+        median_low,
+        median_high,
         min: v[0],
         max: v[k - 1],
     })
@@ -216,6 +223,13 @@ mod tests {
         ]);
         let b = s.better_from.unwrap();
         assert_eq!((b.tasks, b.median, b.min, b.max), (3, 200.0, 100.0, 400.0));
+        assert_eq!((b.median_low, b.median_high), (200.0, 200.0));
+        let even = summarize(&[t(Some(100), None), t(Some(400), None)]);
+        let e = even.better_from.unwrap();
+        assert_eq!(
+            (e.median, e.median_low, e.median_high),
+            (250.0, 100.0, 400.0)
+        );
         let c = s.crossover.unwrap();
         assert_eq!((c.tasks, c.median), (3, 120.0));
         assert!(s.worse_until.is_none());

@@ -278,8 +278,14 @@ pub fn pairs<'a, A, B>(
 
 /// Every needle is in `text`; the first missing one is named with the text.
 pub fn has(text: &str, needles: &[&str]) {
+    // Warnings are wrapped to the terminal width: a needle may span lines.
+    let flat = |s: &str| s.split_whitespace().collect::<Vec<_>>().join(" ");
+    let text_flat = flat(text);
     for n in needles {
-        assert!(text.contains(n), "`{n}` not in: {text}");
+        assert!(
+            text.contains(n) || text_flat.contains(&flat(n)),
+            "`{n}` not in: {text}"
+        );
     }
 }
 
