@@ -7,7 +7,12 @@
 //! size high, of which 0.8 lies above the baseline and 0.2 below; placed by
 //! its `text-anchor` (start, middle, end) and turned by its `transform`
 //! (`translate(x,y) rotate(a)`, as the threshold chart's column labels are).
-//! Boxes that merely touch do not overlap.
+//! Two texts must keep [`GAP`] apart: labels that nearly touch (the two axes'
+//! labels at a panel's corner) read as one.
+//!
+//! The threshold chart and the reliability diagrams (also `plumbline
+//! diagnose`'s) must end where their content does: no more than
+//! [`RIGHT_MARGIN`] of canvas right of the rightmost text or box.
 
 use std::collections::BTreeMap;
 use std::fs;
@@ -22,6 +27,10 @@ use common::{bin, copy_dir, files};
 const CHAR_WIDTH: f64 = 0.6;
 /// Share of the font size above the baseline (the rest lies below).
 const ASCENT: f64 = 0.8;
+/// Least distance (px) between two texts' boxes.
+const GAP: f64 = 1.5;
+/// Most canvas (px) right of the content of a trimmed figure.
+const RIGHT_MARGIN: f64 = 20.0;
 
 type Pt = (f64, f64);
 
@@ -30,6 +39,8 @@ type Pt = (f64, f64);
 struct TextBox {
     text: String,
     corners: [Pt; 4],
+    /// Inside the figure's heading (`<g class="heading">`).
+    heading: bool,
 }
 
 /// `.name{prop:value;...}` rules of the figure's `<style>` elements.
@@ -135,6 +146,9 @@ fn text_boxes(doc: &roxmltree::Document) -> Vec<TextBox> {
             let t = transform(n.attribute("transform"));
             TextBox {
                 text,
+                heading: n
+                    .ancestors()
+                    .any(|a| a.attribute("class") == Some("heading")),
                 corners: [
                     t((left, top)),
                     t((left + w, top)),
@@ -146,8 +160,8 @@ fn text_boxes(doc: &roxmltree::Document) -> Vec<TextBox> {
         .collect()
 }
 
-/// Whether two convex quadrilaterals overlap by more than a hair (the
-/// separating-axis test on the edge normals of both).
+/// Whether two convex quadrilaterals overlap or lie closer than [`GAP`]
+/// (the separating-axis test on the edge normals of both).
 fn overlap(a: &[Pt; 4], b: &[Pt; 4]) -> bool {
     for quad in [a, b] {
         for i in 0..4 {
@@ -166,12 +180,34 @@ fn overlap(a: &[Pt; 4], b: &[Pt; 4]) -> bool {
             };
             let (a0, a1) = proj(a);
             let (b0, b1) = proj(b);
-            if a1 <= b0 + 0.01 || b1 <= a0 + 0.01 {
+            if a1 + GAP <= b0 || b1 + GAP <= a0 {
                 return false;
             }
         }
     }
     true
+}
+
+/// Empty canvas right of a figure's content: its width less the right
+/// end of the rightmost text box or `<rect>`, leaving out the white
+/// background and the heading (`<g class="heading">`), whose lines wrap to
+/// whatever width the figure has.
+fn empty_right(svg: &str) -> f64 {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    let w = number(doc.root_element().attribute("width").unwrap());
+    let texts = text_boxes(&doc)
+        .into_iter()
+        .filter(|b| !b.heading)
+        .flat_map(|b| b.corners.map(|c| c.0));
+    let rects = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("rect"))
+        .map(|n| {
+            n.attribute("x").map(number).unwrap_or(0.0)
+                + n.attribute("width").map(number).unwrap_or(0.0)
+        })
+        .filter(|&r| r < w);
+    w - texts.chain(rects).fold(0.0f64, f64::max)
 }
 
 /// The layout faults of one figure: texts outside the canvas, overlapping
@@ -201,7 +237,7 @@ fn faults(svg: &str) -> Vec<String> {
         for j in 0..i {
             if overlap(&boxes[i].corners, &boxes[j].corners) {
                 out.push(format!(
-                    "texts {:?} and {:?} overlap",
+                    "texts {:?} and {:?} overlap or lie closer than {GAP} px",
                     boxes[j].text, boxes[i].text
                 ));
             }
@@ -269,8 +305,65 @@ fn every_figure_keeps_its_texts_apart_and_its_methods_distinct() {
     for f in &figs {
         let svg = fs::read_to_string(dir.join("figures").join(f)).unwrap();
         all.extend(faults(&svg).into_iter().map(|e| format!("{f}: {e}")));
+        if f.starts_with("thresholds--") || f.ends_with("--reliability.svg") {
+            let e = empty_right(&svg);
+            if e > RIGHT_MARGIN {
+                all.push(format!("{f}: {e:.0} px of empty canvas on the right"));
+            }
+        }
     }
     assert!(all.is_empty(), "{} faults:\n{}", all.len(), all.join("\n"));
+}
+
+/// `plumbline diagnose` draws its figure with the same code: on a score
+/// file with a long path (a heading wider than the figure), two columns and
+/// scores of exactly 0 and 1, its texts stay inside the canvas and apart,
+/// and the canvas ends where the content does.
+#[test]
+fn the_diagnose_figure_keeps_its_texts_inside_and_apart() {
+    let tmp = TempDir::new().unwrap();
+    let dir = tmp
+        .path()
+        .join("scores-of-a-model-on-its-held-out-validation-rows");
+    fs::create_dir(&dir).unwrap();
+    let file = dir.join("predictions_with_labels_for_the_calibration_check.csv");
+    let mut csv = String::from("score,label,other\n");
+    let mut x = 11u64;
+    for i in 0..400 {
+        let q = common::uniform(&mut x);
+        let y = common::uniform(&mut x) < q;
+        // Exact 0 and 1 at the ends: outcome log-odds ∓∞ on the panels.
+        let s = match i % 40 {
+            0 => 0.0,
+            1 => 1.0,
+            _ => 1.0 / (1.0 + (-1.8 * (q / (1.0 - q)).ln()).exp()),
+        };
+        let y = match i % 40 {
+            0 => false,
+            1 => true,
+            _ => y,
+        };
+        csv.push_str(&format!("{s:.6},{},{q:.6}\n", y as u8));
+    }
+    fs::write(&file, csv).unwrap();
+    let out = tmp.path().join("out");
+    bin()
+        .arg("diagnose")
+        .arg(&file)
+        .arg("--out")
+        .arg(&out)
+        .args(["--bootstrap", "20", "--compare", "other"])
+        .assert()
+        .success();
+    let svg = fs::read_to_string(out.join("reliability.svg")).unwrap();
+    let mut all = faults(&svg);
+    let e = empty_right(&svg);
+    if e > RIGHT_MARGIN {
+        all.push(format!("{e:.0} px of empty canvas on the right"));
+    }
+    assert!(all.is_empty(), "{} faults:\n{}", all.len(), all.join("\n"));
+    assert!(svg.contains("class=\"inf\""), "no edge mark drawn");
+    assert!(svg.contains("95% consistency band"), "{svg}");
 }
 
 /// The checker itself finds what it looks for: a hand-made figure with a
@@ -284,6 +377,8 @@ fn the_checker_finds_planted_faults() {
 <text transform="translate(20,52) rotate(-30)">xyz</text>
 <text x="10" y="90" text-anchor="end">left</text>
 <text x="100" y="90" text-anchor="end">fine</text>
+<text x="160" y="60" font-size="8" text-anchor="end">−8</text>
+<text x="163" y="68.5" font-size="8" text-anchor="middle">+8</text>
 <g class="key" data-method="a"><circle class="m-circle" cx="1" cy="1" r="1" fill="#332288"/></g>
 <g class="key" data-method="b"><circle class="m-circle" cx="1" cy="1" r="1" fill="#332288"/></g>
 <g class="key" data-method="c"><rect class="m-square" x="1" y="1" width="1" height="1" fill="#332288"/></g>
@@ -304,5 +399,22 @@ fn the_checker_finds_planted_faults() {
             .any(|e| e.contains("a and b share colour and marker")),
         "{f:?}"
     );
-    assert_eq!(f.len(), 4, "{f:?}");
+    // Two tick labels at a corner, 0.5 px apart: too close.
+    assert!(
+        f.iter()
+            .any(|e| e.contains("\"−8\" and \"+8\" overlap or lie closer")),
+        "{f:?}"
+    );
+    assert_eq!(f.len(), 5, "{f:?}");
+    // A figure with 60 px of canvas right of its last text, heading aside.
+    let wide = r##"<svg xmlns="http://www.w3.org/2000/svg" width="200" height="100" font-size="10">
+<rect width="200" height="100" fill="white"/>
+<g class="heading"><text x="10" y="20">a heading as wide as the whole figure</text></g>
+<rect x="10" y="30" width="70" height="20"/><text x="80" y="70">abcdefghij</text>
+</svg>"##;
+    assert!(
+        (empty_right(wide) - 60.0).abs() < 1e-9,
+        "{}",
+        empty_right(wide)
+    );
 }

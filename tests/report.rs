@@ -521,26 +521,26 @@ fn demo(stem: &str, rows: usize, seed: u64) -> (Vec<f64>, Vec<bool>) {
 
 /// Under calibration the labels are Bernoulli(p), so the observed curve of
 /// calibrated scores is a draw from the very distribution the band describes:
-/// the pointwise 90% band should hold the diagonal at about 90% of the curve
-/// points, and so should the observed curve itself. Neighbouring points are
-/// strongly dependent, so the tolerance is wide: at least 75% for both (fixed
-/// seeds; the test prints both shares — 0.971 for the diagonal when it was
-/// written: the band is centred near the diagonal, so it holds it more often
-/// than the nominal level).
+/// the pointwise 95% band (the default level, the report's confidence) should
+/// hold the diagonal at about 95% of the curve points, and so should the
+/// observed curve itself. Neighbouring points are strongly dependent, so the
+/// tolerance is wide: at least 80% for both (fixed seeds; the test prints
+/// both shares).
 ///
-/// Coverage alone would pass a band that is simply too wide, so the mean band
-/// width is bounded above too. Measured on these seeds: mean 0.0873 (largest
-/// 0.1818) at the 90% level, and 0.1028 with the same draws at 95% — the ratio
-/// 1.18 of the normal quantiles 1.960/1.645 = 1.19, as for a binomial
-/// proportion's interval. The bound 0.095 sits between them: a band of the
-/// next common level, or quantiles taken further out, fails.
+/// Coverage alone would pass a band that is simply too wide, and a band too
+/// narrow can still hold a centred diagonal, so the mean band width is
+/// bounded on both sides. Measured on these seeds: mean 0.0873 at the 90%
+/// level and 0.1028 with the same draws at 95% — the ratio 1.18 of the normal
+/// quantiles 1.960/1.645 = 1.19, as for a binomial proportion's interval; at
+/// 99% the same ratio gives 2.576/1.960 × 0.1028 ≈ 0.135. The bounds 0.095
+/// and 0.12 sit between them: a band of the next common level below or
+/// above, or quantiles taken further in or out, fails.
 #[test]
 fn the_band_holds_the_diagonal_on_calibrated_scores() {
     use plumbline::metrics::reliability::{curve, BandSettings};
-    let band = BandSettings {
-        draws: 200,
-        level: 0.9,
-    };
+    let band = BandSettings::default();
+    assert_eq!(band.draws, 200);
+    assert_eq!(band.level, 0.95);
     let (mut inside, mut curve_inside, mut total) = (0, 0, 0);
     let (mut width_sum, mut width_max) = (0.0f64, 0.0f64);
     for seed in 1..=5u64 {
@@ -561,18 +561,18 @@ fn the_band_holds_the_diagonal_on_calibrated_scores() {
     let share = inside as f64 / total as f64;
     let curve_share = curve_inside as f64 / total as f64;
     let width_mean = width_sum / total as f64;
-    eprintln!("of {total} curve points: diagonal inside the 90% band at {share:.3}, observed curve inside at {curve_share:.3}; band width mean {width_mean:.4}, largest {width_max:.4}");
+    eprintln!("of {total} curve points: diagonal inside the 95% band at {share:.3}, observed curve inside at {curve_share:.3}; band width mean {width_mean:.4}, largest {width_max:.4}");
     assert!(
-        share >= 0.75,
+        share >= 0.8,
         "diagonal inside the band at {share:.3} of {total} points"
     );
     assert!(
-        curve_share >= 0.75,
+        curve_share >= 0.8,
         "observed curve inside the band at {curve_share:.3} of {total} points"
     );
     assert!(
-        width_mean <= 0.095,
-        "mean band width {width_mean:.4} over {total} points (measured 0.0873 at 90%)"
+        (0.095..=0.12).contains(&width_mean),
+        "mean band width {width_mean:.4} over {total} points (measured 0.0873 at 90%, 0.1028 at 95%)"
     );
 }
 

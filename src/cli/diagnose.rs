@@ -31,8 +31,8 @@
 //! their intervals ([`reading`]), in the table's notes and `reading.txt`.
 //!
 //! Reliability diagram: the CORP curve with its consistency band
-//! ([`crate::metrics::reliability::curve`], band settings as a run's default)
-//! of each column, drawn by the run report's own figure code
+//! ([`crate::metrics::reliability::curve`], a run's default label draws,
+//! the band at the intervals' `--confidence` level) of each column, drawn by the run report's own figure code
 //! ([`crate::report::figures::reliability_grid`]) into `reliability.svg`.
 //!
 //! Resample b draws its rows from ChaCha8 seeded with `split::mix(seed,
@@ -678,13 +678,21 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
         .enumerate()
         .filter_map(|(k, (p, name))| {
             let seed = split::mix(args.seed, &[split::fnv1a(b"diagnose-band"), k as u64]);
-            reliability::curve(name, p, &y, BandSettings::default(), seed).map(|curve| {
-                CurveRecord {
-                    task: String::new(),
-                    size: y.len(),
-                    repeat: 0,
-                    curve,
-                }
+            reliability::curve(
+                name,
+                p,
+                &y,
+                BandSettings {
+                    level: args.confidence,
+                    ..BandSettings::default()
+                },
+                seed,
+            )
+            .map(|curve| CurveRecord {
+                task: String::new(),
+                size: y.len(),
+                repeat: 0,
+                curve,
             })
         })
         .collect();
@@ -702,6 +710,7 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
         &refs,
         |m| figures::style(names.iter().position(|n| *n == m).unwrap_or(0)),
         |n| format!("all {n} rows"),
+        args.confidence,
     );
     Ok(Diagnosis {
         rows: y.len(),

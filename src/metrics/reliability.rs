@@ -85,11 +85,13 @@ pub struct BandSettings {
     pub level: f64,
 }
 
+/// 200 draws at the default confidence level of the report's intervals
+/// (a suite's plan takes its own `confidence` unless `band_level` is set).
 impl Default for BandSettings {
     fn default() -> Self {
         BandSettings {
             draws: 200,
-            level: 0.9,
+            level: crate::suite::DEFAULT_CONFIDENCE,
         }
     }
 }

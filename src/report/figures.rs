@@ -8,16 +8,19 @@
 //!   is reliably better than the reference marked.
 //! - **Reliability diagrams** (`figures/<task>--reliability.svg`): per method
 //!   and calibration size, the CORP curve with its consistency band on a
-//!   probability panel and on a log-odds panel (which shows the tails), the
-//!   histogram of the predictions beneath, and the CORP terms of the Brier
-//!   score (see [`crate::metrics::reliability`]).
+//!   probability panel and on a log-odds panel (which shows the tails; every
+//!   log-odds panel of a figure on one range, [`log_odds_range`], outcome
+//!   frequencies of exactly 0 or 1 as open edge marks), the histogram of the
+//!   predictions beneath, and the CORP terms of the Brier score (see
+//!   [`crate::metrics::reliability`]).
 //! - **Rank diagrams** (`figures/ranks--<metric>.svg`): per size, the average
 //!   ranks on an axis with the Nemenyi critical difference; methods whose
 //!   ranks differ by less than it are joined by a bar (the layout of Demšar
 //!   2006, JMLR 7).
 //! - **Threshold charts** (`figures/thresholds--<metric>.svg`): per task and
 //!   (flexible, parametric) pair, the size from which the flexible method is
-//!   reliably better at every larger size tried.
+//!   reliably better at every larger size tried, with a key to the methods,
+//!   the cell colours and the `–` and `?` cells.
 //!
 //! Every method keeps one colour, marker and dash in every figure
 //! ([`style`]; colours from Paul Tol's colour-blind-safe "muted" scheme, each
@@ -29,7 +32,7 @@
 //! tick labels carry only the decimals their step needs.
 
 use crate::analysis::Analysis;
-use crate::metrics::reliability::{CurveRecord, LOGIT_RANGE};
+use crate::metrics::reliability::{Curve, CurveRecord, LOGIT_RANGE};
 use crate::metrics::MetricId;
 
 /// Line and marker colours: Paul Tol's colour-blind-safe "muted" scheme
@@ -244,8 +247,9 @@ fn text_width(text: &str, font_size: f64) -> f64 {
     text.chars().count() as f64 * 0.6 * font_size
 }
 
-/// Words of `text` in lines no wider than `width` by [`text_width`] (a
-/// single longer word stands on its own line).
+/// Words of `text` in lines no wider than `width` by [`text_width`]; a
+/// word wider than a line on its own (a long file path) is cut into pieces
+/// that fit, after a `/`, backslash, `-`, `_` or `.` where the piece has one.
 fn wrap(text: &str, font_size: f64, width: f64) -> Vec<String> {
     let mut lines: Vec<String> = Vec::new();
     let mut cur = String::new();
@@ -255,12 +259,16 @@ fn wrap(text: &str, font_size: f64, width: f64) -> Vec<String> {
         } else {
             format!("{cur} {word}")
         };
-        if !cur.is_empty() && text_width(&next, font_size) > width {
-            lines.push(std::mem::take(&mut cur));
-            cur = word.to_string();
-        } else {
+        if text_width(&next, font_size) <= width {
             cur = next;
+            continue;
         }
+        if !cur.is_empty() {
+            lines.push(std::mem::take(&mut cur));
+        }
+        let mut pieces = split_word(word, font_size, width);
+        cur = pieces.pop().unwrap_or_default();
+        lines.extend(pieces);
     }
     if !cur.is_empty() || lines.is_empty() {
         lines.push(cur);
@@ -268,10 +276,31 @@ fn wrap(text: &str, font_size: f64, width: f64) -> Vec<String> {
     lines
 }
 
+/// A word in pieces no wider than `width` (at least one character each),
+/// each cut after its last `/`, backslash, `-`, `_` or `.` when it has one.
+fn split_word(word: &str, font_size: f64, width: f64) -> Vec<String> {
+    let per_line = ((width / text_width("x", font_size) + 1e-9).floor() as usize).max(1);
+    let mut out = Vec::new();
+    let mut rest: Vec<char> = word.chars().collect();
+    while rest.len() > per_line {
+        let cut = rest[..per_line]
+            .iter()
+            .rposition(|c| matches!(c, '/' | '\\' | '-' | '_' | '.'))
+            .map(|i| i + 1)
+            .unwrap_or(per_line);
+        out.push(rest[..cut].iter().collect());
+        rest.drain(..cut);
+    }
+    out.push(rest.into_iter().collect());
+    out
+}
+
 /// The title (bold, 14 px) and notes (grey, 11 px) at the top left of a
-/// figure `width` wide, each wrapped to fit; plain text, escaped here.
+/// figure `width` wide, each wrapped to fit, in a `<g class="heading">`;
+/// plain text, escaped here.
 /// Returns the baseline of the last line written.
 fn write_heading(s: &mut String, title: &str, notes: &[String], width: f64) -> f64 {
+    s.push_str("<g class=\"heading\">\n");
     let mut y = 18.0;
     for (i, l) in wrap(title, 14.0, width - 20.0).iter().enumerate() {
         if i > 0 {
@@ -294,6 +323,7 @@ fn write_heading(s: &mut String, title: &str, notes: &[String], width: f64) -> f
             ));
         }
     }
+    s.push_str("</g>\n");
     y
 }
 
@@ -516,19 +546,14 @@ fn logit(p: f64) -> f64 {
     (p.ln() - (-p).ln_1p()).clamp(-LOGIT_RANGE, LOGIT_RANGE)
 }
 
-/// One reliability panel: curve, band and diagonal in a square; `log_odds`
-/// switches both axes to the log-odds scale. Returns the SVG fragment.
-fn reliability_panel(
-    c: &crate::metrics::reliability::Curve,
-    st: Style,
-    x0: f64,
-    y0: f64,
-    side: f64,
-    log_odds: bool,
-) -> String {
-    let r = if log_odds {
-        // Range of the panel: the data's log-odds range, at least ±4.
-        let mut m: f64 = 4.0;
+/// The range ±R shared by every log-odds panel of one figure: the smallest
+/// even whole number of at least 4 that holds the log-odds of every curve
+/// point's prediction, outcome frequency and band end in `curves`, at most
+/// [`LOGIT_RANGE`]. Values of exactly 0 or 1 (log-odds ∓∞) do not widen it:
+/// they are drawn as edge marks.
+pub fn log_odds_range<'a>(curves: impl IntoIterator<Item = &'a Curve>) -> f64 {
+    let mut m: f64 = 4.0;
+    for c in curves {
         for p in &c.points {
             for v in [p.x, p.y, p.low, p.high] {
                 if v > 0.0 && v < 1.0 {
@@ -536,27 +561,71 @@ fn reliability_panel(
                 }
             }
         }
-        m.ceil().min(LOGIT_RANGE)
+    }
+    ((m / 2.0 - 1e-9).ceil() * 2.0).clamp(4.0, LOGIT_RANGE)
+}
+
+/// Whether a probability has infinite log-odds: `Some(false)` for 0 (−∞),
+/// `Some(true)` for 1 (+∞), `None` in between.
+fn infinite(v: f64) -> Option<bool> {
+    if v <= 0.0 {
+        Some(false)
+    } else if v >= 1.0 {
+        Some(true)
     } else {
-        1.0
-    };
-    let tr = |v: f64| if log_odds { logit(v).clamp(-r, r) } else { v };
-    let (lo, hi) = if log_odds { (-r, r) } else { (0.0, 1.0) };
+        None
+    }
+}
+
+/// An open triangle in the series' colour on a panel edge at (x, y),
+/// pointing outward along (dx, dy) (a unit step along one axis): the mark of
+/// a value at infinite log-odds.
+fn edge_mark(x: f64, y: f64, dx: f64, dy: f64, colour: &str) -> String {
+    let (tip, base, half) = (4.5, 3.0, 3.5);
+    let (nx, ny) = (-dy, dx);
+    format!(
+        "<path class=\"inf\" d=\"M{} {}L{} {}L{} {}Z\" fill=\"#fff\" stroke=\"{colour}\" stroke-width=\"1.2\"/>",
+        f(x + dx * tip),
+        f(y + dy * tip),
+        f(x - dx * base + nx * half),
+        f(y - dy * base + ny * half),
+        f(x - dx * base - nx * half),
+        f(y - dy * base - ny * half)
+    )
+}
+
+/// One reliability panel: curve, band and diagonal in a square; with
+/// `log_odds = Some(r)` both axes are on the log-odds scale over [−r, r], and
+/// curve points at an outcome frequency (or prediction) of exactly 0 or 1
+/// are drawn as [`edge_mark`]s with no line to them. Returns the SVG
+/// fragment.
+fn reliability_panel(
+    c: &crate::metrics::reliability::Curve,
+    st: Style,
+    x0: f64,
+    y0: f64,
+    side: f64,
+    log_odds: Option<f64>,
+) -> String {
+    let r = log_odds.unwrap_or(1.0);
+    let lo_scale = log_odds.is_some();
+    let tr = |v: f64| if lo_scale { logit(v).clamp(-r, r) } else { v };
+    let (lo, hi) = if lo_scale { (-r, r) } else { (0.0, 1.0) };
     let px = |v: f64| x0 + (tr(v) - lo) / (hi - lo) * side;
     let py = |v: f64| y0 + side - (tr(v) - lo) / (hi - lo) * side;
     let mut s = format!(
-        "<rect x=\"{}\" y=\"{}\" width=\"{side}\" height=\"{side}\" fill=\"#fcfcfc\" stroke=\"#bbb\"/>",
+        "<g class=\"{}\"><rect x=\"{}\" y=\"{}\" width=\"{side}\" height=\"{side}\" fill=\"#fcfcfc\" stroke=\"#bbb\"/>",
+        if lo_scale { "panel-lo" } else { "panel-p" },
         f(x0),
         f(y0)
     );
-    // Ticks.
-    let tick_values: Vec<(f64, String)> = if log_odds {
-        let step = if r > 8.0 { 4.0 } else { 2.0 };
+    // Ticks: (position on the panel's own scale, label).
+    let tick_values: Vec<(f64, String)> = if lo_scale {
+        let step = if r > 6.0 { 4.0 } else { 2.0 };
         let mut v = Vec::new();
         let mut t = -(r / step).floor() * step;
         while t <= r + 1e-9 {
-            let p = 1.0 / (1.0 + (-t).exp());
-            v.push((p, tick_label(t, step)));
+            v.push((t, tick_label(t, step)));
             t += step;
         }
         v
@@ -566,14 +635,21 @@ fn reliability_panel(
             .map(|&t| (t, format!("{t}")))
             .collect()
     };
-    for (p, label) in &tick_values {
+    let at = |t: f64| (t - lo) / (hi - lo) * side;
+    for (t, label) in &tick_values {
         s.push_str(&format!(
-            "<text x=\"{}\" y=\"{}\" class=\"tm\">{label}</text><text x=\"{}\" y=\"{}\" class=\"te\">{label}</text>",
-            f(px(*p)),
-            f(y0 + side + 11.0),
-            f(x0 - 3.0),
-            f(py(*p) + 2.5)
+            "<text x=\"{}\" y=\"{}\" class=\"tm\">{label}</text>",
+            f(x0 + at(*t)),
+            f(y0 + side + 11.0)
         ));
+        // The bottom-left corner is labelled once, by the horizontal axis.
+        if (t - lo).abs() > 1e-9 {
+            s.push_str(&format!(
+                "<text x=\"{}\" y=\"{}\" class=\"te\">{label}</text>",
+                f(x0 - 3.0),
+                f(y0 + side - at(*t) + 2.5)
+            ));
+        }
     }
     // Diagonal.
     s.push_str(&format!(
@@ -598,14 +674,64 @@ fn reliability_panel(
             "<polygon points=\"{band}\" fill=\"#8a8a8a\" fill-opacity=\"0.25\"/>"
         ));
     }
-    let line = point_list(c.points.iter().map(|p| (px(p.x), py(p.y))));
-    s.push_str(&format!(
-        "<polyline points=\"{line}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>",
-        st.colour,
-        dash(st)
-    ));
+    // The curve: runs of finite points as lines; on the log-odds scale the
+    // points at ∓∞ break the line and get an edge mark each.
+    let finite = |p: &&crate::metrics::reliability::CurvePoint| {
+        !lo_scale || (infinite(p.x).is_none() && infinite(p.y).is_none())
+    };
+    let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+    let mut marks: Vec<String> = Vec::new();
+    for p in &c.points {
+        if finite(&p) {
+            runs.last_mut().expect("a run").push((px(p.x), py(p.y)));
+            continue;
+        }
+        if !runs.last().expect("a run").is_empty() {
+            runs.push(Vec::new());
+        }
+        let m = match (infinite(p.y), infinite(p.x)) {
+            (Some(up), _) => edge_mark(
+                px(p.x),
+                if up { y0 } else { y0 + side },
+                0.0,
+                if up { -1.0 } else { 1.0 },
+                st.colour,
+            ),
+            (None, Some(right)) => edge_mark(
+                if right { x0 + side } else { x0 },
+                py(p.y),
+                if right { 1.0 } else { -1.0 },
+                0.0,
+                st.colour,
+            ),
+            (None, None) => unreachable!("a point off the finite scale"),
+        };
+        if !marks.contains(&m) {
+            marks.push(m);
+        }
+    }
+    for run in runs.iter().filter(|r| !r.is_empty()) {
+        if run.len() == 1 {
+            s.push_str(&format!(
+                "<circle cx=\"{}\" cy=\"{}\" r=\"1.6\" fill=\"{}\"/>",
+                f(run[0].0),
+                f(run[0].1),
+                st.colour
+            ));
+        } else {
+            s.push_str(&format!(
+                "<polyline points=\"{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>",
+                point_list(run.iter().copied()),
+                st.colour,
+                dash(st)
+            ));
+        }
+    }
+    for m in &marks {
+        s.push_str(m);
+    }
     // Histogram beneath.
-    let hist = if log_odds { &c.hist_logit } else { &c.hist_p };
+    let hist = if lo_scale { &c.hist_logit } else { &c.hist_p };
     let bins = hist.len().max(1);
     let top = hist.iter().copied().max().unwrap_or(0).max(1) as f64;
     let (hy, hh) = (y0 + side + 13.0, 22.0);
@@ -614,7 +740,7 @@ fn reliability_panel(
         if n == 0 {
             continue;
         }
-        let (bl, bh) = if log_odds {
+        let (bl, bh) = if lo_scale {
             let l = b as f64 - LOGIT_RANGE;
             (l.max(-r), (l + 1.0).min(r))
         } else {
@@ -636,7 +762,7 @@ fn reliability_panel(
         ));
     }
     s.push_str(&format!(
-        "<path d=\"{d}\" fill=\"{}\" fill-opacity=\"0.55\"/>",
+        "<path d=\"{d}\" fill=\"{}\" fill-opacity=\"0.55\"/></g>",
         st.colour
     ));
     s
@@ -644,8 +770,14 @@ fn reliability_panel(
 
 /// The reliability figure of one task: rows = series (uncalibrated scores and
 /// methods), columns = calibration sizes, each with a probability panel and a
-/// log-odds panel. `None` when the folder has no curves for the task.
-pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> Option<String> {
+/// log-odds panel; `confidence` is the level of the report's intervals.
+/// `None` when the folder has no curves for the task.
+pub fn reliability_figure(
+    a: &Analysis,
+    task: &str,
+    curves: &[CurveRecord],
+    confidence: f64,
+) -> Option<String> {
     let mine: Vec<&CurveRecord> = curves.iter().filter(|c| c.task == task).collect();
     let first = mine.first()?;
     let heading = format!(
@@ -658,19 +790,36 @@ pub fn reliability_figure(a: &Analysis, task: &str, curves: &[CurveRecord]) -> O
         &mine,
         |m| style_of(a, m),
         |n| format!("calibration size n = {n}"),
+        confidence,
     ))
+}
+
+/// A level as a percentage with the decimals it needs (95%, 99.5%).
+fn percent(level: f64) -> String {
+    let v = (level * 1000.0).round() / 10.0;
+    if v == v.trunc() {
+        format!("{v:.0}%")
+    } else {
+        format!("{v:.1}%")
+    }
 }
 
 /// The reliability grid behind [`reliability_figure`] (also drawn by
 /// `plumbline diagnose`): rows = series in order of first appearance,
 /// columns = the records' `size` values, titled by `column`; `heading` is
-/// plain text (escaped and wrapped here).
+/// plain text (escaped and wrapped here). `table_level` is the confidence
+/// level of the intervals the figure goes with; the caption says when the
+/// bands were drawn at another. Every log-odds panel shares one range
+/// ([`log_odds_range`]), stated in the caption; the left margin holds the
+/// longest series name and the tick labels, and the canvas ends where the
+/// last column's content does.
 pub fn reliability_grid(
     task: &str,
     heading: &str,
     mine: &[&CurveRecord],
     style: impl Fn(&str) -> Style,
     column: impl Fn(usize) -> String,
+    table_level: f64,
 ) -> String {
     let mut sizes: Vec<usize> = mine.iter().map(|c| c.size).collect();
     sizes.sort_unstable();
@@ -681,24 +830,76 @@ pub fn reliability_grid(
             series.push(&c.curve.method);
         }
     }
+    let range = log_odds_range(mine.iter().map(|c| &c.curve));
     let side = 120.0;
-    let ml = 215.0;
+    let gap = 22.0;
     let cell_w = 2.0 * side + 70.0;
     let row_h = side + 72.0;
-    let w = ml + sizes.len() as f64 * cell_w + 10.0;
+    // Left margin: the series' key (bold 12 px name and marker), a gap, and
+    // the widest tick label (8 px).
+    let key_w = series
+        .iter()
+        .map(|m| text_width(m, 12.0))
+        .fold(0.0f64, f64::max);
+    let tick_w = text_width(&tick_label(-range, 2.0), 8.0).max(text_width("0.5", 8.0));
+    let key_end_gap = 3.0 + tick_w + 17.0;
+    let ml = (10.0 + key_w + key_end_gap).ceil();
+    let terms = |c: &CurveRecord| {
+        (
+            format!(
+                "Brier {:.4} = MCB {:.4} − DSC {:.4} + UNC {:.4}",
+                c.curve.brier, c.curve.mcb, c.curve.dsc, c.curve.unc
+            ),
+            format!(
+                "{} of {} curve points outside the band",
+                c.curve.outside,
+                c.curve.points.len()
+            ),
+        )
+    };
+    // The last column ends with its panels or its widest line of text.
+    let last_size = *sizes.last().expect("at least one record");
+    let last_w = mine
+        .iter()
+        .filter(|c| c.size == last_size)
+        .flat_map(|c| {
+            let (a, b) = terms(c);
+            [text_width(&a, 9.0), text_width(&b, 9.0)]
+        })
+        .fold(2.0 * side + gap, f64::max);
+    let w = (ml + (sizes.len() - 1) as f64 * cell_w + last_w + 10.0).ceil();
     let first = mine[0];
+    let band_level = first.curve.level;
+    let band_note = if (band_level - table_level).abs() < 1e-9 {
+        format!(
+            "grey: {} consistency band, the level of the intervals ({} label draws under calibration)",
+            percent(band_level),
+            first.curve.draws
+        )
+    } else {
+        format!(
+            "grey: {} consistency band ({} label draws under calibration; the level was set for the bands, the intervals use {})",
+            percent(band_level),
+            first.curve.draws,
+            percent(table_level)
+        )
+    };
+    let mut notes = vec![
+        format!("line: CORP curve (isotonic fit of outcome on prediction); {band_note}"),
+        format!(
+            "left panel: probability scale; right panel: log-odds scale (tails), every log-odds panel on ±{0:.0} (the smallest even range of at least ±4 holding every curve and band value of the figure, at most ±{1:.0}); bars: predictions (square-root height)",
+            range, LOGIT_RANGE
+        ),
+    ];
+    let points = || mine.iter().flat_map(|c| c.curve.points.iter());
+    if points().any(|p| infinite(p.y).is_some()) {
+        notes.push("open triangles on a log-odds panel's edge, pointing out, no line to them: bins where every row was negative or positive (outcome log-odds −∞ at the bottom, +∞ at the top)".to_string());
+    }
+    if points().any(|p| infinite(p.y).is_none() && infinite(p.x).is_some()) {
+        notes.push("open triangles on a log-odds panel's left or right edge: predictions of exactly 0 or 1 (log-odds −∞ or +∞)".to_string());
+    }
     let mut s = String::new();
-    let last = write_heading(
-        &mut s,
-        heading,
-        &[
-            format!("line: CORP curve (isotonic fit of outcome on prediction); grey: {:.0}% consistency band ({} label draws under calibration)",
-                first.curve.level * 100.0,
-                first.curve.draws),
-            "left panel: probability scale; right panel: log-odds scale (tails); bars: predictions (square-root height)".to_string(),
-        ],
-        w,
-    );
+    let last = write_heading(&mut s, heading, &notes, w);
     let mt = last + 30.0;
     let h = mt + series.len() as f64 * row_h + 6.0;
     s = open_svg(w, h, &format!("{task}: reliability diagrams"))
@@ -707,7 +908,7 @@ pub fn reliability_grid(
     for (j, &n) in sizes.iter().enumerate() {
         s.push_str(&format!(
             "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"12\" font-weight=\"bold\">{}</text>\n",
-            f(ml + j as f64 * cell_w + cell_w / 2.0 - 20.0),
+            f(ml + j as f64 * cell_w + side + gap / 2.0),
             f(mt - 6.0),
             esc(&column(n))
         ));
@@ -715,7 +916,16 @@ pub fn reliability_grid(
     for (i, m) in series.iter().enumerate() {
         let st = style(m);
         let y0 = mt + i as f64 * row_h + 4.0;
-        s.push_str(&key(m, m, st, ml - 36.0, y0 + side / 2.0, 12.0, true, true));
+        s.push_str(&key(
+            m,
+            m,
+            st,
+            ml - key_end_gap,
+            y0 + side / 2.0,
+            12.0,
+            true,
+            true,
+        ));
         s.push('\n');
         for (j, &n) in sizes.iter().enumerate() {
             let Some(c) = mine.iter().find(|c| c.size == n && c.curve.method == *m) else {
@@ -723,27 +933,24 @@ pub fn reliability_grid(
             };
             let x0 = ml + j as f64 * cell_w;
             s.push_str("<g>");
-            s.push_str(&reliability_panel(&c.curve, st, x0, y0, side, false));
+            s.push_str(&reliability_panel(&c.curve, st, x0, y0, side, None));
             s.push_str(&reliability_panel(
                 &c.curve,
                 st,
-                x0 + side + 22.0,
+                x0 + side + gap,
                 y0,
                 side,
-                true,
+                Some(range),
             ));
+            let (brier, outside) = terms(c);
             s.push_str(&format!(
-                "<text x=\"{}\" y=\"{}\" font-size=\"9\">Brier {:.4} = MCB {:.4} − DSC {:.4} + UNC {:.4}</text><text x=\"{}\" y=\"{}\" font-size=\"9\" fill=\"#555\">{} of {} curve points outside the band</text>",
+                "<text x=\"{}\" y=\"{}\" font-size=\"9\">{}</text><text x=\"{}\" y=\"{}\" font-size=\"9\" fill=\"#555\">{}</text>",
                 f(x0),
                 f(y0 + side + 48.0),
-                c.curve.brier,
-                c.curve.mcb,
-                c.curve.dsc,
-                c.curve.unc,
+                esc(&brier),
                 f(x0),
                 f(y0 + side + 59.0),
-                c.curve.outside,
-                c.curve.points.len()
+                esc(&outside)
             ));
             s.push_str("</g>\n");
         }
@@ -946,15 +1153,42 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
         .iter()
         .map(|t| text_width(t, 10.0))
         .fold(0.0f64, f64::max);
-    let ml = (longest_task + 16.0).max(190.0).ceil();
+    let ml = (longest_task + 16.0).ceil();
+    // The key, right of the cells: the methods, then what a cell's colour
+    // and symbols mean, with a swatch for up to six of the sizes tried.
     let key_x = ml + cw * pairs.len() as f64 + 24.0;
-    let longest_key = methods
+    let mut tried: Vec<usize> = all.clone();
+    tried.sort_unstable();
+    tried.dedup();
+    let swatches: Vec<usize> = if tried.len() <= 6 {
+        tried.clone()
+    } else {
+        (0..6).map(|i| tried[i * (tried.len() - 1) / 5]).collect()
+    };
+    let (sw, sh) = (36.0, 13.0);
+    let colour_title = "cell: size from which better";
+    let symbols = [
+        ("#f2f2f2", "–", "#666", "not within the sizes tried"),
+        ("#ffffff", "?", "#999", "no result"),
+    ];
+    let key_right = methods
         .iter()
-        .map(|m| text_width(m, 10.0))
+        .map(|m| key_x + 10.0 + text_width(m, 10.0))
+        .chain([key_x + text_width(colour_title, 10.0)])
+        .chain(
+            symbols
+                .iter()
+                .map(|(.., l)| key_x + sw + 6.0 + text_width(l, 10.0)),
+        )
         .fold(0.0f64, f64::max);
-    let w = (key_x + longest_key + 10.0)
-        .max(ml + cw * pairs.len() as f64 + 170.0)
-        .ceil();
+    // Room above the cells for the column labels, rotated by 55°.
+    let (sin, cos) = (55f64.to_radians().sin(), 55f64.to_radians().cos());
+    let longest_pair = pairs
+        .iter()
+        .map(|(fl, pa)| text_width(&format!("{fl} vs {pa}"), 10.0))
+        .fold(0.0f64, f64::max);
+    let labels_right = ml + cw * (pairs.len() as f64 - 0.5) + longest_pair * cos + 10.0 * sin;
+    let w = (key_right.max(labels_right) + 10.0).ceil();
     let mut s = String::new();
     let last = write_heading(
         &mut s,
@@ -962,14 +1196,10 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
         &["cell: smallest size tried from which the flexible method beats the parametric one at every larger size; darker = larger; “–” = not within the sizes tried; “?” = no result".to_string()],
         w,
     );
-    // Room above the cells for the column labels, rotated by 55°.
-    let (sin, cos) = (55f64.to_radians().sin(), 55f64.to_radians().cos());
-    let longest_pair = pairs
-        .iter()
-        .map(|(fl, pa)| text_width(&format!("{fl} vs {pa}"), 10.0))
-        .fold(0.0f64, f64::max);
     let mt = (last + 16.0 + longest_pair * sin + 10.0 * cos).ceil();
-    let h = mt + (rh * tasks.len() as f64).max(14.0 * methods.len() as f64) + 20.0;
+    let key_top = mt + 14.0 * methods.len() as f64 + 8.0;
+    let key_bottom = key_top + 14.0 + (sh + 2.0) * (swatches.len() + symbols.len()) as f64;
+    let h = (mt + (rh * tasks.len() as f64).max(key_bottom - mt) + 10.0).ceil();
     s = open_svg(w, h, &format!("data-size thresholds, {metric}"))
         + "<style>.c{stroke:#fff}.v{text-anchor:middle;font-size:9px}</style>\n"
         + &s;
@@ -999,6 +1229,41 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
         ));
         s.push('\n');
     }
+    // What the cells mean.
+    s.push_str(&format!(
+        "<g class=\"cell-key\"><text x=\"{}\" y=\"{}\" font-size=\"10\">{colour_title}</text>",
+        f(key_x),
+        f(key_top + 10.0)
+    ));
+    let swatch = |i: usize, fill: &str, text: &str, ink: &str| {
+        let y = key_top + 14.0 + (sh + 2.0) * i as f64;
+        format!(
+            "<rect x=\"{}\" y=\"{}\" width=\"{sw}\" height=\"{sh}\" fill=\"{fill}\" stroke=\"#ccc\"/><text x=\"{}\" y=\"{}\" fill=\"{ink}\" class=\"v\">{text}</text>",
+            f(key_x),
+            f(y),
+            f(key_x + sw / 2.0),
+            f(y + sh - 3.5)
+        )
+    };
+    for (i, &n) in swatches.iter().enumerate() {
+        let fr = frac(n);
+        s.push_str(&swatch(
+            i,
+            &size_colour(fr),
+            &n.to_string(),
+            if fr > 0.5 { "#fff" } else { "#000" },
+        ));
+    }
+    for (k, (fill, text, ink, label)) in symbols.iter().enumerate() {
+        let i = swatches.len() + k;
+        s.push_str(&swatch(i, fill, text, ink));
+        s.push_str(&format!(
+            "<text x=\"{}\" y=\"{}\" font-size=\"10\">{label}</text>",
+            f(key_x + sw + 6.0),
+            f(key_top + 14.0 + (sh + 2.0) * i as f64 + sh - 3.0)
+        ));
+    }
+    s.push_str("</g>\n");
     for (i, task) in tasks.iter().enumerate() {
         let y = mt + rh * i as f64;
         s.push_str(&format!(
@@ -1137,6 +1402,183 @@ mod tests {
         for l in &lines {
             assert!(text_width(l, 10.0) <= 60.0, "{l}");
         }
-        assert_eq!(wrap("unbreakable-word", 10.0, 20.0), ["unbreakable-word"]);
+    }
+
+    use crate::metrics::reliability::CurvePoint;
+
+    /// A curve through (x, y) points with a band of x ± 0.05 (clipped to
+    /// [0, 1]) at each, drawn at band level `level`.
+    fn record(method: &str, size: usize, xy: &[(f64, f64)], level: f64) -> CurveRecord {
+        let points = xy
+            .iter()
+            .map(|&(x, y)| CurvePoint {
+                x,
+                y,
+                low: (x - 0.05).max(0.0),
+                high: (x + 0.05).min(1.0),
+            })
+            .collect();
+        CurveRecord {
+            task: "t".into(),
+            size,
+            repeat: 0,
+            curve: Curve {
+                method: method.into(),
+                test_rows: 100,
+                points,
+                hist_p: vec![1; 20],
+                hist_logit: vec![1; 24],
+                brier: 0.2,
+                mcb: 0.01,
+                dsc: 0.05,
+                unc: 0.24,
+                level,
+                draws: 200,
+                outside: 0,
+            },
+        }
+    }
+
+    fn grid(records: &[CurveRecord], table_level: f64) -> String {
+        let refs: Vec<&CurveRecord> = records.iter().collect();
+        reliability_grid(
+            "t",
+            "t: reliability",
+            &refs,
+            |m| style(if m == "a" { 0 } else { 1 }),
+            |n| format!("n = {n}"),
+            table_level,
+        )
+    }
+
+    /// The caption lines of a figure, joined by spaces.
+    fn caption(svg: &str) -> String {
+        svg.split("fill=\"#444\">")
+            .skip(1)
+            .map(|t| &t[..t.find('<').unwrap()])
+            .collect::<Vec<_>>()
+            .join(" ")
+    }
+
+    /// The `<g class="panel-lo">` fragments of a figure.
+    fn log_odds_panels(svg: &str) -> Vec<&str> {
+        svg.split("<g class=\"panel-lo\">")
+            .skip(1)
+            .map(|p| &p[..p.find("</g>").unwrap()])
+            .collect()
+    }
+
+    /// The horizontal-axis tick labels of a panel fragment.
+    fn x_ticks(panel: &str) -> Vec<&str> {
+        panel
+            .split("class=\"tm\">")
+            .skip(1)
+            .map(|t| &t[..t.find('<').unwrap()])
+            .collect()
+    }
+
+    /// Log-odds 2.2 (p = 0.9) alone would need ±4, log-odds 6.9 (p = 0.999)
+    /// ±8: every panel of the figure takes ±8, and the caption says so.
+    #[test]
+    fn log_odds_panels_share_one_range() {
+        let narrow = [(0.2, 0.25), (0.5, 0.5), (0.9, 0.85)];
+        let wide = [(0.01, 0.02), (0.5, 0.5), (0.999, 0.99)];
+        let recs = [
+            record("a", 50, &narrow, 0.95),
+            record("b", 50, &wide, 0.95),
+            record("a", 400, &narrow, 0.95),
+        ];
+        assert_eq!(log_odds_range(recs.iter().map(|r| &r.curve)), 8.0);
+        assert_eq!(log_odds_range([&recs[0].curve]), 4.0);
+        let svg = grid(&recs, 0.95);
+        let panels = log_odds_panels(&svg);
+        assert_eq!(panels.len(), 3);
+        for p in &panels {
+            assert_eq!(x_ticks(p), ["−8", "−4", "0", "4", "8"], "{p}");
+        }
+        assert!(
+            caption(&svg).contains("every log-odds panel on ±8"),
+            "{svg}"
+        );
+    }
+
+    /// The range rule: the smallest even whole number of at least 4 holding
+    /// every finite value, capped at 12; 0 and 1 do not widen it.
+    #[test]
+    fn log_odds_range_follows_its_rule() {
+        let r = |xy: &[(f64, f64)]| log_odds_range([&record("a", 1, xy, 0.9).curve]);
+        // logit(0.985) = 4.18: ±6.
+        assert_eq!(r(&[(0.5, 0.985)]), 6.0);
+        // logit(0.95) = 2.94, band to 1.0 (clipped): ±4.
+        assert_eq!(r(&[(0.95, 0.95)]), 4.0);
+        assert_eq!(r(&[(0.0, 0.0), (1.0, 1.0), (0.5, 0.5)]), 4.0);
+        assert_eq!(r(&[(1e-9, 0.5)]), 12.0);
+    }
+
+    /// Outcome frequencies of exactly 0 and 1 are open edge marks on the
+    /// log-odds panel, with no line to them, explained in the caption; the
+    /// probability panel draws them as the real values they are there.
+    #[test]
+    fn infinite_log_odds_are_edge_marks() {
+        let xy = [(0.1, 0.0), (0.2, 0.0), (0.4, 0.3), (0.6, 0.7), (0.9, 1.0)];
+        let svg = grid(&[record("a", 50, &xy, 0.95)], 0.95);
+        let lo = log_odds_panels(&svg)[0];
+        assert_eq!(lo.matches("class=\"inf\"").count(), 3, "{lo}");
+        assert!(lo.contains("fill=\"#fff\""));
+        // One line, through the two finite points only.
+        let line: Vec<&str> = lo.split("<polyline points=\"").skip(1).collect();
+        assert_eq!(line.len(), 1, "{lo}");
+        let pts = &line[0][..line[0].find('"').unwrap()];
+        assert_eq!(pts.split(' ').count(), 2, "{pts}");
+        assert!(caption(&svg).contains("bins where every row was negative or positive"));
+        // The probability panel keeps one line through all five points.
+        let p = svg.split("<g class=\"panel-p\">").nth(1).unwrap();
+        let p = &p[..p.find("</g>").unwrap()];
+        assert!(!p.contains("class=\"inf\""));
+        let pts = p.split("<polyline points=\"").nth(1).unwrap();
+        assert_eq!(pts[..pts.find('"').unwrap()].split(' ').count(), 5);
+        // Without such points there is neither mark nor caption line.
+        let svg = grid(&[record("a", 50, &[(0.3, 0.2), (0.7, 0.8)], 0.95)], 0.95);
+        assert!(!svg.contains("class=\"inf\""));
+        assert!(!caption(&svg).contains("every row was"));
+    }
+
+    /// The caption names the band's level, and says so when the intervals
+    /// of the report use another.
+    #[test]
+    fn band_caption_names_its_level() {
+        let xy = [(0.3, 0.2), (0.7, 0.8)];
+        let c = caption(&grid(&[record("a", 50, &xy, 0.95)], 0.95));
+        assert!(
+            c.contains("grey: 95% consistency band, the level of the intervals"),
+            "{c}"
+        );
+        let c = caption(&grid(&[record("a", 50, &xy, 0.9)], 0.95));
+        assert!(c.contains("grey: 90% consistency band"), "{c}");
+        assert!(c.contains("the intervals use 95%"), "{c}");
+        assert_eq!(percent(0.995), "99.5%");
+    }
+
+    /// A word longer than a line (a file path) is cut after a separator
+    /// where the piece has one, else where the line is full; no piece is
+    /// wider than the line and nothing is lost.
+    #[test]
+    fn wrap_cuts_a_word_longer_than_a_line() {
+        let path = "results/some-folder/scores_of_the_validation_rows.csv";
+        let lines = wrap(&format!("{path}: reliability"), 10.0, 120.0);
+        for l in &lines {
+            assert!(text_width(l, 10.0) <= 120.0, "{l:?} in {lines:?}");
+        }
+        assert_eq!(lines.concat(), format!("{path}:reliability"));
+        assert_eq!(
+            lines,
+            [
+                "results/some-folder/",
+                "scores_of_the_",
+                "validation_rows.csv:",
+                "reliability"
+            ]
+        );
+        assert_eq!(wrap("abcdefgh", 10.0, 18.0), ["abc", "def", "gh"]);
     }
 }

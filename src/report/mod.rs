@@ -60,7 +60,7 @@ pub fn publish(a: &Analysis, ctx: &summary::ReportContext) -> Vec<(String, Vec<u
         if let Some(svg) = figures::learning_curves(a, task, &s.primary_metric, &s.reference) {
             figs.push((figures::figure_name(task, &s.primary_metric), svg));
         }
-        if let Some(svg) = figures::reliability_figure(a, task, &ctx.curves) {
+        if let Some(svg) = figures::reliability_figure(a, task, &ctx.curves, s.confidence) {
             figs.push((figures::reliability_name(task), svg));
         }
     }

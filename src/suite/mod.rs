@@ -893,8 +893,13 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         }
     };
 
-    let reliability =
-        reliability_plan(&ctx, raw.reliability.as_ref(), &method_entries, &method_ids)?;
+    let reliability = reliability_plan(
+        &ctx,
+        raw.reliability.as_ref(),
+        &method_entries,
+        &method_ids,
+        confidence,
+    )?;
     let decision = decision_plan(&ctx, raw.decision.as_ref(), &metrics)?;
 
     // Tasks.
@@ -1415,18 +1420,23 @@ fn decision_plan(
     Ok(plan)
 }
 
-/// Check the `[reliability]` table.
+/// Check the `[reliability]` table. The band's level defaults to the
+/// suite's `confidence`, so the figures' bands match the tables' intervals.
 fn reliability_plan(
     ctx: &Ctx,
     raw: Option<&Spanned<RawReliability>>,
     methods: &[MethodEntry],
     ids: &BTreeSet<String>,
+    confidence: f64,
 ) -> Result<ReliabilityPlan, SuiteError> {
     let all: Vec<String> = methods.iter().map(|m| m.id.clone()).collect();
     let mut plan = ReliabilityPlan {
         sizes: None,
         methods: all.clone(),
-        band: crate::metrics::reliability::BandSettings::default(),
+        band: crate::metrics::reliability::BandSettings {
+            level: confidence,
+            ..Default::default()
+        },
     };
     let Some(r) = raw else { return Ok(plan) };
     let span = r.span();
@@ -1656,7 +1666,39 @@ fn key_span(text: &str, span: &std::ops::Range<usize>, key: &str) -> std::ops::R
 
 #[cfg(test)]
 mod tests {
+
     use super::*;
+
+    /// The consistency band takes the suite's `confidence` unless
+    /// `[reliability] band_level` sets its own.
+    #[test]
+    fn band_level_follows_the_confidence() {
+        let suite = |extra: &str, table: &str| {
+            format!(
+                "name = \"b\"\nseed = 1\nrepeats = 2\nsizes = [50]\nreference = \"platt\"\n{extra}\
+                 metrics = [\"log_loss\"]\nprimary_metric = \"log_loss\"\n\n[test_set]\nrows = 100\n\n\
+                 [[method]]\nid = \"platt\"\nkind = \"platt\"\n\n\
+                 [[task]]\nid = \"a\"\nscores = \"a.csv\"\nscore_column = \"s\"\nlabel_column = \"y\"\nscore_kind = \"margin\"\n{table}"
+            )
+        };
+        let dir = tempfile::TempDir::new().unwrap();
+        let rows: String = (0..200).map(|i| format!("{},{}\n", i % 7, i % 2)).collect();
+        std::fs::write(dir.path().join("a.csv"), format!("s,y\n{rows}")).unwrap();
+        let level = |extra: &str, table: &str| {
+            let text = suite(extra, table);
+            parse(&text, &dir.path().join("suite.toml"), String::new())
+                .unwrap_or_else(|e| panic!("{e}\n{text}"))
+                .reliability
+                .band
+                .level
+        };
+        assert_eq!(level("", ""), DEFAULT_CONFIDENCE);
+        assert_eq!(level("confidence = 0.9\n", ""), 0.9);
+        assert_eq!(
+            level("confidence = 0.9\n", "\n[reliability]\nband_level = 0.8\n"),
+            0.8
+        );
+    }
 
     #[test]
     fn line_col_counts_from_one() {
