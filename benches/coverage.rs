@@ -8,9 +8,14 @@
 //! study and writes `table.csv` there (one row per cell); options:
 //! `--replicates N` (default 1000), `--truth-samples K` (default 5000),
 //! `--populations a,b` (names: calibrated, over-confident,
-//! rare-under-confident, two-step), `--methods a,b` (ids of the default
+//! rare-under-confident, rare-over-confident, two-step), `--methods a,b` (ids of the default
 //! suite's methods, compared with platt and identity), `--sizes 50,100`,
-//! `--seed S`, `--draws FILE` to also write every replicate's intervals as CSV.
+//! `--seed S`, `--draws FILE` to also write every replicate's intervals as CSV,
+//! `--raw STEM` to write every replicate's raw interval inputs (d_r, test-batch
+//! means, calibration positives) to STEM.csv (index) and STEM.bin (f64 values)
+//! for studying other interval rules offline, `--reservoir M`, `--test-rows m`
+//! and `--repeats R` to change the protocol. The output starts with the
+//! command, the commit and the machine it was made on.
 
 #[path = "coverage/study.rs"]
 mod study;
@@ -23,7 +28,8 @@ fn usage(msg: &str) -> ! {
     eprintln!("coverage: {msg}");
     eprintln!(
         "options: --out DIR --replicates N --truth-samples K --populations a,b \
-         --methods a,b --sizes n,m --seed S --draws FILE"
+         --methods a,b --sizes n,m --seed S --draws FILE --raw STEM --reservoir M \\
+         --test-rows m --repeats R"
     );
     std::process::exit(2);
 }
@@ -32,6 +38,7 @@ fn main() {
     let mut cfg = StudyConfig::published();
     let mut out = None;
     let mut draws = None;
+    let mut raw: Option<std::path::PathBuf> = None;
     // `cargo bench` passes `--bench` to every bench binary; skip it.
     let args: Vec<String> = std::env::args()
         .skip(1)
@@ -50,6 +57,13 @@ fn main() {
         match opt {
             "--out" => out = Some(std::path::PathBuf::from(val)),
             "--draws" => draws = Some(std::path::PathBuf::from(val)),
+            "--raw" => {
+                raw = Some(std::path::PathBuf::from(val));
+                cfg.keep_raw = true;
+            }
+            "--reservoir" => cfg.reservoir = num(val) as usize,
+            "--test-rows" => cfg.test_rows = num(val) as usize,
+            "--repeats" => cfg.repeats = num(val) as usize,
             "--replicates" => cfg.replicates = num(val) as usize,
             "--truth-samples" => cfg.truth.samples = num(val) as usize,
             "--seed" => {
@@ -99,6 +113,39 @@ fn main() {
         .iter()
         .filter(|r| !(0.93..=0.97).contains(&r.coverage()))
         .collect();
+    // What made this output: the command line, the commit and the machine.
+    let run = |cmd: &str, args: &[&str]| {
+        std::process::Command::new(cmd)
+            .args(args)
+            .output()
+            .ok()
+            .filter(|o| o.status.success())
+            .map(|o| String::from_utf8_lossy(&o.stdout).trim().to_string())
+            .unwrap_or_else(|| "unknown".into())
+    };
+    println!(
+        "command: cargo bench --bench coverage -- {}",
+        std::env::args()
+            .skip(1)
+            .filter(|a| a != "--bench")
+            .collect::<Vec<_>>()
+            .join(" ")
+    );
+    let dirty = !run("git", &["status", "--porcelain", "--untracked-files=no"]).is_empty();
+    println!(
+        "commit: {}{}",
+        run("git", &["rev-parse", "HEAD"]),
+        if dirty {
+            " (with uncommitted changes)"
+        } else {
+            ""
+        }
+    );
+    println!(
+        "machine: {} logical cores, {}",
+        std::thread::available_parallelism().map_or(0, |n| n.get()),
+        run("uname", &["-srm"])
+    );
     println!(
         "replicates {} truth_samples {} repeats {} reservoir {} test_rows {} confidence {}",
         cfg.replicates,
@@ -142,6 +189,15 @@ fn main() {
             }
         }
         None => print!("{table}"),
+    }
+    if let Some(stem) = raw {
+        let (index, bin) = output.raw_files();
+        if let Err(e) = std::fs::write(stem.with_extension("csv"), index)
+            .and_then(|_| std::fs::write(stem.with_extension("bin"), bin))
+        {
+            eprintln!("coverage: cannot write {}: {e}", stem.display());
+            std::process::exit(1);
+        }
     }
     if let Some(path) = draws {
         if let Err(e) = std::fs::write(&path, output.draws_csv()) {

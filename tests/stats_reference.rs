@@ -33,6 +33,7 @@ fn paired_t_matches_scipy_ttest_rel_and_t_interval() {
             reservoir: 1000,
             test_rows: 1000,
             extreme: false,
+            rare_class: false,
         };
         let iv = interval(IntervalKind::PairedT, &input, conf).unwrap();
         // scipy.stats.t.interval(conf, n − 1, loc = mean, scale = sem).

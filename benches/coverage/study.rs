@@ -140,12 +140,29 @@ impl Population {
         }
     }
 
+    /// Kumaraswamy(0.5, 4) scores (mean 0.067, piled up near 0 with a long
+    /// tail) twice as far out in log-odds as the truth and too high:
+    /// q(s) = σ(logit(s)/2 − 1.5), base rate 4.5%: a fraud or default model
+    /// whose confident scores are not to be trusted.
+    pub fn rare_over_confident() -> Self {
+        Population {
+            name: "rare-over-confident",
+            score_a: 0.5,
+            score_b: 4.0,
+            map: TruthMap::Logistic {
+                slope: 0.5,
+                intercept: -1.5,
+            },
+        }
+    }
+
     /// The populations of the published study, in table order.
     pub fn all() -> Vec<Population> {
         vec![
             Population::calibrated(),
             Population::over_confident(),
             Population::rare_under_confident(),
+            Population::rare_over_confident(),
             Population::two_step(),
         ]
     }
@@ -337,6 +354,8 @@ pub struct StudyConfig {
     pub truth: TruthConfig,
     pub confidence: f64,
     pub kinds: Vec<IntervalKind>,
+    /// Keep every replicate's raw interval inputs ([`RawCell`]).
+    pub keep_raw: bool,
 }
 
 impl StudyConfig {
@@ -372,6 +391,7 @@ impl StudyConfig {
             },
             confidence: 0.95,
             kinds: IntervalKind::ALL.to_vec(),
+            keep_raw: false,
         }
     }
 }
@@ -402,6 +422,8 @@ pub struct StudyOutput {
     pub truth_fallbacks: usize,
     pub unit_fallbacks: usize,
     pub units: usize,
+    /// Raw interval inputs per replicate and cell (only with `keep_raw`).
+    pub raw: Vec<RawCell>,
 }
 
 /// A one-task plan with the study's methods, metrics, sizes and repeats,
@@ -478,7 +500,21 @@ fn replicate_plan(template: &Plan, cfg: &StudyConfig, pi: usize, rep: usize) -> 
     plan
 }
 
-type RepOut = (Vec<(CellKey, Draw)>, usize, usize);
+/// One replicate's raw interval inputs for one (pair, metric, size): the
+/// per-repeat differences d_r, the per-repeat test-batch mean differences
+/// (R × B, row-major), whether either method made an extreme prediction, and
+/// the calibration positives per repeat.
+#[derive(Debug, Clone)]
+pub struct RawCell {
+    pub key: (usize, usize, usize, usize),
+    pub replicate: usize,
+    pub extreme: bool,
+    pub diffs: Vec<f64>,
+    pub batches: Vec<f64>,
+    pub positives: Vec<f64>,
+}
+
+type RepOut = (Vec<(CellKey, Draw)>, usize, usize, Vec<RawCell>);
 
 /// Run one replicate through the engine and form every interval.
 fn run_replicate(
@@ -513,6 +549,70 @@ fn run_replicate(
             .entry((row.task.clone(), row.size, row.method.clone()))
             .or_default()
             .insert(row.repeat, i);
+    }
+    let mut raw = Vec::new();
+    if cfg.keep_raw {
+        let batch_cols = |method: &str, metric: &str| -> Vec<Option<usize>> {
+            plumbline::stats::paired::ROW_SUMMARY_NAMES
+                .iter()
+                .map(|n| {
+                    if method == plan.reference {
+                        None
+                    } else {
+                        table.extra_index(&format!("{metric}_{n}"))
+                    }
+                })
+                .collect()
+        };
+        for (qi, (a, b)) in cfg.pairs.iter().enumerate() {
+            for (mi, met) in cfg.metrics.iter().enumerate() {
+                let col = table
+                    .metric_index(met.as_str())
+                    .ok_or_else(|| format!("no column for {}", met.as_str()))?;
+                let extreme_col = table.extra_index(&format!(
+                    "{}_{}",
+                    met.as_str(),
+                    plumbline::stats::paired::EXTREME_ROWS
+                ));
+                let (ba, bb) = (batch_cols(a, met.as_str()), batch_cols(b, met.as_str()));
+                for (si, &size) in cfg.sizes.iter().enumerate() {
+                    let key = ("pool".to_string(), size, a.clone());
+                    let keyb = ("pool".to_string(), size, b.clone());
+                    let (Some(ca), Some(cb)) = (cells.get(&key), cells.get(&keyb)) else {
+                        return Err(format!("no units for {a} − {b} at n = {size}"));
+                    };
+                    let mut cell = RawCell {
+                        key: (pi, qi, mi, si),
+                        replicate: rep,
+                        extreme: false,
+                        diffs: Vec::new(),
+                        batches: Vec::new(),
+                        positives: Vec::new(),
+                    };
+                    for (r, &i) in ca {
+                        let Some(&j) = cb.get(r) else { continue };
+                        let (ra, rb) = (&table.rows[i], &table.rows[j]);
+                        let (Some(va), Some(vb)) = (ra.metrics[col], rb.metrics[col]) else {
+                            continue;
+                        };
+                        cell.diffs.push(va - vb);
+                        cell.positives.push(ra.positives as f64);
+                        for (x, y) in ba.iter().zip(&bb) {
+                            let get = |c: &Option<usize>, row: &plumbline::run::table::UnitRow| {
+                                c.map_or(0.0, |c| row.extras[c].unwrap_or(f64::NAN))
+                            };
+                            cell.batches.push(get(x, ra) - get(y, rb));
+                        }
+                        if let Some(c) = extreme_col {
+                            cell.extreme |= [ra, rb]
+                                .iter()
+                                .any(|row| row.extras[c].is_some_and(|v| v > 0.0));
+                        }
+                    }
+                    raw.push(cell);
+                }
+            }
+        }
     }
     let mut out = Vec::new();
     for (ki, &kind) in cfg.kinds.iter().enumerate() {
@@ -558,7 +658,7 @@ fn run_replicate(
             }
         }
     }
-    Ok((out, fallbacks, nunits))
+    Ok((out, fallbacks, nunits, raw))
 }
 
 /// Run the study; `progress` is told each finished population.
@@ -594,6 +694,7 @@ pub fn run_study(cfg: &StudyConfig, progress: &dyn Fn(&str)) -> Result<StudyOutp
         truth_fallbacks: 0,
         unit_fallbacks: 0,
         units: 0,
+        raw: Vec::new(),
     };
     for (pi, pop) in cfg.populations.iter().enumerate() {
         for (si, &n) in cfg.sizes.iter().enumerate() {
@@ -609,7 +710,8 @@ pub fn run_study(cfg: &StudyConfig, progress: &dyn Fn(&str)) -> Result<StudyOutp
             .into_par_iter()
             .map(|rep| run_replicate(&template, cfg, pi, rep))
             .collect::<Result<_, _>>()?;
-        for (cells, falls, units) in reps {
+        for (cells, falls, units, raw) in reps {
+            out.raw.extend(raw);
             out.unit_fallbacks += falls;
             out.units += units;
             for (key, d) in cells {
@@ -746,5 +848,41 @@ impl StudyOutput {
             }
         }
         s
+    }
+}
+
+impl StudyOutput {
+    /// The raw interval inputs: an index CSV (one line per replicate and
+    /// cell, with the offset and length in f64 values of its record in the
+    /// binary file) and the little-endian f64 records, each d_r (R values),
+    /// then the R × B batch table, then the R calibration positives.
+    pub fn raw_files(&self) -> (String, Vec<u8>) {
+        let cfg = &self.config;
+        let mut index = String::from(
+            "population,method,reference,metric,size,replicate,truth,extreme,repeats,batches,offset\n",
+        );
+        let mut bin = Vec::new();
+        for c in &self.raw {
+            let (pi, qi, mi, si) = c.key;
+            let r = c.diffs.len();
+            index.push_str(&format!(
+                "{},{},{},{},{},{},{:e},{},{},{},{}\n",
+                cfg.populations[pi].name,
+                cfg.pairs[qi].0,
+                cfg.pairs[qi].1,
+                cfg.metrics[mi].as_str(),
+                cfg.sizes[si],
+                c.replicate,
+                self.truth[&c.key].0,
+                c.extreme as u8,
+                r,
+                c.batches.len() / r.max(1),
+                bin.len() / 8
+            ));
+            for v in c.diffs.iter().chain(&c.batches).chain(&c.positives) {
+                bin.extend_from_slice(&v.to_le_bytes());
+            }
+        }
+        (index, bin)
     }
 }

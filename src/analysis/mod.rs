@@ -368,6 +368,18 @@ pub fn paired_interval(
             })
         });
     let first = pr.rows.first().map(|&(i, _)| &table.rows[i]);
+    // The calibration sample is the same for both methods of a repeat: its
+    // class counts, averaged over repeats, decide the rare-class rule.
+    let minority: Vec<f64> = pr
+        .rows
+        .iter()
+        .map(|&(i, _)| {
+            let r = &table.rows[i];
+            r.positives.min(r.size.saturating_sub(r.positives)) as f64
+        })
+        .collect();
+    let rare_class = !minority.is_empty()
+        && minority.iter().sum::<f64>() / (minority.len() as f64) < RARE_CLASS_ROWS;
     let input = PairedInput {
         diffs: &pr.diffs,
         row_stats: row_stats.as_deref(),
@@ -375,6 +387,7 @@ pub fn paired_interval(
         reservoir: first.map(|r| r.reservoir).unwrap_or(0),
         test_rows: first.map(|r| r.test_rows).unwrap_or(0),
         extreme,
+        rare_class,
     };
     interval(kind, &input, settings.confidence).unwrap_or(Interval {
         kind,

@@ -236,6 +236,14 @@ pub struct PairedInput<'a> {
     ///
     /// [`MetricId::extreme_row_loss`]: crate::metrics::MetricId::extreme_row_loss
     pub extreme: bool,
+    /// True when the calibration samples held fewer than
+    /// [`crate::analysis::RARE_CLASS_ROWS`] rows of the rarer class on
+    /// average: the fitted maps are then far from their large-sample
+    /// behaviour, the loss difference is not second order in the estimation
+    /// error, and [`IntervalKind::Decomposed`] and
+    /// [`IntervalKind::DecomposedSkew`] take the first-order reservoir term
+    /// for every metric.
+    pub rare_class: bool,
 }
 
 /// The variance terms of a [`IntervalKind::Decomposed`] interval (squared standard errors).
@@ -473,7 +481,9 @@ pub fn interval(
             // The second-order reservoir term needs a loss that is smooth at
             // the fitted predictions; with extreme predictions fall back to
             // the first-order bound.
-            let order = kind.reservoir_order(input.extreme).unwrap_or(1);
+            let order = kind
+                .reservoir_order(input.extreme || input.rare_class)
+                .unwrap_or(1);
             let (p, df) = decompose(input, order)?;
             let var = p.draws + p.reservoir + p.test.unwrap_or(0.0);
             if kind == IntervalKind::DecomposedSkew && var > 0.0 {
@@ -553,6 +563,7 @@ mod tests {
             reservoir: 1000,
             test_rows: 500,
             extreme: false,
+            rare_class: false,
         }
     }
 
@@ -584,6 +595,33 @@ mod tests {
             assert_eq!(
                 interval(k, &smooth, 0.95).unwrap(),
                 interval(k, &rough, 0.95).unwrap()
+            );
+        }
+    }
+
+    #[test]
+    fn rare_classes_switch_the_default_to_the_first_order_term() {
+        // Same data as above: with few minority rows the default takes
+        // s² ρ/(1 − ρ) = 2.5/9 whatever the metric, as with extreme predictions.
+        let d = [1.0, 2.0, 3.0, 4.0, 5.0];
+        let smooth = input(&d, None);
+        let rare = PairedInput {
+            rare_class: true,
+            ..smooth
+        };
+        for kind in [IntervalKind::Decomposed, IntervalKind::DecomposedSkew] {
+            let iv = interval(kind, &rare, 0.95).unwrap();
+            assert_eq!(iv.reservoir_order, Some(1));
+            assert!((iv.se * iv.se - (0.5 + 2.5 / 9.0)).abs() < 1e-12);
+            assert_eq!(
+                interval(kind, &smooth, 0.95).unwrap().reservoir_order,
+                Some(2)
+            );
+        }
+        for k in [IntervalKind::PairedT, IntervalKind::CorrectedT] {
+            assert_eq!(
+                interval(k, &smooth, 0.95).unwrap(),
+                interval(k, &rare, 0.95).unwrap()
             );
         }
     }
@@ -781,6 +819,7 @@ mod tests {
                 reservoir: 1_000_000,
                 test_rows: 1000,
                 extreme: false,
+                rare_class: false,
             };
             let (p, _) = decompose(&inp, 2).unwrap();
             draws += p.draws / sims as f64;
