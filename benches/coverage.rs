@@ -91,6 +91,45 @@ fn main() {
         }
         i += 2;
     }
+    // What made this output: the command line, the commit and the machine,
+    // taken before the study runs. "With uncommitted changes" looks only at
+    // the code that decides the numbers (src/, benches/, Cargo files).
+    let run = |cmd: &str, args: &[&str]| {
+        std::process::Command::new(cmd)
+            .args(args)
+            .output()
+            .ok()
+            .filter(|o| o.status.success())
+            .map(|o| String::from_utf8_lossy(&o.stdout).trim().to_string())
+            .unwrap_or_else(|| "unknown".into())
+    };
+    let dirty = !run(
+        "git",
+        &[
+            "status",
+            "--porcelain",
+            "--untracked-files=no",
+            "--",
+            "src",
+            "benches",
+            "Cargo.toml",
+            "Cargo.lock",
+        ],
+    )
+    .is_empty();
+    let stamp =
+        format!(
+        "command: cargo bench --bench coverage -- {}\ncommit: {}{}\nmachine: {} logical cores, {}",
+        std::env::args()
+            .skip(1)
+            .filter(|a| a != "--bench")
+            .collect::<Vec<_>>()
+            .join(" "),
+        run("git", &["rev-parse", "HEAD"]),
+        if dirty { " (with uncommitted changes)" } else { "" },
+        std::thread::available_parallelism().map_or(0, |n| n.get()),
+        run("uname", &["-srm"])
+    );
     let start = Instant::now();
     let result = study::run_study(&cfg, &|name| {
         eprintln!(
@@ -113,39 +152,7 @@ fn main() {
         .iter()
         .filter(|r| !(0.93..=0.97).contains(&r.coverage()))
         .collect();
-    // What made this output: the command line, the commit and the machine.
-    let run = |cmd: &str, args: &[&str]| {
-        std::process::Command::new(cmd)
-            .args(args)
-            .output()
-            .ok()
-            .filter(|o| o.status.success())
-            .map(|o| String::from_utf8_lossy(&o.stdout).trim().to_string())
-            .unwrap_or_else(|| "unknown".into())
-    };
-    println!(
-        "command: cargo bench --bench coverage -- {}",
-        std::env::args()
-            .skip(1)
-            .filter(|a| a != "--bench")
-            .collect::<Vec<_>>()
-            .join(" ")
-    );
-    let dirty = !run("git", &["status", "--porcelain", "--untracked-files=no"]).is_empty();
-    println!(
-        "commit: {}{}",
-        run("git", &["rev-parse", "HEAD"]),
-        if dirty {
-            " (with uncommitted changes)"
-        } else {
-            ""
-        }
-    );
-    println!(
-        "machine: {} logical cores, {}",
-        std::thread::available_parallelism().map_or(0, |n| n.get()),
-        run("uname", &["-srm"])
-    );
+    println!("{stamp}");
     println!(
         "replicates {} truth_samples {} repeats {} reservoir {} test_rows {} confidence {}",
         cfg.replicates,
