@@ -28,6 +28,7 @@ BASE_RATE = {
     "calibrated": 0.457,
     "over-confident": 0.51,
     "rare-under-confident": 0.030,
+    "rare-over-confident": 0.045,
     "two-step": 0.482,
 }
 RARE_ROWS = 10

@@ -38,3 +38,28 @@ fn coverage_tables_in_the_statistics_doc_match_the_committed_study_output() {
         missing.iter().take(10).map(|l| l.to_string()).collect::<Vec<_>>().join("\n")
     );
 }
+
+#[test]
+fn reservoir_rule_summary_in_the_statistics_doc_matches_its_committed_output() {
+    // docs/coverage/rules.txt is the printed output of
+    // scripts/coverage_rules.py on a raw study dump too large to commit; the
+    // doc quotes its "rule" headers and its "all" summary lines.
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let out = std::fs::read_to_string(root.join("docs/coverage/rules.txt")).unwrap();
+    let doc = std::fs::read_to_string(root.join("docs/statistics.md")).unwrap();
+    let quoted: Vec<&str> = out
+        .lines()
+        .filter(|l| l.starts_with("rule ") || l.starts_with("  all "))
+        .collect();
+    // Five rules, a header and two summary lines each.
+    assert_eq!(quoted.len(), 15, "{quoted:#?}");
+    let missing: Vec<&&str> = quoted.iter().filter(|l| !doc.contains(**l)).collect();
+    assert!(
+        missing.is_empty(),
+        "docs/statistics.md does not quote these lines of docs/coverage/rules.txt:\n{}",
+        missing.iter().map(|l| l.to_string()).collect::<Vec<_>>().join("\n")
+    );
+    // The output records what made it.
+    assert!(out.starts_with("command: "), "no command line in rules.txt");
+    assert!(out.contains("\nmachine: "), "no machine line in rules.txt");
+}
