@@ -57,7 +57,11 @@ fn reservoir_rule_summary_in_the_statistics_doc_matches_its_committed_output() {
     assert!(
         missing.is_empty(),
         "docs/statistics.md does not quote these lines of docs/coverage/rules.txt:\n{}",
-        missing.iter().map(|l| l.to_string()).collect::<Vec<_>>().join("\n")
+        missing
+            .iter()
+            .map(|l| l.to_string())
+            .collect::<Vec<_>>()
+            .join("\n")
     );
     // The output records what made it.
     assert!(out.starts_with("command: "), "no command line in rules.txt");
