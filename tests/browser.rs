@@ -1,7 +1,11 @@
 //! The HTML report in a real headless browser (Debian's chromium): the page
 //! loads with no console errors and no network requests, every figure has a
 //! non-zero rendered size, every contents link resolves to an element of the
-//! page, and a screenshot is saved in the test's temporary folder.
+//! page, and a screenshot is saved in the test's temporary folder. At 1280 px
+//! width the paragraph naming the team default ends inside the first 800 px,
+//! the method's name is set no smaller than its label, neither the page nor
+//! any table is wider than the window, and the page text (code set aside)
+//! holds no Markdown markup (`*word*`, `**word**`, `_word_`, backticks).
 //!
 //! Ignored by a plain `cargo test` (listed as ignored), because it needs a
 //! browser: run it with `cargo test --locked --test browser -- --ignored`, or
@@ -76,6 +80,27 @@ document.getElementById('page').addEventListener('load', function () {
   links.forEach(function (a) { var id = decodeURIComponent(a.getAttribute('href').slice(1)); if (!d.getElementById(id)) out.broken.push(id); });
   out.resources = w.performance.getEntriesByType('resource').length;
   out.firstH2 = (d.querySelector('h2') || {}).id || '';
+  // The first screen at 1280 x 800: the paragraph naming the team default,
+  // with the contents list grown to what a suite of some fifty tasks lists.
+  var list = d.querySelector('nav ul');
+  if (list) { var top = list.querySelectorAll(':scope > li'); for (var k = 0; k < 12; k++) top.forEach(function (li) { list.appendChild(li.cloneNode(true)); }); }
+  var lead = null;
+  d.querySelectorAll('p').forEach(function (p) { if (!lead && p.textContent.indexOf('team default') >= 0) lead = p; });
+  out.leadBottom = lead ? lead.getBoundingClientRect().bottom + w.scrollY : -1;
+  // The winning method's name against the label beside it.
+  var name = lead ? lead.querySelector('code') : null, label = lead ? lead.querySelector('strong') : null;
+  out.namePx = name ? parseFloat(w.getComputedStyle(name).fontSize) : 0;
+  out.labelPx = label ? parseFloat(w.getComputedStyle(label).fontSize) : 0;
+  // No sideways scrolling of the page.
+  out.pageWidth = d.documentElement.scrollWidth;
+  out.viewWidth = d.documentElement.clientWidth;
+  out.wide = [];
+  d.querySelectorAll('table').forEach(function (t) { var r = t.getBoundingClientRect(); if (r.right > out.viewWidth + 0.5) out.wide.push((t.caption || {}).textContent || 'table'); });
+  // Markdown markup left in the text; code (ids such as log_loss) set aside
+  // last, as it changes the page.
+  d.querySelectorAll('code').forEach(function (c) { c.textContent = 'CODE'; });
+  var text = d.body.innerText;
+  out.markup = text.match(/\*\*[^*\s][^*]*\*\*|(^|[^\w*])\*[^*\s]([^*\n]*[^*\s])?\*(?![\w*])|(^|[^\w])_[^_\s]([^_\n]*[^_\s])?_(?!\w)|`/g) || [];
   var pre = document.createElement('pre');
   pre.textContent = 'RESULT ' + JSON.stringify(out) + ' END';
   document.body.appendChild(pre);
@@ -159,4 +184,28 @@ fn html_report_renders_in_a_headless_browser() {
     assert_eq!(r["broken"].as_array().unwrap().len(), 0, "{r}");
     assert_eq!(r["resources"], 0, "the page loaded outside resources: {r}");
     assert_eq!(r["firstH2"], "decision", "{r}");
+    let lead = r["leadBottom"].as_f64().unwrap();
+    assert!(
+        (0.0..=800.0).contains(&lead),
+        "the decision ends at {lead} px, below the first 800 px at 1280 px width: {r}"
+    );
+    assert!(
+        r["namePx"].as_f64().unwrap() >= r["labelPx"].as_f64().unwrap()
+            && r["labelPx"].as_f64().unwrap() > 0.0,
+        "the team default's name is set smaller than its label: {r}"
+    );
+    assert!(
+        r["pageWidth"].as_f64().unwrap() <= r["viewWidth"].as_f64().unwrap(),
+        "the page scrolls sideways at 1280 px: {r}"
+    );
+    assert_eq!(
+        r["wide"].as_array().unwrap().len(),
+        0,
+        "tables wider than the page: {r}"
+    );
+    assert_eq!(
+        r["markup"].as_array().unwrap().len(),
+        0,
+        "Markdown markup in the page text: {r}"
+    );
 }

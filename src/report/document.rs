@@ -2,8 +2,9 @@
 //! a list of [`Block`]s — decision first, then the caution and the legend,
 //! ranks, thresholds, reliability diagrams and per-task detail — and rendered
 //! as Markdown (`summary.md`), HTML (`index.html`) or terminal text, so the
-//! formats cannot drift apart. Inline text uses two Markdown marks only:
-//! `` `code` `` and `**bold**`.
+//! formats cannot drift apart. Inline text uses Markdown marks:
+//! `` `code` `` and `**bold**`; the HTML also renders `*emphasis*` and
+//! `_emphasis_`.
 
 use super::Table;
 
@@ -77,25 +78,36 @@ pub fn to_markdown(blocks: &[Block]) -> String {
 
 use super::esc;
 
-/// Inline Markdown (`code`, **bold**) as HTML.
+/// Inline Markdown (`code`, **bold**, *emphasis* and _emphasis_) as HTML.
+/// A single `*` or `_` opens emphasis only at the start of a word and when a
+/// matching mark closes it at the end of a word before the next code span,
+/// so ids such as `log_loss` and a lone `*` stay as they are.
 pub fn inline_html(t: &str) -> String {
     let mut out = String::new();
     let mut code = false;
     let mut bold = false;
     let mut rest = t;
+    let mut prev: Option<char> = None;
     while !rest.is_empty() {
         if let Some(r) = rest.strip_prefix('`') {
             out.push_str(if code { "</code>" } else { "<code>" });
             code = !code;
             rest = r;
+            prev = Some('`');
         } else if let (false, Some(r)) = (code, rest.strip_prefix("**")) {
             out.push_str(if bold { "</strong>" } else { "<strong>" });
             bold = !bold;
             rest = r;
+            prev = Some('*');
+        } else if let Some((inner, after)) = (!code).then(|| emphasis(rest, prev)).flatten() {
+            out.push_str(&format!("<em>{}</em>", inline_html(inner)));
+            prev = inner.chars().last();
+            rest = after;
         } else {
             let c = rest.chars().next().unwrap_or(' ');
             out.push_str(&esc(&c.to_string()));
             rest = &rest[c.len_utf8()..];
+            prev = Some(c);
         }
     }
     if code {
@@ -105,6 +117,33 @@ pub fn inline_html(t: &str) -> String {
         out.push_str("</strong>");
     }
     out
+}
+
+/// An emphasis span `*text*` or `_text_` at the start of `rest` (`prev` is
+/// the character before it): the text inside and what follows the span.
+fn emphasis(rest: &str, prev: Option<char>) -> Option<(&str, &str)> {
+    let mark = rest.chars().next().filter(|&c| c == '*' || c == '_')?;
+    if rest[1..].starts_with(mark) || prev.is_some_and(|c| c.is_alphanumeric() || c == mark) {
+        return None;
+    }
+    let body = &rest[1..];
+    if body.starts_with(char::is_whitespace) {
+        return None;
+    }
+    let end = body.find('`').unwrap_or(body.len());
+    let mut from = 0;
+    while let Some(i) = body[from..end].find(mark).map(|i| i + from) {
+        let before = body[..i].chars().last();
+        let after = body[i + 1..].chars().next();
+        if i > 0
+            && before.is_some_and(|c| !c.is_whitespace())
+            && !after.is_some_and(|c| c.is_alphanumeric() || c == mark)
+        {
+            return Some((&body[..i], &body[i + 1..]));
+        }
+        from = i + 1;
+    }
+    None
 }
 
 /// Inline Markdown stripped for the terminal.
@@ -283,7 +322,7 @@ const PLAIN_KEY: &str = "marked *: ";
 /// Spaces inside an interval `[a, b]` and before the verdict mark after it
 /// become no-break spaces, so a narrow column breaks a cell between its
 /// parts, never inside an interval.
-fn glue_intervals(cell: &str) -> String {
+pub(crate) fn glue_intervals(cell: &str) -> String {
     let chars: Vec<char> = cell.chars().collect();
     let mut out = String::new();
     let mut depth = 0usize;
@@ -298,7 +337,7 @@ fn glue_intervals(cell: &str) -> String {
         // or a space (`] ✓`, `] ? †`).
         let mark_follows = || {
             let rest: String = chars[i + 1..].iter().collect();
-            let word = rest.split(' ').next().unwrap_or("");
+            let word = rest.split(' ').next().unwrap_or("").trim_end_matches('*');
             !word.is_empty() && word.chars().count() <= 2
         };
         if c == ' ' && (depth > 0 || (after_interval && mark_follows())) {
@@ -513,6 +552,17 @@ mod tests {
             inline_html("use `a<b` and **bold** & more"),
             "use <code>a&lt;b</code> and <strong>bold</strong> &amp; more"
         );
+    }
+
+    #[test]
+    fn emphasis_becomes_html_and_ids_stay() {
+        assert_eq!(
+            inline_html("Per task, *better from* and _worse up to_ on `log_loss`"),
+            "Per task, <em>better from</em> and <em>worse up to</em> on <code>log_loss</code>"
+        );
+        assert_eq!(inline_html("log_loss and a_b_c"), "log_loss and a_b_c");
+        assert_eq!(inline_html("marked * here"), "marked * here");
+        assert_eq!(inline_html("`_x_`"), "<code>_x_</code>");
     }
 
     #[test]

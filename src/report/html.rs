@@ -1,5 +1,5 @@
 //! `index.html`: the summary document as one self-contained page — inline SVG
-//! figures and CSS, no scripts, no network — with a contents list, the
+//! figures and CSS, no scripts, no network — with a collapsed contents list, the
 //! decision on top, a section per dataset with its base models, and stable
 //! anchors (`#decision`, `#ranks`, `#thresholds`, `#dataset-<id>`,
 //! `#task-<id>`) a wiki page can link to. Prints cleanly.
@@ -13,16 +13,17 @@ use super::esc;
 
 const STYLE: &str = "body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;max-width:1180px;margin:0 auto;padding:0 1.2em 3em;color:#1d1d1d;line-height:1.45}\
 header{border-bottom:3px solid #0072B2;margin-bottom:1em}\
-nav{background:#f4f7fa;border:1px solid #d9e2ea;padding:0.6em 1.2em;margin:1em 0;font-size:14px}\
-nav ul{margin:0.2em 0;padding-left:1.2em}nav li{margin:0.1em 0}\
+nav{background:#f4f7fa;border:1px solid #d9e2ea;padding:0.4em 1.2em;margin:1em 0;font-size:14px}\
+nav summary{cursor:pointer;font-weight:bold}nav ul{margin:0.2em 0;padding-left:1.2em}nav li{margin:0.1em 0}\
+p.lead{font-size:1.15em}p.lead code{font-size:1em;font-weight:bold}strong code{font-size:1em}\
 h2{border-bottom:1px solid #ccc;padding-bottom:0.2em;margin-top:2em}\
-table{border-collapse:collapse;margin:0.6em 0 0.3em}th,td{border:1px solid #d0d0d0;padding:3px 7px;font-size:13px;vertical-align:top}\
-td{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}thead th{background:#eef2f5}tbody th{text-align:left;font-weight:normal;white-space:nowrap}\
+table{border-collapse:collapse;margin:0.6em 0 0.3em}th,td{border:1px solid #d0d0d0;padding:3px 6px;font-size:13px;vertical-align:top}\
+td{text-align:right;font-variant-numeric:tabular-nums;font-size:12px}thead th{background:#eef2f5;font-weight:600}tbody th{text-align:left;font-weight:normal;white-space:nowrap}\
 caption{text-align:left;font-weight:bold;padding:0.3em 0}\
 .note{color:#555;font-size:12px;margin:0.2em 0 1em}\
 .caution{background:#fff6e8;border-left:5px solid #E69F00;padding:0.6em 1em;margin:1.2em 0}\
 figure{margin:0.8em 0;overflow-x:auto}figure svg{max-width:100%;height:auto}figcaption{font-size:12px;color:#555}\
-.scroll{overflow-x:auto}code{font-size:0.92em}\
+.scroll{overflow-x:auto}code{font-family:ui-monospace,'SFMono-Regular',Menlo,Consolas,'Liberation Mono',monospace;font-size:0.92em}\
 @media print{nav{display:none}body{max-width:none}h2,h3,h4{break-after:avoid}figure,table{break-inside:avoid}}";
 
 fn table_html(t: &Table) -> String {
@@ -38,7 +39,11 @@ fn table_html(t: &Table) -> String {
     for r in &t.rows {
         s.push_str("<tr>");
         for (i, c) in r.iter().enumerate() {
-            let cell = inline_html(c).replace('\n', "<br>");
+            // Numbers and intervals never break; a cell may break between
+            // them (`\u{a0}` glues an interval and its verdict mark).
+            let cell = inline_html(&super::document::glue_intervals(c))
+                .replace('\u{a0}', "&nbsp;")
+                .replace('\n', "<br>");
             if i == 0 {
                 s.push_str(&format!("<th>{cell}</th>"));
             } else {
@@ -101,7 +106,10 @@ pub fn index(a: &Analysis, ctx: &ReportContext, figures: &[(String, String)]) ->
         esc(&ctx.suite_name)
     ));
     // Contents: the level-2 sections, and datasets with their tasks.
-    let mut nav = String::from("<nav aria-label=\"contents\"><strong>Contents</strong>\n<ul>\n");
+    // Collapsed, so the decision opens the first screen however many tasks
+    // the suite holds.
+    let mut nav =
+        String::from("<nav aria-label=\"contents\"><details><summary>Contents</summary>\n<ul>\n");
     let mut open_ds = false;
     let mut open_tasks = false;
     for b in &blocks {
@@ -165,7 +173,7 @@ pub fn index(a: &Analysis, ctx: &ReportContext, figures: &[(String, String)]) ->
     if open_ds {
         nav.push_str("</ul></li>\n");
     }
-    nav.push_str("</ul>\n</nav>\n");
+    nav.push_str("</ul>\n</details></nav>\n");
     let mut first_heading = true;
     for b in &blocks {
         match b {
@@ -189,6 +197,10 @@ pub fn index(a: &Analysis, ctx: &ReportContext, figures: &[(String, String)]) ->
                     ));
                 }
             }
+            // The sentence naming a metric's team default stands out.
+            Block::Para(t) if t.starts_with("On `") && t.contains("**team default") => h.push_str(
+                &format!("<p class=\"lead\">{}</p>\n", para_html(t, figures)),
+            ),
             Block::Para(t) => h.push_str(&format!("<p>{}</p>\n", para_html(t, figures))),
             Block::List(items) => {
                 h.push_str("<ul>\n");

@@ -992,10 +992,51 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
             "This folder holds no reliability curves (`reliability.csv`).".into(),
         ));
     } else {
-        let sizes: std::collections::BTreeSet<usize> = ctx.curves.iter().map(|c| c.size).collect();
+        // Each task's figure has a column per size drawn for that task; say
+        // which, grouping tasks that share their sizes.
+        let mut groups: Vec<(Vec<usize>, usize)> = Vec::new();
+        for t in &a.tasks {
+            let set: std::collections::BTreeSet<usize> = ctx
+                .curves
+                .iter()
+                .filter(|c| &c.task == t)
+                .map(|c| c.size)
+                .collect();
+            if set.is_empty() {
+                continue;
+            }
+            let set: Vec<usize> = set.into_iter().collect();
+            match groups.iter_mut().find(|(s, _)| *s == set) {
+                Some(g) => g.1 += 1,
+                None => groups.push((set, 1)),
+            }
+        }
+        groups.sort_by(|x, y| y.1.cmp(&x.1).then(x.0.cmp(&y.0)));
+        let sizes_words = |s: &[usize]| {
+            let w: Vec<String> = s.iter().map(|n| n.to_string()).collect();
+            format!(
+                "{} {}",
+                if w.len() == 1 { "size" } else { "sizes" },
+                and_list(&w)
+            )
+        };
+        let shows = match groups.as_slice() {
+            [(s, _)] => format!("calibration {}", sizes_words(s)),
+            _ => format!(
+                "the calibration sizes drawn for that task — {}",
+                groups
+                    .iter()
+                    .map(|(s, k)| format!(
+                        "{} on {k} {}",
+                        sizes_words(s),
+                        if *k == 1 { "task" } else { "tasks" }
+                    ))
+                    .collect::<Vec<_>>()
+                    .join("; ")
+            ),
+        };
         b.push(Block::Para(format!(
-            "For every task, repeat 0 at calibration sizes {}: the CORP reliability curve of each method's test predictions (isotonic regression of the outcome on the prediction; Dimitriadis, Gneiting & Jordan 2021) with a consistency band from label draws under the hypothesis of calibration (Bröcker & Smith 2007), on a probability and a log-odds scale, the histogram of predictions beneath, and the CORP decomposition of the Brier score (BS = MCB − DSC + UNC: miscalibration, discrimination, uncertainty). A curve leaving its band shows miscalibration beyond chance. Points are in `reliability.csv`, histograms in `reliability_hist.csv`, terms in `reliability_terms.csv`.",
-            sizes.iter().map(|n| n.to_string()).collect::<Vec<_>>().join(" and ")
+            "One figure per task, from repeat 0, with a column for each of {shows}: the CORP reliability curve of each method's test predictions (isotonic regression of the outcome on the prediction; Dimitriadis, Gneiting & Jordan 2021) with a consistency band from label draws under the hypothesis of calibration (Bröcker & Smith 2007), on a probability and a log-odds scale, the histogram of predictions beneath, and the CORP decomposition of the Brier score (BS = MCB − DSC + UNC: miscalibration, discrimination, uncertainty). A curve leaving its band shows miscalibration beyond chance. Points are in `reliability.csv`, histograms in `reliability_hist.csv`, terms in `reliability_terms.csv`.",
         )));
         let mut items = Vec::new();
         for t in &a.tasks {
@@ -1083,8 +1124,28 @@ pub fn task_terminal(a: &Analysis, ctx: &ReportContext, task: &str) -> Option<St
     ))
 }
 
+/// Words listed as "a, b and c".
+pub(crate) fn and_list(w: &[String]) -> String {
+    match w {
+        [] => String::new(),
+        [one] => one.clone(),
+        [init @ .., last] => format!("{} and {last}", init.join(", ")),
+    }
+}
+
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn sizes_are_listed_with_commas_and_a_final_and() {
+        let w = |v: &[&str]| v.iter().map(|s| s.to_string()).collect::<Vec<_>>();
+        assert_eq!(
+            super::and_list(&w(&["50", "100", "200", "1000", "2000", "5000"])),
+            "50, 100, 200, 1000, 2000 and 5000"
+        );
+        assert_eq!(super::and_list(&w(&["50", "400"])), "50 and 400");
+        assert_eq!(super::and_list(&w(&["50"])), "50");
+    }
+
     use super::*;
 
     fn spread(sizes: &[usize]) -> Spread {
