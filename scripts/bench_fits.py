@@ -19,7 +19,9 @@ Reference computations:
   platt        vs LogisticRegression(penalty=None, solver="lbfgs") on [s]
   beta         vs the same on [ln s, -ln(1 - s)] (s clipped to [1e-12, 1 - 1e-12])
   temperature  vs the same without intercept on [logit s] (same clip)
-scikit-learn runs with max_iter=1000 (its default of 100 can stop short).
+scikit-learn runs with max_iter=1000 (its default of 100 can stop short); its
+FutureWarning about `penalty` (deprecated in 1.8 in favour of C=np.inf) is
+silenced.
 The script is run by hand; no test runs it.
 """
 
@@ -29,6 +31,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import warnings
 
 import numpy as np
 import sklearn
@@ -47,6 +50,7 @@ def median_ms(runs, f):
 
 
 def main():
+    warnings.filterwarnings("ignore", category=FutureWarning)
     rows = int(sys.argv[1]) if len(sys.argv) > 1 else 1_000_000
     runs = int(sys.argv[2]) if len(sys.argv) > 2 else 7
     if rows < 2 or runs < 5:
