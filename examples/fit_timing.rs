@@ -52,12 +52,18 @@ fn main() {
     let runs: usize = match args[2].parse() {
         Ok(r) if r >= 1 => r,
         _ => {
-            eprintln!("fit_timing: RUNS must be a whole number >= 1, got {:?}", args[2]);
+            eprintln!(
+                "fit_timing: RUNS must be a whole number >= 1, got {:?}",
+                args[2]
+            );
             std::process::exit(2);
         }
     };
     if bytes.len() % 9 != 0 || bytes.is_empty() {
-        eprintln!("fit_timing: file size {} is not a multiple of 9 bytes", bytes.len());
+        eprintln!(
+            "fit_timing: file size {} is not a multiple of 9 bytes",
+            bytes.len()
+        );
         std::process::exit(2);
     }
     let n = bytes.len() / 9;

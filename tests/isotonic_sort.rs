@@ -1,5 +1,5 @@
-//! The isotonic fit sorts scores by their order keys (radix sort on large
-//! samples, comparison sort on small ones). Whatever sort runs, the fitted map
+//! The isotonic fit sorts scores by their order keys (by comparison, or by a
+//! radix sort). Whatever sort runs, the fitted map
 //! must be bit for bit the one of the plain comparison sort of (score, label)
 //! pairs by `f64::total_cmp` followed by the tie merge and PAV: same blocks,
 //! same `lo`/`hi` (−0.0 stays −0.0), same weights and values.
@@ -7,7 +7,10 @@
 use plumbline::calibrate::isotonic::{
     fit_blocks, fit_blocks_with, merge_ties, pav, shrink_blocks, Block, Isotonic,
 };
-use plumbline::calibrate::score_order::{KeySort, RADIX_MIN_ROWS};
+use plumbline::calibrate::score_order::KeySort;
+
+/// Rows in the long samples: several radix digits' worth of buckets.
+const LONG: usize = 4_096;
 use plumbline::calibrate::state::MapState;
 use plumbline::calibrate::Calibrator;
 use proptest::prelude::*;
@@ -87,12 +90,11 @@ fn score() -> impl Strategy<Value = f64> {
     ]
 }
 
-/// Rows with both classes; some samples are long enough for the radix sort to
-/// run under `KeySort::Auto`.
+/// Rows with both classes, short and long.
 fn sample() -> impl Strategy<Value = (Vec<f64>, Vec<bool>)> {
     prop_oneof![
         3 => 2usize..200,
-        1 => (2 * RADIX_MIN_ROWS)..(2 * RADIX_MIN_ROWS + 600),
+        1 => LONG..(LONG + 600),
     ]
     .prop_flat_map(|n| {
         (
@@ -138,8 +140,7 @@ proptest! {
     }
 }
 
-/// A sample well above the crossover, with heavy ties and both zeros: the
-/// default sort is the radix sort here.
+/// A large sample with heavy ties, both zeros, subnormals and infinities.
 #[test]
 fn large_tied_sample_matches() {
     let n = 50_000;

@@ -23,15 +23,17 @@
 //! Algorithm: the keys of positive rows and of negative rows are written into
 //! two halves of one buffer (so no label travels with a key), each half is
 //! sorted on its own, and the two sorted halves are merged while counting.
-//! Halves of at least [`RADIX_MIN_ROWS`] keys are sorted by a least-significant-
-//! digit radix sort with 11-bit digits (six passes at most; a pass whose digit
-//! is the same for every key is skipped), smaller ones by the standard library's
-//! unstable comparison sort, which is faster there. Both sort the same keys into
-//! the same order, so the merged points do not depend on which one ran.
-
-/// Halves with fewer keys than this are sorted by comparison (measured
-/// crossover: see docs/performance.md).
-pub const RADIX_MIN_ROWS: usize = 2_048;
+//! Sorting plain `u64` keys instead of (score, label) pairs compared by
+//! `total_cmp` halves the isotonic fit's time (docs/performance.md). Two sorts
+//! of the keys are available: the standard library's unstable comparison sort
+//! (the default) and a least-significant-digit radix sort with 11-bit digits
+//! (six passes at most; a pass whose digit is the same for every key is
+//! skipped). On the development machine the radix sort was slower than the
+//! comparison sort at every size measured, 256 to 1,000,000 rows
+//! (docs/bench/fits.txt), so [`KeySort::Auto`] picks the comparison sort; the
+//! radix sort is kept, tested to give the same points, for machines where it
+//! pays. Both sort the same keys into the same order, so the merged points do
+//! not depend on which one ran.
 
 const DIGIT_BITS: u32 = 11;
 const BUCKETS: usize = 1 << DIGIT_BITS;
@@ -40,7 +42,7 @@ const PASSES: usize = 64usize.div_ceil(DIGIT_BITS as usize);
 /// Which sort orders the keys.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum KeySort {
-    /// Radix sort from [`RADIX_MIN_ROWS`] keys, comparison sort below.
+    /// The faster sort as measured (currently the comparison sort).
     Auto,
     /// Always the comparison sort.
     Comparison,
@@ -66,8 +68,7 @@ pub fn from_order_key(k: u64) -> f64 {
 /// Sort keys in place with the chosen sort; `scratch` must be as long as `keys`.
 fn sort_keys(keys: &mut [u64], scratch: &mut [u64], how: KeySort) {
     let radix = match how {
-        KeySort::Auto => keys.len() >= RADIX_MIN_ROWS,
-        KeySort::Comparison => false,
+        KeySort::Auto | KeySort::Comparison => false,
         KeySort::Radix => true,
     };
     if radix {
@@ -131,7 +132,11 @@ pub fn for_each_distinct(
     how: KeySort,
     mut f: impl FnMut(f64, u64, u64),
 ) {
-    assert_eq!(scores.len(), labels.len(), "scores and labels differ in length");
+    assert_eq!(
+        scores.len(),
+        labels.len(),
+        "scores and labels differ in length"
+    );
     let n = scores.len();
     if n == 0 {
         return;
