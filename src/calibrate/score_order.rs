@@ -96,7 +96,7 @@ pub fn radix_sort(keys: &mut [u64], scratch: &mut [u64]) {
     for (p, c) in counts.iter_mut().enumerate() {
         let shift = p as u32 * DIGIT_BITS;
         // Every key has the same digit here: the pass would not move anything.
-        if c.iter().any(|&x| x == n) {
+        if c.contains(&n) {
             continue;
         }
         // Exclusive prefix sums: where each bucket starts.
