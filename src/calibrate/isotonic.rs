@@ -33,6 +33,7 @@
 //! toward π (common practice; cf. the m-estimate of Cestnik 1990, ECAI), followed
 //! by an isotonic projection.
 
+use super::score_order::{self, KeySort};
 use super::{check_sample, Calibrator, FitError, Fitted, FittedMap};
 
 pub struct Isotonic {
@@ -56,24 +57,15 @@ pub struct Block {
 
 /// Sort pairs by score and merge ties: returns (distinct score, weight, sum of labels).
 ///
-/// Sorts the (score, label) pairs themselves rather than an index array: the
-/// comparisons then read contiguous memory, which makes the whole fit cost about
-/// one sort (see `benches/methods.rs`). Label sums are integers, so the order in
-/// which tied rows are met does not change the result.
+/// The sort and the merge are [`score_order::for_each_distinct`]: scores in
+/// `f64::total_cmp` order, a run of scores equal under `==` (so −0.0 with 0.0)
+/// is one point named by its first score. Weights and label sums are counts,
+/// so the order in which tied rows are met does not change the result.
 pub fn merge_ties(scores: &[f64], labels: &[bool]) -> Vec<(f64, f64, f64)> {
-    let mut pairs: Vec<(f64, bool)> = scores.iter().copied().zip(labels.iter().copied()).collect();
-    pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
-    let mut out: Vec<(f64, f64, f64)> = Vec::with_capacity(pairs.len());
-    for (s, l) in pairs {
-        let y = if l { 1.0 } else { 0.0 };
-        match out.last_mut() {
-            Some(last) if last.0 == s => {
-                last.1 += 1.0;
-                last.2 += y;
-            }
-            _ => out.push((s, 1.0, y)),
-        }
-    }
+    let mut out: Vec<(f64, f64, f64)> = Vec::new();
+    score_order::for_each_distinct(scores, labels, KeySort::Auto, |x, rows, pos| {
+        out.push((x, rows as f64, pos as f64))
+    });
     out
 }
 
@@ -252,31 +244,19 @@ pub(super) fn restore(blocks: Vec<Block>, pseudo_count: f64) -> Box<dyn FittedMa
 /// Fit PAV on raw (unsorted, possibly tied) calibration pairs.
 ///
 /// Same result as `pav(&merge_ties(scores, labels))`, but the merged points are
-/// streamed into PAV straight from the sorted pairs instead of being stored.
+/// streamed into PAV straight from the sort instead of being stored.
 pub fn fit_blocks(scores: &[f64], labels: &[bool]) -> Vec<Block> {
-    let mut pairs: Vec<(f64, bool)> = scores.iter().copied().zip(labels.iter().copied()).collect();
-    pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+    fit_blocks_with(scores, labels, KeySort::Auto)
+}
+
+/// [`fit_blocks`] with a chosen key sort (every choice gives the same blocks).
+pub fn fit_blocks_with(scores: &[f64], labels: &[bool], how: KeySort) -> Vec<Block> {
     // Blocks are at most as many as distinct scores; the stack rarely gets deep,
     // so reserve little and let it grow.
-    let mut state = PavState::with_capacity(1024.min(pairs.len()));
-    let mut it = pairs.into_iter();
-    let Some((mut x, l)) = it.next() else {
-        return Vec::new();
-    };
-    let (mut w, mut sy) = (1.0, if l { 1.0 } else { 0.0 });
-    for (s, l) in it {
-        let y = if l { 1.0 } else { 0.0 };
-        if s == x {
-            w += 1.0;
-            sy += y;
-        } else {
-            state.push(x, w, sy);
-            x = s;
-            w = 1.0;
-            sy = y;
-        }
-    }
-    state.push(x, w, sy);
+    let mut state = PavState::with_capacity(1024.min(scores.len()));
+    score_order::for_each_distinct(scores, labels, how, |x, rows, pos| {
+        state.push(x, rows as f64, pos as f64)
+    });
     state.blocks
 }
 

@@ -21,6 +21,7 @@ pub mod identity;
 pub mod isotonic;
 pub mod logistic;
 pub mod platt;
+pub mod score_order;
 pub mod spline;
 pub mod state;
 pub mod temperature;

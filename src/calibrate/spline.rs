@@ -543,22 +543,14 @@ pub fn fit_spline(
     let basis = Basis { lo, hi, intervals };
     // Merge ties: sort by x, count rows and positives per distinct x. Counting
     // (rather than summing targets) keeps the result independent of row order.
-    let mut pairs: Vec<(f64, bool)> = x.iter().copied().zip(y.iter().copied()).collect();
-    pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
-    let mut xs: Vec<f64> = Vec::with_capacity(pairs.len());
-    let mut count: Vec<f64> = Vec::with_capacity(pairs.len());
-    let mut positives: Vec<f64> = Vec::with_capacity(pairs.len());
-    for &(xi, yi) in &pairs {
-        let py = if yi { 1.0 } else { 0.0 };
-        if xs.last() == Some(&xi) {
-            *count.last_mut().unwrap() += 1.0;
-            *positives.last_mut().unwrap() += py;
-        } else {
-            xs.push(xi);
-            count.push(1.0);
-            positives.push(py);
-        }
-    }
+    let mut xs: Vec<f64> = Vec::new();
+    let mut count: Vec<f64> = Vec::new();
+    let mut positives: Vec<f64> = Vec::new();
+    super::score_order::for_each_distinct(x, y, super::score_order::KeySort::Auto, |xi, r, p| {
+        xs.push(xi);
+        count.push(r as f64);
+        positives.push(p as f64);
+    });
     let total_pos: f64 = positives.iter().sum();
     let total_target = total_pos * t_pos + (x.len() as f64 - total_pos) * t_neg;
     let design = Design::new(&basis, &xs, count.clone(), &positives, (t_pos, t_neg));

@@ -111,25 +111,20 @@ impl VennAbersTable {
                 "venn-abers: a calibration score is NaN".into(),
             ));
         }
-        let mut pairs: Vec<(f64, bool)> =
-            scores.iter().copied().zip(labels.iter().copied()).collect();
-        pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
         let mut distinct: Vec<f64> = Vec::new();
-        // CSD points P_0 … P_k.
+        // CSD points P_0 … P_k. -0.0 and 0.0 are one score, as in the
+        // comparison used for ties.
         let mut csd: Vec<Pt> = vec![(0, 0)];
-        for &(s, y) in &pairs {
-            let yi = y as i64;
-            // -0.0 and 0.0 are one score, as in the comparison used for ties.
-            if distinct.last().is_some_and(|&d| d == s) {
-                let last = csd.last_mut().unwrap();
-                last.0 += 1;
-                last.1 += yi;
-            } else {
+        super::score_order::for_each_distinct(
+            scores,
+            labels,
+            super::score_order::KeySort::Auto,
+            |s, rows, pos| {
                 let prev = *csd.last().unwrap();
                 distinct.push(s);
-                csd.push((prev.0 + 1, prev.1 + yi));
-            }
-        }
+                csd.push((prev.0 + rows as i64, prev.1 + pos as i64));
+            },
+        );
         let k = distinct.len();
 
         // Suffix hulls from the right, with a log of what each push popped.
