@@ -26,7 +26,7 @@ pub fn describe_plan(plan: &Plan) -> String {
     ));
     s.push_str(&format!(
         "  seed {} · {} repeats · confidence {} · interval {} · reference `{}` · primary metric `{}`\n",
-        plan.seed, plan.repeats, plan.confidence, plan.interval, plan.reference, plan.primary.as_str()
+        plan.seed, plan.repeats, plan.confidence, plan.interval.as_str(), plan.reference, plan.primary.as_str()
     ));
     s.push_str(&format!(
         "  metrics: {} · log-loss clip {}\n",
@@ -188,7 +188,7 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
         reference: plan.reference.clone(),
         primary_metric: plan.primary.as_str().to_string(),
         confidence: plan.confidence,
-        interval: plan.interval.clone(),
+        interval: plan.interval.as_str().to_string(),
         pairs: plan.pairs.clone(),
         margin: plan.decision.margin,
         absolute_margins: plan.decision.absolute_margins.clone(),
@@ -593,8 +593,8 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         .confidence
         .or(from_manifest.as_ref().map(|s| s.confidence))
         .unwrap_or(suite::DEFAULT_CONFIDENCE);
-    if !(confidence > 0.5 && confidence < 1.0) {
-        bail!("--confidence {confidence}: expected a level between 0.5 and 1");
+    if let Err(e) = suite::check_confidence(confidence) {
+        bail!("--confidence {e}");
     }
     let margin = args
         .margin
@@ -618,13 +618,10 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         primary_metric: primary,
         confidence,
         interval: match &args.interval {
-            Some(k) => {
-                if IntervalKind::parse(k).is_none() {
-                    let known: Vec<_> = IntervalKind::ALL.iter().map(|x| x.as_str()).collect();
-                    bail!("--interval `{k}`: known estimators: {}", known.join(", "));
-                }
-                k.clone()
-            }
+            Some(k) => match suite::check_interval(k) {
+                Ok(kind) => kind.as_str().to_string(),
+                Err(e) => bail!("--interval {e}"),
+            },
             None => from_manifest
                 .as_ref()
                 .map(|s| s.interval.clone())

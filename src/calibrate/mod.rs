@@ -262,6 +262,39 @@ impl MethodSpec {
         }
     }
 
+    /// Whether the method adapts its shape to the data (a step or spline
+    /// map whose complexity grows with the sample). Flexible methods are
+    /// paired with the [`Self::is_parametric`] ones for the default
+    /// data-size thresholds of a suite.
+    pub fn is_flexible(&self) -> bool {
+        match self {
+            MethodSpec::Isotonic { .. }
+            | MethodSpec::CenteredIsotonic { .. }
+            | MethodSpec::Binning { .. }
+            | MethodSpec::VennAbers {}
+            | MethodSpec::Spline { .. } => true,
+            MethodSpec::Identity {}
+            | MethodSpec::Platt { .. }
+            | MethodSpec::Beta { .. }
+            | MethodSpec::Temperature {} => false,
+        }
+    }
+
+    /// Whether the method has a fixed parametric shape that the default
+    /// threshold pairs compare flexible methods with (Platt and beta).
+    pub fn is_parametric(&self) -> bool {
+        match self {
+            MethodSpec::Platt { .. } | MethodSpec::Beta { .. } => true,
+            MethodSpec::Identity {}
+            | MethodSpec::Isotonic { .. }
+            | MethodSpec::Binning { .. }
+            | MethodSpec::Temperature {}
+            | MethodSpec::CenteredIsotonic { .. }
+            | MethodSpec::Spline { .. }
+            | MethodSpec::VennAbers {} => false,
+        }
+    }
+
     /// Check the parameters for a task whose scores are of `score_kind`.
     pub fn validate(&self, score_kind: ScoreKind) -> Result<(), ParamError> {
         match self {
@@ -483,5 +516,48 @@ mod spec_tests {
         assert_eq!(t.build(ScoreKind::Margin).unwrap().kind(), "temperature");
         assert!(parse("m = { kind = \"temperature\", t = 1.0 }").is_err());
         assert_eq!((b.kind(), c.kind()), ("binning", "centered-isotonic"));
+    }
+
+    /// The shape classes of the default threshold pairs: every kind is in
+    /// at most one, and the classes are the documented ones.
+    #[test]
+    fn flexible_and_parametric_kinds() {
+        let kinds = [
+            "identity",
+            "platt",
+            "isotonic",
+            "beta",
+            "binning",
+            "temperature",
+            "centered-isotonic",
+            "spline",
+            "venn-abers",
+        ];
+        let mut flexible = Vec::new();
+        let mut parametric = Vec::new();
+        for k in kinds {
+            let spec = toml::from_str::<W>(&format!("m = {{ kind = \"{k}\" }}"))
+                .unwrap_or_else(|e| panic!("{k}: {e}"))
+                .m;
+            assert_eq!(spec.kind(), k);
+            assert!(!(spec.is_flexible() && spec.is_parametric()), "{k}");
+            if spec.is_flexible() {
+                flexible.push(k);
+            }
+            if spec.is_parametric() {
+                parametric.push(k);
+            }
+        }
+        assert_eq!(
+            flexible,
+            [
+                "isotonic",
+                "binning",
+                "centered-isotonic",
+                "spline",
+                "venn-abers"
+            ]
+        );
+        assert_eq!(parametric, ["platt", "beta"]);
     }
 }
