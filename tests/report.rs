@@ -4,7 +4,7 @@
 //! every format, and the reliability data on scores whose calibration is known.
 
 use std::fs;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use assert_cmd::Command;
 use tempfile::TempDir;
@@ -126,28 +126,23 @@ fn every_table_format_matches_its_snapshot() {
         check_snapshot(f, &fs::read(dir.join(f)).unwrap());
     }
     check_snapshot("terminal.txt", terminal.as_bytes());
-    let task = bin()
-        .env("COLUMNS", "100")
-        .args(["report", dir.to_str().unwrap(), "--task", "route-boost"])
-        .assert()
-        .success()
-        .get_output()
-        .stdout
-        .clone();
-    check_snapshot("terminal-task.txt", &task);
+    // One task's report on the terminal at the given width.
+    let task_report = |dir: &Path, columns: &str| {
+        bin()
+            .env("COLUMNS", columns)
+            .args(["report", dir.to_str().unwrap(), "--task", "route-boost"])
+            .assert()
+            .success()
+            .get_output()
+            .stdout
+            .clone()
+    };
+    check_snapshot("terminal-task.txt", &task_report(&dir, "100"));
     // The same terminal text at 80 columns (output to a pipe, as here, is
     // laid out for a non-terminal: no escape codes).
     let (_tmp80, dir80, terminal80) = reported_fixture_at("80");
     check_snapshot("terminal-80.txt", terminal80.as_bytes());
-    let task80 = bin()
-        .env("COLUMNS", "80")
-        .args(["report", dir80.to_str().unwrap(), "--task", "route-boost"])
-        .assert()
-        .success()
-        .get_output()
-        .stdout
-        .clone();
-    check_snapshot("terminal-task-80.txt", &task80);
+    check_snapshot("terminal-task-80.txt", &task_report(&dir80, "80"));
 }
 
 /// Lines of `text` wider than `width` columns, and whether it holds an

@@ -820,6 +820,20 @@ impl StudyOutput {
         s
     }
 
+    /// `population,method,reference,metric,size` of a cell, as the CSV
+    /// outputs name it.
+    fn cell_label(&self, (pi, qi, mi, si): (usize, usize, usize, usize)) -> String {
+        let cfg = &self.config;
+        format!(
+            "{},{},{},{},{}",
+            cfg.populations[pi].name,
+            cfg.pairs[qi].0,
+            cfg.pairs[qi].1,
+            cfg.metrics[mi].as_str(),
+            cfg.sizes[si]
+        )
+    }
+
     /// Every replicate's interval (for studying other rules offline).
     pub fn draws_csv(&self) -> String {
         let cfg = &self.config;
@@ -830,12 +844,8 @@ impl StudyOutput {
             let th = self.truth[&(pi, qi, mi, si)].0;
             for (rep, d) in ds.iter().enumerate() {
                 s.push_str(&format!(
-                    "{},{},{},{},{},{},{rep},{th:e},{:e},{:e},{:e},{:e},{:e},{:e},{}\n",
-                    cfg.populations[pi].name,
-                    cfg.pairs[qi].0,
-                    cfg.pairs[qi].1,
-                    cfg.metrics[mi].as_str(),
-                    cfg.sizes[si],
+                    "{},{},{rep},{th:e},{:e},{:e},{:e},{:e},{:e},{:e},{}\n",
+                    self.cell_label((pi, qi, mi, si)),
                     cfg.kinds[ki].as_str(),
                     d.mean,
                     d.low,
@@ -857,21 +867,15 @@ impl StudyOutput {
     /// binary file) and the little-endian f64 records, each d_r (R values),
     /// then the R × B batch table, then the R calibration positives.
     pub fn raw_files(&self) -> (String, Vec<u8>) {
-        let cfg = &self.config;
         let mut index = String::from(
             "population,method,reference,metric,size,replicate,truth,extreme,repeats,batches,offset\n",
         );
         let mut bin = Vec::new();
         for c in &self.raw {
-            let (pi, qi, mi, si) = c.key;
             let r = c.diffs.len();
             index.push_str(&format!(
-                "{},{},{},{},{},{},{:e},{},{},{},{}\n",
-                cfg.populations[pi].name,
-                cfg.pairs[qi].0,
-                cfg.pairs[qi].1,
-                cfg.metrics[mi].as_str(),
-                cfg.sizes[si],
+                "{},{},{:e},{},{},{},{}\n",
+                self.cell_label(c.key),
                 c.replicate,
                 self.truth[&c.key].0,
                 c.extreme as u8,
