@@ -47,6 +47,21 @@ fn reported_fixture_at(columns: &str) -> (TempDir, PathBuf, String) {
 /// says so. Unset means compare; any other value (`0`, `true`, empty, ...) is
 /// refused rather than guessed at, so a typo can neither rewrite the snapshots
 /// nor silently leave them unchecked.
+/// `plumbline run` of the report fixture's suite into `out_dir`.
+fn run_fixture_suite(out_dir: &Path) -> Command {
+    let mut cmd = bin();
+    cmd.args([
+        "run",
+        root()
+            .join("tests/fixtures/report/suite.toml")
+            .to_str()
+            .unwrap(),
+        "--out",
+        out_dir.to_str().unwrap(),
+    ]);
+    cmd
+}
+
 fn update_snapshots() -> bool {
     match std::env::var_os("PLUMBLINE_UPDATE_SNAPSHOTS") {
         None => false,
@@ -164,19 +179,10 @@ fn a_run_to_a_pipe_fits_80_columns_without_escape_codes() {
     let tmp = TempDir::new().unwrap();
     for (k, no_color) in [None, Some("1")].into_iter().enumerate() {
         let out_dir = tmp.path().join(format!("run{k}"));
-        let mut cmd = bin();
+        let mut cmd = run_fixture_suite(&out_dir);
         cmd.env("COLUMNS", "80")
             .env("PLUMBLINE_PROGRESS_SECONDS", "0")
-            .env_remove("NO_COLOR")
-            .args([
-                "run",
-                root()
-                    .join("tests/fixtures/report/suite.toml")
-                    .to_str()
-                    .unwrap(),
-                "--out",
-                out_dir.to_str().unwrap(),
-            ]);
+            .env_remove("NO_COLOR");
         if let Some(v) = no_color {
             cmd.env("NO_COLOR", v);
         }
@@ -233,17 +239,8 @@ fn a_run_to_a_pipe_fits_80_columns_without_escape_codes() {
 fn a_bad_progress_interval_is_reported() {
     let tmp = TempDir::new().unwrap();
     let out_dir = tmp.path().join("run");
-    let o = bin()
+    let o = run_fixture_suite(&out_dir)
         .env("PLUMBLINE_PROGRESS_SECONDS", "soon")
-        .args([
-            "run",
-            root()
-                .join("tests/fixtures/report/suite.toml")
-                .to_str()
-                .unwrap(),
-            "--out",
-            out_dir.to_str().unwrap(),
-        ])
         .assert()
         .success()
         .get_output()

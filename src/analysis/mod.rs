@@ -370,16 +370,7 @@ pub fn paired_interval(
     let first = pr.rows.first().map(|&(i, _)| &table.rows[i]);
     // The calibration sample is the same for both methods of a repeat: its
     // class counts, averaged over repeats, decide the rare-class rule.
-    let minority: Vec<f64> = pr
-        .rows
-        .iter()
-        .map(|&(i, _)| {
-            let r = &table.rows[i];
-            r.positives.min(r.size.saturating_sub(r.positives)) as f64
-        })
-        .collect();
-    let rare_class = !minority.is_empty()
-        && minority.iter().sum::<f64>() / (minority.len() as f64) < RARE_CLASS_ROWS;
+    let rare_class = minority_rows(table, pr.rows.iter().map(|&(i, _)| i)) < RARE_CLASS_ROWS;
     let input = PairedInput {
         diffs: &pr.diffs,
         row_stats: row_stats.as_deref(),
@@ -400,6 +391,23 @@ pub fn paired_interval(
         test_term: None,
         reservoir_order: None,
     })
+}
+
+/// Rows of the rarer class in the calibration samples of the given units,
+/// min(positives, n − positives), averaged over them; NaN without units
+/// (which no threshold flags).
+fn minority_rows(table: &UnitTable, rows: impl Iterator<Item = usize>) -> f64 {
+    let (mut sum, mut count) = (0.0, 0usize);
+    for i in rows {
+        let r = &table.rows[i];
+        sum += r.positives.min(r.size.saturating_sub(r.positives)) as f64;
+        count += 1;
+    }
+    if count == 0 {
+        f64::NAN
+    } else {
+        sum / count as f64
+    }
 }
 
 /// Build summaries and paired comparisons from the unit table.
@@ -521,14 +529,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                     };
                     // The calibration sample is the same for every method of
                     // a repeat: read its class counts off the reference's units.
-                    let minority: Vec<f64> = rc
-                        .values()
-                        .map(|&i| {
-                            let r = &table.rows[i];
-                            r.positives.min(r.size.saturating_sub(r.positives)) as f64
-                        })
-                        .collect();
-                    let minority_rows = mean_of(&minority);
+                    let minority_rows = minority_rows(table, rc.values().copied());
                     paired.push(Paired {
                         task: task.clone(),
                         size,
