@@ -24,7 +24,14 @@ s² ρ^k/(1 − ρ^k)):
                 evaluated loss on its sample (only Platt, beta and temperature
                 minimise the log loss; identity has no fit);
   stationary+rare, k1.5-nonstationary+rare: the two combined, and a degree of
-                1.5 for non-stationary pairs.
+                1.5 for non-stationary pairs;
+  composition+rare  the share of s² that the calibration sample's positive
+                count explains (adjusted R² of d_r on it across the repeats,
+                floored at 0) takes degree 1, the rest degree 2; k = 1 for
+                extreme and rare cells as in `rare`. A first-order reservoir
+                effect is a sum over the sample's rows; the part of it that
+                moves with the sample's label mix shows up as this
+                regression across repeats.
 Needs numpy and scipy.
 """
 import csv
@@ -57,7 +64,19 @@ def hall_inv(x, k):
     return (np.cbrt(1 + 3 * a * (x - k / 6.0)) - 1) / a
 
 
-def prepare(d, bt):
+def adj_r2(d, x):
+    """Adjusted R² of d on x (one regressor and an intercept), floored at 0."""
+    r = len(d)
+    xc = x - x.mean()
+    sxx = (xc * xc).sum()
+    syy = ((d - d.mean()) ** 2).sum()
+    if sxx <= 0 or syy <= 0 or r < 4:
+        return 0.0
+    r2 = (xc * (d - d.mean())).sum() ** 2 / (sxx * syy)
+    return max(1.0 - (1.0 - r2) * (r - 1) / (r - 2), 0.0)
+
+
+def prepare(d, bt, pos):
     """Rule-independent parts of one replicate's interval."""
     r = len(d)
     mean = d.mean()
@@ -76,11 +95,11 @@ def prepare(d, bt):
     if t > 0:
         third += ((cm - cm.mean()) ** 3).mean() / c**2
         extra = [(ms_c / (rr * c), kdf(c, exkurt(cm))), (-ms_e / (rr * c), (rr - 1) * (c - 1))]
-    return mean, s2, r, t, third, nu_d, extra
+    return mean, s2, r, t, third, nu_d, extra, adj_r2(d, pos)
 
 
 def interval(p, f, q_cache):
-    mean, s2, r, t, third, nu_d, extra = p
+    mean, s2, r, t, third, nu_d, extra, _ = p
     terms = [((1.0 / r + f) * s2, nu_d)] + extra
     var = s2 / r + s2 * f + t
     v = sum(a for a, _ in terms)
@@ -115,7 +134,7 @@ def main():
             pos = data[o + rr + rr * b : o + 2 * rr + rr * b]
             rare = np.minimum(pos, n - pos).mean() < RARE_ROWS
             recs.append((r["population"], r["method"], r["reference"], r["metric"], n,
-                         float(r["truth"]), r["extreme"] == "1", rare, prepare(d, bt)))
+                         float(r["truth"]), r["extreme"] == "1", rare, prepare(d, bt, pos)))
 
     def ns(rec):
         return not (stationary(rec[1], rec[3]) and stationary(rec[2], rec[3]))
@@ -127,6 +146,8 @@ def main():
         "stationary+rare": lambda rec, rho: degree(1 if rec[6] or rec[7] or ns(rec) else 2, rho),
         "k1.5-nonstationary+rare": lambda rec, rho: degree(
             1 if rec[6] or rec[7] else (1.5 if ns(rec) else 2), rho),
+        "composition+rare": lambda rec, rho: degree(1, rho) if rec[6] or rec[7] else (
+            rec[8][7] * degree(1, rho) + (1 - rec[8][7]) * degree(2, rho)),
     }
     q_cache = {}
     print(f"inputs: {stem}.csv/.bin, {len(recs)} replicate-cells, reservoir {m_res}")
