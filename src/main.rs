@@ -250,7 +250,7 @@ fn dispatch(cmd: Command) -> anyhow::Result<()> {
         }
         Command::Diagnose(args) => {
             let d = plumbline::cli::diagnose::run(&args)?;
-            println!("{}", d.table.to_terminal(None));
+            println!("{}", d.terminal());
             eprintln!("{} rows → {}", d.rows, args.out.display());
         }
         Command::Simulate { out, rows, seed } => {

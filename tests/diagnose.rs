@@ -272,8 +272,10 @@ fn over_confident_data_reads_over_confident() {
     let dir = TempDir::new().unwrap();
     let d = dir.path();
     let f = write_calibrated_and_sharp(d, 2000, 12);
+    // Wide enough that every cell, the interval kinds included, fits one line.
     let a = bin()
         .env("RAYON_NUM_THREADS", "2")
+        .env("COLUMNS", "400")
         .arg("diagnose")
         .arg(&f)
         .arg("--out")
@@ -389,13 +391,15 @@ fn calibration_slope_interval_covers_at_the_nominal_rate() {
 
 /// The printed table heads its point-value column `value` (never the score
 /// column's name, which would read as the scores themselves) and names the
-/// column in its title.
+/// column in its title (code marks dropped on the terminal, as in the report).
 #[test]
 fn table_heads_the_value_column_value() {
     let dir = TempDir::new().unwrap();
     let d = dir.path();
     let f = write(d, &data(300));
+    // Wide enough for the whole table in one part, each header on one line.
     let a = bin()
+        .env("COLUMNS", "400")
         .arg("diagnose")
         .arg(&f)
         .arg("--out")
@@ -406,7 +410,7 @@ fn table_heads_the_value_column_value() {
     let out = String::from_utf8_lossy(&a.get_output().stdout).into_owned();
     let title = out.lines().next().unwrap();
     assert!(
-        title.ends_with("s.csv · column `score` compared with `other` · 300 rows"),
+        title.ends_with("s.csv · column score compared with other · 300 rows"),
         "{title}"
     );
     let head: Vec<&str> = out
@@ -431,4 +435,82 @@ fn table_heads_the_value_column_value() {
         ],
         "{out}"
     );
+}
+
+/// The printed table at `COLUMNS` 80 and 100, with a compared column (the
+/// widest table): no line is wider, and every cell of the table that
+/// `diagnose` computed is printed with its words and intervals whole — each
+/// word of a cell is a word of the output, each interval `[lo, hi]` lies on
+/// one line — and every metric row appears.
+#[test]
+fn printed_table_fits_80_and_100_columns_with_cells_whole() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let f = write(d, &data(300));
+    let args = plumbline::cli::diagnose::DiagnoseArgs {
+        file: f.clone(),
+        out: d.join("unused"),
+        score_column: "score".into(),
+        label_column: "label".into(),
+        compare: Some("other".into()),
+        bootstrap: 50,
+        seed: 5,
+        confidence: 0.95,
+        force: false,
+    };
+    let table = plumbline::cli::diagnose::diagnose(&args).unwrap().table;
+    for width in [80usize, 100] {
+        let o = bin()
+            .env("COLUMNS", width.to_string())
+            .env_remove("NO_COLOR")
+            .arg("diagnose")
+            .arg(&f)
+            .arg("--out")
+            .arg(d.join(format!("w{width}")))
+            .args(["--bootstrap", "50", "--seed", "5", "--compare", "other"])
+            .assert()
+            .success()
+            .get_output()
+            .stdout
+            .clone();
+        let out = String::from_utf8(o).unwrap();
+        assert!(!out.contains('\x1b'), "escape code in:\n{out}");
+        let wide: Vec<&str> = out.lines().filter(|l| l.chars().count() > width).collect();
+        assert!(wide.is_empty(), "wider than {width}: {wide:#?}\n{out}");
+        // Split into parts at these widths, each repeating the metric column.
+        assert!(out.contains("(1 of "), "{out}");
+        let words: std::collections::BTreeSet<&str> = out
+            .split(|c: char| c.is_whitespace() || c == '│' || c == '┆')
+            .filter(|w| !w.is_empty())
+            .collect();
+        for row in &table.rows {
+            for cell in row.iter().chain(&table.header) {
+                for w in cell.split_whitespace() {
+                    assert!(
+                        words.contains(w),
+                        "{width} columns: {w:?} of {cell:?} broken:\n{out}"
+                    );
+                }
+                // Every interval of the cell on one line.
+                let mut rest = cell.as_str();
+                while let Some(i) = rest.find('[') {
+                    let j = rest[i..].find(']').unwrap() + i;
+                    let interval = &rest[i..=j];
+                    assert!(
+                        out.lines().any(|l| l.contains(interval)),
+                        "{width} columns: interval {interval} split:\n{out}"
+                    );
+                    rest = &rest[j + 1..];
+                }
+            }
+            let metric = format!("│ {} ", row[0]);
+            let parts = out.lines().filter(|l| l.starts_with('(')).count();
+            let n = out.lines().filter(|l| l.starts_with(&metric)).count();
+            assert!(
+                n >= parts,
+                "{width} columns: row {} in {n} lines\n{out}",
+                row[0]
+            );
+        }
+    }
 }

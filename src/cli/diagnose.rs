@@ -47,6 +47,7 @@ use crate::calibrate::ScoreKind;
 use crate::data::scorefile::{self, Origin, ScoreFileSpec};
 use crate::metrics::reliability::{self, BandSettings, CurveRecord};
 use crate::metrics::{MetricId, MetricSettings};
+use crate::report::document::Term;
 use crate::report::{figures, Table};
 use crate::run::{output, table::num};
 use crate::split;
@@ -175,6 +176,15 @@ pub struct Diagnosis {
     pub table: Table,
     /// The reliability diagram (SVG) of the column(s).
     pub svg: String,
+}
+
+impl Diagnosis {
+    /// The table as terminal text for standard output: as wide as `COLUMNS`,
+    /// else the terminal, else 100 columns, with the report's table layout
+    /// (intervals and words kept whole, a table too wide split into parts).
+    pub fn terminal(&self) -> String {
+        self.table.to_terminal(&Term::detect())
+    }
 }
 
 /// Type-7 quantile of sorted values.

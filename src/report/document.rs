@@ -334,11 +334,12 @@ pub(crate) fn glue_intervals(cell: &str) -> String {
         }
         let after_interval = i > 0 && chars[i - 1] == ']';
         // The mark after an interval: one or two characters, then the end
-        // or a space (`] ✓`, `] ? †`).
+        // or a space (`] ✓`, `] ? †`), or the note mark `*` of `diagnose`.
         let mark_follows = || {
             let rest: String = chars[i + 1..].iter().collect();
-            let word = rest.split(' ').next().unwrap_or("").trim_end_matches('*');
-            !word.is_empty() && word.chars().count() <= 2
+            let word = rest.split(' ').next().unwrap_or("");
+            let core = word.trim_end_matches('*');
+            (!core.is_empty() && core.chars().count() <= 2) || word == "*"
         };
         if c == ' ' && (depth > 0 || (after_interval && mark_follows())) {
             out.push('\u{a0}');
@@ -622,6 +623,23 @@ mod tests {
             let resets = l.matches("\x1b[22m").count() + l.matches("\x1b[0m").count();
             assert_eq!(l.matches("\x1b[1m").count(), resets, "{l}");
         }
+    }
+
+    #[test]
+    fn an_interval_is_glued_to_its_mark_but_not_to_the_next_word() {
+        let nb = '\u{a0}';
+        assert_eq!(
+            glue_intervals("0.1 [−0.2, +0.3] ✓"),
+            format!("0.1 [−0.2,{nb}+0.3]{nb}✓")
+        );
+        assert_eq!(
+            glue_intervals("0.1 [-0.2, 0.3] *"),
+            format!("0.1 [-0.2,{nb}0.3]{nb}*")
+        );
+        assert_eq!(
+            glue_intervals("[0.1, 0.2] kind"),
+            format!("[0.1,{nb}0.2] kind")
+        );
     }
 
     #[test]

@@ -72,8 +72,6 @@ pub fn publish(a: &Analysis, ctx: &summary::ReportContext) -> Vec<(String, Vec<u
     files
 }
 
-use comfy_table::{presets::UTF8_FULL_CONDENSED, Cell, CellAlignment, ContentArrangement};
-
 /// A rectangular table with a title; cells may hold several lines.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Table {
@@ -85,30 +83,10 @@ pub struct Table {
 }
 
 impl Table {
-    /// Terminal rendering with comfy-table.
-    pub fn to_terminal(&self, width: Option<u16>) -> String {
-        let mut t = comfy_table::Table::new();
-        t.load_style(UTF8_FULL_CONDENSED);
-        t.set_content_arrangement(ContentArrangement::Dynamic);
-        if let Some(w) = width {
-            t.set_width(w);
-        }
-        t.set_header(self.header.iter().map(Cell::new));
-        for r in &self.rows {
-            t.add_row(r.iter().enumerate().map(|(i, c)| {
-                let cell = Cell::new(c);
-                if i == 0 {
-                    cell
-                } else {
-                    cell.set_alignment(CellAlignment::Right)
-                }
-            }));
-        }
-        let mut s = format!("{}\n{t}\n", self.title);
-        for n in &self.notes {
-            s.push_str(&format!("  {n}\n"));
-        }
-        s
+    /// Terminal text laid out for `term`: the one table layout of every
+    /// command ([`document::table_terminal`]).
+    pub fn to_terminal(&self, term: &document::Term) -> String {
+        document::table_terminal(self, term)
     }
 
     /// GitHub-flavoured Markdown; line breaks inside cells become `<br>`.
