@@ -10,9 +10,9 @@
 //! Two texts must keep [`GAP`] apart: labels that nearly touch (the two axes'
 //! labels at a panel's corner) read as one.
 //!
-//! The threshold chart and the reliability diagrams (also `plumbline
-//! diagnose`'s) must end where their content does: no more than
-//! [`RIGHT_MARGIN`] of canvas right of the rightmost text or box.
+//! Every figure (also `plumbline diagnose`'s) must end where its content
+//! does: no more than [`EMPTY_MARGIN`] of empty canvas between the bounding
+//! box of its drawn content and any edge of the canvas.
 
 use std::collections::BTreeMap;
 use std::fs;
@@ -29,8 +29,8 @@ const CHAR_WIDTH: f64 = 0.6;
 const ASCENT: f64 = 0.8;
 /// Least distance (px) between two texts' boxes.
 const GAP: f64 = 1.5;
-/// Most canvas (px) right of the content of a trimmed figure.
-const RIGHT_MARGIN: f64 = 20.0;
+/// Most empty canvas (px) between a figure's content and any of its edges.
+const EMPTY_MARGIN: f64 = 20.0;
 
 type Pt = (f64, f64);
 
@@ -188,26 +188,141 @@ fn overlap(a: &[Pt; 4], b: &[Pt; 4]) -> bool {
     true
 }
 
-/// Empty canvas right of a figure's content: its width less the right
-/// end of the rightmost text box or `<rect>`, leaving out the white
-/// background and the heading (`<g class="heading">`), whose lines wrap to
-/// whatever width the figure has.
-fn empty_right(svg: &str) -> f64 {
+/// The points of an SVG path's `M`, `L`, `H` and `V` commands, absolute
+/// or relative (the commands the figures use; `Z` adds no point).
+fn path_points(d: &str) -> Vec<Pt> {
+    let mut out = Vec::new();
+    let (mut x, mut y) = (0.0, 0.0);
+    let mut cmd = 'M';
+    let mut nums: Vec<f64> = Vec::new();
+    let mut flush = |cmd: char, nums: &mut Vec<f64>, x: &mut f64, y: &mut f64| {
+        match cmd {
+            'M' | 'L' => {
+                for p in nums.chunks(2).filter(|p| p.len() == 2) {
+                    (*x, *y) = (p[0], p[1]);
+                    out.push((*x, *y));
+                }
+            }
+            'm' | 'l' => {
+                for p in nums.chunks(2).filter(|p| p.len() == 2) {
+                    (*x, *y) = (*x + p[0], *y + p[1]);
+                    out.push((*x, *y));
+                }
+            }
+            'H' | 'h' => {
+                for &v in nums.iter() {
+                    *x = if cmd == 'h' { *x + v } else { v };
+                    out.push((*x, *y));
+                }
+            }
+            'V' | 'v' => {
+                for &v in nums.iter() {
+                    *y = if cmd == 'v' { *y + v } else { v };
+                    out.push((*x, *y));
+                }
+            }
+            'Z' | 'z' => {}
+            other => panic!("path command {other} not understood"),
+        }
+        nums.clear();
+    };
+    let mut num = String::new();
+    for c in d.chars().chain(std::iter::once(' ')) {
+        if c.is_ascii_digit() || c == '.' || (c == '-' && num.is_empty()) {
+            num.push(c);
+            continue;
+        }
+        if !num.is_empty() {
+            nums.push(number(&num));
+            num.clear();
+        }
+        if c == '-' {
+            num.push(c);
+        } else if c.is_ascii_alphabetic() {
+            flush(cmd, &mut nums, &mut x, &mut y);
+            cmd = c;
+        }
+    }
+    flush(cmd, &mut nums, &mut x, &mut y);
+    out
+}
+
+/// Empty canvas on each side of a figure's content, as (top, right,
+/// bottom, left) in px: the distance from each canvas edge to the bounding
+/// box of every text box, rectangle, line, circle, polyline, polygon and
+/// path, leaving out the white background. The heading (`<g
+/// class="heading">`) counts on every side but the right, where its lines
+/// wrap to whatever width the figure has.
+fn empty_margins(svg: &str) -> [f64; 4] {
     let doc = roxmltree::Document::parse(svg).unwrap();
-    let w = number(doc.root_element().attribute("width").unwrap());
-    let texts = text_boxes(&doc)
-        .into_iter()
-        .filter(|b| !b.heading)
-        .flat_map(|b| b.corners.map(|c| c.0));
-    let rects = doc
-        .descendants()
-        .filter(|n| n.has_tag_name("rect"))
-        .map(|n| {
-            n.attribute("x").map(number).unwrap_or(0.0)
-                + n.attribute("width").map(number).unwrap_or(0.0)
-        })
-        .filter(|&r| r < w);
-    w - texts.chain(rects).fold(0.0f64, f64::max)
+    let root = doc.root_element();
+    let (w, h) = (
+        number(root.attribute("width").unwrap()),
+        number(root.attribute("height").unwrap()),
+    );
+    // (point, counts on the right)
+    let mut pts: Vec<(Pt, bool)> = Vec::new();
+    for b in text_boxes(&doc) {
+        pts.extend(b.corners.map(|c| (c, !b.heading)));
+    }
+    let attr = |n: roxmltree::Node, a: &str| n.attribute(a).map(number).unwrap_or(0.0);
+    let pairs = |list: &str| -> Vec<Pt> {
+        let v: Vec<f64> = list
+            .split(|c: char| c == ',' || c.is_whitespace())
+            .filter(|a| !a.is_empty())
+            .map(number)
+            .collect();
+        v.chunks(2).map(|p| (p[0], p[1])).collect()
+    };
+    for n in doc.descendants().filter(|n| n.is_element()) {
+        let shape: Vec<Pt> = match n.tag_name().name() {
+            "rect" => {
+                let (x, y, rw, rh) = (
+                    attr(n, "x"),
+                    attr(n, "y"),
+                    attr(n, "width"),
+                    attr(n, "height"),
+                );
+                if x <= 0.0 && y <= 0.0 && rw >= w && rh >= h {
+                    continue; // the background
+                }
+                vec![(x, y), (x + rw, y + rh)]
+            }
+            "line" => vec![
+                (attr(n, "x1"), attr(n, "y1")),
+                (attr(n, "x2"), attr(n, "y2")),
+            ],
+            "circle" => {
+                let (cx, cy, r) = (attr(n, "cx"), attr(n, "cy"), attr(n, "r"));
+                vec![(cx - r, cy - r), (cx + r, cy + r)]
+            }
+            "polyline" | "polygon" => pairs(n.attribute("points").unwrap_or("")),
+            "path" => path_points(n.attribute("d").unwrap_or("")),
+            _ => continue,
+        };
+        pts.extend(shape.into_iter().map(|p| (p, true)));
+    }
+    let top = pts.iter().map(|p| p.0 .1).fold(f64::INFINITY, f64::min);
+    let left = pts.iter().map(|p| p.0 .0).fold(f64::INFINITY, f64::min);
+    let bottom = pts.iter().map(|p| p.0 .1).fold(f64::NEG_INFINITY, f64::max);
+    let right = pts
+        .iter()
+        .filter(|p| p.1)
+        .map(|p| p.0 .0)
+        .fold(f64::NEG_INFINITY, f64::max);
+    [top, w - right, h - bottom, left]
+}
+
+/// The margin faults of a figure: each side with more than
+/// [`EMPTY_MARGIN`] of empty canvas.
+fn margin_faults(svg: &str) -> Vec<String> {
+    let m = empty_margins(svg);
+    ["top", "right", "bottom", "left"]
+        .iter()
+        .zip(m)
+        .filter(|(_, e)| *e > EMPTY_MARGIN)
+        .map(|(side, e)| format!("{e:.0} px of empty canvas on the {side}"))
+        .collect()
 }
 
 /// The layout faults of one figure: texts outside the canvas, overlapping
@@ -305,12 +420,7 @@ fn every_figure_keeps_its_texts_apart_and_its_methods_distinct() {
     for f in &figs {
         let svg = fs::read_to_string(dir.join("figures").join(f)).unwrap();
         all.extend(faults(&svg).into_iter().map(|e| format!("{f}: {e}")));
-        if f.starts_with("thresholds--") || f.ends_with("--reliability.svg") {
-            let e = empty_right(&svg);
-            if e > RIGHT_MARGIN {
-                all.push(format!("{f}: {e:.0} px of empty canvas on the right"));
-            }
-        }
+        all.extend(margin_faults(&svg).into_iter().map(|e| format!("{f}: {e}")));
     }
     assert!(all.is_empty(), "{} faults:\n{}", all.len(), all.join("\n"));
 }
@@ -357,10 +467,7 @@ fn the_diagnose_figure_keeps_its_texts_inside_and_apart() {
         .success();
     let svg = fs::read_to_string(out.join("reliability.svg")).unwrap();
     let mut all = faults(&svg);
-    let e = empty_right(&svg);
-    if e > RIGHT_MARGIN {
-        all.push(format!("{e:.0} px of empty canvas on the right"));
-    }
+    all.extend(margin_faults(&svg));
     assert!(all.is_empty(), "{} faults:\n{}", all.len(), all.join("\n"));
     assert!(svg.contains("class=\"inf\""), "no edge mark drawn");
     assert!(svg.contains("95% consistency band"), "{svg}");
@@ -406,15 +513,34 @@ fn the_checker_finds_planted_faults() {
         "{f:?}"
     );
     assert_eq!(f.len(), 5, "{f:?}");
-    // A figure with 60 px of canvas right of its last text, heading aside.
+    // A figure with 60 px of canvas right of its last text, heading aside;
+    // 12 px above the heading's box (baseline 20, ascent 8), 28 px below the
+    // text (baseline 70, 2 px below it) and 10 px left of the heading.
     let wide = r##"<svg xmlns="http://www.w3.org/2000/svg" width="200" height="100" font-size="10">
 <rect width="200" height="100" fill="white"/>
 <g class="heading"><text x="10" y="20">a heading as wide as the whole figure</text></g>
 <rect x="10" y="30" width="70" height="20"/><text x="80" y="70">abcdefghij</text>
 </svg>"##;
-    assert!(
-        (empty_right(wide) - 60.0).abs() < 1e-9,
-        "{}",
-        empty_right(wide)
+    let m = empty_margins(wide);
+    for (got, want) in m.iter().zip([12.0, 60.0, 28.0, 10.0]) {
+        assert!((got - want).abs() < 1e-9, "{m:?}");
+    }
+    assert_eq!(
+        margin_faults(wide),
+        [
+            "60 px of empty canvas on the right",
+            "28 px of empty canvas on the bottom"
+        ]
     );
+    // Lines, circles, polylines and paths count too: a path's `V` and `H`
+    // reach 190 and 95, a circle 5 px from the left edge.
+    let shapes = r##"<svg xmlns="http://www.w3.org/2000/svg" width="200" height="100" font-size="10">
+<rect width="200" height="100" fill="white"/>
+<line x1="30" y1="8" x2="60" y2="8"/><circle cx="8" cy="50" r="3"/>
+<polyline points="40,40 50,60"/><path d="M100 50V95H190"/><path d="M60 60h20v-10h-20Z"/>
+</svg>"##;
+    let m = empty_margins(shapes);
+    for (got, want) in m.iter().zip([8.0, 10.0, 5.0, 5.0]) {
+        assert!((got - want).abs() < 1e-9, "{m:?}");
+    }
 }

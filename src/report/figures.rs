@@ -397,11 +397,20 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
     if panels.is_empty() {
         return None;
     }
-    let cols = 4usize;
+    let cols = 4usize.min(panels.len());
     let rows = panels.len().div_ceil(cols);
     let (pw, ph) = (170.0, 110.0);
     let (ml, gap_x, gap_y) = (62.0, 62.0, 48.0);
-    let w = ml + cols as f64 * (pw + gap_x) + 10.0;
+    // The canvas ends 10 px right of the rightmost panel or method name.
+    let w = panels
+        .iter()
+        .enumerate()
+        .map(|(k, (m, _))| {
+            ml + (k % cols) as f64 * (pw + gap_x) + pw.max(10.0 + text_width(m, 12.0))
+        })
+        .fold(0.0f64, f64::max)
+        + 10.0;
+    let w = w.ceil();
     let better = if higher_is_better(metric) {
         "above"
     } else {
@@ -990,16 +999,41 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
     }
     let k = rows[0].0.methods.len();
     let half = k.div_ceil(2);
-    // Side margins wide enough for the longest "method rank" label.
+    // The left margin holds the longest "method rank" label (and the size
+    // labels above the axis); the right one only what is drawn there.
     let longest = rows[0]
         .0
         .methods
         .iter()
-        .map(|m| text_width(&format!("{m} 0.00"), 11.0))
+        .map(|m| text_width(&format!("{m} {:.2}", k as f64), 11.0))
         .fold(0.0f64, f64::max);
     let ml = (longest + 24.0).max(230.0).ceil();
-    let (aw, mr) = (440.0, ml);
-    let w = ml + aw + mr;
+    let aw = 440.0;
+    let px_of = |rank: f64| ml + (rank - 1.0) / (k as f64 - 1.0).max(1.0) * aw;
+    // Methods by average rank, best first; the better half is labelled
+    // left of the axis, the rest right of it.
+    let order_of = |x: &crate::stats::across::AcrossTasks| {
+        let mut order: Vec<usize> = (0..k).collect();
+        order.sort_by(|&i, &j| x.friedman.avg_ranks[i].total_cmp(&x.friedman.avg_ranks[j]));
+        order
+    };
+    // Right of the axis only what is drawn there: the labels of the right
+    // half (12 px out) and the critical-difference label, then 10 px.
+    let right = rows
+        .iter()
+        .flat_map(|(r, x)| {
+            let labels = order_of(x).into_iter().skip(half).map(|mi| {
+                let label = format!("{} {:.2}", r.methods[mi], x.friedman.avg_ranks[mi]);
+                ml + aw + 12.0 + text_width(&label, 11.0)
+            });
+            let cd = x.cd_05.map(|cd| {
+                let end = (1.0 + cd).min(k as f64);
+                px_of(end) + 4.0 + text_width(&cd_label(cd, k), 9.0)
+            });
+            labels.chain(cd).collect::<Vec<_>>()
+        })
+        .fold(ml + aw, f64::max);
+    let w = (right + 10.0).ceil();
     let strip = 58.0 + 15.0 * half as f64;
     let mut s = String::new();
     let last = write_heading(
@@ -1012,7 +1046,9 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
         w,
     );
     let mt = last + 16.0;
-    let h = mt + strip * rows.len() as f64 + 10.0;
+    // Each strip ends some 13 px below its lowest label: the last one's end
+    // is the bottom margin.
+    let h = mt + strip * rows.len() as f64;
     s = open_svg(
         w,
         h,
@@ -1020,9 +1056,8 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
     ) + &s;
     for (ri, (r, x)) in rows.iter().enumerate() {
         let y0 = mt + ri as f64 * strip;
-        let mut order: Vec<usize> = (0..k).collect();
-        order.sort_by(|&i, &j| x.friedman.avg_ranks[i].total_cmp(&x.friedman.avg_ranks[j]));
-        let px = |rank: f64| ml + (rank - 1.0) / (k as f64 - 1.0).max(1.0) * aw;
+        let order = order_of(x);
+        let px = px_of;
         let axis_y = y0 + 28.0;
         s.push_str(&format!(
             "<text x=\"10\" y=\"{}\" font-size=\"12\" font-weight=\"bold\">n = {} ({} tasks)</text>\n",
@@ -1049,14 +1084,14 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
         if let Some(cd) = x.cd_05 {
             let end = (1.0 + cd).min(k as f64);
             s.push_str(&format!(
-                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#B22222\" stroke-width=\"2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\" fill=\"#B22222\">CD {cd:.2}{}</text>\n",
+                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#B22222\" stroke-width=\"2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\" fill=\"#B22222\">{}</text>\n",
                 f(px(1.0)),
                 f(px(end)),
                 f(axis_y - 21.0),
                 f(axis_y - 21.0),
                 f(px(end) + 4.0),
                 f(axis_y - 18.0),
-                if end < 1.0 + cd { " (wider than the axis)" } else { "" }
+                cd_label(cd, k)
             ));
             let sorted: Vec<f64> = order.iter().map(|&i| x.friedman.avg_ranks[i]).collect();
             for (g, &(i, j)) in cd_groups(&sorted, cd).iter().enumerate() {
@@ -1097,6 +1132,16 @@ pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
     }
     s.push_str("</svg>\n");
     Some(s)
+}
+
+/// The label of the critical-difference bar of a rank diagram of `k` methods.
+fn cd_label(cd: f64, k: usize) -> String {
+    let wider = if 1.0 + cd > k as f64 {
+        " (wider than the axis)"
+    } else {
+        ""
+    };
+    format!("CD {cd:.2}{wider}")
 }
 
 /// Sequential blues for sizes on a log scale (light = small).
