@@ -4,7 +4,7 @@
 //! diagrams and the per-task tables.
 
 use super::document::{anchor, legend, Block};
-use super::{figures, fmt_diff, fmt_value, Table};
+use super::{figures, Decimals, Table};
 use crate::analysis::{
     task_parts, Analysis, AnalysisSettings, DecidedBy, Decision, Evidence, Recommendation,
     SizeVerdict, DECISIVE,
@@ -62,6 +62,17 @@ pub fn task_table(
     markdown: bool,
 ) -> Table {
     let sizes = a.sizes.get(task).map(Vec::as_slice).unwrap_or(&[]);
+    let paired = |m: &str, n: usize| {
+        a.paired
+            .iter()
+            .find(|p| p.task == *task && p.size == n && p.method == *m && p.metric == metric)
+    };
+    let dec = Decimals::for_half_widths(
+        a.methods
+            .iter()
+            .flat_map(|m| sizes.iter().filter_map(move |&n| paired(m, n)))
+            .map(|p| (p.ci_high - p.ci_low) / 2.0),
+    );
     let mut header = vec!["method".to_string()];
     header.extend(sizes.iter().map(|n| format!("n = {n}")));
     let mut rows = Vec::new();
@@ -78,17 +89,13 @@ pub fn task_table(
                 .find(|x| x.task == *task && x.size == n && x.method == *m && x.metric == metric)
                 .map(|x| x.mean)
                 .unwrap_or(f64::NAN);
-            let mut cell = fmt_value(mean);
-            if let Some(p) = a
-                .paired
-                .iter()
-                .find(|p| p.task == *task && p.size == n && p.method == *m && p.metric == metric)
-            {
+            let mut cell = dec.value(mean);
+            if let Some(p) = paired(m, n) {
                 let diff = format!(
                     "{} [{}, {}] {}{}",
-                    fmt_diff(p.mean_diff),
-                    fmt_diff(p.ci_low),
-                    fmt_diff(p.ci_high),
+                    dec.diff(p.mean_diff),
+                    dec.diff(p.ci_low),
+                    dec.diff(p.ci_high),
                     p.verdict.mark(),
                     if p.rare_class() { " †" } else { "" }
                 );
