@@ -160,6 +160,32 @@ fn every_table_format_matches_its_snapshot() {
     check_snapshot("terminal-task-80.txt", &task_report(&dir80, "80"));
 }
 
+/// The fixture folder is made by the current code at the report's own
+/// level: every reliability curve's consistency band is drawn at the
+/// manifest's confidence (95%, the default), as a run writes it now.
+#[test]
+fn fixture_bands_are_at_the_manifest_confidence() {
+    let dir = root().join("tests/fixtures/report/folder");
+    let manifest: serde_json::Value =
+        serde_json::from_slice(&fs::read(dir.join("manifest.json")).unwrap()).unwrap();
+    let confidence = manifest["analysis"]["confidence"].as_f64().unwrap();
+    assert_eq!(confidence, 0.95);
+    let mut r = csv::Reader::from_path(dir.join("reliability_terms.csv")).unwrap();
+    let col = r
+        .headers()
+        .unwrap()
+        .iter()
+        .position(|h| h == "band_level")
+        .expect("band_level column");
+    let mut rows = 0;
+    for rec in r.records() {
+        let rec = rec.unwrap();
+        assert_eq!(rec[col].parse::<f64>().unwrap(), confidence, "{rec:?}");
+        rows += 1;
+    }
+    assert!(rows > 0);
+}
+
 /// Lines of `text` wider than `width` columns, and whether it holds an
 /// escape byte.
 fn too_wide(text: &str, width: usize) -> Vec<String> {
