@@ -67,3 +67,100 @@ fn reservoir_rule_summary_in_the_statistics_doc_matches_its_committed_output() {
     assert!(out.starts_with("command: "), "no command line in rules.txt");
     assert!(out.contains("\nmachine: "), "no machine line in rules.txt");
 }
+
+/// Numbers of a line: digit runs with an optional decimal part, thousands
+/// separators removed ("8,040" and "8040" are the same number), a leading
+/// minus kept.
+fn numbers(line: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    let chars: Vec<char> = line.chars().collect();
+    let mut i = 0;
+    while i < chars.len() {
+        if chars[i].is_ascii_digit() {
+            let start = i;
+            while i < chars.len()
+                && (chars[i].is_ascii_digit()
+                    || ((chars[i] == ',' || chars[i] == '.')
+                        && chars.get(i + 1).is_some_and(|c| c.is_ascii_digit())))
+            {
+                i += 1;
+            }
+            let neg = start > 0 && (chars[start - 1] == '-' || chars[start - 1] == '−');
+            let n: String = chars[start..i].iter().filter(|c| **c != ',').collect();
+            out.push(if neg { format!("-{n}") } else { n });
+        } else {
+            i += 1;
+        }
+    }
+    out
+}
+
+/// Every table or code block of `docs/performance.md` that follows a
+/// `<!-- source: FILE -->` marker quotes FILE: each number in the table's
+/// body (or each line of the code block) appears in that committed output, and
+/// the output records the command, the commit and the machine that made it.
+#[test]
+fn performance_tables_quote_their_committed_outputs() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let doc = std::fs::read_to_string(root.join("docs/performance.md")).unwrap();
+    let lines: Vec<&str> = doc.lines().collect();
+    let mut checked = Vec::new();
+    for (at, line) in lines.iter().enumerate() {
+        let Some(rest) = line.trim().strip_prefix("<!-- source: ") else {
+            continue;
+        };
+        let file = rest.trim_end_matches("-->").trim();
+        let out = std::fs::read_to_string(root.join(file))
+            .unwrap_or_else(|e| panic!("docs/performance.md line {}: {file}: {e}", at + 1));
+        for stamp in ["command: ", "commit: ", "machine: "] {
+            assert!(
+                out.lines().any(|l| l.starts_with(stamp)),
+                "{file} has no `{stamp}` line: it must record what made it (scripts/stamped.sh)"
+            );
+        }
+        let known: std::collections::HashSet<String> = out.lines().flat_map(numbers).collect();
+        // The quoted block: the next table or fenced code block.
+        let body: Vec<&str> = lines[at + 1..]
+            .iter()
+            .skip_while(|l| l.trim().is_empty())
+            .take_while(|l| !l.trim().is_empty())
+            .copied()
+            .collect();
+        assert!(
+            !body.is_empty(),
+            "docs/performance.md line {}: nothing follows the source marker",
+            at + 1
+        );
+        if body[0].starts_with("```") {
+            for l in body.iter().skip(1).filter(|l| !l.starts_with("```")) {
+                assert!(
+                    out.lines().any(|o| o.trim_end() == l.trim_end()),
+                    "docs/performance.md quotes a line that {file} does not hold:\n{l}"
+                );
+            }
+        } else {
+            assert!(body[0].starts_with('|'), "line {}: {}", at + 2, body[0]);
+            // Header and separator rows hold labels, not measurements.
+            for l in body.iter().skip(2) {
+                for n in numbers(l) {
+                    assert!(
+                        known.contains(&n),
+                        "docs/performance.md quotes {n} (row `{l}`), which {file} does not hold"
+                    );
+                }
+            }
+        }
+        checked.push(file.to_string());
+    }
+    // The methods, base-model, fits, apply and check tables.
+    assert!(checked.len() >= 5, "only {checked:?} are marked");
+}
+
+#[test]
+fn numbers_are_read_as_written() {
+    assert_eq!(
+        numbers("| 8,040 | 96,480 | −0.5 ms | x2 | 1.87 ms |"),
+        ["8040", "96480", "-0.5", "2", "1.87"]
+    );
+    assert_eq!(numbers("ratio 2.5, then 3"), ["2.5", "3"]);
+}
