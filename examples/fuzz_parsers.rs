@@ -434,7 +434,8 @@ fn map_seeds() -> Vec<Vec<u8>> {
     fits.iter()
         .map(|&(method, set, kind, scores)| {
             let set: Vec<String> = set.iter().map(|s| s.to_string()).collect();
-            let spec = plumbline::cli::fit::method_spec(method, &set, kind).expect("seed method");
+            let spec =
+                plumbline::commands::fit::method_spec(method, &set, kind).expect("seed method");
             let fitted = spec
                 .build(kind)
                 .expect("seed method builds")

@@ -4,12 +4,14 @@
 //! `data` (score files, open datasets) → `models` (base classifiers) → `split`
 //! (seeds and draws) → `calibrate` (methods) → `metrics` → `run` (parallel
 //! executor) → `stats` (paired intervals, across-task tests, thresholds) →
-//! `report` (tables and figures).
+//! `report` (tables and figures). `commands` holds the subcommands, one
+//! file each, above everything else.
 
 pub mod analysis;
 pub mod app;
+pub mod atomic;
 pub mod calibrate;
-pub mod cli;
+pub mod commands;
 pub mod data;
 pub mod limits;
 pub mod mapfile;

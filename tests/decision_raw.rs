@@ -24,7 +24,8 @@ use std::path::{Path, PathBuf};
 
 use common::uniform;
 use plumbline::analysis::{self, Analysis, DecidedBy, Recommendation};
-use plumbline::app::{self, RunArgs};
+use plumbline::app;
+use plumbline::commands::run::{run_suite, RunArgs};
 use plumbline::run::table::{read_units_file, units_path};
 use tempfile::TempDir;
 
@@ -121,8 +122,8 @@ fn run(files: &[String], suite_text: &str) -> (Analysis, PathBuf, TempDir) {
     let suite = dir.path().join("suite.toml");
     fs::write(&suite, suite_text).unwrap();
     let out = dir.path().join("out");
-    app::run_suite(&RunArgs {
-        suite: suite.clone(),
+    run_suite(&RunArgs {
+        suite: Some(suite.clone()),
         out: Some(out.clone()),
         threads: Some(1),
         quiet: true,
@@ -131,7 +132,7 @@ fn run(files: &[String], suite_text: &str) -> (Analysis, PathBuf, TempDir) {
     })
     .unwrap();
     let table = read_units_file(&units_path(&out).unwrap()).unwrap();
-    let plan = app::load_plan(&suite).unwrap();
+    let plan = plumbline::suite::load(&suite).unwrap();
     let a = analysis::analyse(&table, &app::settings_of(&plan));
     (a, out, dir)
 }

@@ -107,7 +107,7 @@ fn metrics_match_the_suite_metrics_and_bootstrap_is_seeded() {
         let est: f64 = r[2].parse().unwrap();
         let (lo, hi): (f64, f64) = (r[3].parse().unwrap(), r[4].parse().unwrap());
         assert!(lo <= est && est <= hi, "{}: {lo} {est} {hi}", m.as_str());
-        let kind = if plumbline::cli::diagnose::debiased(*m) {
+        let kind = if plumbline::commands::diagnose::debiased(*m) {
             "debiased_basic_floor0"
         } else {
             // The plain estimate is reported as it is.
@@ -322,10 +322,10 @@ fn over_confident_data_reads_over_confident() {
 /// 0.996 (at most 199 of 200). Sizes are reduced from 2,000 rows to 1,000
 /// to keep the test short on two cores.
 ///
-/// [`interval`]: plumbline::cli::diagnose::interval
+/// [`interval`]: plumbline::commands::diagnose::interval
 #[test]
 fn calibration_slope_interval_covers_at_the_nominal_rate() {
-    use plumbline::cli::diagnose::{interval, jackknife_groups};
+    use plumbline::commands::diagnose::{interval, jackknife_groups};
     use rayon::prelude::*;
     const R: usize = 200;
     const N: usize = 1000;
@@ -447,7 +447,7 @@ fn printed_table_fits_80_and_100_columns_with_cells_whole() {
     let dir = TempDir::new().unwrap();
     let d = dir.path();
     let f = write(d, &data(300));
-    let args = plumbline::cli::diagnose::DiagnoseArgs {
+    let args = plumbline::commands::diagnose::DiagnoseArgs {
         file: f.clone(),
         out: d.join("unused"),
         score_column: "score".into(),
@@ -458,7 +458,9 @@ fn printed_table_fits_80_and_100_columns_with_cells_whole() {
         confidence: 0.95,
         force: false,
     };
-    let table = plumbline::cli::diagnose::diagnose(&args).unwrap().table;
+    let table = plumbline::commands::diagnose::diagnose(&args)
+        .unwrap()
+        .table;
     for width in [80usize, 100] {
         let o = bin()
             .env("COLUMNS", width.to_string())

@@ -215,7 +215,7 @@ fn map_file_reproduces_the_fitted_method_bit_for_bit_on_every_format() {
             if *method == "identity" && kind == ScoreKind::Margin {
                 continue;
             }
-            let spec = plumbline::cli::fit::method_spec(
+            let spec = plumbline::commands::fit::method_spec(
                 method,
                 &set.iter().map(|s| s.to_string()).collect::<Vec<_>>(),
                 kind,
@@ -303,7 +303,7 @@ score_kind = "probability"
         .arg(&results)
         .assert()
         .success();
-    let plan = plumbline::app::load_plan(&suite).unwrap();
+    let plan = plumbline::suite::load(&suite).unwrap();
     let task = &plan.tasks[0];
     let units_file = fs::File::open(results.join(plumbline::run::table::UNITS_FILE)).unwrap();
     let mut rdr = csv::Reader::from_reader(flate2::read::MultiGzDecoder::new(units_file));

@@ -30,14 +30,6 @@ use crate::app::{now_rfc3339, write_results};
 use crate::report::summary::ReportContext;
 use crate::run::{self, output};
 
-/// Options of `plumbline merge`.
-#[derive(Debug, Clone, Default)]
-pub struct MergeArgs {
-    pub shards: Vec<PathBuf>,
-    pub out: PathBuf,
-    pub force: bool,
-}
-
 /// What a merge produced.
 pub struct MergeSummary {
     pub units: usize,
@@ -169,15 +161,15 @@ fn check_same_run(base: &Shard, s: &Shard) -> Result<()> {
     Ok(())
 }
 
-/// `plumbline merge`.
-pub fn merge(args: &MergeArgs) -> Result<MergeSummary> {
-    if args.shards.is_empty() {
+/// `plumbline merge`: join `shard_dirs` into the results folder `out`
+/// (replacing an existing one only with `force`).
+pub fn merge(shard_dirs: &[PathBuf], out: &Path, force: bool) -> Result<MergeSummary> {
+    if shard_dirs.is_empty() {
         bail!("no shard folders given");
     }
-    let inputs: Vec<&Path> = args.shards.iter().map(PathBuf::as_path).collect();
-    let target = output::prepare(&args.out, args.force, &inputs, false)?;
-    let mut shards = args
-        .shards
+    let inputs: Vec<&Path> = shard_dirs.iter().map(PathBuf::as_path).collect();
+    let target = output::prepare(out, force, &inputs, false)?;
+    let mut shards = shard_dirs
         .iter()
         .map(|d| open_shard(d))
         .collect::<Result<Vec<_>>>()?;

@@ -1,8 +1,8 @@
 //! Running one suite on many machines and checking results folders:
-//! [`shard`] (`plumbline run --shard K/N`), [`merge`] (`plumbline merge`),
-//! [`verify`] (`plumbline verify`), and [`cli`], their command-line parts.
+//! [`shard`] (`plumbline run --shard K/N`), [`merge`] (`plumbline merge`) and
+//! [`verify`] (`plumbline verify`). Their command-line parts are in
+//! `crate::commands`.
 
-pub mod cli;
 pub mod merge;
 pub mod shard;
 pub mod verify;

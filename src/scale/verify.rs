@@ -26,13 +26,13 @@ use anyhow::{bail, Context, Result};
 use serde_json::Value;
 
 use super::merge::{read_manifest, task_digests};
-use crate::app::{self, RunArgs, MACHINE_FIELDS, POOL_MACHINE_FIELDS};
+use crate::app::{MACHINE_FIELDS, POOL_MACHINE_FIELDS};
 use crate::run::table::{read_units_file, units_path, UnitRow, UnitTable};
 use crate::run::{self, RunOptions};
 
 /// Options of `plumbline verify`.
 #[derive(Debug, Clone, Default)]
-pub struct VerifyArgs {
+pub struct VerifyOptions {
     pub dir: PathBuf,
     /// Suite file [default: the path recorded in the manifest].
     pub suite: Option<PathBuf>,
@@ -256,8 +256,13 @@ pub fn remove_stale_scratch(dir: &Path) -> Vec<String> {
     notes
 }
 
+/// Reruns a suite into a folder (`plumbline run SUITE --out DIR --force
+/// --quiet`): what a full verify compares the folder with. The command passes
+/// its run, so this module needs nothing above it.
+pub type Rerun<'a> = &'a dyn Fn(&Path, &Path) -> Result<()>;
+
 /// `plumbline verify`.
-pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
+pub fn verify(args: &VerifyOptions, rerun: Rerun) -> Result<VerifyReport> {
     let dir = &args.dir;
     if args.sample == Some(0) {
         bail!("--sample 0 would compare nothing: give the number of units to rerun (at least 1), or leave --sample out to rerun every unit");
@@ -282,7 +287,7 @@ pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
             env!("CARGO_PKG_VERSION")
         );
     }
-    let plan = app::load_plan(&suite).with_context(|| {
+    let plan = crate::suite::load(&suite).with_context(|| {
         format!(
             "loading the suite recorded in {}/manifest.json (pass --suite to give its path)",
             dir.display()
@@ -309,7 +314,7 @@ pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
     }
     let mut report = match args.sample {
         Some(k) => verify_sample(args, plan, k)?,
-        None => verify_all(args, &suite, &manifest)?,
+        None => verify_all(args, &suite, &manifest, rerun)?,
     };
     report
         .lines
@@ -318,7 +323,7 @@ pub fn verify(args: &VerifyArgs) -> Result<VerifyReport> {
 }
 
 fn verify_sample(
-    args: &VerifyArgs,
+    args: &VerifyOptions,
     mut plan: crate::suite::Plan,
     k: usize,
 ) -> Result<VerifyReport> {
@@ -371,7 +376,12 @@ fn verify_sample(
     Ok(VerifyReport { matched, lines })
 }
 
-fn verify_all(args: &VerifyArgs, suite: &Path, manifest: &Value) -> Result<VerifyReport> {
+fn verify_all(
+    args: &VerifyOptions,
+    suite: &Path,
+    manifest: &Value,
+    rerun: Rerun,
+) -> Result<VerifyReport> {
     let dir = &args.dir;
     let scratch = scratch_dir(dir, std::process::id());
     // The scratch folder, the staging folder and the lock of the rerun go
@@ -384,23 +394,15 @@ fn verify_all(args: &VerifyArgs, suite: &Path, manifest: &Value) -> Result<Verif
         crate::run::output::lock_path(&scratch),
     ];
     for p in &leftovers {
-        crate::cli::remove_on_interrupt(p);
+        crate::atomic::remove_on_interrupt(p);
     }
-    let res = app::run_suite(&RunArgs {
-        suite: suite.to_path_buf(),
-        out: Some(scratch.clone()),
-        threads: args.threads,
-        quiet: true,
-        force: true,
-        shard: None,
-    });
-    let out = res.and_then(|_| compare_folders(dir, &scratch, manifest));
+    let out = rerun(suite, &scratch).and_then(|_| compare_folders(dir, &scratch, manifest));
     let _ = std::fs::remove_dir_all(&scratch);
     // A rerun that failed keeps its staging folder for a resume; verify's
     // does not.
     let _ = std::fs::remove_dir_all(&leftovers[1]);
     for p in &leftovers {
-        crate::cli::forget_on_interrupt(p);
+        crate::atomic::forget_on_interrupt(p);
     }
     out
 }

@@ -13,6 +13,7 @@
 
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
+use std::process::ExitCode;
 use std::time::Instant;
 
 use anyhow::{bail, Context, Result};
@@ -170,7 +171,7 @@ pub fn suite_methods(suite: Option<&Path>) -> Result<(String, Vec<MethodEntry>)>
     match suite {
         Some(p) => Ok((p.display().to_string(), suite::load_methods(p)?)),
         None => {
-            let name = crate::app::DEFAULT_SUITE;
+            let name = super::run::DEFAULT_SUITE;
             Ok((
                 name.to_string(),
                 suite::parse_methods(DEFAULT_SUITE_TEXT, name)?,
@@ -244,8 +245,15 @@ fn with_set(
     Ok(spec)
 }
 
-/// Run `plumbline fit`.
-pub fn run(args: &FitArgs) -> Result<FitSummary> {
+/// `plumbline fit`: fit, print what was fitted to standard error.
+pub fn run(args: &FitArgs) -> Result<ExitCode> {
+    let s = fit(args)?;
+    eprintln!("{}", describe(&s));
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Fit the method and write the map file.
+pub fn fit(args: &FitArgs) -> Result<FitSummary> {
     let kind: ScoreKind = args.score_kind.into();
     let (suite_name, table) = suite_methods(args.suite.as_deref())?;
     let spec = resolve_method(&args.method, &args.set, kind, &suite_name, &table)?;
@@ -344,7 +352,7 @@ pub fn run(args: &FitArgs) -> Result<FitSummary> {
             want[i]
         );
     }
-    super::write_atomic(&args.out, &bytes)?;
+    crate::atomic::write_atomic(&args.out, &bytes)?;
     Ok(FitSummary {
         method: args.method.clone(),
         content,

@@ -1,16 +1,12 @@
-//! Commands for using a chosen method in production: `fit` (one method on a
-//! score file → map file) and `apply` (map file + score file → calibrated
-//! probabilities), and `diagnose` (the calibration metrics of one score file
-//! with bootstrap intervals). Each command has its clap arguments and a `run` function
-//! that tests call directly.
-
-pub mod apply;
-pub mod diagnose;
-pub mod fit;
+//! Files written whole or not at all, and scratch output removed on an
+//! interrupt: [`AtomicFile`] (a staging file beside the target, renamed into
+//! place on commit) for the single files of `fit`, `apply` and `diagnose`, and
+//! [`remove_on_interrupt`] for scratch folders such as the rerun of `verify`.
+//! [`guard_signals`] installs the one signal thread that cleans up both.
 
 use std::ffi::{OsStr, OsString};
 use std::fs::File;
-use std::io::{self, Write};
+use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::{Mutex, MutexGuard};
 
@@ -232,18 +228,6 @@ pub fn guard_signals() {
     }
 }
 
-/// Refuse an empty or blank value of a flag that names something
-/// (`--column ''`), naming the flag and the value; `what` says what to give.
-pub fn require_name(flag: &str, value: &str, what: &str) -> Result<()> {
-    if value.trim().is_empty() {
-        bail!(
-            "{flag} {}: the name is empty; {what}",
-            crate::limits::quoted_prefix(value.as_bytes(), 40)
-        );
-    }
-    Ok(())
-}
-
 /// Write a whole file atomically.
 pub fn write_atomic(target: &Path, bytes: &[u8]) -> Result<()> {
     let f = AtomicFile::create(target)?;
@@ -251,11 +235,6 @@ pub fn write_atomic(target: &Path, bytes: &[u8]) -> Result<()> {
         .write_all(bytes)
         .with_context(|| format!("{}: cannot write", target.display()))?;
     f.commit()
-}
-
-/// Standard output, buffered, for `--out -`.
-pub fn stdout() -> io::BufWriter<io::Stdout> {
-    io::BufWriter::with_capacity(1 << 16, io::stdout())
 }
 
 #[cfg(test)]

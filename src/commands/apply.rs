@@ -11,7 +11,7 @@
 //! counted in a warning. A score that is not a finite number (or, for
 //! probability maps, not in [0, 1]) stops the command with the file, row and
 //! value; a regular output file goes through a staging file beside the target
-//! ([`super::AtomicFile`]) and is renamed into place only when every row is
+//! ([`crate::atomic::AtomicFile`]) and is renamed into place only when every row is
 //! written, so nothing partial is left.
 //!
 //! Stdout (`-`), a FIFO or a character device is written in place, streamed,
@@ -23,6 +23,7 @@
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
+use std::process::ExitCode;
 
 use anyhow::{bail, Context, Result};
 
@@ -173,19 +174,34 @@ fn io_of(e: csv::Error) -> std::io::Error {
     }
 }
 
-/// Run `plumbline apply`.
+/// `plumbline apply`: calibrate, then report the rows written (and any
+/// out-of-range warning) on standard error; nothing when the reader of a
+/// pipe went away (`| head`), a filter's quiet end.
+pub fn run(args: &ApplyArgs) -> Result<ExitCode> {
+    let s = apply(args)?;
+    if s.closed {
+        return Ok(ExitCode::SUCCESS);
+    }
+    if let Some(w) = s.warning() {
+        eprint!("{}", super::warning_lines(&w));
+    }
+    eprintln!("{} rows calibrated → {}", s.rows, args.out.display());
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Calibrate the score file with the map.
 ///
 /// Output to stdout, a FIFO or a character device is streamed in place; when
 /// its reader goes away (a closed pipe) the command stops quietly and returns
 /// with [`ApplySummary::closed`] set, the filter's convention (`| head`).
-pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
+pub fn apply(args: &ApplyArgs) -> Result<ApplySummary> {
     super::require_name(
         "--column",
         &args.column,
         "name the added column of calibrated probabilities (default `calibrated`)",
     )?;
     let target = Target::of(&args.out)?;
-    super::guard_signals();
+    crate::atomic::guard_signals();
     let loaded = mapfile::load(&args.map)?;
     let content = &loaded.content;
     let map = loaded.map.as_ref();
@@ -235,7 +251,7 @@ pub fn run(args: &ApplyArgs) -> Result<ApplySummary> {
                 .with_context(|| format!("{out_name}: cannot open for writing"))?,
         ),
         Target::Regular => {
-            let f = super::AtomicFile::create(&args.out)?;
+            let f = crate::atomic::AtomicFile::create(&args.out)?;
             let w = f.writer()?;
             atomic = Some(f);
             file_sink(w)

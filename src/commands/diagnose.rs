@@ -39,6 +39,7 @@
 //! [tag, b])`, so the output is identical whatever the thread count.
 
 use std::path::{Path, PathBuf};
+use std::process::ExitCode;
 
 use anyhow::{bail, Result};
 use rayon::prelude::*;
@@ -796,9 +797,18 @@ fn manifest(args: &DiagnoseArgs, d: &Diagnosis) -> serde_json::Value {
     })
 }
 
-/// Run `plumbline diagnose`: lock and check the output folder, compute, then
-/// write the folder atomically.
-pub fn run(args: &DiagnoseArgs) -> Result<Diagnosis> {
+/// `plumbline diagnose`: write the folder, print the table on standard
+/// output and the row count on standard error.
+pub fn run(args: &DiagnoseArgs) -> Result<ExitCode> {
+    let d = write_folder(args)?;
+    println!("{}", d.terminal());
+    eprintln!("{} rows → {}", d.rows, args.out.display());
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Lock and check the output folder, compute, then write the folder
+/// atomically.
+pub fn write_folder(args: &DiagnoseArgs) -> Result<Diagnosis> {
     let inputs: Vec<&Path> = if args.file.as_os_str() == "-" {
         Vec::new()
     } else {
