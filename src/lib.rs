@@ -8,7 +8,6 @@
 //! file each, above everything else.
 
 pub mod analysis;
-pub mod app;
 pub mod atomic;
 pub mod calibrate;
 pub mod commands;
@@ -18,6 +17,7 @@ pub mod mapfile;
 pub mod metrics;
 pub mod models;
 pub mod report;
+pub mod results;
 pub mod run;
 pub mod scale;
 pub mod simulate;

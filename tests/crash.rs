@@ -73,7 +73,7 @@ fn a_torn_journal_tail_loses_exactly_the_torn_record() {
     let dir = TempDir::new().unwrap();
     let suite = write_suite(dir.path(), 9, 3, "40, 200");
     let plan = plumbline::suite::load(&suite).unwrap();
-    let key = plumbline::app::run_key(&plan, None);
+    let key = plumbline::results::run_key(&plan, None);
     let opts = RunOptions {
         threads: Some(1),
         quiet: true,
@@ -134,7 +134,7 @@ fn resuming_an_edited_suite_or_changed_data_is_refused() {
     let plan = plumbline::suite::load(&suite).unwrap();
     let staging = plumbline::run::output::staging_dir(&out);
     fs::create_dir_all(&staging).unwrap();
-    let (j, _) = Journal::open(&staging, &plumbline::app::run_key(&plan, None), false).unwrap();
+    let (j, _) = Journal::open(&staging, &plumbline::results::run_key(&plan, None), false).unwrap();
     let opts = RunOptions {
         threads: Some(1),
         quiet: true,

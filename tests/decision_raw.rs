@@ -24,7 +24,6 @@ use std::path::{Path, PathBuf};
 
 use common::uniform;
 use plumbline::analysis::{self, Analysis, DecidedBy, Recommendation};
-use plumbline::app;
 use plumbline::commands::run::{run_suite, RunArgs};
 use plumbline::run::table::{read_units_file, units_path};
 use tempfile::TempDir;
@@ -133,7 +132,7 @@ fn run(files: &[String], suite_text: &str) -> (Analysis, PathBuf, TempDir) {
     .unwrap();
     let table = read_units_file(&units_path(&out).unwrap()).unwrap();
     let plan = plumbline::suite::load(&suite).unwrap();
-    let a = analysis::analyse(&table, &app::settings_of(&plan));
+    let a = analysis::analyse(&table, &plumbline::results::settings_of(&plan));
     (a, out, dir)
 }
 

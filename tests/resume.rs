@@ -42,7 +42,7 @@ fn interrupted_run_resumes_from_the_journal() {
     let suite = dir.path().join("s.toml");
     fs::write(&suite, SUITE).unwrap();
     let plan = plumbline::suite::load(&suite).unwrap();
-    let key = plumbline::app::run_key(&plan, None);
+    let key = plumbline::results::run_key(&plan, None);
     let opts = RunOptions {
         threads: Some(1),
         quiet: true,

@@ -786,7 +786,7 @@ fn manifest(args: &DiagnoseArgs, d: &Diagnosis) -> serde_json::Value {
         "tool": "plumbline",
         "version": env!("CARGO_PKG_VERSION"),
         "command": "diagnose",
-        "file": crate::app::shown(&args.file),
+        "file": crate::results::shown(&args.file),
         "score_column": args.score_column,
         "label_column": args.label_column,
         "compare": args.compare,

@@ -10,6 +10,7 @@ use super::warning_lines;
 use crate::analysis::{self, AnalysisSettings};
 use crate::metrics::reliability;
 use crate::report::{self, summary};
+use crate::results::Recorded;
 use crate::run::{self, output};
 use crate::stats::paired::IntervalKind;
 use crate::suite;
@@ -124,14 +125,8 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
     })?;
     let table = run::table::read_units_file(&units_path)
         .with_context(|| format!("reading {}", units_path.display()))?;
-    let manifest_path = args.dir.join("manifest.json");
-    let manifest: Option<serde_json::Value> = std::fs::read(&manifest_path)
-        .ok()
-        .and_then(|b| serde_json::from_slice(&b).ok());
-    let from_manifest: Option<AnalysisSettings> = manifest
-        .as_ref()
-        .and_then(|m| m.get("analysis"))
-        .and_then(|a| serde_json::from_value(a.clone()).ok());
+    let recorded = Recorded::read(&args.dir);
+    let from_manifest = recorded.analysis;
     let reference = args
         .reference
         .clone()
@@ -224,12 +219,9 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         max_fallback,
     };
     let a = analysis::analyse(&table, &settings);
-    let suite_info = manifest.as_ref().and_then(|m| m.get("suite"));
+    let suite_info = recorded.suite.unwrap_or_default();
     // Missing unit rows and NaN values change the tables silently: say so.
-    let repeats = suite_info
-        .and_then(|s| s.get("repeats"))
-        .and_then(|v| v.as_u64())
-        .map(|n| n as usize);
+    let repeats = suite_info.repeats.map(|n| n as usize);
     let gaps = analysis::gaps::table_gaps(&table, repeats);
     for w in gaps.iter().take(20) {
         eprint!(
@@ -249,23 +241,11 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
     }
     let ctx = summary::ReportContext {
         suite_name: suite_info
-            .and_then(|s| s.get("name"))
-            .and_then(|v| v.as_str())
-            .unwrap_or("(unknown suite)")
-            .to_string(),
-        suite_file: suite_info
-            .and_then(|s| s.get("file"))
-            .and_then(|v| v.as_str())
-            .unwrap_or("(unknown)")
-            .to_string(),
-        suite_sha256: suite_info
-            .and_then(|s| s.get("sha256"))
-            .and_then(|v| v.as_str())
-            .unwrap_or("(unknown)")
-            .to_string(),
-        seed: suite_info
-            .and_then(|s| s.get("seed"))
-            .and_then(|v| v.as_u64()),
+            .name
+            .unwrap_or_else(|| "(unknown suite)".to_string()),
+        suite_file: suite_info.file.unwrap_or_else(|| "(unknown)".to_string()),
+        suite_sha256: suite_info.sha256.unwrap_or_else(|| "(unknown)".to_string()),
+        seed: suite_info.seed,
         settings: settings.clone(),
         curves: read_curves(&args.dir)?,
     };

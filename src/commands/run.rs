@@ -6,8 +6,8 @@ use std::process::ExitCode;
 
 use anyhow::{bail, Result};
 
-use crate::app::{now_rfc3339, run_key, run_manifest, settings_of, shown, write_results, RunInfo};
 use crate::report::summary;
+use crate::results::{now_rfc3339, run_key, settings_of, shown, write_results, Manifest, RunInfo};
 use crate::run::{self, journal::Journal, output, RunOptions};
 use crate::scale::shard::ShardSpec;
 use crate::suite::{self, Plan, TaskSource};
@@ -219,12 +219,7 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         resumed: result.resumed_units,
         pool_reports,
     };
-    let manifest = run_manifest(&plan, &info, &result.warnings);
-    output::write_file(
-        &staging,
-        "manifest.json",
-        serde_json::to_string_pretty(&manifest)?.as_bytes(),
-    )?;
+    Manifest::of_run(&plan, &info, &result.warnings).write(&staging)?;
     target.commit()?;
     Ok(RunSummary {
         terminal: summary::terminal(&a, &ctx),

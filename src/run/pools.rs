@@ -19,7 +19,7 @@ use crate::split;
 use crate::suite::{Plan, TaskSource};
 
 /// What building one pool cost.
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct PoolReport {
     pub task: String,
     pub cache_hit: bool,

@@ -9,8 +9,8 @@
 //! assignment gives it.
 //!
 //! The merged folder is byte-identical to `plumbline run SUITE` on one machine
-//! except the machine-dependent fields ([`crate::app::MACHINE_FIELDS`] and
-//! [`crate::app::POOL_MACHINE_FIELDS`] of `manifest.json`, the fit times of
+//! except the machine-dependent fields ([`crate::results::MACHINE_FIELDS`] and
+//! [`crate::results::POOL_MACHINE_FIELDS`] of `manifest.json`, the fit times of
 //! `timings.csv`). In a merged manifest `started` is the earliest shard's
 //! start, `finished` the merge's time, `wall_seconds` the sum of the shards'
 //! wall times, `threads` the most threads a shard used, `resumed_units` the
@@ -21,13 +21,10 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use anyhow::{bail, Context, Result};
-use serde_json::Value;
+use anyhow::{bail, Result};
 
 use super::shard::{layout, read_units};
-use crate::analysis::AnalysisSettings;
-use crate::app::{now_rfc3339, write_results};
-use crate::report::summary::ReportContext;
+use crate::results::{now_rfc3339, write_results, Manifest};
 use crate::run::{self, output};
 
 /// What a merge produced.
@@ -40,65 +37,18 @@ pub struct MergeSummary {
 
 struct Shard {
     dir: PathBuf,
-    manifest: Value,
+    manifest: Manifest,
     index: usize,
     count: usize,
-}
-
-/// Read a folder's `manifest.json`.
-pub fn read_manifest(dir: &Path) -> Result<Value> {
-    let p = dir.join("manifest.json");
-    let bytes = std::fs::read(&p).with_context(|| format!("cannot read {}", p.display()))?;
-    serde_json::from_slice(&bytes).with_context(|| format!("{}: not valid JSON", p.display()))
-}
-
-fn str_at<'a>(v: &'a Value, path: &[&str]) -> &'a str {
-    let mut x = v;
-    for k in path {
-        x = &x[*k];
-    }
-    x.as_str().unwrap_or("")
-}
-
-/// (task id, data SHA-256) of a manifest.
-pub fn task_digests(m: &Value) -> Vec<(String, String)> {
-    m["tasks"]
-        .as_array()
-        .map(|ts| {
-            ts.iter()
-                .map(|t| {
-                    (
-                        str_at(t, &["id"]).to_string(),
-                        str_at(t, &["data_sha256"]).to_string(),
-                    )
-                })
-                .collect()
-        })
-        .unwrap_or_default()
 }
 
 fn short(s: &str) -> String {
     s.chars().take(12).collect()
 }
 
-/// The report settings recorded in a manifest.
-pub fn context_of(m: &Value, path: &Path) -> Result<ReportContext> {
-    let settings: AnalysisSettings = serde_json::from_value(m["analysis"].clone())
-        .with_context(|| format!("{}: no readable `analysis` entry", path.display()))?;
-    Ok(ReportContext {
-        suite_name: str_at(m, &["suite", "name"]).to_string(),
-        suite_file: str_at(m, &["suite", "file"]).to_string(),
-        suite_sha256: str_at(m, &["suite", "sha256"]).to_string(),
-        seed: m["suite"]["seed"].as_u64(),
-        settings,
-        curves: Vec::new(),
-    })
-}
-
 fn open_shard(dir: &Path) -> Result<Shard> {
-    let manifest = read_manifest(dir)?;
-    let sh = &manifest["shard"];
-    let (Some(index), Some(count)) = (sh["index"].as_u64(), sh["count"].as_u64()) else {
+    let manifest = Manifest::read(dir)?;
+    let Some(sh) = &manifest.shard else {
         bail!(
             "{}: not a shard folder (its manifest.json has no `shard` entry; shards are written by `plumbline run SUITE --shard K/N`)",
             dir.display()
@@ -106,8 +56,8 @@ fn open_shard(dir: &Path) -> Result<Shard> {
     };
     Ok(Shard {
         dir: dir.to_path_buf(),
-        index: index as usize,
-        count: count as usize,
+        index: sh.index,
+        count: sh.count,
         manifest,
     })
 }
@@ -116,27 +66,24 @@ fn open_shard(dir: &Path) -> Result<Shard> {
 fn check_same_run(base: &Shard, s: &Shard) -> Result<()> {
     let (a, b) = (&base.manifest, &s.manifest);
     let (bd, sd) = (base.dir.display(), s.dir.display());
-    if str_at(a, &["version"]) != str_at(b, &["version"]) {
+    if a.version != b.version {
         bail!(
             "{sd} was written by plumbline {} but {bd} by plumbline {}: rerun the shards with one version",
-            str_at(b, &["version"]),
-            str_at(a, &["version"])
+            b.version,
+            a.version
         );
     }
-    let (ha, hb) = (
-        str_at(a, &["suite", "sha256"]),
-        str_at(b, &["suite", "sha256"]),
-    );
+    let (ha, hb) = (&a.suite.sha256, &b.suite.sha256);
     if ha != hb {
         bail!(
             "{sd} comes from another suite than {bd}: suite `{}` SHA-256 {}… vs `{}` SHA-256 {}…",
-            str_at(b, &["suite", "name"]),
+            b.suite.name,
             short(hb),
-            str_at(a, &["suite", "name"]),
+            a.suite.name,
             short(ha)
         );
     }
-    let (ta, tb) = (task_digests(a), task_digests(b));
+    let (ta, tb) = (a.task_digests(), b.task_digests());
     for ((id, da), (_, db)) in ta.iter().zip(&tb) {
         if da != db {
             bail!(
@@ -199,39 +146,17 @@ pub fn merge(shard_dirs: &[PathBuf], out: &Path, force: bool) -> Result<MergeSum
         );
     }
     let base = &shards[0].manifest;
-    let base_path = shards[0].dir.join("manifest.json");
-    let task_list = base["tasks"].as_array().cloned().unwrap_or_default();
-    let task_ids: Vec<String> = task_list
-        .iter()
-        .map(|t| str_at(t, &["id"]).to_string())
-        .collect();
-    let strings = |v: &Value| -> Vec<String> {
-        v.as_array()
-            .map(|a| {
-                a.iter()
-                    .filter_map(|x| x.as_str().map(String::from))
-                    .collect()
-            })
-            .unwrap_or_default()
+    let task_ids: Vec<String> = base.tasks.iter().map(|t| t.id.clone()).collect();
+    let (methods, metrics) = match &base.shard {
+        Some(sh) => (sh.methods.clone(), sh.metrics.clone()),
+        None => (Vec::new(), Vec::new()),
     };
-    let methods = strings(&base["shard"]["methods"]);
-    let metrics = strings(&base["shard"]["metrics"]);
-    let sizes_rows: Vec<(Vec<usize>, usize)> = task_list
+    let sizes_rows: Vec<(Vec<usize>, usize)> = base
+        .tasks
         .iter()
-        .map(|t| {
-            let sizes = t["sizes"]
-                .as_array()
-                .map(|a| {
-                    a.iter()
-                        .filter_map(|x| x.as_u64())
-                        .map(|x| x as usize)
-                        .collect()
-                })
-                .unwrap_or_default();
-            (sizes, t["test_rows"].as_u64().unwrap_or(0) as usize)
-        })
+        .map(|t| (t.sizes.clone(), t.test_rows))
         .collect();
-    let repeats = base["suite"]["repeats"].as_u64().unwrap_or(0) as usize;
+    let repeats = base.suite.repeats;
     let expected: BTreeMap<(String, usize, usize), usize> =
         layout(&sizes_rows, repeats, methods.len(), count)
             .into_iter()
@@ -249,7 +174,7 @@ pub fn merge(shard_dirs: &[PathBuf], out: &Path, force: bool) -> Result<MergeSum
                     "{}: unit {} is not a unit of suite `{}`",
                     s.dir.display(),
                     unit_name(&k),
-                    str_at(base, &["suite", "name"])
+                    base.suite.name
                 ),
                 Some(&want) if want != s.index => bail!(
                     "{}: unit {} belongs to shard {want}/{count}, not to shard {}/{count}",
@@ -280,50 +205,44 @@ pub fn merge(shard_dirs: &[PathBuf], out: &Path, force: bool) -> Result<MergeSum
         );
     }
 
-    let num = |s: &Shard, k: &str| s.manifest[k].as_u64().unwrap_or(0) as usize;
-    let threads = shards.iter().map(|s| num(s, "threads")).max().unwrap_or(0);
-    let resumed: usize = shards.iter().map(|s| num(s, "resumed_units")).sum();
+    let threads = shards
+        .iter()
+        .map(|s| s.manifest.machine.threads)
+        .max()
+        .unwrap_or(0);
+    let resumed: usize = shards
+        .iter()
+        .map(|s| s.manifest.machine.resumed_units)
+        .sum();
     let tasks: Vec<&str> = task_ids.iter().map(|s| s.as_str()).collect();
     let mrefs: Vec<&str> = methods.iter().map(|s| s.as_str()).collect();
     let n_units = units.len();
     let result = run::assemble_ordered(&tasks, &mrefs, metrics, units, threads, resumed);
 
-    let ctx = context_of(base, &base_path)?;
     let staging = target.staging();
-    let (a, ctx) = write_results(staging, &result, ctx)?;
+    let (a, ctx) = write_results(staging, &result, base.report_context())?;
     let mut manifest = base.clone();
-    if let Some(o) = manifest.as_object_mut() {
-        o.remove("shard");
-    }
-    let mut pools: BTreeMap<usize, Value> = BTreeMap::new();
+    manifest.shard = None;
+    let mut pools = BTreeMap::new();
     for s in &shards {
-        for p in s.manifest["score_pools"].as_array().into_iter().flatten() {
-            if let Some(i) = task_ids.iter().position(|t| t == str_at(p, &["task"])) {
+        for p in &s.manifest.score_pools {
+            if let Some(i) = task_ids.iter().position(|t| *t == p.task) {
                 pools.entry(i).or_insert_with(|| p.clone());
             }
         }
     }
-    manifest["score_pools"] = Value::Array(pools.into_values().collect());
-    manifest["warnings"] = serde_json::json!(result.warnings);
-    manifest["threads"] = serde_json::json!(threads);
-    manifest["resumed_units"] = serde_json::json!(resumed);
-    let started = shards
+    manifest.score_pools = pools.into_values().collect();
+    manifest.warnings = result.warnings.clone();
+    manifest.machine.threads = threads;
+    manifest.machine.resumed_units = resumed;
+    manifest.machine.started = shards
         .iter()
-        .map(|s| str_at(&s.manifest, &["started"]).to_string())
+        .map(|s| s.manifest.machine.started.clone())
         .min()
         .unwrap_or_default();
-    manifest["started"] = serde_json::json!(started);
-    manifest["finished"] = serde_json::json!(now_rfc3339());
-    let wall: f64 = shards
-        .iter()
-        .map(|s| s.manifest["wall_seconds"].as_f64().unwrap_or(0.0))
-        .sum();
-    manifest["wall_seconds"] = serde_json::json!(wall);
-    output::write_file(
-        staging,
-        "manifest.json",
-        serde_json::to_string_pretty(&manifest)?.as_bytes(),
-    )?;
+    manifest.machine.finished = now_rfc3339();
+    manifest.machine.wall_seconds = shards.iter().map(|s| s.manifest.machine.wall_seconds).sum();
+    manifest.write(staging)?;
     target.commit()?;
     Ok(MergeSummary {
         units: n_units,

@@ -30,7 +30,7 @@ use std::path::Path;
 
 use anyhow::{Context, Result};
 
-use crate::app::{run_manifest, RunInfo};
+use crate::results::{Manifest, RunInfo, ShardRecord, COST_RULE};
 use crate::run::{self, output, UnitOutcome};
 use crate::suite::Plan;
 
@@ -177,22 +177,21 @@ pub(crate) fn write_shard(
         })
         .sum();
     let warnings = run::assemble(plan, units.clone(), info.threads, info.resumed).warnings;
-    let mut manifest = run_manifest(plan, info, &warnings);
-    manifest["shard"] = serde_json::json!({
-        "index": spec.index,
-        "count": spec.count,
-        "units": units.len(),
-        "cost": cost,
-        "cost_rule": "methods × (calibration size + test rows), greedy longest-processing-time",
-        "methods": methods,
-        "metrics": plan.metrics.iter().map(|m| m.as_str()).collect::<Vec<_>>(),
+    let mut manifest = Manifest::of_run(plan, info, &warnings);
+    manifest.shard = Some(ShardRecord {
+        index: spec.index,
+        count: spec.count,
+        units: units.len(),
+        cost,
+        cost_rule: COST_RULE.to_string(),
+        methods: methods.iter().map(|m| m.to_string()).collect(),
+        metrics: plan
+            .metrics
+            .iter()
+            .map(|m| m.as_str().to_string())
+            .collect(),
     });
-    output::write_file(
-        staging,
-        "manifest.json",
-        serde_json::to_string_pretty(&manifest)?.as_bytes(),
-    )?;
-    Ok(())
+    manifest.write(staging)
 }
 
 /// Read the units of a shard folder.

@@ -7,7 +7,7 @@
 //! files (say paired.csv, summary.md, thresholds.csv, figures/ and
 //! manifest.json) is checked on those. `timings.csv` holds fit times and is
 //! not compared; `manifest.json` is compared without its machine-dependent
-//! fields ([`crate::app::MACHINE_FIELDS`], [`crate::app::POOL_MACHINE_FIELDS`]).
+//! fields ([`crate::results::without_machine_fields`]).
 //! Files a run does not write are listed and skipped.
 //!
 //! With `--sample K`, K units drawn with a seeded generator (`--seed`, by
@@ -25,8 +25,7 @@ use std::path::{Path, PathBuf};
 use anyhow::{bail, Context, Result};
 use serde_json::Value;
 
-use super::merge::{read_manifest, task_digests};
-use crate::app::{MACHINE_FIELDS, POOL_MACHINE_FIELDS};
+use crate::results::{self, without_machine_fields, Manifest};
 use crate::run::table::{read_units_file, units_path, UnitRow, UnitTable};
 use crate::run::{self, RunOptions};
 
@@ -50,26 +49,6 @@ pub struct VerifyReport {
 
 /// At most this many differing units or lines are listed.
 const LIST: usize = 10;
-
-/// A manifest without its machine-dependent fields.
-pub fn without_machine_fields(m: &Value) -> Value {
-    let mut m = m.clone();
-    if let Some(o) = m.as_object_mut() {
-        for k in MACHINE_FIELDS {
-            o.remove(k);
-        }
-    }
-    if let Some(pools) = m.get_mut("score_pools").and_then(|p| p.as_array_mut()) {
-        for p in pools {
-            if let Some(o) = p.as_object_mut() {
-                for k in POOL_MACHINE_FIELDS {
-                    o.remove(k);
-                }
-            }
-        }
-    }
-    m
-}
 
 type Key = (String, usize, usize, String);
 
@@ -267,9 +246,15 @@ pub fn verify(args: &VerifyOptions, rerun: Rerun) -> Result<VerifyReport> {
     if args.sample == Some(0) {
         bail!("--sample 0 would compare nothing: give the number of units to rerun (at least 1), or leave --sample out to rerun every unit");
     }
-    let manifest = read_manifest(dir)?;
+    let raw = results::read_json(dir)?;
     let stale = remove_stale_scratch(dir);
-    if manifest.get("shard").is_some() {
+    let manifest: Manifest = serde_json::from_value(raw.clone()).with_context(|| {
+        format!(
+            "{}/manifest.json: not the manifest of a results folder of this plumbline version",
+            dir.display()
+        )
+    })?;
+    if manifest.shard.is_some() {
         bail!(
             "{} is a shard folder: merge the shards (`plumbline merge`) and verify the merged folder",
             dir.display()
@@ -277,9 +262,9 @@ pub fn verify(args: &VerifyOptions, rerun: Rerun) -> Result<VerifyReport> {
     }
     let suite = match &args.suite {
         Some(s) => s.clone(),
-        None => PathBuf::from(manifest["suite"]["file"].as_str().unwrap_or("")),
+        None => PathBuf::from(&manifest.suite.file),
     };
-    let recorded_version = manifest["version"].as_str().unwrap_or("");
+    let recorded_version = manifest.version.as_str();
     if recorded_version != env!("CARGO_PKG_VERSION") {
         bail!(
             "{} was written by plumbline {recorded_version}; this is {}: verify with that version",
@@ -293,7 +278,7 @@ pub fn verify(args: &VerifyOptions, rerun: Rerun) -> Result<VerifyReport> {
             dir.display()
         )
     })?;
-    let want_sha = manifest["suite"]["sha256"].as_str().unwrap_or("");
+    let want_sha = manifest.suite.sha256.as_str();
     if plan.suite_sha256 != want_sha {
         bail!(
             "{}: SHA-256 {} but {} was produced by a suite with SHA-256 {want_sha}: the suite was edited",
@@ -302,7 +287,7 @@ pub fn verify(args: &VerifyOptions, rerun: Rerun) -> Result<VerifyReport> {
             dir.display()
         );
     }
-    for ((id, want), t) in task_digests(&manifest).iter().zip(&plan.tasks) {
+    for ((id, want), t) in manifest.task_digests().iter().zip(&plan.tasks) {
         if *id != t.id || *want != t.data_sha256 {
             bail!(
                 "task `{}`: data SHA-256 {} but {} was produced with {want}: the data changed",
@@ -314,7 +299,7 @@ pub fn verify(args: &VerifyOptions, rerun: Rerun) -> Result<VerifyReport> {
     }
     let mut report = match args.sample {
         Some(k) => verify_sample(args, plan, k)?,
-        None => verify_all(args, &suite, &manifest, rerun)?,
+        None => verify_all(args, &suite, &raw, rerun)?,
     };
     report
         .lines

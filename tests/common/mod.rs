@@ -146,9 +146,7 @@ pub fn assert_same_results(a: &Path, b: &Path) {
         match f.as_str() {
             "manifest.json" => {
                 let p = |v: &[u8]| {
-                    plumbline::scale::verify::without_machine_fields(
-                        &serde_json::from_slice(v).unwrap(),
-                    )
+                    plumbline::results::without_machine_fields(&serde_json::from_slice(v).unwrap())
                 };
                 assert_eq!(p(&x), p(&y), "manifest.json differs");
             }
