@@ -27,8 +27,8 @@ use crate::analysis::{self, AnalysisSettings};
 use crate::metrics::reliability;
 use crate::report::{self, summary};
 use crate::run::pools::PoolReport;
+use crate::run::shard::ShardSpec;
 use crate::run::{self, journal, output};
-use crate::scale::shard::ShardSpec;
 use crate::suite::Plan;
 
 /// How the seeds are derived, as the manifest states it.

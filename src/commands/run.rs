@@ -8,8 +8,9 @@ use anyhow::{bail, Result};
 
 use crate::report::summary;
 use crate::results::{now_rfc3339, run_key, settings_of, shown, write_results, Manifest, RunInfo};
+use crate::run::shard::{pools_needed, shard_keys, ShardSpec};
 use crate::run::{self, journal::Journal, output, RunOptions};
-use crate::scale::shard::ShardSpec;
+use crate::scale::shard::write_shard;
 use crate::suite::{self, Plan, TaskSource};
 
 /// The suite `plumbline run` uses when none is given.
@@ -97,7 +98,7 @@ pub struct RunSummary {
 }
 
 /// `plumbline run` (with `--shard K/N`: one share of the units into a shard
-/// folder, see [`crate::scale::shard`]).
+/// folder: [`crate::run::shard`] plans it, [`crate::scale::shard`] writes it).
 pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
     let suite_file = args
         .suite
@@ -138,15 +139,13 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
         .map(|p| p.join(".cache").join("pools"))
         .unwrap_or_else(|| PathBuf::from(".cache/pools"));
     let keys = match args.shard {
-        Some(s) => crate::scale::shard::shard_keys(&plan, s),
+        Some(s) => shard_keys(&plan, s),
         None => run::unit_keys(&plan),
     };
     let pool_reports = if plan.study.is_some() {
         Vec::new()
     } else {
-        let only = args
-            .shard
-            .map(|s| crate::scale::shard::pools_needed(&plan, s, &keys));
+        let only = args.shard.map(|s| pools_needed(&plan, s, &keys));
         run::pools::resolve_tasks(&mut plan, only.as_ref(), Some(&cache), threads, args.quiet)
             .map_err(anyhow::Error::msg)?
     };
@@ -183,7 +182,7 @@ pub fn run_suite(args: &RunArgs) -> Result<RunSummary> {
             pool_reports,
         };
         let n = units.len();
-        crate::scale::shard::write_shard(&staging, &plan, shard, units, &info)?;
+        write_shard(&staging, &plan, shard, units, &info)?;
         target.commit()?;
         return Ok(RunSummary {
             terminal: String::new(),

@@ -15,6 +15,7 @@ pub mod journal;
 pub mod output;
 pub mod pools;
 pub mod progress;
+pub mod shard;
 pub mod study;
 pub mod table;
 

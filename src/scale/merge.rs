@@ -23,8 +23,9 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{bail, Result};
 
-use super::shard::{layout, read_units};
+use super::shard::read_units;
 use crate::results::{now_rfc3339, write_results, Manifest};
+use crate::run::shard::layout;
 use crate::run::{self, output};
 
 /// What a merge produced.

@@ -1,7 +1,7 @@
 //! Running one suite on many machines and checking results folders:
 //! [`shard`] (`plumbline run --shard K/N`), [`merge`] (`plumbline merge`) and
 //! [`verify`] (`plumbline verify`). Their command-line parts are in
-//! `crate::commands`.
+//! `commands/merge.rs` and `commands/verify.rs`.
 
 pub mod merge;
 pub mod shard;
