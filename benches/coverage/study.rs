@@ -638,8 +638,7 @@ fn run_replicate(
                     .metric_index(met.as_str())
                     .ok_or_else(|| format!("no column for {}", met.as_str()))?;
                 for (si, &size) in cfg.sizes.iter().enumerate() {
-                    let Some(iv) = pair_interval(&src, "pool", size, a, b, met.as_str(), col)
-                    else {
+                    let Some(iv) = pair_interval(&src, "pool", size, a, b, *met, col) else {
                         return Err(format!("no interval for {a} − {b} at n = {size}"));
                     };
                     out.push((

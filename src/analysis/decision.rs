@@ -47,6 +47,7 @@ use std::collections::{BTreeMap, BTreeSet};
 use super::evidence::{compare, DatasetEvidence, EvidenceSource};
 use super::steps::{pair_interval, Cells, PairSource};
 use super::{margin_of, AcrossRow, AnalysisSettings, Margins, ThresholdRow};
+use crate::metrics::MetricId;
 use crate::run::table::UnitTable;
 use crate::stats::thresholds::{summarize, ThresholdSummary, Thresholds};
 use crate::stats::verdict::{Verdict, VerdictCounts};
@@ -216,7 +217,7 @@ impl SizeVerdict {
 /// The recommendation on one metric.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Decision {
-    pub metric: String,
+    pub metric: MetricId,
     /// Every method with its standing (the mean of its average ranks over
     /// the sizes, weighted by datasets), best first.
     pub standing: Vec<(String, f64)>,
@@ -254,7 +255,7 @@ pub fn task_parts(task: &str) -> (&str, Option<&str>) {
 /// an interval at this size (the suite's estimator, the task's margin).
 fn task_verdicts(
     input: &DecisionInput,
-    metric: &str,
+    metric: MetricId,
     size: usize,
     (a, b): (&str, &str),
     tasks: &[String],
@@ -284,7 +285,7 @@ fn task_verdicts(
 /// (reliably better: the verdict *better* on every one of its tasks).
 fn evidence(
     input: &DecisionInput,
-    metric: &str,
+    metric: MetricId,
     size: usize,
     (a, b): (&str, &str),
     tasks: &[String],
@@ -314,7 +315,7 @@ fn evidence(
     }
 }
 
-pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
+pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
     let DecisionInput {
         across,
         table,
@@ -594,7 +595,7 @@ pub fn decide(input: &DecisionInput, metric: &str) -> Option<Decision> {
         None => Vec::new(),
     };
     Some(Decision {
-        metric: metric.to_string(),
+        metric,
         standing,
         default,
         runner_up,

@@ -39,7 +39,8 @@
 use std::collections::BTreeMap;
 
 use super::steps::Cells;
-use super::{higher_is_better, margin_of, pair_up, task_parts, Margins};
+use super::{margin_of, pair_up, task_parts, Margins};
+use crate::metrics::MetricId;
 use crate::run::table::UnitTable;
 use crate::split::{fnv1a, mix};
 use crate::stats::bayes::{signed_rank, SignedRank, DEFAULT_PRIOR, DEFAULT_SAMPLES};
@@ -54,7 +55,7 @@ const TAG_BAYES: u64 = 0x6273_7274;
 /// The default against one competitor at one size, datasets as units.
 #[derive(Debug, Clone, PartialEq)]
 pub struct DatasetEvidence {
-    pub metric: String,
+    pub metric: MetricId,
     pub size: usize,
     pub default: String,
     pub competitor: String,
@@ -83,11 +84,11 @@ impl DatasetEvidence {
 }
 
 /// The seed of one comparison.
-pub fn evidence_seed(metric: &str, size: usize, default: &str, competitor: &str) -> u64 {
+pub fn evidence_seed(metric: MetricId, size: usize, default: &str, competitor: &str) -> u64 {
     mix(
         TAG_BAYES,
         &[
-            fnv1a(metric.as_bytes()),
+            fnv1a(metric.as_str().as_bytes()),
             size as u64,
             fnv1a(default.as_bytes()),
             fnv1a(competitor.as_bytes()),
@@ -125,7 +126,7 @@ pub struct EvidenceSource<'a> {
 /// that one base model gave, named by `group`), datasets as units.
 pub fn compare(
     src: &EvidenceSource,
-    metric: &str,
+    metric: MetricId,
     size: usize,
     (a, b): (&str, &str),
     tasks: &[String],
@@ -136,10 +137,10 @@ pub fn compare(
         cells,
         margins,
     } = *src;
-    let sign = if higher_is_better(metric) { -1.0 } else { 1.0 };
+    let sign = if metric.higher_is_better() { -1.0 } else { 1.0 };
     let Some(mi) = table.metric_index(metric) else {
         return DatasetEvidence {
-            metric: metric.to_string(),
+            metric,
             size,
             default: a.to_string(),
             competitor: b.to_string(),
@@ -193,7 +194,7 @@ pub fn compare(
         Err(e) => (Err(e), false),
     };
     DatasetEvidence {
-        metric: metric.to_string(),
+        metric,
         size,
         default: a.to_string(),
         competitor: b.to_string(),
@@ -227,10 +228,10 @@ mod tests {
 
     #[test]
     fn seeds_differ_by_comparison() {
-        let a = evidence_seed("log_loss", 100, "beta", "platt");
-        assert_eq!(a, evidence_seed("log_loss", 100, "beta", "platt"));
-        assert_ne!(a, evidence_seed("log_loss", 200, "beta", "platt"));
-        assert_ne!(a, evidence_seed("log_loss", 100, "beta", "identity"));
-        assert_ne!(a, evidence_seed("brier", 100, "beta", "platt"));
+        let a = evidence_seed(MetricId::LogLoss, 100, "beta", "platt");
+        assert_eq!(a, evidence_seed(MetricId::LogLoss, 100, "beta", "platt"));
+        assert_ne!(a, evidence_seed(MetricId::LogLoss, 200, "beta", "platt"));
+        assert_ne!(a, evidence_seed(MetricId::LogLoss, 100, "beta", "identity"));
+        assert_ne!(a, evidence_seed(MetricId::Brier, 100, "beta", "platt"));
     }
 }

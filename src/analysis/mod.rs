@@ -90,11 +90,16 @@ impl AnalysisSettings {
     /// compared value is `reference_mean`: the absolute margin set for the
     /// metric, else `margin` × |reference_mean| (NaN without a reference mean:
     /// then nothing is called equivalent).
-    pub fn margin_for(&self, metric: &str, reference_mean: f64) -> f64 {
-        match self.absolute_margins.get(metric) {
+    pub fn margin_for(&self, metric: MetricId, reference_mean: f64) -> f64 {
+        match self.absolute_margins.get(metric.as_str()) {
             Some(&d) => d,
             None => self.margin * reference_mean.abs(),
         }
+    }
+
+    /// The primary metric as an id (`None` when the setting names none).
+    pub fn primary(&self) -> Option<MetricId> {
+        MetricId::parse(&self.primary_metric)
     }
 }
 
@@ -102,7 +107,7 @@ impl AnalysisSettings {
 #[derive(Debug, Clone, PartialEq)]
 pub struct AcrossRow {
     pub size: usize,
-    pub metric: String,
+    pub metric: MetricId,
     /// Tasks with a value for every method at this size.
     pub tasks: Vec<String>,
     pub methods: Vec<String>,
@@ -118,7 +123,7 @@ pub struct ThresholdRow {
     pub task: String,
     pub flexible: String,
     pub parametric: String,
-    pub metric: String,
+    pub metric: MetricId,
     /// (size, mean of flexible − parametric, low, high).
     pub points: Vec<(usize, f64, f64, f64)>,
     pub result: Result<Thresholds, String>,
@@ -130,7 +135,7 @@ pub struct MethodSummary {
     pub task: String,
     pub size: usize,
     pub method: String,
-    pub metric: String,
+    pub metric: MetricId,
     /// Units with a value.
     pub n: usize,
     pub mean: f64,
@@ -150,7 +155,7 @@ pub struct Paired {
     pub size: usize,
     pub method: String,
     pub reference: String,
-    pub metric: String,
+    pub metric: MetricId,
     /// Repeats where both had a value.
     pub repeats: usize,
     pub mean_method: f64,
@@ -193,7 +198,7 @@ impl Paired {
 pub struct Analysis {
     pub tasks: Vec<String>,
     pub methods: Vec<String>,
-    pub metrics: Vec<String>,
+    pub metrics: Vec<MetricId>,
     pub sizes: BTreeMap<String, Vec<usize>>,
     pub summaries: Vec<MethodSummary>,
     pub paired: Vec<Paired>,
@@ -205,7 +210,7 @@ pub struct Analysis {
     pub across: Vec<AcrossRow>,
     pub thresholds: Vec<ThresholdRow>,
     /// Per metric and pair: the summary over tasks.
-    pub threshold_summaries: Vec<(String, (String, String), ThresholdSummary)>,
+    pub threshold_summaries: Vec<(MetricId, (String, String), ThresholdSummary)>,
     /// Thresholds of every method against the raw scores
     /// ([`AnalysisSettings::raw_method`]) on each decision metric: from which
     /// size calibrating pays off on each task (empty without a raw method).
@@ -217,13 +222,13 @@ pub struct Analysis {
 }
 
 /// (task, size, metric) → equivalence margin δ.
-pub type Margins = BTreeMap<(String, usize, String), f64>;
+pub type Margins = BTreeMap<(String, usize, MetricId), f64>;
 
 /// The margin of one (task, size, metric); NaN where the reference method
 /// has no values (no verdict other than *undetermined* can come of it).
-pub fn margin_of(margins: &Margins, task: &str, size: usize, metric: &str) -> f64 {
+pub fn margin_of(margins: &Margins, task: &str, size: usize, metric: MetricId) -> f64 {
     margins
-        .get(&(task.to_string(), size, metric.to_string()))
+        .get(&(task.to_string(), size, metric))
         .copied()
         .unwrap_or(f64::NAN)
 }
@@ -235,26 +240,20 @@ pub const FALLBACK_PREFIX: &str = "fallback:";
 /// Differences within this tolerance count as ties.
 pub const TIE_TOLERANCE: f64 = 1e-12;
 
-pub(crate) fn higher_is_better(metric: &str) -> bool {
-    MetricId::parse(metric)
-        .map(|m| m.higher_is_better())
-        .unwrap_or(false)
-}
-
 /// The value paired differences are taken on: the metric itself, or for a
 /// metric with a target value (calibration slope 1, intercept 0, Z 0) the
 /// distance |v − target|. `None` for descriptive terms (the same for every
-/// method in a unit); unknown ids are taken as losses.
-pub fn compared_value(metric: &str, v: f64) -> Option<f64> {
-    match MetricId::parse(metric).map(|m| m.goal()) {
-        Some(Goal::Descriptive) => None,
-        Some(Goal::Toward(x)) => Some((v - x).abs()),
-        _ => Some(v),
+/// method in a unit).
+pub fn compared_value(metric: MetricId, v: f64) -> Option<f64> {
+    match metric.goal() {
+        Goal::Descriptive => None,
+        Goal::Toward(x) => Some((v - x).abs()),
+        Goal::Lower | Goal::Higher => Some(v),
     }
 }
 
 /// True when paired differences of this metric are reported.
-pub fn is_compared(metric: &str) -> bool {
+pub fn is_compared(metric: MetricId) -> bool {
     compared_value(metric, 0.0).is_some()
 }
 
@@ -283,7 +282,7 @@ pub(crate) fn pair_up(
     a: &BTreeMap<usize, usize>,
     b: &BTreeMap<usize, usize>,
     mi: usize,
-    metric: &str,
+    metric: MetricId,
 ) -> PairRows {
     let mut out = PairRows {
         a: Vec::new(),
@@ -315,7 +314,7 @@ pub(crate) fn pair_up(
 pub fn paired_interval(
     table: &UnitTable,
     pr: &PairRows,
-    metric: &str,
+    metric: MetricId,
     settings: &AnalysisSettings,
 ) -> Interval {
     let kind = IntervalKind::ALL
@@ -453,13 +452,14 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
     for s in sizes.values_mut() {
         s.sort_unstable();
     }
-    let margins = margins_of(table, &cells, &sizes, settings);
+    let metric_ids = table.metric_ids();
+    let margins = margins_of(table, &metric_ids, &cells, &sizes, settings);
     let mut summaries = Vec::new();
     let mut paired = Vec::new();
     for task in &tasks {
         for &size in &sizes[task] {
-            for (mi, metric) in table.metric_names.iter().enumerate() {
-                let hib = higher_is_better(metric);
+            for (mi, &metric) in metric_ids.iter().enumerate() {
+                let hib = metric.higher_is_better();
                 let reference = cells.get(&(task.clone(), size, settings.reference.clone()));
                 for method in &methods {
                     let Some(c) = cells.get(&(task.clone(), size, method.clone())) else {
@@ -489,7 +489,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         task: task.clone(),
                         size,
                         method: method.clone(),
-                        metric: metric.clone(),
+                        metric,
                         n: vals.len(),
                         mean,
                         sd,
@@ -535,7 +535,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         size,
                         method: method.clone(),
                         reference: settings.reference.clone(),
-                        metric: metric.clone(),
+                        metric,
                         repeats: diffs.len(),
                         mean_method: mean_of(dm),
                         mean_reference: mean_of(dr),
@@ -557,7 +557,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
             }
         }
     }
-    let metrics = decision_metrics(&settings.primary_metric, &table.metric_names);
+    let metrics = decision_metrics(settings.primary(), &metric_ids);
     let mut across = Vec::new();
     let mut thresholds = Vec::new();
     let mut threshold_summaries = Vec::new();
@@ -568,7 +568,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         .filter(|r| methods.contains(r))
         .map(|r| raw_pairs(&methods, r))
         .unwrap_or_default();
-    for metric in &metrics {
+    for &metric in &metrics {
         let Some(mi) = table.metric_index(metric) else {
             continue;
         };
@@ -586,7 +586,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         across.extend(across_step(&ctx, metric));
         let (rows, sums) = threshold_step(&ctx, metric, mi);
         thresholds.extend(rows);
-        threshold_summaries.extend(sums.into_iter().map(|(pair, s)| (metric.clone(), pair, s)));
+        threshold_summaries.extend(sums.into_iter().map(|(pair, s)| (metric, pair, s)));
         raw_thresholds.extend(pair_thresholds(&ctx, metric, mi, &raw).0);
     }
     let decisions: Vec<Decision> = metrics
@@ -601,13 +601,13 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                 fallback_counts: &fallback_counts,
                 raw_thresholds: &raw_thresholds,
             };
-            decide(&input, m)
+            decide(&input, *m)
         })
         .collect();
     Analysis {
         tasks,
         methods,
-        metrics: table.metric_names.clone(),
+        metrics: metric_ids,
         sizes,
         summaries,
         paired,
@@ -628,6 +628,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
 /// distance to it) over its units.
 fn margins_of(
     table: &UnitTable,
+    metric_ids: &[MetricId],
     cells: &steps::Cells,
     sizes: &BTreeMap<String, Vec<usize>>,
     settings: &AnalysisSettings,
@@ -638,7 +639,7 @@ fn margins_of(
             let Some(rc) = cells.get(&(task.clone(), size, settings.reference.clone())) else {
                 continue;
             };
-            for (mi, metric) in table.metric_names.iter().enumerate() {
+            for (mi, &metric) in metric_ids.iter().enumerate() {
                 if !is_compared(metric) {
                     continue;
                 }
@@ -654,7 +655,7 @@ fn margins_of(
                     v.iter().sum::<f64>() / v.len() as f64
                 };
                 out.insert(
-                    (task.clone(), size, metric.clone()),
+                    (task.clone(), size, metric),
                     settings.margin_for(metric, mean),
                 );
             }

@@ -4,9 +4,10 @@
 use std::collections::BTreeMap;
 
 use super::{
-    compared_value, higher_is_better, pair_up, paired_interval, AcrossRow, AnalysisSettings,
-    MethodSummary, Paired, ThresholdRow,
+    compared_value, pair_up, paired_interval, AcrossRow, AnalysisSettings, MethodSummary, Paired,
+    ThresholdRow,
 };
+use crate::metrics::MetricId;
 use crate::run::table::UnitTable;
 use crate::stats::across::across_tasks;
 use crate::stats::paired::Interval;
@@ -33,11 +34,11 @@ pub struct StepInput<'a> {
 /// the primary metric, then the log loss and the Brier score when the suite
 /// scores them (the two proper scoring rules the tool offers; ECE is not a
 /// proper score and AUC does not see calibration).
-pub fn decision_metrics(primary: &str, available: &[String]) -> Vec<String> {
-    let mut out = vec![primary.to_string()];
-    for m in ["log_loss", "brier"] {
-        if m != primary && available.iter().any(|a| a == m) {
-            out.push(m.to_string());
+pub fn decision_metrics(primary: Option<MetricId>, available: &[MetricId]) -> Vec<MetricId> {
+    let mut out: Vec<MetricId> = primary.into_iter().collect();
+    for m in [MetricId::LogLoss, MetricId::Brier] {
+        if Some(m) != primary {
+            out.push(m);
         }
     }
     out.retain(|m| available.contains(m));
@@ -46,8 +47,8 @@ pub fn decision_metrics(primary: &str, available: &[String]) -> Vec<String> {
 
 /// Average ranks, Friedman / Iman–Davenport, Nemenyi and Holm–Wilcoxon per
 /// calibration size over the tasks with a value for every method.
-pub fn across_step(c: &StepInput, metric: &str) -> Vec<AcrossRow> {
-    let hib = higher_is_better(metric);
+pub fn across_step(c: &StepInput, metric: MetricId) -> Vec<AcrossRow> {
+    let hib = metric.higher_is_better();
     let all_sizes: std::collections::BTreeSet<usize> =
         c.sizes.values().flatten().copied().collect();
     let mut across = Vec::new();
@@ -103,7 +104,7 @@ pub fn across_step(c: &StepInput, metric: &str) -> Vec<AcrossRow> {
             .collect();
         across.push(AcrossRow {
             size,
-            metric: metric.to_string(),
+            metric,
             tasks: used,
             methods: c.methods.to_vec(),
             result,
@@ -131,7 +132,7 @@ pub fn pair_interval(
     size: usize,
     a: &str,
     b: &str,
-    metric: &str,
+    metric: MetricId,
     mi: usize,
 ) -> Option<Interval> {
     let (Some(ca), Some(cb)) = (
@@ -145,7 +146,7 @@ pub fn pair_interval(
         return None;
     }
     let iv = paired_interval(c.table, &pr, metric, c.settings);
-    Some(if higher_is_better(metric) {
+    Some(if metric.higher_is_better() {
         Interval {
             mean: -iv.mean,
             low: -iv.high,
@@ -158,7 +159,7 @@ pub fn pair_interval(
 }
 
 /// Data-size thresholds of every (flexible, parametric) pair on every task.
-pub fn threshold_step(c: &StepInput, metric: &str, mi: usize) -> ThresholdOutput {
+pub fn threshold_step(c: &StepInput, metric: MetricId, mi: usize) -> ThresholdOutput {
     pair_thresholds(c, metric, mi, &c.settings.pairs)
 }
 
@@ -176,7 +177,7 @@ pub fn raw_pairs(methods: &[String], raw: &str) -> Vec<(String, String)> {
 /// task: from which size the first is reliably better than the second.
 pub fn pair_thresholds(
     c: &StepInput,
-    metric: &str,
+    metric: MetricId,
     mi: usize,
     pairs: &[(String, String)],
 ) -> ThresholdOutput {
@@ -213,7 +214,7 @@ pub fn pair_thresholds(
                 task: task.clone(),
                 flexible: flex.clone(),
                 parametric: para.clone(),
-                metric: metric.to_string(),
+                metric,
                 points: pts,
                 result,
             });

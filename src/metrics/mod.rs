@@ -150,6 +150,31 @@ pub enum MetricId {
     Auc,
 }
 
+impl std::fmt::Display for MetricId {
+    /// The id as written in suites and in the `units.csv` header.
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.pad(self.as_str())
+    }
+}
+
+impl AsRef<str> for MetricId {
+    fn as_ref(&self) -> &str {
+        self.as_str()
+    }
+}
+
+impl PartialEq<str> for MetricId {
+    fn eq(&self, other: &str) -> bool {
+        self.as_str() == other
+    }
+}
+
+impl PartialEq<&str> for MetricId {
+    fn eq(&self, other: &&str) -> bool {
+        self.as_str() == *other
+    }
+}
+
 impl MetricId {
     pub const ALL: &'static [MetricId] = &[
         MetricId::LogLoss,
@@ -214,6 +239,8 @@ impl MetricId {
         }
     }
 
+    /// True when a larger value is better ([`Goal::Higher`]); every other
+    /// goal is compared as a loss.
     pub fn higher_is_better(self) -> bool {
         self.goal() == Goal::Higher
     }

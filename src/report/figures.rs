@@ -360,17 +360,16 @@ fn key(
     )
 }
 
-fn higher_is_better(metric: &str) -> bool {
-    MetricId::parse(metric)
-        .map(|m| m.higher_is_better())
-        .unwrap_or(false)
-}
-
 /// One method's points of a learning curve: (size, mean, low, high).
 type Series<'a> = (&'a String, Vec<(usize, f64, f64, f64)>);
 
 /// Learning curves of one task: one panel per method against the reference.
-pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) -> Option<String> {
+pub fn learning_curves(
+    a: &Analysis,
+    task: &str,
+    metric: MetricId,
+    reference: &str,
+) -> Option<String> {
     let sizes = a.sizes.get(task)?;
     let (xmin, xmax) = ((*sizes.first()? as f64).ln(), (*sizes.last()? as f64).ln());
     let xspan = if xmax > xmin { xmax - xmin } else { 1.0 };
@@ -411,7 +410,7 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
         .fold(0.0f64, f64::max)
         + 10.0;
     let w = w.ceil();
-    let better = if higher_is_better(metric) {
+    let better = if metric.higher_is_better() {
         "above"
     } else {
         "below"
@@ -506,7 +505,7 @@ pub fn learning_curves(a: &Analysis, task: &str, metric: &str, reference: &str) 
         }
         s.push('\n');
         // Reliably better than the reference from this size on.
-        let hib = higher_is_better(metric);
+        let hib = metric.higher_is_better();
         let mut from = None;
         for p in pts.iter().rev() {
             let better = if hib { p.2 > 0.0 } else { p.3 < 0.0 };
@@ -987,7 +986,7 @@ pub fn cd_groups(sorted_ranks: &[f64], cd: f64) -> Vec<(usize, usize)> {
 }
 
 /// The rank diagram of one metric: one strip per calibration size.
-pub fn rank_figure(a: &Analysis, metric: &str) -> Option<String> {
+pub fn rank_figure(a: &Analysis, metric: MetricId) -> Option<String> {
     let rows: Vec<_> = a
         .across
         .iter()
@@ -1157,7 +1156,7 @@ fn size_colour(frac: f64) -> String {
 }
 
 /// The threshold chart of one metric: rows = tasks, columns = pairs.
-pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
+pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
     let rows: Vec<_> = a.thresholds.iter().filter(|t| t.metric == metric).collect();
     if rows.is_empty() {
         return None;
@@ -1350,7 +1349,7 @@ pub fn threshold_figure(a: &Analysis, metric: &str) -> Option<String> {
 }
 
 /// File name of a task's learning-curve figure.
-pub fn figure_name(task: &str, metric: &str) -> String {
+pub fn figure_name(task: &str, metric: MetricId) -> String {
     format!("figures/{task}--{metric}.svg")
 }
 

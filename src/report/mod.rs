@@ -42,23 +42,29 @@ pub fn publish(a: &Analysis, ctx: &summary::ReportContext) -> Vec<(String, Vec<u
     files.push(("reliability_hist.csv".to_string(), hist.into_bytes()));
     files.push(("reliability_terms.csv".to_string(), terms.into_bytes()));
     let mut tex = String::from("% plumbline tables (requires \\usepackage{booktabs})\n");
-    for t in summary::task_tables(a, s, &s.primary_metric, false) {
+    let primary = s.primary();
+    for t in primary
+        .map(|m| summary::task_tables(a, s, m, false))
+        .unwrap_or_default()
+    {
         tex.push_str(&t.to_latex());
         tex.push('\n');
     }
     files.push(("tables.tex".to_string(), tex.into_bytes()));
     let mut figs: Vec<(String, String)> = Vec::new();
     for d in &a.decisions {
-        if let Some(svg) = figures::rank_figure(a, &d.metric) {
+        if let Some(svg) = figures::rank_figure(a, d.metric) {
             figs.push((format!("figures/ranks--{}.svg", d.metric), svg));
         }
-        if let Some(svg) = figures::threshold_figure(a, &d.metric) {
+        if let Some(svg) = figures::threshold_figure(a, d.metric) {
             figs.push((format!("figures/thresholds--{}.svg", d.metric), svg));
         }
     }
     for task in &a.tasks {
-        if let Some(svg) = figures::learning_curves(a, task, &s.primary_metric, &s.reference) {
-            figs.push((figures::figure_name(task, &s.primary_metric), svg));
+        if let Some(m) = primary {
+            if let Some(svg) = figures::learning_curves(a, task, m, &s.reference) {
+                figs.push((figures::figure_name(task, m), svg));
+            }
         }
         if let Some(svg) = figures::reliability_figure(a, task, &ctx.curves, s.confidence) {
             figs.push((figures::reliability_name(task), svg));

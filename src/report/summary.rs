@@ -10,6 +10,7 @@ use crate::analysis::{
     SizeVerdict, DECISIVE,
 };
 use crate::metrics::reliability::CurveRecord;
+use crate::metrics::MetricId;
 use crate::stats::paired::IntervalKind;
 use crate::stats::thresholds::Spread;
 use crate::stats::verdict::{marks_slashed, Verdict};
@@ -46,7 +47,12 @@ pub fn margin_words(s: &AnalysisSettings) -> String {
 }
 
 /// One table per task for `metric`: rows = methods, columns = sizes.
-pub fn task_tables(a: &Analysis, s: &AnalysisSettings, metric: &str, markdown: bool) -> Vec<Table> {
+pub fn task_tables(
+    a: &Analysis,
+    s: &AnalysisSettings,
+    metric: MetricId,
+    markdown: bool,
+) -> Vec<Table> {
     a.tasks
         .iter()
         .map(|task| task_table(a, s, metric, task, markdown))
@@ -57,7 +63,7 @@ pub fn task_tables(a: &Analysis, s: &AnalysisSettings, metric: &str, markdown: b
 pub fn task_table(
     a: &Analysis,
     s: &AnalysisSettings,
-    metric: &str,
+    metric: MetricId,
     task: &str,
     markdown: bool,
 ) -> Table {
@@ -649,8 +655,11 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
             d.datasets
         )));
     }
-    let log_loss: Vec<&crate::analysis::Paired> =
-        a.paired.iter().filter(|p| p.metric == "log_loss").collect();
+    let log_loss: Vec<&crate::analysis::Paired> = a
+        .paired
+        .iter()
+        .filter(|p| p.metric == MetricId::LogLoss)
+        .collect();
     let wide = log_loss
         .iter()
         .filter(|p| p.reservoir_order == Some(1) && !p.rare_class())
@@ -788,6 +797,7 @@ fn rank_blocks(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> 
     }
     if detail == Detail::Full {
         let primary = &s.primary_metric;
+        let primary_id = s.primary();
         let others: Vec<&String> = a.methods.iter().filter(|m| **m != s.reference).collect();
         let mut t = Table {
             title: format!(
@@ -803,7 +813,7 @@ fn rank_blocks(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> 
             rows: Vec::new(),
             notes: Vec::new(),
         };
-        for r in a.across.iter().filter(|r| &r.metric == primary) {
+        for r in a.across.iter().filter(|r| Some(r.metric) == primary_id) {
             let mut row = vec![r.size.to_string()];
             for m in &others {
                 row.push(
@@ -841,7 +851,7 @@ fn threshold_blocks(a: &Analysis, detail: Detail) -> Vec<Block> {
             " (their range is in summary.md)"
         }
     )));
-    let metrics: Vec<String> = a.decisions.iter().map(|d| d.metric.clone()).collect();
+    let metrics: Vec<MetricId> = a.decisions.iter().map(|d| d.metric).collect();
     let mut pairs: Vec<(String, String)> = Vec::new();
     for (_, p, _) in &a.threshold_summaries {
         if !pairs.contains(p) {
@@ -917,18 +927,20 @@ pub fn task_blocks(a: &Analysis, ctx: &ReportContext, task: &str) -> Vec<Block> 
         format!("Task `{task}`"),
         format!("task-{}", anchor(task)),
     )];
-    if a.tasks.iter().any(|t| t == task) {
-        let mut t = task_table(a, s, &s.primary_metric, task, true);
-        t.title = format!("`{task}` — mean {} by calibration size", s.primary_metric);
-        out.push(Block::Table(t));
+    if let Some(primary) = s.primary() {
+        if a.tasks.iter().any(|t| t == task) {
+            let mut t = task_table(a, s, primary, task, true);
+            t.title = format!("`{task}` — mean {primary} by calibration size");
+            out.push(Block::Table(t));
+        }
+        out.push(Block::Figure(
+            figures::figure_name(task, primary),
+            format!(
+                "learning curves of {task}: difference to {} by size",
+                s.reference
+            ),
+        ));
     }
-    out.push(Block::Figure(
-        figures::figure_name(task, &s.primary_metric),
-        format!(
-            "learning curves of {task}: difference to {} by size",
-            s.reference
-        ),
-    ));
     if ctx.curves.iter().any(|c| c.task == task) {
         out.push(Block::Figure(
             figures::reliability_name(task),

@@ -11,6 +11,8 @@
 
 use std::io::{Read, Write};
 
+use crate::metrics::MetricId;
+
 /// One row of `units.csv`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct UnitRow {
@@ -73,8 +75,19 @@ fn opt(v: Option<f64>) -> String {
 }
 
 impl UnitTable {
-    pub fn metric_index(&self, name: &str) -> Option<usize> {
+    /// The column of a metric, by id or by its name.
+    pub fn metric_index(&self, metric: impl AsRef<str>) -> Option<usize> {
+        let name = metric.as_ref();
         self.metric_names.iter().position(|m| m == name)
+    }
+
+    /// The metric columns as ids, in column order (every metric column is a
+    /// metric id: [`UnitTable::read_csv`] refuses any other).
+    pub fn metric_ids(&self) -> Vec<MetricId> {
+        self.metric_names
+            .iter()
+            .filter_map(|n| MetricId::parse(n))
+            .collect()
     }
     pub fn extra_index(&self, name: &str) -> Option<usize> {
         self.extra_names.iter().position(|m| m == name)
@@ -130,6 +143,12 @@ impl UnitTable {
             ));
         }
         let metric_names = head[5..mid].to_vec();
+        if let Some(n) = metric_names.iter().find(|n| MetricId::parse(n).is_none()) {
+            return Err(bad(
+                1,
+                format!("column `{n}` before `clipped` is not a metric id"),
+            ));
+        }
         let extra_names = head[mid + 4..].to_vec();
         let mut rows = Vec::new();
         for rec in rdr.records() {
@@ -241,5 +260,20 @@ mod tests {
         let mut buf2 = Vec::new();
         back.write_csv(&mut buf2).unwrap();
         assert_eq!(buf, buf2);
+    }
+
+    #[test]
+    fn a_column_that_is_no_metric_id_is_refused() {
+        let text =
+            "task,size,repeat,method,status,log_loss,bogus,clipped,positives,reservoir,test_rows\n";
+        let e = UnitTable::read_csv(text.as_bytes())
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("units.csv:1: column `bogus`"), "{e}");
+        let ok =
+            "task,size,repeat,method,status,log_loss,brier,clipped,positives,reservoir,test_rows\n";
+        let t = UnitTable::read_csv(ok.as_bytes()).unwrap();
+        assert_eq!(t.metric_ids(), [MetricId::LogLoss, MetricId::Brier]);
+        assert_eq!(t.metric_index(MetricId::Brier), Some(1));
     }
 }

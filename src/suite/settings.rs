@@ -113,7 +113,7 @@ pub(super) fn decision_plan(
                     ),
                 ));
             };
-            if !crate::analysis::is_compared(metric.as_str()) {
+            if !crate::analysis::is_compared(metric) {
                 return Err(ctx.err(
                     v.span(),
                     &key,
