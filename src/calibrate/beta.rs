@@ -14,8 +14,8 @@
 //! For one feature the sign of the fitted slope is the sign of the covariance
 //! of the feature with the labels (see `slope_sign`), computed from exact
 //! counts: a slope that is zero in exact arithmetic gives a = 0 and no refit,
-//! rather than a rounding-level value of either sign. The shared fitter sums
-//! the rows in a canonical order, so the map and its notes do not depend on
+//! rather than a rounding-level value of either sign. The shared fitter's sums
+//! over the rows are order-free, so the map and its notes do not depend on
 //! the order of the calibration rows.
 //!
 //! The tied (two-parameter) form a = b is logit p = a·logit(s) + c, i.e. logistic

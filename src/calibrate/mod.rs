@@ -17,6 +17,7 @@ use serde::{Deserialize, Serialize};
 pub mod beta;
 pub mod binning;
 pub mod centered_isotonic;
+pub mod exact_sum;
 pub mod identity;
 pub mod isotonic;
 pub mod logistic;

@@ -45,14 +45,14 @@ pub fn is_separable(x: &[f64], y: &[bool]) -> bool {
     let mut min_neg = f64::INFINITY;
     let mut max_pos = f64::NEG_INFINITY;
     let mut min_pos = f64::INFINITY;
+    // Branch-free (the labels are unpredictable): each row updates the
+    // extremes of its class, and the other class's with a neutral value.
     for (&s, &l) in x.iter().zip(y) {
-        if l {
-            max_pos = max_pos.max(s);
-            min_pos = min_pos.min(s);
-        } else {
-            max_neg = max_neg.max(s);
-            min_neg = min_neg.min(s);
-        }
+        let (inf, ninf) = (f64::INFINITY, f64::NEG_INFINITY);
+        max_pos = max_pos.max(if l { s } else { ninf });
+        min_pos = min_pos.min(if l { s } else { inf });
+        max_neg = max_neg.max(if l { ninf } else { s });
+        min_neg = min_neg.min(if l { inf } else { s });
     }
     max_neg <= min_pos || max_pos <= min_neg
 }
