@@ -8,18 +8,20 @@
 //!
 //! Fitting: in β = 1/T the negative log-likelihood
 //! F(β) = Σ_i [softplus(β z_i) − t_i β z_i] is convex, with F′(β) = Σ (σ(β z_i) − t_i) z_i
-//! and F″(β) = Σ σ(1 − σ) z_i² ≥ 0, so we solve F′(β) = 0 on β ≥ 0 by Newton's method
-//! safeguarded by a bracket (bisection, or doubling while no upper end is known).
+//! and F″(β) = Σ σ(1 − σ) z_i² ≥ 0, so we solve F′(β) = 0 on β ≥ 0 by Halley's method
+//! (Newton's with the third derivative F‴(β) = Σ σ(1 − σ)(1 − 2σ) z_i³, cubic
+//! convergence; a plain Newton step when Halley's correction is large), safeguarded
+//! by a bracket (bisection, or doubling while no upper end is known).
 //! This is the same optimum as minimising over T, since T ↦ 1/T is monotone.
 //! The search starts at β = 1, or, for samples of at least 32,768 rows, at the
 //! fit of a subsample of about one row in 16 (rows chosen by a hash of their
 //! values, recursively). It stops when |F′| ≤ 1e-13·Σ|z_i|, or when the
-//! quadratic convergence seen over the last two Newton steps puts |F′| after
+//! quadratic convergence seen over the last two steps puts |F′| after
 //! the current step 100 times below that (the step is then taken).
 //!
-//! Cost: one exponential per row and step, in blocks of 128 rows, and two
-//! order-free sums (`exact_sum`): F′ to the last bits, F″ (which only steers
-//! the steps) to about 2^-42. The result does not depend on the order of the
+//! Cost: one exponential per row and step, in blocks of 128 rows, and three
+//! order-free sums (`exact_sum`): F′ to the last bits, F″ and F‴ (which only
+//! steer the steps) to about 2^-42. The result does not depend on the order of the
 //! rows, not even in the last bit, and no sort is needed.
 //!
 //! Edges:
@@ -34,6 +36,7 @@
 //! * All z = 0: every T gives p = 1/2; T = 1 is reported.
 
 use super::exact_sum::{pow2_above, Grid, Lane, Total, CHUNK};
+use super::logistic::sigmoid_pair;
 use super::platt::smoothed_targets;
 use super::{check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, ScoreKind};
 
@@ -62,12 +65,19 @@ const WARM_START_ROWS: usize = 1 << 15;
 /// same rows in any order; each level reads the next four bits of the hash).
 fn fit_at_level(z: &[f64], t: &[f64], level: u32) -> (f64, usize) {
     let zmax = z.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-    let finite = zmax.is_finite() && t.iter().all(|v| v.is_finite());
-    if !finite {
+    // The largest |1/2 − t|, NaN when some t is not finite.
+    let half_dev = t.iter().fold(0.0f64, |m, &v| {
+        let d = (0.5 - v).abs();
+        if d > m || d.is_nan() {
+            d
+        } else {
+            m
+        }
+    });
+    if !(zmax.is_finite() && half_dev.is_finite()) || z.iter().any(|v| v.is_nan()) {
         return (f64::NAN, 0);
     }
     // Σ|z| and F′(0) = Σ (1/2 − t)·z in one pass.
-    let half_dev = t.iter().fold(0.0f64, |m, v| m.max((0.5 - v).abs()));
     let (Some(ga), Some(g0g)) = (
         Grid::for_bound(zmax),
         Grid::for_bound(zmax * half_dev * (1.0 + 1e-9)),
@@ -75,11 +85,17 @@ fn fit_at_level(z: &[f64], t: &[f64], level: u32) -> (f64, usize) {
         return (f64::NAN, 0);
     };
     let (mut ta, mut t0) = (Total::default(), Total::default());
+    let (mut ab, mut gb) = ([0.0f64; 128], [0.0f64; 128]);
     for (zc, tc) in z.chunks(CHUNK).zip(t.chunks(CHUNK)) {
         let (mut la, mut l0) = (Lane::default(), Lane::default());
-        for (&zi, &ti) in zc.iter().zip(tc) {
-            la.add(zi.abs(), &ga);
-            l0.add((0.5 - ti) * zi, &g0g);
+        for (zs, ts) in zc.chunks(128).zip(tc.chunks(128)) {
+            let m = zs.len();
+            for i in 0..m {
+                ab[i] = zs[i].abs();
+                gb[i] = (0.5 - ts[i]) * zs[i];
+            }
+            la.add_slice(&ab[..m], &ga);
+            l0.add_slice(&gb[..m], &g0g);
         }
         ta.flush(&mut la, &ga);
         t0.flush(&mut l0, &g0g);
@@ -92,22 +108,24 @@ fn fit_at_level(z: &[f64], t: &[f64], level: u32) -> (f64, usize) {
     if g0 >= -tol {
         return (0.0, 0);
     }
-    // F′ and F″ at β, with the largest |p − t| and p(1 − p) seen, whose
+    // F′, F″ and F‴ at β, with the largest |p − t| and p(1 − p) seen, whose
     // bounds set the grids (|p − t| ≤ 1, p(1 − p) ≤ 1/4 at first, then 2^10
     // above the largest terms of the previous pass; a pass whose terms exceed
     // the bounds, or stay 2^20 below them, runs again with tight bounds).
-    let pass = |beta: f64, rb: f64, wb: f64| -> (f64, f64, f64, f64) {
+    let nan5 = (f64::NAN, f64::NAN, f64::NAN, f64::NAN, f64::NAN);
+    let pass = |beta: f64, rb: f64, wb: f64| -> (f64, f64, f64, f64, f64) {
         // Every β·z, and so every term, is finite when this is.
         if !(beta * zmax).is_finite() {
-            return (f64::NAN, f64::NAN, f64::NAN, f64::NAN);
+            return nan5;
         }
-        let (Some(gg), Some(gh)) = (
+        let (Some(gg), Some(gh), Some(gk)) = (
             Grid::for_bound(zmax * rb * (1.0 + 1e-9)),
             Grid::for_bound(zmax * zmax * wb * (1.0 + 1e-9)),
+            Grid::for_bound(zmax * zmax * zmax * wb * (1.0 + 1e-9)),
         ) else {
-            return (f64::NAN, f64::NAN, f64::NAN, f64::NAN);
+            return nan5;
         };
-        let (mut tg, mut th) = (Total::default(), Total::default());
+        let (mut tg, mut th, mut tk) = (Total::default(), Total::default(), Total::default());
         let (mut rmax, mut wmax) = (0.0f64, 0.0f64);
         // Blocks of rows: the exponentials (library calls) first, then the
         // terms and their sums in loops the compiler can vectorise.
@@ -115,52 +133,50 @@ fn fit_at_level(z: &[f64], t: &[f64], level: u32) -> (f64, usize) {
         let mut eb = [0.0f64; BLOCK];
         let mut gb = [0.0f64; BLOCK];
         let mut hb = [0.0f64; BLOCK];
+        let mut kb = [0.0f64; BLOCK];
         for (zc, tc) in z.chunks(CHUNK).zip(t.chunks(CHUNK)) {
-            let (mut lg, mut lh) = (Lane::default(), Lane::default());
+            let (mut lg, mut lh, mut lk) = (Lane::default(), Lane::default(), Lane::default());
             for (zs, ts) in zc.chunks(BLOCK).zip(tc.chunks(BLOCK)) {
                 let m = zs.len();
                 for i in 0..m {
                     eb[i] = (-(beta * zs[i]).abs()).exp();
                 }
                 for i in 0..m {
-                    let (zi, ti, e) = (zs[i], ts[i], eb[i]);
-                    let ri = 1.0 / (1.0 + e);
+                    let (zi, ti) = (zs[i], ts[i]);
                     // p and q = 1 − p without cancellation; r = p − t.
-                    let (p, q) = if beta * zi >= 0.0 {
-                        (ri, e * ri)
-                    } else {
-                        (e * ri, ri)
-                    };
+                    let (p, q, w) = sigmoid_pair(beta * zi, eb[i]);
                     let r = (1.0 - ti) * p - ti * q;
-                    let w = e * ri * ri;
                     // (Plain comparisons: every term is finite here.)
                     let ra = r.abs();
                     rmax = if ra > rmax { ra } else { rmax };
                     wmax = if w > wmax { w } else { wmax };
                     gb[i] = r * zi;
                     hb[i] = w * zi * zi;
+                    kb[i] = hb[i] * (q - p) * zi;
                 }
-                // F′ to the last bits; F″, which only steers the steps, to
-                // about 2^-42 (`Lane::add_slice_coarse`).
+                // F′ to the last bits; F″ and F‴, which only steer the
+                // steps, to about 2^-42 (`Lane::add_slice_coarse`).
                 lg.add_slice(&gb[..m], &gg);
                 lh.add_slice_coarse(&hb[..m], &gh);
+                lk.add_slice_coarse(&kb[..m], &gk);
             }
             tg.flush(&mut lg, &gg);
             th.flush(&mut lh, &gh);
+            tk.flush(&mut lk, &gk);
         }
-        (tg.value(&gg), th.value(&gh), rmax, wmax)
+        (tg.value(&gg), th.value(&gh), tk.value(&gk), rmax, wmax)
     };
     let mut bounds = (1.0f64, 0.25f64);
-    let mut grad_hess = |beta: f64| -> (f64, f64) {
+    let mut derivatives = |beta: f64| -> (f64, f64, f64) {
         let (rb, wb) = bounds;
-        let (mut g, mut h, rmax, wmax) = pass(beta, rb, wb);
+        let (mut g, mut h, mut k, rmax, wmax) = pass(beta, rb, wb);
         let over = rmax > rb || wmax > wb;
         let loose = |s: f64, b: f64| s > 0.0 && s < b * 2f64.powi(-20);
         if over || loose(rmax, rb) || loose(wmax, wb) {
-            (g, h, _, _) = pass(beta, pow2_above(rmax), pow2_above(wmax));
+            (g, h, k, _, _) = pass(beta, pow2_above(rmax), pow2_above(wmax));
         }
         bounds = ((rmax * 1024.0).min(1.0), (wmax * 1024.0).min(0.25));
-        (g, h)
+        (g, h, k)
     };
     let (mut lo, mut hi) = (0.0f64, f64::INFINITY);
     let mut beta = 1.0;
@@ -188,7 +204,7 @@ fn fit_at_level(z: &[f64], t: &[f64], level: u32) -> (f64, usize) {
     let mut prev_g = f64::NAN;
     for it in 0..200 {
         iterations = it + 1;
-        let (g, h) = grad_hess(beta);
+        let (g, h, k) = derivatives(beta);
         if g.abs() <= tol {
             break;
         }
@@ -197,9 +213,21 @@ fn fit_at_level(z: &[f64], t: &[f64], level: u32) -> (f64, usize) {
         } else {
             hi = beta;
         }
+        // Halley's step β − (g/h)/(1 − g·k/(2h²)) (cubic convergence; k =
+        // F‴), when its correction to the Newton step is moderate, else the
+        // Newton step; either only inside the bracket.
         let newton = if h > 0.0 { beta - g / h } else { f64::NAN };
-        let inside = newton > lo && newton < hi;
-        let next = if inside {
+        let c = g * k / (2.0 * h * h);
+        let halley = if c.abs() <= 0.5 {
+            beta - (g / h) / (1.0 - c)
+        } else {
+            f64::NAN
+        };
+        let within = |x: f64| x > lo && x < hi;
+        let inside = within(halley) || within(newton);
+        let next = if within(halley) {
+            halley
+        } else if within(newton) {
             newton
         } else if hi.is_finite() {
             0.5 * (lo + hi)
@@ -209,9 +237,10 @@ fn fit_at_level(z: &[f64], t: &[f64], level: u32) -> (f64, usize) {
         if (next - beta).abs() <= 1e-15 * beta.max(1e-300) || !next.is_finite() {
             break;
         }
-        // Quadratic convergence seen over the last two Newton steps
-        // (|g_k| ≈ K·g_(k−1)²) that puts the gradient after this step 100
-        // times below the tolerance: take it and stop.
+        // Quadratic convergence seen over the last two steps (|g_k| ≈
+        // K·g_(k−1)²; Halley's steps converge faster, so this overestimates)
+        // that puts the gradient after this step 100 times below the
+        // tolerance: take it and stop.
         let predicted = g.abs() * (g / prev_g) * (g / prev_g);
         prev_g = if inside { g } else { f64::NAN };
         beta = next;
