@@ -193,11 +193,12 @@ impl Total {
         self.a1 += other.a1;
         self.a2 += other.a2;
     }
-    /// The sum, correctly rounded from its exact integer form.
+    /// The sum, correctly rounded from its exact integer form (sums whose
+    /// value is subnormal may be rounded twice).
     pub fn value(&self, g: &Grid) -> f64 {
         let units = (self.a1 << (53 - CHUNK_BITS)) + self.a2;
-        // One rounding to f64, then an exact power-of-two scaling (a single
-        // rounding of a product whose result is subnormal).
+        // One rounding to f64, then a power-of-two scaling, exact unless the
+        // result is subnormal.
         units as f64 * g.g2
     }
 }

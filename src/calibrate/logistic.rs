@@ -505,11 +505,12 @@ struct Fitter<'a> {
 /// The largest |z| at a point (bounds the objective's terms).
 fn z_bound(data: &Data, pt: &Point) -> f64 {
     let vmax = data.vmax(&pt.centre);
-    let mut z = pt.w[data.d].abs();
-    for j in 0..data.d {
-        z += pt.w[j].abs() * vmax[j];
-    }
-    z
+    let slopes: f64 = pt.w[..data.d]
+        .iter()
+        .zip(&vmax)
+        .map(|(w, v)| w.abs() * v)
+        .sum();
+    pt.w[data.d].abs() + slopes
 }
 
 impl<'a> Fitter<'a> {
@@ -570,9 +571,7 @@ impl<'a> Fitter<'a> {
             h: [[0.0; P]; P],
             ubar: [0.0; MAX_FEATURES],
         };
-        for j in 0..=d {
-            ev.g[j] = sums[1 + j];
-        }
+        ev.g[..=d].copy_from_slice(&sums[1..=d + 1]);
         if sw > 0.0 {
             for j in 0..d {
                 ev.ubar[j] = sums[SW + 1 + j] / sw;
@@ -583,7 +582,9 @@ impl<'a> Fitter<'a> {
             for b in 0..=a {
                 let raw = sums[SW + 1 + MAX_FEATURES + tri(a, b)];
                 ev.h[a][b] = raw - ev.ubar[a] * sums[SW + 1 + b];
-                if a == b && raw > 0.0 && !(ev.h[a][a] > 1e-4 * raw) {
+                // (A NaN also counts as lost.)
+                let kept = ev.h[a][a] > 1e-4 * raw;
+                if a == b && raw > 0.0 && !kept {
                     cancelled = true;
                 }
             }
