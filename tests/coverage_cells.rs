@@ -30,7 +30,7 @@ fn default_interval_covers_at_reduced_size() {
     .iter()
     .map(|(a, b)| (a.to_string(), b.to_string()))
     .collect();
-    cfg.sizes = vec![50, 200, 1000];
+    cfg.sizes = vec![50, 200, 2000];
     cfg.replicates = 200;
     cfg.truth.samples = 1000;
     cfg.kinds = vec![IntervalKind::default(), IntervalKind::PairedT];
@@ -60,7 +60,7 @@ fn default_interval_covers_at_reduced_size() {
     // reservoir and undercovers badly at half the reservoir.
     let pt_large: Vec<f64> = rows
         .iter()
-        .filter(|r| r.kind == IntervalKind::PairedT && r.size == 1000)
+        .filter(|r| r.kind == IntervalKind::PairedT && r.size == 2000)
         .map(|r| r.coverage())
         .collect();
     assert!(pt_large.iter().any(|&c| c < lo), "{pt_large:?}");

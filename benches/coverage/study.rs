@@ -379,9 +379,9 @@ impl StudyConfig {
             methods,
             pairs,
             metrics: vec![MetricId::LogLoss, MetricId::Brier],
-            reservoir: 2000,
+            reservoir: 4000,
             test_rows: 2000,
-            sizes: vec![50, 100, 200, 500, 1000],
+            sizes: vec![50, 100, 200, 500, 1000, 2000],
             repeats: 30,
             replicates: 1000,
             truth: TruthConfig {
