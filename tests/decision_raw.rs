@@ -319,6 +319,40 @@ fn one_dataset_is_decided_by_its_paired_intervals() {
     assert!(!raw.keep_raw());
 }
 
+/// A team with one score file gets a decision too: with one task the ranks
+/// are that task's, and the paired intervals decide. On p³ labels (the
+/// control above) the calibrators beat the raw scores at n = 800, so the raw
+/// scores are not kept, and the report names its one-dataset test.
+#[test]
+fn a_single_score_file_gets_a_decision() {
+    let files = vec![calibrated_csv(3000, 7_111, 3.0)];
+    let ids = vec!["mine".to_string()];
+    let (a, out, _dir) = run(&files, &suite_of(&RAW_METHODS, "100, 800", &ids));
+    assert_eq!(a.decisions.len(), 2, "one decision per decision metric");
+    let d = &a.decisions[0];
+    assert_eq!(d.per_size.len(), 2);
+    for v in &d.per_size {
+        assert_eq!((v.tasks, v.datasets), (1, 1));
+        // The default's rank is its rank on the one task: a whole number.
+        assert_eq!(v.default_rank.fract(), 0.0, "{v:?}");
+        for (m, e) in &v.versus {
+            assert_eq!(e.decided_by, DecidedBy::Intervals, "{m}");
+        }
+    }
+    // The standing is the task's ranks averaged over the two sizes.
+    assert!(d.standing.iter().all(|(_, r)| (1.0..=4.0).contains(r)));
+    assert_ne!(d.default, "identity", "{:?}", d.standing);
+    let large = &d.per_size[1];
+    let raw = large.raw.as_ref().unwrap();
+    assert!(!raw.keep_raw(), "{raw:?}");
+    let text = summary(&out);
+    assert!(!text.contains("Too few tasks"), "{text}");
+    assert!(
+        text.contains("on the paired intervals of its one dataset"),
+        "{text}"
+    );
+}
+
 /// A default that a method beats reliably at one size is replaced there:
 /// On the Brier score, Platt ranks first at the three small sizes and is the
 /// default, but on a hockey-stick map its logistic curve cannot follow, and

@@ -325,12 +325,14 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
         raw_thresholds,
         ..
     } = *input;
-    let rows: Vec<_> = across
+    // Every size with at least one task that has a value for every method:
+    // the ranks are defined from one task on, and the comparisons below fall
+    // back to the paired intervals when there is a single dataset.
+    let rows: Vec<&AcrossRow> = across
         .iter()
-        .filter(|r| r.metric == metric)
-        .filter_map(|r| r.result.as_ref().ok().map(|x| (r, x)))
+        .filter(|r| r.metric == metric && !r.tasks.is_empty())
         .collect();
-    let (first, _) = rows.first()?;
+    let first = rows.first()?;
     let methods = &first.methods;
     let k = methods.len();
     let datasets_of = |tasks: &[String]| -> usize {
@@ -342,10 +344,10 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
     };
     let mut total = vec![0.0; k];
     let mut weight = 0.0;
-    for (r, x) in &rows {
+    for r in &rows {
         let w = datasets_of(&r.tasks) as f64;
         weight += w;
-        for (t, rank) in total.iter_mut().zip(&x.friedman.avg_ranks) {
+        for (t, rank) in total.iter_mut().zip(&r.avg_ranks) {
             *t += w * rank;
         }
     }
@@ -366,8 +368,8 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
     table.metric_index(metric)?;
     let raw_method = settings.raw_method.clone().filter(|r| methods.contains(r));
     let mut per_size = Vec::new();
-    for (r, x) in &rows {
-        let best = r.methods[x.best].clone();
+    for r in &rows {
+        let best = r.methods[r.best].clone();
         let versus: Vec<(String, Evidence)> = standing
             .iter()
             .map(|s| &s.0)
@@ -528,8 +530,8 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
                 why = Recommendation::KeepRaw;
             }
         }
-        let dr = x.friedman.avg_ranks[di];
-        let rr = ri.map(|i| x.friedman.avg_ranks[i]);
+        let dr = r.avg_ranks[di];
+        let rr = ri.map(|i| r.avg_ranks[i]);
         per_size.push(SizeVerdict {
             size: r.size,
             tasks: r.tasks.len(),
@@ -554,7 +556,7 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
         }
     }
     let mut tasks = BTreeSet::new();
-    for (r, _) in &rows {
+    for r in &rows {
         tasks.extend(r.tasks.iter().map(|t| t.as_str()));
     }
     let datasets: BTreeSet<&str> = tasks.iter().map(|t| task_parts(t).0).collect();

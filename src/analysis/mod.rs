@@ -111,6 +111,13 @@ pub struct AcrossRow {
     /// Tasks with a value for every method at this size.
     pub tasks: Vec<String>,
     pub methods: Vec<String>,
+    /// Average rank of each method over `tasks` (1 = lowest loss), defined
+    /// from one task on; the same values as `result`'s Friedman ranks when
+    /// that test can be computed. The decision's standing reads these, so a
+    /// suite with a single task still gets a decision.
+    pub avg_ranks: Vec<f64>,
+    /// Index of the method with the lowest average rank (first on ties).
+    pub best: usize,
     pub result: Result<AcrossTasks, String>,
     /// Per method (not the reference): tasks with each verdict against the
     /// reference.

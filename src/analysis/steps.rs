@@ -9,7 +9,7 @@ use super::{
 };
 use crate::metrics::MetricId;
 use crate::run::table::UnitTable;
-use crate::stats::across::across_tasks;
+use crate::stats::across::{across_tasks, ranks};
 use crate::stats::paired::Interval;
 use crate::stats::thresholds::{summarize, thresholds_within, ThresholdSummary};
 use crate::stats::verdict::VerdictCounts;
@@ -43,6 +43,19 @@ pub fn decision_metrics(primary: Option<MetricId>, available: &[MetricId]) -> Ve
     }
     out.retain(|m| available.contains(m));
     out
+}
+
+/// Mean over the rows (tasks) of each column's rank within its row, ranks
+/// as in the Friedman test (1 = lowest, ties share the mean rank).
+fn average_ranks(rows: &[Vec<f64>]) -> Vec<f64> {
+    let k = rows.first().map_or(0, Vec::len);
+    let mut avg = vec![0.0; k];
+    for row in rows {
+        for (a, r) in avg.iter_mut().zip(ranks(row)) {
+            *a += r / rows.len() as f64;
+        }
+    }
+    avg
 }
 
 /// Average ranks, Friedman / Iman–Davenport, Nemenyi and Holm–Wilcoxon per
@@ -82,6 +95,10 @@ pub fn across_step(c: &StepInput, metric: MetricId) -> Vec<AcrossRow> {
             continue;
         }
         let result = across_tasks(&rows, 0.05).map_err(|e| e.to_string());
+        let avg_ranks = average_ranks(&rows);
+        let best = (0..avg_ranks.len())
+            .min_by(|&a, &b| avg_ranks[a].total_cmp(&avg_ranks[b]))
+            .unwrap_or(0);
         let vs_reference = c
             .methods
             .iter()
@@ -107,6 +124,8 @@ pub fn across_step(c: &StepInput, metric: MetricId) -> Vec<AcrossRow> {
             metric,
             tasks: used,
             methods: c.methods.to_vec(),
+            avg_ranks,
+            best,
             result,
             vs_reference,
         });

@@ -428,8 +428,16 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         .iter()
         .map(|(lo, hi, m)| format!("{}: `{m}`", size_range(*lo, *hi)))
         .collect();
+    // With one dataset the signed-rank test cannot decide and the paired
+    // intervals do (see `analysis::decision`); say which.
+    let one_dataset = d.per_size.iter().all(|v| v.datasets <= 1);
+    let by = if one_dataset {
+        "on the paired intervals of its one dataset (better on every task of it)".to_string()
+    } else {
+        format!("across datasets (Bayesian signed-rank test, P ≥ {DECISIVE})")
+    };
     out.push(Block::Para(format!(
-        "No method is reliably better than `{}` across datasets (Bayesian signed-rank test, P ≥ {DECISIVE}) at {holds} of {} sizes{}. Best average rank by calibration size (a picture, not a test) — {}.",
+        "No method is reliably better than `{}` {by} at {holds} of {} sizes{}. Best average rank by calibration size (a picture, not a test) — {}.",
         d.default,
         d.per_size.len(),
         if beaten.is_empty() {
