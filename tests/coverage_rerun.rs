@@ -22,9 +22,27 @@ const TABLE: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/docs/coverage/table.cs
 /// against Platt, a step map against the raw scores and the Brier score.
 const CELLS: [(&str, &str, &str, MetricId, usize); 5] = [
     ("calibrated", "beta", "platt", MetricId::LogLoss, 100),
-    ("over-confident", "isotonic", "identity", MetricId::Brier, 50),
-    ("rare-under-confident", "temperature", "platt", MetricId::LogLoss, 50),
-    ("rare-over-confident", "identity", "platt", MetricId::Brier, 200),
+    (
+        "over-confident",
+        "isotonic",
+        "identity",
+        MetricId::Brier,
+        50,
+    ),
+    (
+        "rare-under-confident",
+        "temperature",
+        "platt",
+        MetricId::LogLoss,
+        50,
+    ),
+    (
+        "rare-over-confident",
+        "identity",
+        "platt",
+        MetricId::Brier,
+        200,
+    ),
     ("two-step", "venn-abers", "platt", MetricId::LogLoss, 50),
 ];
 
