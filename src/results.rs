@@ -376,6 +376,11 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
             .find(|m| m.spec.kind() == "identity")
             .map(|m| m.id.clone()),
         max_fallback: plan.decision.max_fallback,
+        decision_threshold: plan
+            .metrics
+            .iter()
+            .any(|m| m.uses_decision_threshold())
+            .then_some(plan.metric_settings.decision_threshold),
     }
 }
 
@@ -458,6 +463,7 @@ mod tests {
                 absolute_margins: Default::default(),
                 raw_method: Some("identity".into()),
                 max_fallback: 0.1,
+                decision_threshold: None,
             },
             tasks: vec![TaskRecord {
                 id: "a".into(),

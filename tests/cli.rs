@@ -501,6 +501,77 @@ fn bad_suites_are_rejected_with_file_line_and_key() {
     );
 }
 
+/// The metrics at a threshold: a run scores them at the suite's
+/// `decision_threshold`, records it in the manifest and states it in the
+/// report (also when `report` rebuilds the folder); a suite without them
+/// records nothing; a threshold outside (0, 1) is refused with file, key and
+/// value.
+#[test]
+fn decision_metrics_run_at_the_recorded_threshold() {
+    let fx = Fixture::new();
+    let text = GOOD
+        .replace(
+            "metrics = [\"log_loss\", \"brier\"]",
+            "metrics = [\"log_loss\", \"threshold_cost\", \"net_benefit\"]",
+        )
+        .replace(
+            "primary_metric = \"log_loss\"",
+            "primary_metric = \"net_benefit\"",
+        )
+        .replace(
+            "[test_set]",
+            "[metric_settings]\ndecision_threshold = 0.3\n\n[test_set]",
+        );
+    let suite = fx.suite("decide.toml", &text);
+    let out = fx.path("decide-out");
+    run_ok(&fx, &suite, &out, "2");
+    let manifest: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("manifest.json")).unwrap()).unwrap();
+    assert_eq!(manifest["analysis"]["decision_threshold"], 0.3);
+    let units = gunzip(&out.join("units.csv.gz"));
+    let header = units.lines().next().unwrap();
+    for col in [
+        "threshold_cost",
+        "net_benefit",
+        "net_benefit_dbatch00",
+        "threshold_cost_dbatch19",
+    ] {
+        assert!(
+            header.split(',').any(|c| c == col),
+            "{col} missing from {header}"
+        );
+    }
+    let line = "Metrics at a threshold (`threshold_cost`, `net_benefit`) score acting on a prediction when p ≥ 0.3";
+    let summary = fs::read_to_string(out.join("summary.md")).unwrap();
+    assert!(summary.contains(line), "{summary}");
+    assert!(
+        summary.contains("On `net_benefit` (the primary metric)"),
+        "{summary}"
+    );
+    bin()
+        .args(["report", out.to_str().unwrap()])
+        .assert()
+        .success();
+    assert_eq!(fs::read_to_string(out.join("summary.md")).unwrap(), summary);
+
+    let plain = fx.suite("plain.toml", GOOD);
+    let plain_out = fx.path("plain-out");
+    run_ok(&fx, &plain, &plain_out, "1");
+    let m = fs::read_to_string(plain_out.join("manifest.json")).unwrap();
+    assert!(!m.contains("decision_threshold"), "{m}");
+    let s = fs::read_to_string(plain_out.join("summary.md")).unwrap();
+    assert!(!s.contains("Metrics at a threshold"), "{s}");
+
+    must_fail(
+        &fx,
+        &text.replace("decision_threshold = 0.3", "decision_threshold = 1.0"),
+        &[
+            "bad.toml:",
+            "metric_settings.decision_threshold = 1: must be in (0, 1)",
+        ],
+    );
+}
+
 #[test]
 fn bad_score_files_are_rejected_with_file_line_column_value() {
     let fx = Fixture::new();

@@ -131,6 +131,55 @@ fn metrics_match_the_suite_metrics_and_bootstrap_is_seeded() {
     assert_ne!(a, fs::read(d.join("c/metrics.csv")).unwrap());
 }
 
+/// `--decision-threshold` moves the metrics at a threshold and is
+/// recorded in the manifest; a threshold outside (0, 1) is refused naming
+/// the option and the value, and leaves no folder.
+#[test]
+fn decision_threshold_sets_the_decision_metrics() {
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let rows = data(400);
+    let f = write(d, &rows);
+    run(&f, &d.join("t"), &["--decision-threshold", "0.3"], "1");
+    let p: Vec<f64> = rows.iter().map(|r| r.0).collect();
+    let y: Vec<bool> = rows.iter().map(|r| r.2).collect();
+    let at = MetricSettings {
+        decision_threshold: 0.3,
+        ..MetricSettings::default()
+    };
+    let table = read(&d.join("t/metrics.csv"));
+    for m in [MetricId::ThresholdCost, MetricId::NetBenefit] {
+        let r = table.iter().find(|r| r[0] == m.as_str()).unwrap();
+        let got: f64 = r[1].parse().unwrap();
+        let want = m.compute(&p, &y, &at);
+        assert_eq!(got.to_bits(), want.to_bits(), "{m}");
+        // The data are over-confident (p = q²), so the decision at 0.3
+        // differs from the one at 0.5.
+        assert_ne!(want, m.compute(&p, &y, &MetricSettings::default()), "{m}");
+    }
+    let manifest: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(d.join("t/manifest.json")).unwrap()).unwrap();
+    assert_eq!(manifest["decision_threshold"], 0.3);
+
+    for bad in ["0", "1", "2.5"] {
+        let a = bin()
+            .arg("diagnose")
+            .arg(&f)
+            .arg("--out")
+            .arg(d.join("x"))
+            .args(["--decision-threshold", bad])
+            .assert()
+            .failure();
+        let err = String::from_utf8_lossy(&a.get_output().stderr).into_owned();
+        let v: f64 = bad.parse().unwrap();
+        assert!(
+            err.contains(&format!("--decision-threshold {v}: must be in (0, 1)")),
+            "{err}"
+        );
+        assert!(!d.join("x").exists());
+    }
+}
+
 #[test]
 fn compare_is_paired() {
     let dir = TempDir::new().unwrap();
@@ -456,6 +505,7 @@ fn printed_table_fits_80_and_100_columns_with_cells_whole() {
         bootstrap: 50,
         seed: 5,
         confidence: 0.95,
+        decision_threshold: 0.5,
         force: false,
     };
     let table = plumbline::commands::diagnose::diagnose(&args)

@@ -193,6 +193,29 @@ proptest! {
     // it, a lower value is refused.
     #![proptest_config(ProptestConfig::with_cases(common::proptest_cases(256)))]
 
+    /// On one test set net benefit and the cost-weighted loss are tied by
+    /// NB(t) = π − L(t)/(2(1 − t)), π the share of positives (both count the
+    /// same FN and FP: Vickers & Elkin 2006; Hernández-Orallo et al. 2012);
+    /// acting on nobody gives NB = 0 and L = 2(1 − t)π, acting on everybody
+    /// NB = π − (1 − π)t/(1 − t) and L = 2t(1 − π).
+    #[test]
+    fn net_benefit_and_threshold_cost_are_tied(
+        (p, y) in tied_sample(),
+        t in 0.01f64..0.99,
+    ) {
+        let s = MetricSettings { decision_threshold: t, ..MetricSettings::default() };
+        let pi = y.iter().filter(|&&v| v).count() as f64 / y.len() as f64;
+        let nb = MetricId::NetBenefit.compute(&p, &y, &s);
+        let l = MetricId::ThresholdCost.compute(&p, &y, &s);
+        prop_assert!((nb - (pi - l / (2.0 * (1.0 - t)))).abs() < 1e-9, "{nb} {l} {pi}");
+        let none = vec![0.0; p.len()];
+        prop_assert_eq!(MetricId::NetBenefit.compute(&none, &y, &s), 0.0);
+        prop_assert!((MetricId::ThresholdCost.compute(&none, &y, &s) - 2.0 * (1.0 - t) * pi).abs() < 1e-12);
+        let all = vec![1.0; p.len()];
+        prop_assert!((MetricId::NetBenefit.compute(&all, &y, &s) - (pi - (1.0 - pi) * t / (1.0 - t))).abs() < 1e-9);
+        prop_assert!((MetricId::ThresholdCost.compute(&all, &y, &s) - 2.0 * t * (1.0 - pi)).abs() < 1e-12);
+    }
+
     /// Robustness (common practice): any input, including NaN, infinities and
     /// values outside [0, 1], and unvalidated settings, yields a number or NaN,
     /// never a panic or a hang.
@@ -206,6 +229,7 @@ proptest! {
         bins in 0usize..30,
         span in prop_oneof![Just(f64::NAN), -1.0f64..2.0],
         delta in prop_oneof![Just(f64::NAN), -1.0f64..2.0],
+        t in prop_oneof![Just(f64::NAN), Just(0.0), Just(1.0), -1.0f64..2.0],
     ) {
         let n = p.len().min(y.len());
         let s = MetricSettings {
@@ -213,6 +237,7 @@ proptest! {
             murphy_bins: bins,
             ici_span: span,
             ici_delta: delta,
+            decision_threshold: t,
             ..MetricSettings::default()
         };
         for &id in MetricId::ALL {

@@ -5,7 +5,12 @@
 //! and statsmodels versions it ran with. Each case holds a simulated test set,
 //! its metric settings and the reference values. The binned-ECE fixture
 //! `tests/fixtures/metrics/ece_binned.json` is written by
-//! `scripts/fixtures_ece.py` (numpy version in its `generator` header).
+//! `scripts/fixtures_ece.py` (numpy version in its `generator` header). The
+//! metrics at a threshold (`threshold_cost`, `net_benefit`) depend on a threshold
+//! rather than on the settings of these cases; their fixture
+//! `tests/fixtures/metrics/decision.json` is written by
+//! `scripts/fixtures_decision.py` from scikit-learn's `confusion_matrix` at
+//! three thresholds.
 
 use plumbline::metrics::{smooth_ece, MetricId, MetricSettings};
 use serde::Deserialize;
@@ -84,7 +89,7 @@ fn every_metric_matches_its_reference() {
     for c in &f.cases {
         c.settings.validate().unwrap();
         let y: Vec<bool> = c.y.iter().map(|&v| v == 1).collect();
-        for &m in MetricId::ALL {
+        for &m in MetricId::ALL.iter().filter(|m| !AT_THRESHOLD.contains(m)) {
             let want = *c
                 .expected
                 .get(m.as_str())
@@ -100,7 +105,81 @@ fn every_metric_matches_its_reference() {
             checked += 1;
         }
     }
-    assert_eq!(checked, f.cases.len() * MetricId::ALL.len());
+    assert_eq!(
+        checked,
+        f.cases.len() * (MetricId::ALL.len() - AT_THRESHOLD.len())
+    );
+}
+
+/// The metrics at a decision threshold, checked against their own fixture in
+/// [`decision_metrics_match_confusion_matrix`].
+const AT_THRESHOLD: [MetricId; 2] = [MetricId::ThresholdCost, MetricId::NetBenefit];
+
+#[derive(Deserialize)]
+struct DecisionFixture {
+    versions: serde_json::Value,
+    p: Vec<f64>,
+    y: Vec<u8>,
+    thresholds: Vec<DecisionCase>,
+}
+
+#[derive(Deserialize)]
+struct DecisionCase {
+    t: f64,
+    tn: usize,
+    fp: usize,
+    #[serde(rename = "fn")]
+    fneg: usize,
+    tp: usize,
+    threshold_cost: f64,
+    net_benefit: f64,
+}
+
+/// `threshold_cost` and `net_benefit` against scikit-learn's
+/// `confusion_matrix` of y and [p ≥ t] at three thresholds, on a seeded test
+/// set with predictions exactly on each threshold (acted on) and at 0 and 1.
+/// The reference formulas are written on the four counts, the crate's on
+/// per-row terms; tolerance 1e-12 allows for the different summation.
+#[test]
+fn decision_metrics_match_confusion_matrix() {
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/metrics/decision.json"
+    );
+    let text = std::fs::read_to_string(path).expect("fixture present");
+    let f: DecisionFixture = serde_json::from_str(&text).expect("fixture parses");
+    assert!(f.versions.get("scikit-learn").is_some());
+    assert_eq!(
+        f.p.len(),
+        f.y.len(),
+        "{} predictions against {} labels",
+        f.p.len(),
+        f.y.len()
+    );
+    assert_eq!(f.thresholds.len(), 3, "fixture has its thresholds");
+    let y: Vec<bool> = f.y.iter().map(|&v| v == 1).collect();
+    for c in &f.thresholds {
+        assert_eq!(c.tn + c.fp + c.fneg + c.tp, f.p.len(), "t = {}", c.t);
+        // Rows exactly on the threshold are in the fixture, so the rule
+        // "acted on when p ≥ t" is exercised at its boundary.
+        assert!(f.p.iter().any(|&p| p == c.t), "no row on t = {}", c.t);
+        let s = MetricSettings {
+            decision_threshold: c.t,
+            ..MetricSettings::default()
+        };
+        s.validate().unwrap();
+        for (m, want) in [
+            (MetricId::ThresholdCost, c.threshold_cost),
+            (MetricId::NetBenefit, c.net_benefit),
+        ] {
+            let got = m.compute(&f.p, &y, &s);
+            assert!(
+                (got - want).abs() <= 1e-12,
+                "t = {} {m}: got {got}, reference {want}",
+                c.t
+            );
+        }
+    }
 }
 
 /// smECE at a fixed bandwidth against a second implementation by a different

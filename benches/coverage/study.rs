@@ -626,6 +626,7 @@ fn run_replicate(
             absolute_margins: Default::default(),
             raw_method: None,
             max_fallback: plumbline::analysis::DEFAULT_MAX_FALLBACK,
+            decision_threshold: None,
         };
         let src = PairSource {
             table: &table,

@@ -59,6 +59,12 @@ pub struct AnalysisSettings {
     /// be recommended at that size (the suite's `[decision] max_fallback`).
     #[serde(default = "default_max_fallback")]
     pub max_fallback: f64,
+    /// The suite's `[metric_settings] decision_threshold` when its metrics
+    /// include one that uses it (`threshold_cost`, `net_benefit`), so the
+    /// report can say at which threshold they were scored; absent (and not
+    /// written) otherwise.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub decision_threshold: Option<f64>,
 }
 
 /// The default relative equivalence margin: 1% of the reference's mean loss.

@@ -35,14 +35,21 @@ pub fn describe_plan(plan: &Plan) -> String {
         "  seed {} · {} repeats · confidence {} · interval {} · reference `{}` · primary metric `{}`\n",
         plan.seed, plan.repeats, plan.confidence, plan.interval.as_str(), plan.reference, plan.primary.as_str()
     ));
+    let at_threshold = plan.metrics.iter().any(|m| m.uses_decision_threshold());
     s.push_str(&format!(
-        "  metrics: {} · log-loss clip {}\n",
+        "  metrics: {} · log-loss clip {}{}\n",
         plan.metrics
             .iter()
             .map(|m| m.as_str())
             .collect::<Vec<_>>()
             .join(", "),
-        plan.metric_settings.log_loss_clip
+        plan.metric_settings.log_loss_clip,
+        if at_threshold {
+            let t = plan.metric_settings.decision_threshold;
+            format!(" · decision threshold {t} (act when p ≥ {t})")
+        } else {
+            String::new()
+        }
     ));
     s.push_str(&format!(
         "  methods: {}\n",

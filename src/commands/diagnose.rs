@@ -78,6 +78,9 @@ pub struct DiagnoseArgs {
     /// Confidence level of the intervals.
     #[arg(long, default_value_t = 0.95, value_name = "C")]
     pub confidence: f64,
+    /// Operating threshold of `threshold_cost` and `net_benefit`: a row is acted on when p ≥ T; strictly between 0 and 1.
+    #[arg(long, default_value_t = 0.5, value_name = "T")]
+    pub decision_threshold: f64,
     /// Replace an existing output folder.
     #[arg(long)]
     pub force: bool,
@@ -500,7 +503,13 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
     if args.compare.is_some() && args.file.as_os_str() == "-" {
         bail!("--compare reads the file twice; give a file name instead of `-`");
     }
-    let settings = MetricSettings::default();
+    let settings = MetricSettings {
+        decision_threshold: args.decision_threshold,
+        ..MetricSettings::default()
+    };
+    if let Err(e) = settings.validate() {
+        bail!("--decision-threshold {}: {}", e.value, e.reason);
+    }
     let (p, y) = load(args, &args.score_column)?;
     let other = match &args.compare {
         Some(c) => Some(
@@ -794,6 +803,7 @@ fn manifest(args: &DiagnoseArgs, d: &Diagnosis) -> serde_json::Value {
         "bootstrap": args.bootstrap,
         "seed": args.seed,
         "confidence": args.confidence,
+        "decision_threshold": args.decision_threshold,
     })
 }
 

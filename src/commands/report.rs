@@ -217,6 +217,7 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
                 .then(|| "identity".to_string()),
         },
         max_fallback,
+        decision_threshold: from_manifest.as_ref().and_then(|s| s.decision_threshold),
     };
     let a = analysis::analyse(&table, &settings);
     let suite_info = recorded.suite.unwrap_or_default();

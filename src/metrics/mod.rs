@@ -3,7 +3,8 @@
 //! A metric is named in a suite by a plain id (see [`MetricId`]); each id
 //! becomes one column of `units.csv`, so a decomposition contributes one id per
 //! term. Settings shared by metrics (the log-loss clip, bin counts, the ICI
-//! smoother) live in [`MetricSettings`], the suite's `[metric_settings]` table.
+//! smoother, the decision threshold) live in [`MetricSettings`], the suite's
+//! `[metric_settings]` table.
 //!
 //! Every metric is a function of the test predictions p and labels y only. A
 //! value that is undefined on a test set (for example the AUC when the test set
@@ -17,7 +18,8 @@
 //! Files: [`scoring`] (log loss, Brier), [`decompose`] (Murphy and CORP
 //! decompositions), [`binned`] (ECE), [`smooth_ece`], [`recalibration`]
 //! (calibration slope and intercept), [`spiegelhalter`], [`ici`], [`ranking`]
-//! (AUC).
+//! (AUC), [`threshold`] (cost-weighted loss and net benefit at a decision
+//! threshold).
 
 use serde::{Deserialize, Serialize};
 
@@ -30,6 +32,7 @@ pub mod reliability;
 pub mod scoring;
 pub mod smooth_ece;
 pub mod spiegelhalter;
+pub mod threshold;
 
 use decompose::CorpScore;
 
@@ -53,6 +56,9 @@ pub struct MetricSettings {
     /// The ICI smoother fits at points at least `ici_delta` × (range of p)
     /// apart and interpolates in between; 0 fits at every row. Default 0.01.
     pub ici_delta: f64,
+    /// The operating threshold t of `threshold_cost` and `net_benefit`: a
+    /// prediction is acted on when p ≥ t. Default 0.5.
+    pub decision_threshold: f64,
 }
 
 impl Default for MetricSettings {
@@ -63,6 +69,7 @@ impl Default for MetricSettings {
             murphy_bins: 10,
             ici_span: 0.75,
             ici_delta: 0.01,
+            decision_threshold: 0.5,
         }
     }
 }
@@ -107,6 +114,14 @@ impl MetricSettings {
         if !(self.ici_delta >= 0.0 && self.ici_delta < 1.0) {
             return bad("ici_delta", self.ici_delta.to_string(), "must be in [0, 1)");
         }
+        let t = self.decision_threshold;
+        if !(t > 0.0 && t < 1.0) {
+            return bad(
+                "decision_threshold",
+                t.to_string(),
+                "must be in (0, 1): a probability strictly between 0 and 1 from which predictions are acted on",
+            );
+        }
         Ok(())
     }
 }
@@ -116,7 +131,7 @@ impl MetricSettings {
 pub enum Goal {
     /// A loss: lower is better.
     Lower,
-    /// Higher is better (AUC, resolution, discrimination).
+    /// Higher is better (AUC, resolution, discrimination, net benefit).
     Higher,
     /// Closer to this value is better (calibration slope 1, intercept 0, Z 0).
     Toward(f64),
@@ -148,6 +163,8 @@ pub enum MetricId {
     SpiegelhalterZ,
     Ici,
     Auc,
+    ThresholdCost,
+    NetBenefit,
 }
 
 impl std::fmt::Display for MetricId {
@@ -196,6 +213,8 @@ impl MetricId {
         MetricId::SpiegelhalterZ,
         MetricId::Ici,
         MetricId::Auc,
+        MetricId::ThresholdCost,
+        MetricId::NetBenefit,
     ];
 
     pub fn as_str(self) -> &'static str {
@@ -219,6 +238,8 @@ impl MetricId {
             MetricId::SpiegelhalterZ => "spiegelhalter_z",
             MetricId::Ici => "ici",
             MetricId::Auc => "auc",
+            MetricId::ThresholdCost => "threshold_cost",
+            MetricId::NetBenefit => "net_benefit",
         }
     }
 
@@ -230,12 +251,12 @@ impl MetricId {
     pub fn goal(self) -> Goal {
         use MetricId::*;
         match self {
-            Auc | MurphyRes | CorpBrierDsc | CorpLogDsc => Goal::Higher,
+            Auc | MurphyRes | CorpBrierDsc | CorpLogDsc | NetBenefit => Goal::Higher,
             MurphyUnc | CorpBrierUnc | CorpLogUnc => Goal::Descriptive,
             CalibrationSlope => Goal::Toward(1.0),
             CalibrationIntercept | SpiegelhalterZ => Goal::Toward(0.0),
             LogLoss | Brier | MurphyRel | CorpBrierMcb | CorpLogMcb | EceWidth | EceMass
-            | SmoothEce | Ici => Goal::Lower,
+            | SmoothEce | Ici | ThresholdCost => Goal::Lower,
         }
     }
 
@@ -245,10 +266,19 @@ impl MetricId {
         self.goal() == Goal::Higher
     }
 
+    /// True when the metric depends on `decision_threshold` (it scores the
+    /// decision p ≥ t rather than the probability).
+    pub fn uses_decision_threshold(self) -> bool {
+        matches!(self, MetricId::ThresholdCost | MetricId::NetBenefit)
+    }
+
     /// True when the metric is a mean of per-row terms (so its test-set spread
     /// can be estimated from the rows).
     pub fn row_terms(self) -> bool {
-        matches!(self, MetricId::LogLoss | MetricId::Brier)
+        matches!(
+            self,
+            MetricId::LogLoss | MetricId::Brier | MetricId::ThresholdCost | MetricId::NetBenefit
+        )
     }
 
     /// The row loss from which a prediction counts as extreme for this metric,
@@ -274,6 +304,10 @@ impl MetricId {
         match self {
             MetricId::LogLoss => scoring::log_loss_term(p, y, settings.log_loss_clip),
             MetricId::Brier => scoring::brier_term(p, y),
+            MetricId::ThresholdCost => {
+                threshold::threshold_cost_term(p, y, settings.decision_threshold)
+            }
+            MetricId::NetBenefit => threshold::net_benefit_term(p, y, settings.decision_threshold),
             _ => f64::NAN,
         }
     }
@@ -304,6 +338,8 @@ impl MetricId {
             MetricId::SpiegelhalterZ => spiegelhalter::spiegelhalter_z(p, y),
             MetricId::Ici => ici::ici(p, y, settings.ici_span, settings.ici_delta),
             MetricId::Auc => ranking::auc(p, y),
+            MetricId::ThresholdCost => threshold::threshold_cost(p, y, settings.decision_threshold),
+            MetricId::NetBenefit => threshold::net_benefit(p, y, settings.decision_threshold),
         }
     }
 }
@@ -369,6 +405,46 @@ mod tests {
         .validate()
         .unwrap_err();
         assert_eq!(e.key, "log_loss_clip");
+        for t in [0.0, 1.0, -0.2, 1.5, f64::NAN] {
+            let e = MetricSettings {
+                decision_threshold: t,
+                ..Default::default()
+            }
+            .validate()
+            .unwrap_err();
+            assert_eq!(e.key, "decision_threshold");
+            assert!(
+                e.to_string().starts_with(&format!(
+                    "metric_settings.decision_threshold = {t}: must be in (0, 1)"
+                )),
+                "{e}"
+            );
+        }
+        let s: MetricSettings = toml::from_str("decision_threshold = 0.1").unwrap();
+        assert_eq!(s.decision_threshold, 0.1);
+        assert!(s.validate().is_ok());
+    }
+
+    #[test]
+    fn decision_metrics_are_means_of_their_row_terms() {
+        let s = MetricSettings {
+            decision_threshold: 0.25,
+            ..Default::default()
+        };
+        let p = [0.1, 0.25, 0.3, 0.9, 0.2, 0.6, 0.05];
+        let y = [true, false, true, false, false, true, true];
+        for m in [MetricId::ThresholdCost, MetricId::NetBenefit] {
+            assert!(m.row_terms());
+            let mean = p
+                .iter()
+                .zip(&y)
+                .map(|(&pi, &yi)| m.row_term(pi, yi, &s))
+                .sum::<f64>()
+                / p.len() as f64;
+            assert_eq!(m.compute(&p, &y, &s), mean, "{m}");
+        }
+        assert_eq!(MetricId::ThresholdCost.goal(), Goal::Lower);
+        assert!(MetricId::NetBenefit.higher_is_better());
     }
 
     #[test]

@@ -982,6 +982,12 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
             " (absolute for some metrics, see the legend)"
         }
     )));
+    if let Some(t) = s.decision_threshold {
+        b.push(Block::Para(format!(
+            "Metrics at a threshold (`threshold_cost`, `net_benefit`) score acting on a prediction when p ≥ {} (`decision_threshold`); see `docs/metrics.md` (\"Decisions at a threshold\").",
+            crate::run::table::num(t)
+        )));
+    }
     b.push(Block::Heading(2, "Decision".into(), "decision".into()));
     if a.decisions.is_empty() {
         b.push(Block::Para("Too few tasks share a calibration size for a comparison across tasks (it needs at least two tasks with a value for every method).".into()));

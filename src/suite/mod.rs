@@ -715,6 +715,50 @@ mod tests {
         );
     }
 
+    /// `[metric_settings] decision_threshold` reaches the plan, defaults to
+    /// 0.5, and a value outside (0, 1) is refused naming the file, the key
+    /// and the value.
+    #[test]
+    fn decision_threshold_is_read_and_checked() {
+        let dir = tempfile::TempDir::new().unwrap();
+        let rows: String = (0..200).map(|i| format!("{},{}\n", i % 7, i % 2)).collect();
+        std::fs::write(dir.path().join("a.csv"), format!("s,y\n{rows}")).unwrap();
+        let suite = |table: &str| {
+            format!(
+                "name = \"b\"\nseed = 1\nrepeats = 2\nsizes = [50]\nreference = \"platt\"\n\
+                 metrics = [\"threshold_cost\", \"net_benefit\"]\nprimary_metric = \"net_benefit\"\n\n\
+                 [test_set]\nrows = 100\n\n[[method]]\nid = \"platt\"\nkind = \"platt\"\n\n\
+                 [[task]]\nid = \"a\"\nscores = \"a.csv\"\nscore_column = \"s\"\nlabel_column = \"y\"\nscore_kind = \"margin\"\n{table}"
+            )
+        };
+        let at = dir.path().join("suite.toml");
+        let plan = |table: &str| parse(&suite(table), &at, String::new());
+        let p = plan("").unwrap();
+        assert_eq!(p.metrics, [MetricId::ThresholdCost, MetricId::NetBenefit]);
+        assert_eq!(p.metric_settings.decision_threshold, 0.5);
+        let p = plan("\n[metric_settings]\ndecision_threshold = 0.15\n").unwrap();
+        assert_eq!(p.metric_settings.decision_threshold, 0.15);
+
+        for bad in ["0", "1", "1.5", "-0.2"] {
+            let e = plan(&format!(
+                "\n[metric_settings]\ndecision_threshold = {bad}\n"
+            ))
+            .unwrap_err();
+            assert_eq!(e.key, "metric_settings.decision_threshold", "{e}");
+            let shown = e.to_string();
+            assert!(shown.starts_with(&at.display().to_string()), "{shown}");
+            let value: f64 = bad.parse().unwrap();
+            assert!(
+                shown.contains(&format!(
+                    "metric_settings.decision_threshold = {value}: must be in (0, 1)"
+                )),
+                "{shown}"
+            );
+        }
+        let e = plan("\n[metric_settings]\ndecision_threshold = \"high\"\n").unwrap_err();
+        assert_eq!(e.key, "metric_settings", "{e}");
+    }
+
     /// `confidence` and `interval` go through the checks `plumbline report`
     /// shares, with the suite's own located messages.
     #[test]
