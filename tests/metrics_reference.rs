@@ -162,7 +162,7 @@ fn decision_metrics_match_confusion_matrix() {
         assert_eq!(c.tn + c.fp + c.fneg + c.tp, f.p.len(), "t = {}", c.t);
         // Rows exactly on the threshold are in the fixture, so the rule
         // "acted on when p ≥ t" is exercised at its boundary.
-        assert!(f.p.iter().any(|&p| p == c.t), "no row on t = {}", c.t);
+        assert!(f.p.contains(&c.t), "no row on t = {}", c.t);
         let s = MetricSettings {
             decision_threshold: c.t,
             ..MetricSettings::default()
