@@ -555,3 +555,31 @@ fn verify_and_report_on_damaged_or_interrupted_folders() {
         o.stderr
     );
 }
+
+/// A reader that stops reading (`plumbline check suite.toml | head`) ends the
+/// command quietly: exit 0, no panic message. Every command prints its
+/// terminal output through `commands::say`; `check` shows it here. The read
+/// end is closed before the command writes, so the write meets a closed pipe.
+#[test]
+fn a_closed_stdout_pipe_is_not_a_panic() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let suite = root.join("suites/open-uci.toml");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_plumbline"))
+        .args(["check", suite.to_str().unwrap()])
+        .stdin(Stdio::null())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    drop(child.stdout.take());
+    let mut err = String::new();
+    child
+        .stderr
+        .take()
+        .unwrap()
+        .read_to_string(&mut err)
+        .unwrap();
+    let status = child.wait().unwrap();
+    assert!(!err.contains("panicked"), "{err}");
+    assert_eq!(status.code(), Some(0), "{err}");
+}

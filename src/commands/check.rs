@@ -18,8 +18,10 @@ pub struct CheckArgs {
 /// `plumbline check`: the plan on standard output, then `ok`.
 pub fn run(args: &CheckArgs) -> Result<ExitCode> {
     let plan = suite::load(&args.suite)?;
-    print!("{}", describe_plan(&plan));
-    println!("ok: the suite is valid");
+    super::say(format_args!(
+        "{}ok: the suite is valid",
+        describe_plan(&plan)
+    ))?;
     Ok(ExitCode::SUCCESS)
 }
 

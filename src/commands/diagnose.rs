@@ -811,7 +811,7 @@ fn manifest(args: &DiagnoseArgs, d: &Diagnosis) -> serde_json::Value {
 /// output and the row count on standard error.
 pub fn run(args: &DiagnoseArgs) -> Result<ExitCode> {
     let d = write_folder(args)?;
-    println!("{}", d.terminal());
+    super::say(d.terminal())?;
     eprintln!("{} rows → {}", d.rows, args.out.display());
     Ok(ExitCode::SUCCESS)
 }

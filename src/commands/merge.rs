@@ -38,7 +38,7 @@ pub struct MergeArgs {
 pub fn run(args: &MergeArgs) -> Result<ExitCode> {
     let s = merge(&args.shards, &args.out, args.force)?;
     if !args.quiet {
-        println!("{}", s.terminal);
+        super::say(&s.terminal)?;
     }
     for w in &s.warnings {
         eprintln!("warning: {w}");

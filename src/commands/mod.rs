@@ -43,6 +43,18 @@ pub fn require_name(flag: &str, value: &str, what: &str) -> Result<()> {
     Ok(())
 }
 
+/// Print `text` and a newline to standard output. A reader that stopped
+/// reading (`plumbline check suite.toml | head`) is not an error: the rest is
+/// dropped quietly, as `head` asked. Any other write error is returned.
+pub fn say(text: impl std::fmt::Display) -> Result<()> {
+    use std::io::Write;
+    let mut out = io::stdout().lock();
+    match writeln!(out, "{text}").and_then(|_| out.flush()) {
+        Err(e) if e.kind() == io::ErrorKind::BrokenPipe => Ok(()),
+        r => Ok(r?),
+    }
+}
+
 /// Standard output, buffered, for `--out -`.
 pub fn stdout() -> io::BufWriter<io::Stdout> {
     io::BufWriter::with_capacity(1 << 16, io::stdout())

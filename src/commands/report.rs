@@ -64,7 +64,7 @@ pub struct ReportArgs {
 /// `plumbline report`: the summary (or the task's table) on standard output.
 pub fn run(args: &ReportArgs) -> Result<ExitCode> {
     let t = report_dir(args)?;
-    println!("{t}");
+    super::say(t)?;
     Ok(ExitCode::SUCCESS)
 }
 

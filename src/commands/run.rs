@@ -69,7 +69,7 @@ pub struct RunArgs {
 pub fn run(args: &RunArgs) -> Result<ExitCode> {
     let s = run_suite(args)?;
     if !args.quiet {
-        println!("{}", s.terminal);
+        super::say(&s.terminal)?;
     }
     for w in &s.warnings {
         eprint!("{}", super::warning_lines(w));

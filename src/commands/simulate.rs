@@ -26,7 +26,7 @@ pub fn run(args: &SimulateArgs) -> Result<ExitCode> {
     }
     let names = crate::simulate::write_all(&args.out, args.rows, args.seed)?;
     for n in names {
-        println!("{}", args.out.join(n).display());
+        super::say(args.out.join(n).display())?;
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -66,7 +66,7 @@ pub fn run(args: &VerifyArgs) -> Result<ExitCode> {
         &rerun,
     )?;
     for l in &r.lines {
-        println!("{l}");
+        super::say(l)?;
     }
     Ok(if r.matched {
         ExitCode::SUCCESS
