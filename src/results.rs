@@ -46,7 +46,9 @@ pub struct Manifest {
     /// folder ([`output::is_results_folder`]).
     pub tool: String,
     pub version: String,
-    /// The commit the binary was built from, when the build recorded one.
+    /// The commit the binary was built from (`build.rs`), when the build
+    /// recorded one; ` (with uncommitted changes)` follows it when the
+    /// source differed from that commit.
     pub git_commit: Option<String>,
     pub suite: SuiteRecord,
     pub analysis: AnalysisSettings,
@@ -117,10 +119,12 @@ pub struct ShardRecord {
 }
 
 /// The fields of `manifest.json` that depend on the machine or on how the
-/// folder came about (the keys of [`MachineRecord`]): `verify` and the tests
-/// compare manifests without them. Inside `score_pools`, the entries'
-/// [`POOL_MACHINE_FIELDS`].
-pub const MACHINE_FIELDS: [&str; 5] = [
+/// folder came about (the keys of [`MachineRecord`], and the commit the
+/// binary was built from): `verify` and the tests compare manifests without
+/// them, so a rerun at a later commit that gives the same results passes.
+/// Inside `score_pools`, the entries' [`POOL_MACHINE_FIELDS`].
+pub const MACHINE_FIELDS: [&str; 6] = [
+    "git_commit",
     "started",
     "finished",
     "wall_seconds",
@@ -563,6 +567,8 @@ mod tests {
     fn machine_fields_are_the_machine_record() {
         let v = serde_json::to_value(MachineRecord::default()).unwrap();
         let mut got: Vec<&str> = v.as_object().unwrap().keys().map(|k| k.as_str()).collect();
+        // The machine record's keys, and the commit the binary was built from.
+        got.push("git_commit");
         let mut want = MACHINE_FIELDS.to_vec();
         got.sort_unstable();
         want.sort_unstable();
