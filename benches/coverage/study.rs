@@ -44,7 +44,7 @@ use rand_chacha::rand_core::Rng;
 use rayon::prelude::*;
 
 use plumbline::analysis::steps::{pair_interval, Cells, PairSource};
-use plumbline::analysis::AnalysisSettings;
+use plumbline::analysis::{AnalysisSettings, CellKey};
 use plumbline::calibrate::{sigmoid, Calibrator, MethodSpec, ScoreKind};
 use plumbline::data::ScorePool;
 use plumbline::metrics::{MetricId, MetricSettings};
@@ -539,14 +539,14 @@ fn run_replicate(
     let fallbacks = units
         .iter()
         .flat_map(|u| &u.methods)
-        .filter(|m| m.status == run::FALLBACK_BASE_RATE)
+        .filter(|m| m.status.is_fallback())
         .count();
     let nunits = units.len();
     let table = run::assemble(&plan, units, threads, 0).table;
     let mut cells: Cells = BTreeMap::new();
     for (i, row) in table.rows.iter().enumerate() {
         cells
-            .entry((row.task.clone(), row.size, row.method.clone()))
+            .entry(CellKey::of(row))
             .or_default()
             .insert(row.repeat, i);
     }
@@ -576,8 +576,8 @@ fn run_replicate(
                 ));
                 let (ba, bb) = (batch_cols(a, met.as_str()), batch_cols(b, met.as_str()));
                 for (si, &size) in cfg.sizes.iter().enumerate() {
-                    let key = ("pool".to_string(), size, a.clone());
-                    let keyb = ("pool".to_string(), size, b.clone());
+                    let key = CellKey::new("pool", size, a);
+                    let keyb = CellKey::new("pool", size, b);
                     let (Some(ca), Some(cb)) = (cells.get(&key), cells.get(&keyb)) else {
                         return Err(format!("no units for {a} − {b} at n = {size}"));
                     };

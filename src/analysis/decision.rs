@@ -46,7 +46,9 @@ use std::collections::{BTreeMap, BTreeSet};
 
 use super::evidence::{compare, DatasetEvidence, EvidenceSource};
 use super::steps::{pair_interval, Cells, PairSource};
-use super::{margin_of, AcrossRow, AnalysisSettings, Margins, ThresholdRow};
+use super::{
+    margin_of, AcrossRow, AnalysisSettings, CellKey, FallbackCounts, Margins, ThresholdRow,
+};
 use crate::metrics::MetricId;
 use crate::run::table::UnitTable;
 use crate::stats::thresholds::{summarize, ThresholdSummary, Thresholds};
@@ -60,7 +62,7 @@ pub struct DecisionInput<'a> {
     pub margins: &'a Margins,
     pub settings: &'a AnalysisSettings,
     /// (task, size, method) → (fallback units, units).
-    pub fallback_counts: &'a BTreeMap<(String, usize, String), (usize, usize)>,
+    pub fallback_counts: &'a FallbackCounts,
     /// Every method against the raw scores, per task and decision metric.
     pub raw_thresholds: &'a [ThresholdRow],
 }
@@ -394,7 +396,7 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
         let share_of = |m: &str| -> FallbackShare {
             let mut f = FallbackShare::default();
             for t in &r.tasks {
-                if let Some(&(k, n)) = fallback_counts.get(&(t.clone(), r.size, m.to_string())) {
+                if let Some(&(k, n)) = fallback_counts.get(&CellKey::new(t, r.size, m)) {
                     f.fallback += k;
                     f.draws += n;
                 }
@@ -404,7 +406,7 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
         let default_fallback = share_of(&default);
         let mut worst_fallback: Option<(String, FallbackShare)> = None;
         for t in &r.tasks {
-            if let Some(&(k, n)) = fallback_counts.get(&(t.clone(), r.size, default.clone())) {
+            if let Some(&(k, n)) = fallback_counts.get(&CellKey::new(t, r.size, &default)) {
                 let f = FallbackShare {
                     fallback: k,
                     draws: n,

@@ -39,7 +39,7 @@
 use std::collections::BTreeMap;
 
 use super::steps::Cells;
-use super::{margin_of, pair_up, task_parts, Margins};
+use super::{margin_of, pair_up, task_parts, CellKey, Margins};
 use crate::metrics::MetricId;
 use crate::run::table::UnitTable;
 use crate::split::{fnv1a, mix};
@@ -155,7 +155,7 @@ pub fn compare(
     let mut order: Vec<String> = Vec::new();
     let mut sums: BTreeMap<String, (f64, f64, usize)> = BTreeMap::new();
     for task in tasks {
-        let key = |m: &str| (task.clone(), size, m.to_string());
+        let key = |m: &str| CellKey::new(task, size, m);
         let (Some(ca), Some(cb)) = (cells.get(&key(a)), cells.get(&key(b))) else {
             continue;
         };

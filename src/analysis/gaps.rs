@@ -97,6 +97,7 @@ pub fn table_gaps(table: &UnitTable, repeats: Option<usize>) -> Vec<String> {
 mod tests {
     use super::*;
     use crate::run::table::UnitRow;
+    use crate::run::UnitStatus;
 
     fn row(task: &str, size: usize, repeat: usize, method: &str, v: f64) -> UnitRow {
         UnitRow {
@@ -104,7 +105,7 @@ mod tests {
             size,
             repeat,
             method: method.into(),
-            status: "ok".into(),
+            status: UnitStatus::Ok,
             metrics: vec![Some(v)],
             clipped: Some(0),
             positives: 1,

@@ -19,7 +19,8 @@ pub use steps::{
 };
 
 use crate::metrics::{Goal, MetricId};
-use crate::run::table::UnitTable;
+use crate::run::table::{UnitRow, UnitTable};
+use crate::run::UnitStatus;
 use crate::stats::across::AcrossTasks;
 use crate::stats::paired::{
     interval, Interval, IntervalKind, PairedInput, EXTREME_ROWS, ROW_SUMMARY_NAMES,
@@ -215,11 +216,12 @@ pub struct Analysis {
     pub sizes: BTreeMap<String, Vec<usize>>,
     pub summaries: Vec<MethodSummary>,
     pub paired: Vec<Paired>,
-    /// Units per (task, size, method) with each non-`ok` status.
-    pub status_counts: BTreeMap<(String, usize, String), BTreeMap<String, usize>>,
+    /// Units per (task, size, method) with each non-`ok` status (statuses
+    /// in the order of their text).
+    pub status_counts: BTreeMap<CellKey, BTreeMap<UnitStatus, usize>>,
     /// Per (task, size, method): (units whose method could not fit and
-    /// predicted the fallback, status `fallback:…`; all units).
-    pub fallback_counts: BTreeMap<(String, usize, String), (usize, usize)>,
+    /// predicted the fallback, status `fallback:base-rate`; all units).
+    pub fallback_counts: FallbackCounts,
     pub across: Vec<AcrossRow>,
     pub thresholds: Vec<ThresholdRow>,
     /// Per metric and pair: the summary over tasks.
@@ -234,6 +236,34 @@ pub struct Analysis {
     pub margins: Margins,
 }
 
+/// One cell of the analysis: a method at one task and calibration size.
+/// Maps keyed by it list cells by task, then size, then method (the field
+/// order, which the derived ordering follows).
+#[derive(Debug, Clone, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub struct CellKey {
+    pub task: String,
+    pub size: usize,
+    pub method: String,
+}
+
+impl CellKey {
+    pub fn new(task: &str, size: usize, method: &str) -> CellKey {
+        CellKey {
+            task: task.to_string(),
+            size,
+            method: method.to_string(),
+        }
+    }
+
+    /// The cell of a unit-table row.
+    pub fn of(row: &UnitRow) -> CellKey {
+        CellKey::new(&row.task, row.size, &row.method)
+    }
+}
+
+/// Per cell: (units whose method predicted the fallback, all units).
+pub type FallbackCounts = BTreeMap<CellKey, (usize, usize)>;
+
 /// (task, size, metric) → equivalence margin δ.
 pub type Margins = BTreeMap<(String, usize, MetricId), f64>;
 
@@ -245,10 +275,6 @@ pub fn margin_of(margins: &Margins, task: &str, size: usize, metric: MetricId) -
         .copied()
         .unwrap_or(f64::NAN)
 }
-
-/// Status prefix of a unit whose method predicted a fallback because it could
-/// not fit (`fallback:base-rate`, see `run::FALLBACK_BASE_RATE`).
-pub const FALLBACK_PREFIX: &str = "fallback:";
 
 /// Differences within this tolerance count as ties.
 pub const TIE_TOLERANCE: f64 = 1e-12;
@@ -428,16 +454,13 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
     let mut methods: Vec<String> = Vec::new();
     let mut sizes: BTreeMap<String, Vec<usize>> = BTreeMap::new();
     // (task, size, method) -> repeat -> row index
-    let mut cells: BTreeMap<(String, usize, String), BTreeMap<usize, usize>> = BTreeMap::new();
-    let mut status_counts: BTreeMap<(String, usize, String), BTreeMap<String, usize>> =
-        BTreeMap::new();
-    let mut fallback_counts: BTreeMap<(String, usize, String), (usize, usize)> = BTreeMap::new();
+    let mut cells = steps::Cells::new();
+    let mut status_counts: BTreeMap<CellKey, BTreeMap<UnitStatus, usize>> = BTreeMap::new();
+    let mut fallback_counts = FallbackCounts::new();
     for (i, r) in table.rows.iter().enumerate() {
-        let fc = fallback_counts
-            .entry((r.task.clone(), r.size, r.method.clone()))
-            .or_default();
+        let fc = fallback_counts.entry(CellKey::of(r)).or_default();
         fc.1 += 1;
-        if r.status.starts_with(FALLBACK_PREFIX) {
+        if r.status.is_fallback() {
             fc.0 += 1;
         }
         if !tasks.contains(&r.task) {
@@ -450,13 +473,10 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         if !s.contains(&r.size) {
             s.push(r.size);
         }
-        cells
-            .entry((r.task.clone(), r.size, r.method.clone()))
-            .or_default()
-            .insert(r.repeat, i);
-        if r.status != "ok" {
+        cells.entry(CellKey::of(r)).or_default().insert(r.repeat, i);
+        if !r.status.is_ok() {
             *status_counts
-                .entry((r.task.clone(), r.size, r.method.clone()))
+                .entry(CellKey::of(r))
                 .or_default()
                 .entry(r.status.clone())
                 .or_default() += 1;
@@ -473,9 +493,9 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         for &size in &sizes[task] {
             for (mi, &metric) in metric_ids.iter().enumerate() {
                 let hib = metric.higher_is_better();
-                let reference = cells.get(&(task.clone(), size, settings.reference.clone()));
+                let reference = cells.get(&CellKey::new(task, size, &settings.reference));
                 for method in &methods {
-                    let Some(c) = cells.get(&(task.clone(), size, method.clone())) else {
+                    let Some(c) = cells.get(&CellKey::new(task, size, method)) else {
                         continue;
                     };
                     let vals: Vec<f64> = c
@@ -484,10 +504,7 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         .collect();
                     let noted = c
                         .values()
-                        .filter(|&&i| {
-                            let st = &table.rows[i].status;
-                            st != "ok" && table.rows[i].has_values()
-                        })
+                        .filter(|&&i| !table.rows[i].status.is_ok() && table.rows[i].has_values())
                         .count();
                     let clipped: Vec<f64> = c
                         .values()
@@ -649,7 +666,7 @@ fn margins_of(
     let mut out = Margins::new();
     for (task, ss) in sizes {
         for &size in ss {
-            let Some(rc) = cells.get(&(task.clone(), size, settings.reference.clone())) else {
+            let Some(rc) = cells.get(&CellKey::new(task, size, &settings.reference)) else {
                 continue;
             };
             for (mi, &metric) in metric_ids.iter().enumerate() {
@@ -675,4 +692,115 @@ fn margins_of(
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cell_keys_sort_as_task_size_method() {
+        // Sizes compare as numbers (20 before 100), tasks and methods as text.
+        let cells = [
+            ("b", 20, "platt"),
+            ("a@logistic", 20, "beta"),
+            ("a", 100, "beta"),
+            ("a", 20, "platt"),
+            ("a", 20, "beta"),
+            ("b", 5, "isotonic"),
+        ];
+        let mut keys: Vec<CellKey> = cells
+            .iter()
+            .map(|&(t, n, m)| CellKey::new(t, n, m))
+            .collect();
+        keys.sort();
+        let got: Vec<(&str, usize, &str)> = keys
+            .iter()
+            .map(|k| (k.task.as_str(), k.size, k.method.as_str()))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                ("a", 20, "beta"),
+                ("a", 20, "platt"),
+                ("a", 100, "beta"),
+                ("a@logistic", 20, "beta"),
+                ("b", 5, "isotonic"),
+                ("b", 20, "platt"),
+            ]
+        );
+    }
+
+    fn row(task: &str, repeat: usize, method: &str, status: &str, v: Option<f64>) -> UnitRow {
+        UnitRow {
+            task: task.into(),
+            size: 20,
+            repeat,
+            method: method.into(),
+            status: UnitStatus::parse(status),
+            metrics: vec![v],
+            clipped: v.map(|_| 0),
+            positives: 8,
+            reservoir: 100,
+            test_rows: 50,
+            extras: Vec::new(),
+        }
+    }
+
+    #[test]
+    fn statuses_are_counted_per_cell_in_text_order() {
+        let table = UnitTable {
+            metric_names: vec!["brier".into()],
+            extra_names: Vec::new(),
+            rows: vec![
+                row("t", 0, "platt", "ok", Some(0.2)),
+                row("t", 0, "beta", "fallback:base-rate", Some(0.25)),
+                row("t", 1, "platt", "separable", Some(0.21)),
+                row("t", 1, "beta", "failed", None),
+                row("t", 2, "platt", "ok", Some(0.19)),
+                row("t", 2, "beta", "retired-note", Some(0.22)),
+                row("t", 3, "platt", "separable", Some(0.2)),
+                row("t", 3, "beta", "fallback:base-rate", Some(0.24)),
+            ],
+        };
+        let settings = AnalysisSettings {
+            reference: "platt".into(),
+            primary_metric: "brier".into(),
+            confidence: 0.95,
+            interval: "paired-t".into(),
+            pairs: Vec::new(),
+            margin: DEFAULT_MARGIN,
+            absolute_margins: BTreeMap::new(),
+            raw_method: None,
+            max_fallback: DEFAULT_MAX_FALLBACK,
+        };
+        let a = analyse(&table, &settings);
+        let beta: Vec<(String, usize)> = a.status_counts[&CellKey::new("t", 20, "beta")]
+            .iter()
+            .map(|(s, &n)| (s.to_string(), n))
+            .collect();
+        assert_eq!(
+            beta,
+            [
+                ("failed".to_string(), 1),
+                ("fallback:base-rate".to_string(), 2),
+                ("retired-note".to_string(), 1),
+            ]
+        );
+        let platt = &a.status_counts[&CellKey::new("t", 20, "platt")];
+        assert_eq!(platt.len(), 1);
+        assert_eq!(platt[&UnitStatus::parse("separable")], 2);
+        assert_eq!(a.fallback_counts[&CellKey::new("t", 20, "beta")], (2, 4));
+        assert_eq!(a.fallback_counts[&CellKey::new("t", 20, "platt")], (0, 4));
+        // Noted units with values: the two fallbacks and the unknown status
+        // of beta (the failed unit has none), the two separable fits of platt.
+        let noted = |m: &str| {
+            a.summaries
+                .iter()
+                .find(|s| s.method == m)
+                .map(|s| (s.noted, s.missing))
+        };
+        assert_eq!(noted("beta"), Some((3, 1)));
+        assert_eq!(noted("platt"), Some((2, 0)));
+    }
 }

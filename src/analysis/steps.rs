@@ -4,8 +4,8 @@
 use std::collections::BTreeMap;
 
 use super::{
-    compared_value, pair_up, paired_interval, AcrossRow, AnalysisSettings, MethodSummary, Paired,
-    ThresholdRow,
+    compared_value, pair_up, paired_interval, AcrossRow, AnalysisSettings, CellKey, MethodSummary,
+    Paired, ThresholdRow,
 };
 use crate::metrics::MetricId;
 use crate::run::table::UnitTable;
@@ -15,7 +15,7 @@ use crate::stats::thresholds::{summarize, thresholds_within, ThresholdSummary};
 use crate::stats::verdict::VerdictCounts;
 
 /// (task, size, method) → repeat → row index of the unit table.
-pub type Cells = BTreeMap<(String, usize, String), BTreeMap<usize, usize>>;
+pub type Cells = BTreeMap<CellKey, BTreeMap<usize, usize>>;
 
 /// What the steps read.
 pub struct StepInput<'a> {
@@ -155,8 +155,8 @@ pub fn pair_interval(
     mi: usize,
 ) -> Option<Interval> {
     let (Some(ca), Some(cb)) = (
-        c.cells.get(&(task.to_string(), size, a.to_string())),
-        c.cells.get(&(task.to_string(), size, b.to_string())),
+        c.cells.get(&CellKey::new(task, size, a)),
+        c.cells.get(&CellKey::new(task, size, b)),
     ) else {
         return None;
     };

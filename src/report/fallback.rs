@@ -44,11 +44,11 @@ pub fn fallback_blocks(a: &Analysis) -> Vec<Block> {
         rows: Vec::new(),
         notes: Vec::new(),
     };
-    for ((task, size, method), &(k, n)) in cells {
+    for (cell, &(k, n)) in cells {
         t.rows.push(vec![
-            task.clone(),
-            size.to_string(),
-            method.clone(),
+            cell.task.clone(),
+            cell.size.to_string(),
+            cell.method.clone(),
             k.to_string(),
             n.to_string(),
             format!("{:.0}%", 100.0 * k as f64 / n as f64),
@@ -69,16 +69,17 @@ pub fn fallback_blocks(a: &Analysis) -> Vec<Block> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::analysis::CellKey;
 
     #[test]
     fn flags_cells_above_the_share() {
         let mut a = Analysis::default();
         a.fallback_counts
-            .insert(("t".into(), 50, "beta".into()), (4, 30));
+            .insert(CellKey::new("t", 50, "beta"), (4, 30));
         a.fallback_counts
-            .insert(("t".into(), 50, "platt".into()), (3, 30));
+            .insert(CellKey::new("t", 50, "platt"), (3, 30));
         a.fallback_counts
-            .insert(("t".into(), 100, "platt".into()), (0, 30));
+            .insert(CellKey::new("t", 100, "platt"), (0, 30));
         let md = super::super::document::to_markdown(&fallback_blocks(&a));
         assert!(
             md.contains("| t | 50 | beta | 4 | 30 | 13% | **large** |"),

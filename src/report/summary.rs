@@ -1110,13 +1110,13 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
             rows: Vec::new(),
             notes: vec!["A `separable` fit used Platt's smoothed targets, its documented fallback; `fallback:base-rate` units could not be fitted and predicted the smoothed base rate, with metric values as usual (see Fallback fits); `one_class` and `failed` units, kept only under `on_fit_failure = \"drop\"`, have no metric values and are left out of the paired differences.".into()],
         };
-        for ((task, size, method), counts) in &a.status_counts {
+        for (cell, counts) in &a.status_counts {
             for (status, n) in counts {
                 t.rows.push(vec![
-                    task.clone(),
-                    size.to_string(),
-                    method.clone(),
-                    status.clone(),
+                    cell.task.clone(),
+                    cell.size.to_string(),
+                    cell.method.clone(),
+                    status.to_string(),
                     n.to_string(),
                 ]);
             }

@@ -16,6 +16,7 @@ pub mod output;
 pub mod pools;
 pub mod progress;
 pub mod shard;
+pub mod status;
 pub mod study;
 pub mod table;
 
@@ -32,6 +33,7 @@ use crate::metrics::scoring::clipped_count;
 use crate::split;
 use crate::stats::paired;
 use crate::suite::{FitFailurePolicy, Plan};
+pub use status::{UnitStatus, FALLBACK_BASE_RATE};
 use table::{UnitRow, UnitTable};
 
 /// How to run.
@@ -47,7 +49,7 @@ pub struct RunOptions {
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct MethodOutcome {
     pub method: String,
-    pub status: String,
+    pub status: UnitStatus,
     pub metrics: Vec<Option<f64>>,
     pub clipped: Option<usize>,
     pub extras: BTreeMap<String, f64>,
@@ -254,10 +256,6 @@ pub(crate) fn stop_message(
     )
 }
 
-/// The status of a unit whose method predicted the smoothed base rate because
-/// it could not fit (`on_fit_failure = "fallback"`).
-pub const FALLBACK_BASE_RATE: &str = "fallback:base-rate";
-
 /// The prediction of a method that could not fit its calibration sample:
 /// the smoothed base rate (k + 1)/(n + 2) of the sample's labels (k
 /// positives of n), which stays inside (0, 1) even for one-class samples.
@@ -271,7 +269,7 @@ pub fn fallback_rate(labels: &[bool]) -> f64 {
 pub(crate) fn one_class_outcome(plan: &Plan, name: &str) -> MethodOutcome {
     MethodOutcome {
         method: name.to_string(),
-        status: "one_class".into(),
+        status: UnitStatus::OneClass,
         metrics: vec![None; plan.metrics.len()],
         clipped: None,
         extras: BTreeMap::new(),
@@ -287,7 +285,7 @@ fn scored(
     name: &str,
     pred: &[f64],
     test_y: &[bool],
-    status: String,
+    status: UnitStatus,
     extras: BTreeMap<String, f64>,
     fit_ms: f64,
     error: Option<String>,
@@ -335,11 +333,7 @@ pub(crate) fn fit_score(
                 .into_iter()
                 .map(|(k, v)| (k.to_string(), v))
                 .collect();
-            let status = if f.notes.is_empty() {
-                "ok".to_string()
-            } else {
-                f.notes.join("+")
-            };
+            let status = UnitStatus::from_notes(&f.notes);
             let o = scored(plan, name, &pred, test_y, status, extras, fit_ms, None);
             Ok((o, Some(pred)))
         }
@@ -352,7 +346,7 @@ pub(crate) fn fit_score(
                     name,
                     &pred,
                     test_y,
-                    FALLBACK_BASE_RATE.to_string(),
+                    UnitStatus::Fallback,
                     BTreeMap::new(),
                     fit_ms,
                     Some(e.to_string()),
@@ -361,14 +355,14 @@ pub(crate) fn fit_score(
             }
             FitFailurePolicy::Drop => {
                 let status = if matches!(e, FitError::OneClass { .. }) {
-                    "one_class"
+                    UnitStatus::OneClass
                 } else {
-                    "failed"
+                    UnitStatus::Failed
                 };
                 Ok((
                     MethodOutcome {
                         method: name.to_string(),
-                        status: status.into(),
+                        status,
                         metrics: vec![None; plan.metrics.len()],
                         clipped: None,
                         extras: BTreeMap::new(),
@@ -680,7 +674,7 @@ pub fn assemble_ordered(
                     .is_some_and(|e| e.starts_with("one class"))
             });
         if sample_one_class {
-            let fallback = u.methods.iter().all(|m| m.status == FALLBACK_BASE_RATE);
+            let fallback = u.methods.iter().all(|m| m.status.is_fallback());
             let entry = one_class
                 .entry((u.task.clone(), fallback))
                 .or_insert((0, u.methods[0].error.clone().unwrap_or_default()));
@@ -720,11 +714,7 @@ pub fn assemble_ordered(
             });
             if let (Some(e), false) = (&m.error, sample_one_class) {
                 let entry = failures
-                    .entry((
-                        u.task.clone(),
-                        m.method.clone(),
-                        m.status == FALLBACK_BASE_RATE,
-                    ))
+                    .entry((u.task.clone(), m.method.clone(), m.status.is_fallback()))
                     .or_insert((0, e.clone()));
                 entry.0 += 1;
             }

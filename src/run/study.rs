@@ -17,7 +17,7 @@ use std::collections::{BTreeMap, BTreeSet};
 
 use super::{
     add_row_summaries, assemble, fit_score, one_class_outcome, stop_message, MethodOutcome,
-    RunError, RunOptions, RunOutput, UnitOutcome,
+    RunError, RunOptions, RunOutput, UnitOutcome, UnitStatus,
 };
 use crate::calibrate::Calibrator;
 use crate::data::{open, Dataset, Side};
@@ -136,7 +136,7 @@ pub fn run_study(
                     names.push(reference.clone());
                     for n in names {
                         let mut o = one_class_outcome(plan, &n);
-                        o.status = "failed".into();
+                        o.status = UnitStatus::Failed;
                         o.error = Some(format!("base model: {e}"));
                         methods.push(o);
                     }

@@ -11,6 +11,7 @@
 
 use std::io::{Read, Write};
 
+use super::status::UnitStatus;
 use crate::metrics::MetricId;
 
 /// One row of `units.csv`.
@@ -23,8 +24,8 @@ pub struct UnitRow {
     /// `ok`, a `+`-joined list of fit notes (e.g. `separable`),
     /// `fallback:base-rate` (the fit could not be made; the smoothed base
     /// rate was predicted), or under `on_fit_failure = "drop"` `one_class` or
-    /// `failed`.
-    pub status: String,
+    /// `failed`; written and read back as the same text.
+    pub status: UnitStatus,
     /// One value per metric column; `None` when the fit failed.
     pub metrics: Vec<Option<f64>>,
     /// Test predictions changed by the log-loss clip.
@@ -108,7 +109,7 @@ impl UnitTable {
                 r.size.to_string(),
                 r.repeat.to_string(),
                 r.method.clone(),
-                r.status.clone(),
+                r.status.to_string(),
             ];
             rec.extend(r.metrics.iter().map(|&v| opt(v)));
             rec.push(r.clipped.map(|c| c.to_string()).unwrap_or_default());
@@ -188,7 +189,7 @@ impl UnitTable {
                 size: int(1)?,
                 repeat: int(2)?,
                 method: rec[3].to_string(),
-                status: rec[4].to_string(),
+                status: UnitStatus::parse(&rec[4]),
                 metrics,
                 clipped,
                 positives: int(mid + 1)?,
@@ -244,7 +245,7 @@ mod tests {
                 size: 50,
                 repeat: 3,
                 method: "platt".into(),
-                status: "ok".into(),
+                status: UnitStatus::Ok,
                 metrics: vec![Some(0.1 + 0.2), None],
                 clipped: Some(2),
                 positives: 11,
@@ -260,6 +261,36 @@ mod tests {
         let mut buf2 = Vec::new();
         back.write_csv(&mut buf2).unwrap();
         assert_eq!(buf, buf2);
+    }
+
+    #[test]
+    fn every_status_text_is_read_and_written_back_unchanged() {
+        // The statuses a run writes, and one this version does not know (a
+        // folder of another version or a hand-edited table still loads).
+        let mut text = String::from(
+            "task,size,repeat,method,status,brier,clipped,positives,reservoir,test_rows\n",
+        );
+        let statuses = [
+            "ok",
+            "separable",
+            "separable+refit",
+            "fallback:base-rate",
+            "one_class",
+            "failed",
+            "retired-note",
+        ];
+        for (i, st) in statuses.iter().enumerate() {
+            text.push_str(&format!("t,20,{i},platt,{st},0.25,0,7,100,50\n"));
+        }
+        let t = UnitTable::read_csv(text.as_bytes()).unwrap();
+        assert_eq!(t.rows[0].status, UnitStatus::Ok);
+        assert_eq!(t.rows[3].status, UnitStatus::Fallback);
+        assert_eq!(t.rows[4].status, UnitStatus::OneClass);
+        assert_eq!(t.rows[5].status, UnitStatus::Failed);
+        assert!(matches!(&t.rows[6].status, UnitStatus::Noted(s) if s == "retired-note"));
+        let mut buf = Vec::new();
+        t.write_csv(&mut buf).unwrap();
+        assert_eq!(String::from_utf8(buf).unwrap(), text);
     }
 
     #[test]
