@@ -44,7 +44,8 @@ use rand_chacha::rand_core::Rng;
 use rayon::prelude::*;
 
 use plumbline::analysis::steps::{pair_interval, Cells, PairSource};
-use plumbline::analysis::{AnalysisSettings, CellKey};
+use plumbline::analysis::AnalysisSettings;
+use plumbline::analysis::CellKey as TableCell;
 use plumbline::calibrate::{sigmoid, Calibrator, MethodSpec, ScoreKind};
 use plumbline::data::ScorePool;
 use plumbline::metrics::{MetricId, MetricSettings};
@@ -546,7 +547,7 @@ fn run_replicate(
     let mut cells: Cells = BTreeMap::new();
     for (i, row) in table.rows.iter().enumerate() {
         cells
-            .entry(CellKey::of(row))
+            .entry(TableCell::of(row))
             .or_default()
             .insert(row.repeat, i);
     }
@@ -576,8 +577,8 @@ fn run_replicate(
                 ));
                 let (ba, bb) = (batch_cols(a, met.as_str()), batch_cols(b, met.as_str()));
                 for (si, &size) in cfg.sizes.iter().enumerate() {
-                    let key = CellKey::new("pool", size, a);
-                    let keyb = CellKey::new("pool", size, b);
+                    let key = TableCell::new("pool", size, a);
+                    let keyb = TableCell::new("pool", size, b);
                     let (Some(ca), Some(cb)) = (cells.get(&key), cells.get(&keyb)) else {
                         return Err(format!("no units for {a} − {b} at n = {size}"));
                     };
