@@ -5,7 +5,8 @@
 //! (seeds and draws) → `calibrate` (methods) → `metrics` → `run` (parallel
 //! executor) → `stats` (paired intervals, across-task tests, thresholds) →
 //! `report` (tables and figures). `commands` holds the subcommands, one
-//! file each, above everything else.
+//! file each, above everything else. `multiclass` holds multiclass metrics
+//! and calibration maps as a library only, not yet used by the commands.
 
 pub mod analysis;
 pub mod atomic;
@@ -16,6 +17,7 @@ pub mod limits;
 pub mod mapfile;
 pub mod metrics;
 pub mod models;
+pub mod multiclass;
 pub mod report;
 pub mod results;
 pub mod run;

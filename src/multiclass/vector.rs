@@ -1,0 +1,428 @@
+//! Vector scaling for K classes (Guo, Pleiss, Sun & Weinberger 2017, ICML,
+//! "On calibration of modern neural networks").
+//!
+//! Math: with logits z_i ∈ ℝ^K the calibrated probabilities are
+//! p_i = softmax(w ⊙ z_i + b), 2K parameters (a scale w_k and a bias b_k per
+//! class), fitted by minimising the penalised mean log loss
+//!
+//!   J(w, b) = (1/n) Σ_i [lse(a_i) − a_{i,y_i}] + (λ/2)(‖w − 1‖² + ‖b‖²),
+//!   a_ik = w_k z_ik + b_k,  lse(a) = ln Σ_k exp(a_k),
+//!
+//! with λ = [`DEFAULT_PENALTY`] = 1e-4 unless another λ > 0 is given. The
+//! penalty pulls towards the identity map (w = 1, b = 0). It is needed, not
+//! only convenient: softmax ignores adding one constant to every b_k, so
+//! without it the optimum is a line, not a point (the penalty picks the
+//! point with Σ b_k = 0), and a class absent from the calibration rows would
+//! send its b_k to −∞ (with it, b_k stays finite and that class keeps a
+//! small probability). At λ = 1e-4 the penalty moves a fit on a few hundred
+//! rows by far less than its sampling error.
+//!
+//! Unlike temperature scaling, vector scaling depends on which constant a
+//! row's logits carry: w ⊙ (z + c·1) = w ⊙ z + c·w, which softmax does not
+//! ignore unless every w_k is equal. Logits and log-probabilities therefore
+//! give different fits.
+//!
+//! Fitting: J is convex (a linear model in (w, b) under the log loss) and
+//! λ-strongly convex, so Newton's method with a backtracking (Armijo) line
+//! search converges from any start. The gradient and the 2K×2K Hessian are
+//! exact: per row, with p = softmax(a), e = the label's indicator and
+//! u = p ⊙ z,
+//!   ∂/∂w_k = z_k (p_k − e_k),  ∂/∂b_k = p_k − e_k,
+//!   H_ww = diag(p ⊙ z²) − u uᵀ,  H_wb = diag(u) − u pᵀ,  H_bb = diag(p) − p pᵀ,
+//! plus λ on the diagonal; the Newton system is solved by Cholesky. The
+//! search starts from the temperature-scaling fit (w = 1/T, b = 0) when one
+//! exists, else from the identity, and stops when the Newton decrement
+//! gᵀH⁻¹g falls below 1e-20 or the largest gradient entry below 1e-12.
+//! Cost per step: O(n K²) for the Hessian and O(K³) for the solve.
+//! A fit that does not converge in 100 steps, or meets a non-finite value,
+//! is an error, never a panic. Every lse and softmax subtracts the row's
+//! maximum, so extreme logits give no NaN.
+
+use super::{
+    check_finite, check_fit_input, log_sum_exp, softmax_into, temperature, MulticlassError,
+};
+
+/// The L2 penalty λ of [`fit`].
+pub const DEFAULT_PENALTY: f64 = 1e-4;
+
+/// Most Newton steps.
+const MAX_STEPS: usize = 100;
+
+/// A fitted vector scaling.
+#[derive(Debug, Clone, PartialEq)]
+pub struct VectorFit {
+    /// Scale per class.
+    pub w: Vec<f64>,
+    /// Bias per class (Σ b_k = 0 at the optimum).
+    pub b: Vec<f64>,
+    /// The penalty λ the fit used.
+    pub penalty: f64,
+    /// Newton steps taken.
+    pub iterations: usize,
+}
+
+impl VectorFit {
+    /// softmax(w ⊙ z_i + b) for every row of the row-major logits `z`, whose
+    /// rows must have as many classes as the fit.
+    pub fn predict(&self, z: &[f64]) -> Result<Vec<f64>, MulticlassError> {
+        let k = self.w.len();
+        check_finite(z, k)?;
+        let mut out = vec![0.0; z.len()];
+        let mut a = vec![0.0; k];
+        for (r, o) in z.chunks_exact(k).zip(out.chunks_exact_mut(k)) {
+            for (j, aj) in a.iter_mut().enumerate() {
+                // Finite times finite plus finite: ±∞ at worst, never NaN;
+                // softmax_into takes the limit.
+                *aj = self.w[j] * r[j] + self.b[j];
+            }
+            softmax_into(&a, o);
+        }
+        Ok(out)
+    }
+}
+
+/// J(w, b): the penalised mean log loss the fit minimises.
+pub fn objective(
+    z: &[f64],
+    classes: usize,
+    labels: &[usize],
+    w: &[f64],
+    b: &[f64],
+    penalty: f64,
+) -> f64 {
+    let mut a = vec![0.0; classes];
+    let mut s = 0.0;
+    for (r, &y) in z.chunks_exact(classes).zip(labels) {
+        for j in 0..classes {
+            a[j] = w[j] * r[j] + b[j];
+        }
+        s += log_sum_exp(&a) - a[y];
+    }
+    let reg: f64 =
+        w.iter().map(|v| (v - 1.0) * (v - 1.0)).sum::<f64>() + b.iter().map(|v| v * v).sum::<f64>();
+    s / labels.len() as f64 + 0.5 * penalty * reg
+}
+
+/// Gradient and Hessian (row-major 2K×2K) of J at θ = (w, b).
+fn gradient_hessian(
+    z: &[f64],
+    k: usize,
+    labels: &[usize],
+    theta: &[f64],
+    penalty: f64,
+) -> (Vec<f64>, Vec<f64>) {
+    let m = 2 * k;
+    let (w, b) = theta.split_at(k);
+    let mut g = vec![0.0; m];
+    let mut h = vec![0.0; m * m];
+    let (mut a, mut p, mut u) = (vec![0.0; k], vec![0.0; k], vec![0.0; k]);
+    for (r, &y) in z.chunks_exact(k).zip(labels) {
+        for j in 0..k {
+            a[j] = w[j] * r[j] + b[j];
+        }
+        softmax_into(&a, &mut p);
+        for j in 0..k {
+            u[j] = p[j] * r[j];
+            let d = p[j] - if j == y { 1.0 } else { 0.0 };
+            g[j] += r[j] * d;
+            g[k + j] += d;
+        }
+        for i in 0..k {
+            let (ww, wb, bb) = (i * m, i * m + k, (k + i) * m + k);
+            for j in 0..k {
+                h[ww + j] -= u[i] * u[j];
+                h[wb + j] -= u[i] * p[j];
+                h[bb + j] -= p[i] * p[j];
+            }
+            h[ww + i] += u[i] * r[i];
+            h[wb + i] += u[i];
+            h[bb + i] += p[i];
+        }
+    }
+    let n = labels.len() as f64;
+    for v in g.iter_mut().chain(h.iter_mut()) {
+        *v /= n;
+    }
+    // H_bw = H_wbᵀ.
+    for i in 0..k {
+        for j in 0..k {
+            h[(k + j) * m + i] = h[i * m + k + j];
+        }
+    }
+    for j in 0..k {
+        g[j] += penalty * (w[j] - 1.0);
+        g[k + j] += penalty * b[j];
+    }
+    for i in 0..m {
+        h[i * m + i] += penalty;
+    }
+    (g, h)
+}
+
+/// Solves H x = r for symmetric positive definite H (row-major m×m) by
+/// Cholesky; None when H is not numerically positive definite.
+fn cholesky_solve(h: &[f64], r: &[f64]) -> Option<Vec<f64>> {
+    let m = r.len();
+    let mut l = vec![0.0; m * m];
+    for i in 0..m {
+        for j in 0..=i {
+            let s: f64 = (0..j).map(|t| l[i * m + t] * l[j * m + t]).sum();
+            if i == j {
+                let d = h[i * m + i] - s;
+                if !(d > 0.0 && d.is_finite()) {
+                    return None;
+                }
+                l[i * m + i] = d.sqrt();
+            } else {
+                l[i * m + j] = (h[i * m + j] - s) / l[j * m + j];
+            }
+        }
+    }
+    let mut x = r.to_vec();
+    for i in 0..m {
+        let s: f64 = (0..i).map(|t| l[i * m + t] * x[t]).sum();
+        x[i] = (x[i] - s) / l[i * m + i];
+    }
+    for i in (0..m).rev() {
+        let s: f64 = (i + 1..m).map(|t| l[t * m + i] * x[t]).sum();
+        x[i] = (x[i] - s) / l[i * m + i];
+    }
+    Some(x)
+}
+
+/// Fits vector scaling with the penalty [`DEFAULT_PENALTY`].
+pub fn fit(z: &[f64], classes: usize, labels: &[usize]) -> Result<VectorFit, MulticlassError> {
+    fit_with_penalty(z, classes, labels, DEFAULT_PENALTY)
+}
+
+/// Fits vector scaling with the L2 penalty λ = `penalty` (> 0, finite).
+pub fn fit_with_penalty(
+    z: &[f64],
+    classes: usize,
+    labels: &[usize],
+    penalty: f64,
+) -> Result<VectorFit, MulticlassError> {
+    check_fit_input(z, classes, labels)?;
+    if !(penalty > 0.0 && penalty.is_finite()) {
+        return Err(MulticlassError::Failed(format!(
+            "vector scaling: penalty {penalty} must be positive and finite"
+        )));
+    }
+    let k = classes;
+    let start = match temperature::fit(z, classes, labels) {
+        Ok(t) => t.inverse_temperature,
+        Err(_) => 1.0,
+    };
+    let mut theta = vec![0.0; 2 * k];
+    theta[..k].iter_mut().for_each(|v| *v = start);
+    let j_of = |t: &[f64]| objective(z, k, labels, &t[..k], &t[k..], penalty);
+    let mut j = j_of(&theta);
+    if !j.is_finite() {
+        theta[..k].iter_mut().for_each(|v| *v = 1.0);
+        j = j_of(&theta);
+    }
+    if !j.is_finite() {
+        return Err(MulticlassError::Failed(
+            "vector scaling: the log loss at the start is not finite".into(),
+        ));
+    }
+    for it in 1..=MAX_STEPS {
+        let (g, h) = gradient_hessian(z, k, labels, &theta, penalty);
+        if g.iter().any(|v| !v.is_finite()) || h.iter().any(|v| !v.is_finite()) {
+            return Err(MulticlassError::Failed(
+                "vector scaling: the gradient or Hessian is not finite".into(),
+            ));
+        }
+        let gmax = g.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        if gmax <= 1e-12 {
+            return Ok(done(theta, k, penalty, it));
+        }
+        let Some(step) = cholesky_solve(&h, &g) else {
+            return Err(MulticlassError::Failed(
+                "vector scaling: the Hessian is not positive definite".into(),
+            ));
+        };
+        let decrement: f64 = g.iter().zip(&step).map(|(a, b)| a * b).sum();
+        if decrement <= 1e-20 {
+            // Take the last, tiny step and stop.
+            theta.iter_mut().zip(&step).for_each(|(t, s)| *t -= s);
+            return Ok(done(theta, k, penalty, it));
+        }
+        // Backtracking: the full Newton step, halved until J falls by at
+        // least a tenth of what its slope promises (Armijo).
+        let mut t = 1.0;
+        loop {
+            let trial: Vec<f64> = theta.iter().zip(&step).map(|(a, s)| a - t * s).collect();
+            let jt = j_of(&trial);
+            if jt.is_finite() && jt <= j - 0.1 * t * decrement {
+                theta = trial;
+                j = jt;
+                break;
+            }
+            t *= 0.5;
+            if t < 1e-12 {
+                // No decrease left at the precision of J: converged as far
+                // as doubles allow when the step is already small.
+                if decrement <= 1e-14 * j.abs().max(1.0) {
+                    return Ok(done(theta, k, penalty, it));
+                }
+                return Err(MulticlassError::Failed(format!(
+                    "vector scaling: the line search failed at step {it}"
+                )));
+            }
+        }
+    }
+    Err(MulticlassError::Failed(format!(
+        "vector scaling did not converge in {MAX_STEPS} Newton steps"
+    )))
+}
+
+fn done(theta: Vec<f64>, k: usize, penalty: f64, iterations: usize) -> VectorFit {
+    let (w, b) = theta.split_at(k);
+    VectorFit {
+        w: w.to_vec(),
+        b: b.to_vec(),
+        penalty,
+        iterations,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::split::splitmix64;
+
+    fn unit(h: u64) -> f64 {
+        ((h >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+    }
+
+    /// Labels from softmax(l), given logits 2·l + c with a per-class offset.
+    fn sample(n: usize, k: usize, seed: u64) -> (Vec<f64>, Vec<usize>) {
+        let mut z = Vec::with_capacity(n * k);
+        let mut y = Vec::with_capacity(n);
+        let mut h = seed;
+        let mut next = || {
+            h = splitmix64(h);
+            unit(h)
+        };
+        let mut p = vec![0.0; k];
+        for _ in 0..n {
+            let l: Vec<f64> = (0..k).map(|_| 4.0 * next() - 2.0).collect();
+            softmax_into(&l, &mut p);
+            let u = next();
+            let (mut acc, mut label) = (0.0, k - 1);
+            for (c, &pc) in p.iter().enumerate() {
+                acc += pc;
+                if u < acc {
+                    label = c;
+                    break;
+                }
+            }
+            y.push(label);
+            z.extend(
+                l.iter()
+                    .enumerate()
+                    .map(|(c, v)| (1.0 + c as f64) * v + 0.5 * c as f64),
+            );
+        }
+        (z, y)
+    }
+
+    #[test]
+    fn gradient_matches_finite_differences() {
+        let (z, y) = sample(50, 3, 3);
+        let theta = [0.7, 1.3, 0.9, 0.2, -0.1, 0.4];
+        let (g, h) = gradient_hessian(&z, 3, &y, &theta, 0.01);
+        let j = |t: &[f64]| objective(&z, 3, &y, &t[..3], &t[3..], 0.01);
+        let eps = 1e-6;
+        for i in 0..6 {
+            let (mut up, mut dn) = (theta.to_vec(), theta.to_vec());
+            up[i] += eps;
+            dn[i] -= eps;
+            let fd = (j(&up) - j(&dn)) / (2.0 * eps);
+            assert!((fd - g[i]).abs() < 1e-7, "gradient {i}: {fd} vs {}", g[i]);
+            let (gu, _) = gradient_hessian(&z, 3, &y, &up, 0.01);
+            let (gd, _) = gradient_hessian(&z, 3, &y, &dn, 0.01);
+            for c in 0..6 {
+                let fd = (gu[c] - gd[c]) / (2.0 * eps);
+                assert!((fd - h[c * 6 + i]).abs() < 1e-6, "hessian {c},{i}");
+            }
+        }
+    }
+
+    #[test]
+    fn optimum_is_stationary_with_centred_biases() {
+        let (z, y) = sample(800, 3, 9);
+        let f = fit(&z, 3, &y).unwrap();
+        let mut theta = f.w.clone();
+        theta.extend(&f.b);
+        let (g, _) = gradient_hessian(&z, 3, &y, &theta, f.penalty);
+        assert!(g.iter().all(|v| v.abs() < 1e-10), "{g:?}");
+        // Σ_k ∂J/∂b_k = λ Σ b_k (the loss part sums to 0 in every row).
+        assert!(f.b.iter().sum::<f64>().abs() < 1e-8);
+        // The later classes' logits are stretched: their scales come out smaller.
+        assert!(f.w[0] > f.w[1] && f.w[1] > f.w[2], "{:?}", f.w);
+    }
+
+    #[test]
+    fn permuting_classes_permutes_the_fit() {
+        let (z, y) = sample(300, 3, 21);
+        let f = fit(&z, 3, &y).unwrap();
+        let perm = [2, 0, 1];
+        let mut zp = vec![0.0; z.len()];
+        for (i, r) in z.chunks(3).enumerate() {
+            for c in 0..3 {
+                zp[3 * i + perm[c]] = r[c];
+            }
+        }
+        let yp: Vec<usize> = y.iter().map(|&c| perm[c]).collect();
+        let g = fit(&zp, 3, &yp).unwrap();
+        for (c, &pc) in perm.iter().enumerate() {
+            assert!((f.w[c] - g.w[pc]).abs() < 1e-9);
+            assert!((f.b[c] - g.b[pc]).abs() < 1e-9);
+        }
+        let (pf, pg) = (f.predict(&z).unwrap(), g.predict(&zp).unwrap());
+        assert_eq!(pf.len(), pg.len());
+        for i in 0..y.len() {
+            for c in 0..3 {
+                assert!((pf[3 * i + c] - pg[3 * i + perm[c]]).abs() < 1e-10);
+            }
+        }
+    }
+
+    #[test]
+    fn extreme_logits_and_an_absent_class() {
+        let (z, y) = sample(200, 3, 4);
+        let big: Vec<f64> = z.iter().map(|v| v * 1e3).collect();
+        let f = fit(&big, 3, &y).unwrap();
+        let p = f.predict(&big).unwrap();
+        assert!(p.iter().all(|v| v.is_finite() && (0.0..=1.0).contains(v)));
+        // Separable rows (every label has the largest logit) still fit.
+        let sep = [5.0, 0.0, 0.0, 0.0, 5.0, 0.0, 0.0, 0.0, 5.0];
+        let f = fit(&sep, 3, &[0, 1, 2]).unwrap();
+        assert!(f.w.iter().all(|v| v.is_finite()));
+        // Class 2 never occurs: its bias stays finite and negative.
+        let y2: Vec<usize> = y.iter().map(|&c| c.min(1)).collect();
+        let f = fit(&z, 3, &y2).unwrap();
+        assert!(
+            f.b[2].is_finite() && f.b[2] < f.b[0] && f.b[2] < f.b[1],
+            "{:?}",
+            f.b
+        );
+        let far = f.predict(&[1e308, -1e308, 0.0]).unwrap();
+        assert!(far.iter().all(|v| v.is_finite()));
+    }
+
+    #[test]
+    fn bad_input_is_an_error() {
+        assert_eq!(fit(&[], 3, &[]), Err(MulticlassError::Empty));
+        assert_eq!(
+            fit(&[1.0, 0.0, 0.0, 2.0, 0.0, 0.0], 3, &[0, 0]),
+            Err(MulticlassError::OneClass { class: 0, rows: 2 })
+        );
+        assert!(fit_with_penalty(&[1.0, 0.0, 0.0, 2.0], 2, &[0, 1], 0.0).is_err());
+        assert!(fit(&[1.0, f64::INFINITY, 0.0, 2.0], 2, &[0, 1]).is_err());
+        let f = fit(&[1.0, 0.0, 0.0, 2.0, 3.0, 1.0], 2, &[0, 1, 1]).unwrap();
+        assert!(f.predict(&[1.0, 2.0, 3.0]).is_err());
+    }
+}
