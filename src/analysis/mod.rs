@@ -773,6 +773,7 @@ mod tests {
             absolute_margins: BTreeMap::new(),
             raw_method: None,
             max_fallback: DEFAULT_MAX_FALLBACK,
+            decision_threshold: None,
         };
         let a = analyse(&table, &settings);
         let beta: Vec<(String, usize)> = a.status_counts[&CellKey::new("t", 20, "beta")]
