@@ -230,6 +230,52 @@ pub fn softmax_into(a: &[f64], out: &mut [f64]) {
     }
 }
 
+/// Seeded labelled logits for the fitters' unit tests.
+#[cfg(test)]
+pub(crate) mod testdata {
+    use super::softmax_into;
+    use crate::split::splitmix64;
+
+    fn unit(h: u64) -> f64 {
+        ((h >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+    }
+
+    /// n rows of K classes: latent logits l ~ U(−2, 2)^K (SplitMix64 from
+    /// `seed`), a label drawn from softmax(l), and the given logits
+    /// `given(c, l_c)` of each class c (row-major).
+    pub fn labelled(
+        n: usize,
+        k: usize,
+        seed: u64,
+        given: impl Fn(usize, f64) -> f64,
+    ) -> (Vec<f64>, Vec<usize>) {
+        let mut z = Vec::with_capacity(n * k);
+        let mut y = Vec::with_capacity(n);
+        let mut h = seed;
+        let mut next = || {
+            h = splitmix64(h);
+            unit(h)
+        };
+        let mut p = vec![0.0; k];
+        for _ in 0..n {
+            let l: Vec<f64> = (0..k).map(|_| 4.0 * next() - 2.0).collect();
+            softmax_into(&l, &mut p);
+            let u = next();
+            let (mut acc, mut label) = (0.0, k - 1);
+            for (c, &pc) in p.iter().enumerate() {
+                acc += pc;
+                if u < acc {
+                    label = c;
+                    break;
+                }
+            }
+            y.push(label);
+            z.extend(l.iter().enumerate().map(|(c, &v)| given(c, v)));
+        }
+        (z, y)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -229,40 +229,11 @@ pub fn fit(z: &[f64], classes: usize, labels: &[usize]) -> Result<TemperatureFit
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::split::splitmix64;
-
-    fn unit(h: u64) -> f64 {
-        ((h >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    }
 
     /// n rows of K classes: labels drawn from softmax(l) of latent logits l,
     /// the given logits 3·l (overconfident, so T ≈ 3).
     fn sample(n: usize, k: usize, seed: u64) -> (Vec<f64>, Vec<usize>) {
-        let mut z = Vec::with_capacity(n * k);
-        let mut y = Vec::with_capacity(n);
-        let mut h = seed;
-        let mut next = || {
-            h = splitmix64(h);
-            unit(h)
-        };
-        let mut p = vec![0.0; k];
-        for _ in 0..n {
-            let l: Vec<f64> = (0..k).map(|_| 4.0 * next() - 2.0).collect();
-            softmax_into(&l, &mut p);
-            let u = next();
-            let mut acc = 0.0;
-            let mut label = k - 1;
-            for (c, &pc) in p.iter().enumerate() {
-                acc += pc;
-                if u < acc {
-                    label = c;
-                    break;
-                }
-            }
-            y.push(label);
-            z.extend(l.iter().map(|v| 3.0 * v));
-        }
-        (z, y)
+        crate::multiclass::testdata::labelled(n, k, seed, |_, v| 3.0 * v)
     }
 
     #[test]

@@ -290,42 +290,13 @@ fn done(theta: Vec<f64>, k: usize, penalty: f64, iterations: usize) -> VectorFit
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::split::splitmix64;
 
-    fn unit(h: u64) -> f64 {
-        ((h >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    }
-
-    /// Labels from softmax(l), given logits 2·l + c with a per-class offset.
+    /// Labels from softmax(l), given logits (1 + c)·l_c + c/2: a scale and an
+    /// offset per class c.
     fn sample(n: usize, k: usize, seed: u64) -> (Vec<f64>, Vec<usize>) {
-        let mut z = Vec::with_capacity(n * k);
-        let mut y = Vec::with_capacity(n);
-        let mut h = seed;
-        let mut next = || {
-            h = splitmix64(h);
-            unit(h)
-        };
-        let mut p = vec![0.0; k];
-        for _ in 0..n {
-            let l: Vec<f64> = (0..k).map(|_| 4.0 * next() - 2.0).collect();
-            softmax_into(&l, &mut p);
-            let u = next();
-            let (mut acc, mut label) = (0.0, k - 1);
-            for (c, &pc) in p.iter().enumerate() {
-                acc += pc;
-                if u < acc {
-                    label = c;
-                    break;
-                }
-            }
-            y.push(label);
-            z.extend(
-                l.iter()
-                    .enumerate()
-                    .map(|(c, v)| (1.0 + c as f64) * v + 0.5 * c as f64),
-            );
-        }
-        (z, y)
+        crate::multiclass::testdata::labelled(n, k, seed, |c, v| {
+            (1.0 + c as f64) * v + 0.5 * c as f64
+        })
     }
 
     #[test]
