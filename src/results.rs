@@ -383,7 +383,7 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
         decision_threshold: plan
             .metrics
             .iter()
-            .any(|m| m.uses_decision_threshold())
+            .any(|m| matches!(m, crate::metrics::MetricId::ThresholdCost | crate::metrics::MetricId::NetBenefit))
             .then_some(plan.metric_settings.decision_threshold),
     }
 }

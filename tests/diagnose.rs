@@ -566,3 +566,38 @@ fn printed_table_fits_80_and_100_columns_with_cells_whole() {
         }
     }
 }
+
+/// `murphy.csv` holds the Murphy diagram of each column on the fixed grid:
+/// the mean elementary score, 4× of which is `threshold_cost` at t = θ
+/// (no prediction lies on a grid point here), and a column that is better
+/// calibrated scores no worse on average over the grid.
+#[test]
+fn murphy_csv_holds_each_columns_elementary_scores() {
+    use plumbline::metrics::elementary::{murphy_curve, murphy_grid};
+    use plumbline::metrics::threshold::threshold_cost;
+    let dir = TempDir::new().unwrap();
+    let d = dir.path();
+    let rows = data(500);
+    let f = write(d, &rows);
+    run(&f, &d.join("m"), &["--compare", "other"], "1");
+    let path = d.join("m/murphy.csv");
+    assert_eq!(header(&path), ["theta", "score", "other"]);
+    let table = read(&path);
+    let grid = murphy_grid();
+    assert_eq!(table.len(), grid.len());
+    let p: Vec<f64> = rows.iter().map(|r| r.0).collect();
+    let q: Vec<f64> = rows.iter().map(|r| r.1).collect();
+    let y: Vec<bool> = rows.iter().map(|r| r.2).collect();
+    let (cp, cq) = (murphy_curve(&p, &y, &grid), murphy_curve(&q, &y, &grid));
+    for (i, r) in table.iter().enumerate() {
+        let t: f64 = r[0].parse().unwrap();
+        assert_eq!(t, grid[i]);
+        let (a, b): (f64, f64) = (r[1].parse().unwrap(), r[2].parse().unwrap());
+        assert_eq!(a.to_bits(), cp[i].to_bits());
+        assert_eq!(b.to_bits(), cq[i].to_bits());
+        assert!((4.0 * a - threshold_cost(&p, &y, t)).abs() < 1e-12, "θ = {t}");
+    }
+    // Without --compare: one curve.
+    run(&f, &d.join("one"), &[], "1");
+    assert_eq!(header(&d.join("one/murphy.csv")), ["theta", "score"]);
+}

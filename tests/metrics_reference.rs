@@ -12,7 +12,7 @@
 //! `scripts/fixtures_decision.py` from scikit-learn's `confusion_matrix` at
 //! three thresholds.
 
-use plumbline::metrics::{smooth_ece, MetricId, MetricSettings};
+use plumbline::metrics::{smooth_ece, Cut, MetricId, MetricSettings};
 use serde::Deserialize;
 
 #[derive(Deserialize)]
@@ -178,7 +178,30 @@ fn decision_metrics_match_confusion_matrix() {
                 "t = {} {m}: got {got}, reference {want}",
                 c.t
             );
+            // The same metric as one of several thresholds
+            // (`threshold_cost@t`) scores at its own t, whatever
+            // `decision_threshold` says.
+            let at = m.at(Cut::new(c.t).unwrap()).unwrap();
+            let got = at.compute(&f.p, &y, &MetricSettings::default());
+            assert!(
+                (got - want).abs() <= 1e-12,
+                "{at}: got {got}, reference {want}"
+            );
         }
+    }
+    // All three thresholds as one suite's list: one id per threshold.
+    let s = MetricSettings {
+        decision_thresholds: f.thresholds.iter().map(|c| c.t).collect(),
+        ..MetricSettings::default()
+    };
+    s.validate().unwrap();
+    let cuts = s.thresholds();
+    assert_eq!(cuts.len(), 3);
+    for c in &f.thresholds {
+        let id = MetricId::parse(&format!("net_benefit@{}", c.t)).unwrap();
+        assert!(cuts.iter().any(|&k| MetricId::NetBenefit.at(k) == Some(id)));
+        let got = id.compute(&f.p, &y, &s);
+        assert!((got - c.net_benefit).abs() <= 1e-12, "{id}");
     }
 }
 

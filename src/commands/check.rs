@@ -47,8 +47,17 @@ pub fn describe_plan(plan: &Plan) -> String {
             .join(", "),
         plan.metric_settings.log_loss_clip,
         if at_threshold {
-            let t = plan.metric_settings.decision_threshold;
-            format!(" · decision threshold {t} (act when p ≥ {t})")
+            let cuts = plan.metric_settings.thresholds();
+            if cuts.is_empty() {
+                let t = plan.metric_settings.decision_threshold;
+                format!(" · decision threshold {t} (act when p ≥ {t})")
+            } else {
+                let shown: Vec<String> = cuts.iter().map(|c| c.to_string()).collect();
+                format!(
+                    " · decision thresholds {} (act when p ≥ t)",
+                    shown.join(", ")
+                )
+            }
         } else {
             String::new()
         }

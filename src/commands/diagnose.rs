@@ -35,6 +35,9 @@
 //! the band at the intervals' `--confidence` level) of each column, drawn by the run report's own figure code
 //! ([`crate::report::figures::reliability_grid`]) into `reliability.svg`.
 //!
+//! Murphy diagram: the mean elementary score of each column on a fixed θ
+//! grid ([`crate::metrics::elementary`]) in `murphy.csv` ([`murphy_csv`]).
+//!
 //! Resample b draws its rows from ChaCha8 seeded with `split::mix(seed,
 //! [tag, b])`, so the output is identical whatever the thread count.
 
@@ -57,7 +60,7 @@ use crate::split;
 pub struct DiagnoseArgs {
     /// Score file with probabilities and labels (CSV, gzip CSV, Parquet, `-`).
     pub file: PathBuf,
-    /// Output folder (metrics.csv, reading.txt, reliability.svg, and compare.csv with --compare); written whole or not at all.
+    /// Output folder (metrics.csv, reading.txt, reliability.svg, murphy.csv, and compare.csv with --compare); written whole or not at all.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
     /// Probability column.
@@ -180,6 +183,9 @@ pub struct Diagnosis {
     pub table: Table,
     /// The reliability diagram (SVG) of the column(s).
     pub svg: String,
+    /// The Murphy diagram as CSV: θ on the fixed grid and the mean
+    /// elementary score of each column ([`murphy_csv`]).
+    pub murphy: String,
 }
 
 impl Diagnosis {
@@ -732,6 +738,7 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
         |n| format!("all {n} rows"),
         args.confidence,
     );
+    let murphy = murphy_csv(&names, &cols, &y);
     Ok(Diagnosis {
         rows: y.len(),
         single,
@@ -739,7 +746,34 @@ pub fn diagnose(args: &DiagnoseArgs) -> Result<Diagnosis> {
         readings,
         table,
         svg,
+        murphy,
     })
+}
+
+/// The Murphy diagram of the columns as CSV (`murphy.csv`): a `theta`
+/// column with the fixed grid θ = 0.01 … 0.99
+/// ([`crate::metrics::elementary::murphy_grid`]) and, per column, the mean
+/// elementary score S̄(θ) of Ehm et al. (2016) over the rows
+/// ([`crate::metrics::elementary::murphy_curve`]); its integral over θ is a
+/// quarter of the Brier score.
+pub fn murphy_csv(names: &[&str], cols: &[&[f64]], y: &[bool]) -> String {
+    use crate::metrics::elementary::{murphy_curve, murphy_grid};
+    let grid = murphy_grid();
+    let curves: Vec<Vec<f64>> = cols.iter().map(|p| murphy_curve(p, y, &grid)).collect();
+    let mut w = csv::WriterBuilder::new()
+        .terminator(csv::Terminator::Any(b'\n'))
+        .from_writer(Vec::new());
+    let head: Vec<&str> = std::iter::once("theta").chain(names.iter().copied()).collect();
+    // Writing to a Vec cannot fail.
+    let _ = w.write_record(&head);
+    for (i, &t) in grid.iter().enumerate() {
+        let rec: Vec<String> = std::iter::once(num(t))
+            .chain(curves.iter().map(|c| num(c[i])))
+            .collect();
+        let _ = w.write_record(&rec);
+    }
+    let bytes = w.into_inner().unwrap_or_default();
+    String::from_utf8(bytes).unwrap_or_default()
 }
 
 /// CSV of estimates: per block (prefix `""` or `"name_"`) the plain value,
@@ -840,6 +874,7 @@ pub fn write_folder(args: &DiagnoseArgs) -> Result<Diagnosis> {
     }
     output::write_file(staging, "reading.txt", text.as_bytes())?;
     output::write_file(staging, "reliability.svg", d.svg.as_bytes())?;
+    output::write_file(staging, "murphy.csv", d.murphy.as_bytes())?;
     if let Some((o, diff)) = &d.compare {
         let bytes = csv_rows(&["compared_", "difference_"], &[o, diff]);
         output::write_file(staging, "compare.csv", &bytes)?;

@@ -19,12 +19,17 @@
 //! decompositions), [`binned`] (ECE), [`smooth_ece`], [`recalibration`]
 //! (calibration slope and intercept), [`spiegelhalter`], [`ici`], [`ranking`]
 //! (AUC), [`threshold`] (cost-weighted loss and net benefit at a decision
-//! threshold).
+//! threshold, or at each of several: [`MetricId::ThresholdCostAt`]),
+//! [`elementary`] (elementary scores and the Murphy diagram).
+
+use std::collections::BTreeMap;
+use std::sync::{Mutex, OnceLock};
 
 use serde::{Deserialize, Serialize};
 
 pub mod binned;
 pub mod decompose;
+pub mod elementary;
 pub mod ici;
 pub mod ranking;
 pub mod recalibration;
@@ -59,6 +64,18 @@ pub struct MetricSettings {
     /// The operating threshold t of `threshold_cost` and `net_benefit`: a
     /// prediction is acted on when p ≥ t. Default 0.5.
     pub decision_threshold: f64,
+    /// Several operating thresholds, each in (0, 1): with this list or
+    /// `cost_ratios`, `threshold_cost` and `net_benefit` become one metric
+    /// per threshold (`threshold_cost@0.2`, …; see [`MetricSettings::thresholds`]).
+    /// Default empty.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub decision_thresholds: Vec<f64>,
+    /// Operating points given as cost ratios c = (cost of a false positive) :
+    /// (cost of a false negative), each finite and above 0; c gives the
+    /// threshold t = c/(1 + c) (Hernández-Orallo, Flach & Ferri 2012, JMLR 13).
+    /// Default empty.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub cost_ratios: Vec<f64>,
 }
 
 impl Default for MetricSettings {
@@ -70,7 +87,19 @@ impl Default for MetricSettings {
             ici_span: 0.75,
             ici_delta: 0.01,
             decision_threshold: 0.5,
+            decision_thresholds: Vec::new(),
+            cost_ratios: Vec::new(),
         }
+    }
+}
+
+/// The threshold t = c/(1 + c) of a false-positive : false-negative cost
+/// ratio c; NaN unless c is finite and above 0.
+pub fn cost_ratio_threshold(c: f64) -> f64 {
+    if c.is_finite() && c > 0.0 {
+        c / (1.0 + c)
+    } else {
+        f64::NAN
     }
 }
 
@@ -122,8 +151,84 @@ impl MetricSettings {
                 "must be in (0, 1): a probability strictly between 0 and 1 from which predictions are acted on",
             );
         }
+        for &t in &self.decision_thresholds {
+            if !(t > 0.0 && t < 1.0) {
+                return bad(
+                    "decision_thresholds",
+                    t.to_string(),
+                    "every threshold must be in (0, 1): a probability strictly between 0 and 1 from which predictions are acted on",
+                );
+            }
+        }
+        for &c in &self.cost_ratios {
+            let t = cost_ratio_threshold(c);
+            if !(t > 0.0 && t < 1.0) {
+                return bad(
+                    "cost_ratios",
+                    c.to_string(),
+                    "every cost ratio (false positive : false negative) must be a finite number above 0 whose threshold c/(1 + c) is below 1",
+                );
+            }
+        }
         Ok(())
     }
+
+    /// The operating thresholds of `decision_thresholds` and `cost_ratios`
+    /// together, ascending, each once (cost ratios as c/(1 + c)); empty when
+    /// neither list is given, and then the metrics at a threshold use
+    /// `decision_threshold`. Values outside (0, 1) are left out (see
+    /// [`MetricSettings::validate`]).
+    pub fn thresholds(&self) -> Vec<Cut> {
+        let mut v: Vec<Cut> = self
+            .decision_thresholds
+            .iter()
+            .copied()
+            .chain(self.cost_ratios.iter().map(|&c| cost_ratio_threshold(c)))
+            .filter_map(Cut::new)
+            .collect();
+        v.sort();
+        v.dedup();
+        v
+    }
+}
+
+/// An operating threshold t in (0, 1) carried by a metric id
+/// ([`MetricId::ThresholdCostAt`], [`MetricId::NetBenefitAt`]). It holds the
+/// exact double, so ids compare, sort and hash by t and the column name
+/// (t in Rust's shortest round-trip form) reads back to the same id.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct Cut(u64);
+
+impl Cut {
+    /// The threshold `t`, or `None` unless 0 < t < 1.
+    pub fn new(t: f64) -> Option<Cut> {
+        // For positive doubles the bit patterns order as the values do.
+        (t > 0.0 && t < 1.0).then_some(Cut(t.to_bits()))
+    }
+
+    pub fn value(self) -> f64 {
+        f64::from_bits(self.0)
+    }
+}
+
+impl std::fmt::Display for Cut {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}", self.value())
+    }
+}
+
+/// The name `<base>@<t>` of a metric at a threshold, made once per distinct
+/// name and kept for the life of the process (there are as many as a suite
+/// has thresholds), so [`MetricId::as_str`] can stay `&'static str`.
+fn at_name(base: &'static str, t: Cut) -> &'static str {
+    static NAMES: OnceLock<Mutex<BTreeMap<(&'static str, Cut), &'static str>>> = OnceLock::new();
+    let mut names = NAMES
+        .get_or_init(Default::default)
+        .lock()
+        .unwrap_or_else(|e| e.into_inner());
+    names
+        .entry((base, t))
+        .or_insert_with(|| Box::leak(format!("{base}@{t}").into_boxed_str()))
 }
 
 /// Which way a metric is better.
@@ -140,9 +245,14 @@ pub enum Goal {
 }
 
 /// A metric id as written in suites. Most metrics are losses: see
-/// [`MetricId::goal`].
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
+/// [`MetricId::goal`]. Serialised as its [`MetricId::as_str`] text.
+///
+/// `ThresholdCostAt(t)` and `NetBenefitAt(t)` are `threshold_cost` and
+/// `net_benefit` at one of the suite's several operating thresholds, named
+/// `threshold_cost@<t>` and `net_benefit@<t>` with t in its shortest
+/// round-trip decimal form (`threshold_cost@0.2`); they are not in
+/// [`MetricId::ALL`]. The plain ids use `decision_threshold`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
 pub enum MetricId {
     LogLoss,
     Brier,
@@ -165,6 +275,22 @@ pub enum MetricId {
     Auc,
     ThresholdCost,
     NetBenefit,
+    ThresholdCostAt(Cut),
+    NetBenefitAt(Cut),
+}
+
+impl Serialize for MetricId {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.as_str())
+    }
+}
+
+impl<'de> Deserialize<'de> for MetricId {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let text = String::deserialize(d)?;
+        MetricId::parse(&text)
+            .ok_or_else(|| serde::de::Error::custom(format!("unknown metric `{text}`")))
+    }
 }
 
 impl std::fmt::Display for MetricId {
@@ -240,23 +366,64 @@ impl MetricId {
             MetricId::Auc => "auc",
             MetricId::ThresholdCost => "threshold_cost",
             MetricId::NetBenefit => "net_benefit",
+            MetricId::ThresholdCostAt(t) => at_name("threshold_cost", t),
+            MetricId::NetBenefitAt(t) => at_name("net_benefit", t),
         }
     }
 
+    /// The id of a name: one of [`MetricId::ALL`], or `threshold_cost@<t>` /
+    /// `net_benefit@<t>` with 0 < t < 1 written exactly as [`MetricId::as_str`]
+    /// writes it (so a name and its id round-trip).
     pub fn parse(s: &str) -> Option<MetricId> {
+        if let Some((base, t)) = s.split_once('@') {
+            let cut = t.parse::<f64>().ok().and_then(Cut::new)?;
+            if cut.to_string() != t {
+                return None;
+            }
+            return match base {
+                "threshold_cost" => Some(MetricId::ThresholdCostAt(cut)),
+                "net_benefit" => Some(MetricId::NetBenefitAt(cut)),
+                _ => None,
+            };
+        }
         Self::ALL.iter().copied().find(|m| m.as_str() == s)
+    }
+
+    /// The same metric at operating threshold `t` (`threshold_cost` →
+    /// `threshold_cost@t`); `None` for a metric that uses no threshold.
+    pub fn at(self, t: Cut) -> Option<MetricId> {
+        match self {
+            MetricId::ThresholdCost | MetricId::ThresholdCostAt(_) => {
+                Some(MetricId::ThresholdCostAt(t))
+            }
+            MetricId::NetBenefit | MetricId::NetBenefitAt(_) => Some(MetricId::NetBenefitAt(t)),
+            _ => None,
+        }
+    }
+
+    /// The operating threshold this metric scores at: its own for an id of
+    /// several thresholds, else `decision_threshold`; `None` for a metric
+    /// that uses no threshold.
+    pub fn threshold(self, settings: &MetricSettings) -> Option<f64> {
+        match self {
+            MetricId::ThresholdCost | MetricId::NetBenefit => Some(settings.decision_threshold),
+            MetricId::ThresholdCostAt(t) | MetricId::NetBenefitAt(t) => Some(t.value()),
+            _ => None,
+        }
     }
 
     /// Which way the metric is better.
     pub fn goal(self) -> Goal {
         use MetricId::*;
         match self {
-            Auc | MurphyRes | CorpBrierDsc | CorpLogDsc | NetBenefit => Goal::Higher,
+            Auc | MurphyRes | CorpBrierDsc | CorpLogDsc | NetBenefit | NetBenefitAt(_) => {
+                Goal::Higher
+            }
             MurphyUnc | CorpBrierUnc | CorpLogUnc => Goal::Descriptive,
             CalibrationSlope => Goal::Toward(1.0),
             CalibrationIntercept | SpiegelhalterZ => Goal::Toward(0.0),
             LogLoss | Brier | MurphyRel | CorpBrierMcb | CorpLogMcb | EceWidth | EceMass
-            | SmoothEce | Ici | ThresholdCost => Goal::Lower,
+            | SmoothEce | Ici | ThresholdCost | ThresholdCostAt(_) => Goal::Lower,
         }
     }
 
@@ -269,7 +436,13 @@ impl MetricId {
     /// True when the metric depends on `decision_threshold` (it scores the
     /// decision p ≥ t rather than the probability).
     pub fn uses_decision_threshold(self) -> bool {
-        matches!(self, MetricId::ThresholdCost | MetricId::NetBenefit)
+        matches!(
+            self,
+            MetricId::ThresholdCost
+                | MetricId::NetBenefit
+                | MetricId::ThresholdCostAt(_)
+                | MetricId::NetBenefitAt(_)
+        )
     }
 
     /// True when the metric is a mean of per-row terms (so its test-set spread
@@ -277,8 +450,8 @@ impl MetricId {
     pub fn row_terms(self) -> bool {
         matches!(
             self,
-            MetricId::LogLoss | MetricId::Brier | MetricId::ThresholdCost | MetricId::NetBenefit
-        )
+            MetricId::LogLoss | MetricId::Brier
+        ) || self.uses_decision_threshold()
     }
 
     /// The row loss from which a prediction counts as extreme for this metric,
@@ -308,6 +481,8 @@ impl MetricId {
                 threshold::threshold_cost_term(p, y, settings.decision_threshold)
             }
             MetricId::NetBenefit => threshold::net_benefit_term(p, y, settings.decision_threshold),
+            MetricId::ThresholdCostAt(t) => threshold::threshold_cost_term(p, y, t.value()),
+            MetricId::NetBenefitAt(t) => threshold::net_benefit_term(p, y, t.value()),
             _ => f64::NAN,
         }
     }
@@ -340,6 +515,8 @@ impl MetricId {
             MetricId::Auc => ranking::auc(p, y),
             MetricId::ThresholdCost => threshold::threshold_cost(p, y, settings.decision_threshold),
             MetricId::NetBenefit => threshold::net_benefit(p, y, settings.decision_threshold),
+            MetricId::ThresholdCostAt(t) => threshold::threshold_cost(p, y, t.value()),
+            MetricId::NetBenefitAt(t) => threshold::net_benefit(p, y, t.value()),
         }
     }
 }
@@ -445,6 +622,82 @@ mod tests {
         }
         assert_eq!(MetricId::ThresholdCost.goal(), Goal::Lower);
         assert!(MetricId::NetBenefit.higher_is_better());
+    }
+
+    #[test]
+    fn ids_at_a_threshold_round_trip_through_their_names() {
+        let t = Cut::new(0.2).unwrap();
+        let m = MetricId::ThresholdCost.at(t).unwrap();
+        assert_eq!(m, MetricId::ThresholdCostAt(t));
+        assert_eq!(m.as_str(), "threshold_cost@0.2");
+        assert_eq!(MetricId::parse("threshold_cost@0.2"), Some(m));
+        assert_eq!(serde_json::to_string(&m).unwrap(), "\"threshold_cost@0.2\"");
+        let back: MetricId = serde_json::from_str("\"net_benefit@0.75\"").unwrap();
+        assert_eq!(back, MetricId::NetBenefitAt(Cut::new(0.75).unwrap()));
+        assert!(serde_json::from_str::<MetricId>("\"net_benefit@2\"").is_err());
+        // A cost ratio of 2 gives t = 2/3, written in full so it reads back.
+        let third = Cut::new(cost_ratio_threshold(2.0)).unwrap();
+        let name = MetricId::NetBenefitAt(third).as_str();
+        assert_eq!(name, "net_benefit@0.6666666666666666");
+        assert_eq!(MetricId::parse(name), Some(MetricId::NetBenefitAt(third)));
+        // Other spellings of a threshold, thresholds outside (0, 1) and
+        // metrics without a threshold are no ids.
+        for bad in [
+            "threshold_cost@0.20",
+            "threshold_cost@.2",
+            "threshold_cost@0",
+            "threshold_cost@1",
+            "threshold_cost@NaN",
+            "threshold_cost@",
+            "brier@0.2",
+            "threshold_cost@0.2@0.3",
+        ] {
+            assert_eq!(MetricId::parse(bad), None, "{bad}");
+        }
+        assert_eq!(MetricId::Brier.at(t), None);
+        // Ids order by base metric, then by threshold.
+        let lo = MetricId::ThresholdCostAt(Cut::new(0.1).unwrap());
+        assert!(lo < m && m < MetricId::NetBenefitAt(Cut::new(0.01).unwrap()));
+        // Each id scores at its own threshold, whatever `decision_threshold` is.
+        let s = MetricSettings::default();
+        let p = [0.1, 0.25, 0.3, 0.9];
+        let y = [true, false, true, false];
+        assert_eq!(m.compute(&p, &y, &s), threshold::threshold_cost(&p, &y, 0.2));
+        assert_eq!(m.threshold(&s), Some(0.2));
+        assert_eq!(MetricId::ThresholdCost.threshold(&s), Some(0.5));
+        assert_eq!(MetricId::Auc.threshold(&s), None);
+        assert!(m.row_terms() && m.uses_decision_threshold());
+        assert_eq!(m.goal(), Goal::Lower);
+        assert!(MetricId::NetBenefitAt(t).higher_is_better());
+    }
+
+    #[test]
+    fn threshold_lists_are_checked_and_merged() {
+        let s: MetricSettings =
+            toml::from_str("decision_thresholds = [0.3, 0.1, 0.5]\ncost_ratios = [1.0, 0.25]")
+                .unwrap();
+        assert!(s.validate().is_ok());
+        // 0.5 from both lists once; 0.25 : 1 gives 0.2.
+        let t: Vec<f64> = s.thresholds().iter().map(|c| c.value()).collect();
+        assert_eq!(t, [0.1, 0.2, 0.3, 0.5]);
+        assert!(MetricSettings::default().thresholds().is_empty());
+        for (toml, key, value) in [
+            ("decision_thresholds = [0.2, 1.0]", "decision_thresholds", "1"),
+            ("decision_thresholds = [0.0]", "decision_thresholds", "0"),
+            ("decision_thresholds = [nan]", "decision_thresholds", "NaN"),
+            ("cost_ratios = [0.0]", "cost_ratios", "0"),
+            ("cost_ratios = [-1.0]", "cost_ratios", "-1"),
+            ("cost_ratios = [inf]", "cost_ratios", "inf"),
+            // Finite, but its threshold rounds to 1.
+            ("cost_ratios = [1e300]", "cost_ratios", &1e300f64.to_string()),
+        ] {
+            let s: MetricSettings = toml::from_str(toml).unwrap();
+            let e = s.validate().unwrap_err();
+            assert_eq!(e.key, key, "{toml}");
+            assert_eq!(e.value, value, "{toml}");
+        }
+        assert!((cost_ratio_threshold(3.0) - 0.75).abs() < 1e-15);
+        assert!(cost_ratio_threshold(0.0).is_nan());
     }
 
     #[test]

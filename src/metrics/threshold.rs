@@ -10,10 +10,11 @@
 //! The factor 2 makes t = ½ the error rate. This is the cost-weighted loss of
 //! Hernández-Orallo, Flach & Ferri (2012), "A unified view of performance
 //! metrics: translating threshold choice into expected classification loss",
-//! JMLR 13, with cost proportion t, and (up to the factor 2) the elementary
-//! score S_t of Ehm, Gneiting, Jordan & Krüger (2016), "Of quantiles and
-//! expectiles: consistent scoring functions, Choquet representations and
-//! forecast rankings", JRSS B 78, whose mixtures over t give every proper
+//! JMLR 13, with cost proportion t, and 4 times the elementary score S_t
+//! (see [`super::elementary`]; the two agree except for p exactly t) of Ehm,
+//! Gneiting, Jordan & Krüger (2016), "Of quantiles and expectiles:
+//! consistent scoring functions, Choquet representations and forecast
+//! rankings", JRSS B 78, whose mixtures over t give every proper
 //! scoring rule of a binary event. Lower is better.
 //!
 //! **Net benefit** (`net_benefit`). Vickers & Elkin (2006), "Decision curve
@@ -27,7 +28,9 @@
 //! positives per row. Treating nobody gives 0, treating everybody gives
 //! π − (1 − π)·t/(1 − t) for prevalence π. Higher is better.
 //!
-//! Both need 0 < t < 1 (`metric_settings.decision_threshold`, checked in
+//! Both need 0 < t < 1 (`metric_settings.decision_threshold`, or each of
+//! `decision_thresholds` and `cost_ratios` for the ids `threshold_cost@t`
+//! and `net_benefit@t` of [`super::MetricId`]; checked in
 //! [`super::MetricSettings::validate`]); a threshold outside, or a NaN
 //! prediction, gives NaN, never a panic.
 

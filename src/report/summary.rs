@@ -988,6 +988,18 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
             crate::run::table::num(t)
         )));
     }
+    let at: Vec<&str> = a
+        .metrics
+        .iter()
+        .filter(|m| matches!(m, MetricId::ThresholdCostAt(_) | MetricId::NetBenefitAt(_)))
+        .map(|m| m.as_str())
+        .collect();
+    if let Some(first) = at.first() {
+        b.push(Block::Para(format!(
+            "Metrics named `<metric>@t` (here {}) score acting on a prediction when p ≥ t, one column per threshold of `decision_thresholds` and `cost_ratios`; e.g. `{first}`. See `docs/metrics.md` (\"Decisions at a threshold\").",
+            at.iter().map(|m| format!("`{m}`")).collect::<Vec<_>>().join(", ")
+        )));
+    }
     b.push(Block::Heading(2, "Decision".into(), "decision".into()));
     if a.decisions.is_empty() {
         b.push(Block::Para("Too few tasks share a calibration size for a comparison across tasks (it needs at least two tasks with a value for every method).".into()));

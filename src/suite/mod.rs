@@ -509,6 +509,13 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
 
     let top = top::read_top(&ctx, &raw)?;
     let metric_settings = settings::read_metric_settings(&ctx, raw.metric_settings.as_ref())?;
+    let (metrics, primary) = settings::expand_thresholds(
+        &ctx,
+        raw.primary_metric.span(),
+        top.metrics,
+        top.primary,
+        &metric_settings,
+    )?;
     let test_set = top::read_test_set(&ctx, raw.test_set.as_ref())?;
 
     let methods = methods::read_methods(&ctx, &raw.method)?;
@@ -536,7 +543,7 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         &method_ids,
         top.confidence,
     )?;
-    let decision = settings::decision_plan(&ctx, raw.decision.as_ref(), &top.metrics)?;
+    let decision = settings::decision_plan(&ctx, raw.decision.as_ref(), &metrics)?;
 
     tasks::require_tasks(&ctx, &raw.task, &raw.task_grid)?;
     let models = models::read_models(&ctx, &raw.model)?;
@@ -568,8 +575,8 @@ pub fn parse(text: &str, path: &Path, sha256: String) -> Result<Plan, SuiteError
         interval: top.interval,
         reference,
         study,
-        metrics: top.metrics,
-        primary: top.primary,
+        metrics,
+        primary,
         metric_settings,
         on_fit_failure: top.on_fit_failure,
         test_set,
@@ -756,6 +763,78 @@ mod tests {
             );
         }
         let e = plan("\n[metric_settings]\ndecision_threshold = \"high\"\n").unwrap_err();
+        assert_eq!(e.key, "metric_settings", "{e}");
+    }
+
+    /// `decision_thresholds` and `cost_ratios` expand the metrics at a
+    /// threshold into one id per threshold; bad values are refused with key,
+    /// value, line and column; the primary metric must name one threshold.
+    #[test]
+    fn several_thresholds_expand_the_decision_metrics() {
+        let dir = tempfile::TempDir::new().unwrap();
+        let rows: String = (0..200).map(|i| format!("{},{}\n", i % 7, i % 2)).collect();
+        std::fs::write(dir.path().join("a.csv"), format!("s,y\n{rows}")).unwrap();
+        let suite = |primary: &str, table: &str| {
+            format!(
+                "name = \"b\"\nseed = 1\nrepeats = 2\nsizes = [50]\nreference = \"platt\"\n\
+                 metrics = [\"brier\", \"threshold_cost\", \"net_benefit\"]\nprimary_metric = \"{primary}\"\n\n\
+                 [test_set]\nrows = 100\n\n[[method]]\nid = \"platt\"\nkind = \"platt\"\n\n\
+                 [[task]]\nid = \"a\"\nscores = \"a.csv\"\nscore_column = \"s\"\nlabel_column = \"y\"\nscore_kind = \"margin\"\n\n\
+                 [metric_settings]\nlog_loss_clip = 1e-6\n{table}"
+            )
+        };
+        let at = dir.path().join("suite.toml");
+        let plan = |primary: &str, table: &str| parse(&suite(primary, table), &at, String::new());
+        let p = plan(
+            "net_benefit@0.2",
+            "decision_thresholds = [0.5, 0.2]\ncost_ratios = [1.0, 3.0]\n",
+        )
+        .unwrap();
+        let names: Vec<&str> = p.metrics.iter().map(|m| m.as_str()).collect();
+        assert_eq!(
+            names,
+            [
+                "brier",
+                "threshold_cost@0.2",
+                "threshold_cost@0.5",
+                "threshold_cost@0.75",
+                "net_benefit@0.2",
+                "net_benefit@0.5",
+                "net_benefit@0.75",
+            ]
+        );
+        assert_eq!(p.primary.as_str(), "net_benefit@0.2");
+        // Without the lists the plain ids stay; an id at a threshold the
+        // suite does not measure is not a primary metric.
+        let p = plan("brier", "").unwrap();
+        assert_eq!(p.metrics[1], MetricId::ThresholdCost);
+        let e = plan("net_benefit@0.3", "decision_thresholds = [0.2]\n").unwrap_err();
+        assert_eq!(e.key, "primary_metric", "{e}");
+        assert!(e.message.contains("net_benefit@0.2"), "{e}");
+        let e = plan("threshold_cost", "cost_ratios = [1.0]\n").unwrap_err();
+        assert_eq!(e.key, "primary_metric", "{e}");
+        assert!(e.message.contains("several thresholds"), "{e}");
+        assert!(e.message.contains("threshold_cost@0.5"), "{e}");
+        // Bad values: the key, the value, and the line and column of the value.
+        let line = suite("brier", "").lines().count() + 1;
+        for (table, key, shown) in [
+            ("decision_thresholds = [0.2, 1.5]", "decision_thresholds", "1.5"),
+            ("cost_ratios = [2.0, -1.0]", "cost_ratios", "-1"),
+            ("cost_ratios = [0.0]", "cost_ratios", "0"),
+        ] {
+            let e = plan("brier", &format!("{table}\n")).unwrap_err();
+            assert_eq!(e.key, format!("metric_settings.{key}"), "{e}");
+            assert!(
+                e.message.contains(&format!("metric_settings.{key} = {shown}: ")),
+                "{e}"
+            );
+            assert_eq!((e.line, e.column), (line, key.len() + 4), "{e}");
+        }
+        let e = plan("brier", "decision_threshold = 0.3\ndecision_thresholds = [0.2]\n")
+            .unwrap_err();
+        assert_eq!(e.key, "metric_settings.decision_threshold", "{e}");
+        assert_eq!(e.line, line, "{e}");
+        let e = plan("brier", "decision_thresholds = [\"x\"]\n").unwrap_err();
         assert_eq!(e.key, "metric_settings", "{e}");
     }
 

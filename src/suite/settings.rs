@@ -6,7 +6,7 @@ use std::collections::BTreeSet;
 use serde::Deserialize;
 use toml::Spanned;
 
-use super::{Ctx, DecisionPlan, MethodEntry, ReliabilityPlan, SuiteError, MAX_MARGIN};
+use super::{key_span, Ctx, DecisionPlan, MethodEntry, ReliabilityPlan, SuiteError, MAX_MARGIN};
 use crate::metrics::{MetricId, MetricSettings};
 
 /// The `[reliability]` table as written.
@@ -54,12 +54,70 @@ pub(super) fn read_metric_settings(
             })?;
     if let Err(e) = s.validate() {
         return Err(ctx.err(
-            t.span(),
+            key_span(ctx.text, &t.span(), e.key),
             &format!("metric_settings.{}", e.key),
             e.to_string(),
         ));
     }
+    let several = !s.decision_thresholds.is_empty() || !s.cost_ratios.is_empty();
+    if several && t.get_ref().contains_key("decision_threshold") {
+        return Err(ctx.err(
+            key_span(ctx.text, &t.span(), "decision_threshold"),
+            "metric_settings.decision_threshold",
+            format!(
+                "{}: give either `decision_threshold` (one threshold) or `decision_thresholds` and `cost_ratios` (several), not both",
+                s.decision_threshold
+            ),
+        ));
+    }
     Ok(s)
+}
+
+/// The suite's metrics with `threshold_cost` and `net_benefit` expanded to one
+/// id per operating threshold of `decision_thresholds` and `cost_ratios`
+/// (`threshold_cost@0.2`, …, ascending; an id listed already is kept once),
+/// and the primary metric checked against that list: with several
+/// thresholds it must name one of them.
+pub(super) fn expand_thresholds(
+    ctx: &Ctx,
+    primary_span: std::ops::Range<usize>,
+    metrics: Vec<MetricId>,
+    primary: MetricId,
+    settings: &MetricSettings,
+) -> Result<(Vec<MetricId>, MetricId), SuiteError> {
+    let cuts = settings.thresholds();
+    let mut out: Vec<MetricId> = Vec::new();
+    for m in metrics {
+        let plain = matches!(m, MetricId::ThresholdCost | MetricId::NetBenefit);
+        let ids: Vec<MetricId> = if plain && !cuts.is_empty() {
+            cuts.iter().filter_map(|&c| m.at(c)).collect()
+        } else {
+            vec![m]
+        };
+        for id in ids {
+            if !out.contains(&id) {
+                out.push(id);
+            }
+        }
+    }
+    if !out.contains(&primary) {
+        let listed = out
+            .iter()
+            .map(|m| m.as_str())
+            .collect::<Vec<_>>()
+            .join(", ");
+        let why = if primary.uses_decision_threshold() && !cuts.is_empty() {
+            "is measured at several thresholds here (`decision_thresholds`, `cost_ratios`): name one of them"
+        } else {
+            "must be one of the suite's metrics"
+        };
+        return Err(ctx.err(
+            primary_span,
+            "primary_metric",
+            format!("`{primary}` {why} ({listed})"),
+        ));
+    }
+    Ok((out, primary))
 }
 
 /// Check the `[decision]` table.

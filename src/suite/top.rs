@@ -197,8 +197,16 @@ fn read_metrics(ctx: &Ctx, raw: &RawSuite) -> Result<(Vec<MetricId>, MetricId), 
     if metrics.is_empty() {
         return Err(ctx.err(raw.metrics.span(), "metrics", "list at least one metric"));
     }
+    // An id at one threshold (`threshold_cost@0.2`) may name a metric that
+    // `[metric_settings]` expands from its plain id; `settings::expand_thresholds`
+    // checks it against the expanded list.
     let primary = MetricId::parse(raw.primary_metric.get_ref())
-        .filter(|m| metrics.contains(m))
+        .filter(|m| {
+            metrics.contains(m)
+                || (m.uses_decision_threshold()
+                    && (metrics.contains(&MetricId::ThresholdCost)
+                        || metrics.contains(&MetricId::NetBenefit)))
+        })
         .ok_or_else(|| {
             ctx.err(
                 raw.primary_metric.span(),
