@@ -383,7 +383,12 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
         decision_threshold: plan
             .metrics
             .iter()
-            .any(|m| matches!(m, crate::metrics::MetricId::ThresholdCost | crate::metrics::MetricId::NetBenefit))
+            .any(|m| {
+                matches!(
+                    m,
+                    crate::metrics::MetricId::ThresholdCost | crate::metrics::MetricId::NetBenefit
+                )
+            })
             .then_some(plan.metric_settings.decision_threshold),
     }
 }

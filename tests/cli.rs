@@ -572,6 +572,93 @@ fn decision_metrics_run_at_the_recorded_threshold() {
     );
 }
 
+/// Several operating thresholds: `decision_thresholds` and `cost_ratios`
+/// give one column per threshold in `units.csv`, paired intervals and
+/// verdicts for each in `paired.csv`, a note in the report, and `report`
+/// rebuilds the same summary; `plumbline check` lists the thresholds.
+#[test]
+fn decision_metrics_run_at_several_thresholds() {
+    let fx = Fixture::new();
+    let text = GOOD
+        .replace(
+            "metrics = [\"log_loss\", \"brier\"]",
+            "metrics = [\"log_loss\", \"threshold_cost\", \"net_benefit\"]",
+        )
+        .replace(
+            "primary_metric = \"log_loss\"",
+            "primary_metric = \"threshold_cost@0.2\"",
+        )
+        .replace(
+            "[test_set]",
+            "[metric_settings]\ndecision_thresholds = [0.6]\ncost_ratios = [0.25, 1.0]\n\n[test_set]",
+        );
+    let suite = fx.suite("several.toml", &text);
+    bin()
+        .args(["check", suite.to_str().unwrap()])
+        .assert()
+        .success()
+        .stdout(predicates::str::contains(
+            "decision thresholds 0.2, 0.5, 0.6 (act when p ≥ t)",
+        ));
+    let out = fx.path("several-out");
+    run_ok(&fx, &suite, &out, "2");
+    let units = gunzip(&out.join("units.csv.gz"));
+    let header: Vec<&str> = units.lines().next().unwrap().split(',').collect();
+    for col in [
+        "threshold_cost@0.2",
+        "threshold_cost@0.5",
+        "threshold_cost@0.6",
+        "net_benefit@0.2",
+        "net_benefit@0.6",
+        "net_benefit@0.5_dbatch00",
+    ] {
+        assert!(header.contains(&col), "{col} missing from {header:?}");
+    }
+    assert!(!header.contains(&"threshold_cost"), "{header:?}");
+    // The columns differ: each is scored at its own threshold.
+    let col = |name: &str| header.iter().position(|c| *c == name).unwrap();
+    let rows: Vec<Vec<&str>> = units
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').collect())
+        .collect();
+    assert!(rows
+        .iter()
+        .any(|r| r[col("threshold_cost@0.2")] != r[col("threshold_cost@0.6")]));
+    let paired = fs::read_to_string(out.join("paired.csv")).unwrap();
+    for m in ["threshold_cost@0.2", "net_benefit@0.6"] {
+        assert!(
+            paired.lines().any(|l| l.split(',').any(|c| c == m)),
+            "{m} missing from paired.csv"
+        );
+    }
+    let summary = fs::read_to_string(out.join("summary.md")).unwrap();
+    assert!(summary.contains("Metrics named `<metric>@t`"), "{summary}");
+    assert!(
+        summary.contains("On `threshold_cost@0.2` (the primary metric)"),
+        "{summary}"
+    );
+    bin()
+        .args(["report", out.to_str().unwrap()])
+        .assert()
+        .success();
+    assert_eq!(fs::read_to_string(out.join("summary.md")).unwrap(), summary);
+
+    must_fail(
+        &fx,
+        &text.replace("cost_ratios = [0.25, 1.0]", "cost_ratios = [1.0, -2.0]"),
+        &[
+            "bad.toml:",
+            "metric_settings.cost_ratios = -2: every cost ratio",
+        ],
+    );
+    must_fail(
+        &fx,
+        &text.replace("\"threshold_cost@0.2\"", "\"threshold_cost\""),
+        &["bad.toml:", "primary_metric", "threshold_cost@0.2"],
+    );
+}
+
 #[test]
 fn bad_score_files_are_rejected_with_file_line_column_value() {
     let fx = Fixture::new();

@@ -595,7 +595,10 @@ fn murphy_csv_holds_each_columns_elementary_scores() {
         let (a, b): (f64, f64) = (r[1].parse().unwrap(), r[2].parse().unwrap());
         assert_eq!(a.to_bits(), cp[i].to_bits());
         assert_eq!(b.to_bits(), cq[i].to_bits());
-        assert!((4.0 * a - threshold_cost(&p, &y, t)).abs() < 1e-12, "θ = {t}");
+        assert!(
+            (4.0 * a - threshold_cost(&p, &y, t)).abs() < 1e-12,
+            "θ = {t}"
+        );
     }
     // Without --compare: one curve.
     run(&f, &d.join("one"), &[], "1");

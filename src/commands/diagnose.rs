@@ -763,7 +763,9 @@ pub fn murphy_csv(names: &[&str], cols: &[&[f64]], y: &[bool]) -> String {
     let mut w = csv::WriterBuilder::new()
         .terminator(csv::Terminator::Any(b'\n'))
         .from_writer(Vec::new());
-    let head: Vec<&str> = std::iter::once("theta").chain(names.iter().copied()).collect();
+    let head: Vec<&str> = std::iter::once("theta")
+        .chain(names.iter().copied())
+        .collect();
     // Writing to a Vec cannot fail.
     let _ = w.write_record(&head);
     for (i, &t) in grid.iter().enumerate() {

@@ -448,10 +448,7 @@ impl MetricId {
     /// True when the metric is a mean of per-row terms (so its test-set spread
     /// can be estimated from the rows).
     pub fn row_terms(self) -> bool {
-        matches!(
-            self,
-            MetricId::LogLoss | MetricId::Brier
-        ) || self.uses_decision_threshold()
+        matches!(self, MetricId::LogLoss | MetricId::Brier) || self.uses_decision_threshold()
     }
 
     /// The row loss from which a prediction counts as extreme for this metric,
@@ -662,7 +659,10 @@ mod tests {
         let s = MetricSettings::default();
         let p = [0.1, 0.25, 0.3, 0.9];
         let y = [true, false, true, false];
-        assert_eq!(m.compute(&p, &y, &s), threshold::threshold_cost(&p, &y, 0.2));
+        assert_eq!(
+            m.compute(&p, &y, &s),
+            threshold::threshold_cost(&p, &y, 0.2)
+        );
         assert_eq!(m.threshold(&s), Some(0.2));
         assert_eq!(MetricId::ThresholdCost.threshold(&s), Some(0.5));
         assert_eq!(MetricId::Auc.threshold(&s), None);
@@ -682,14 +682,22 @@ mod tests {
         assert_eq!(t, [0.1, 0.2, 0.3, 0.5]);
         assert!(MetricSettings::default().thresholds().is_empty());
         for (toml, key, value) in [
-            ("decision_thresholds = [0.2, 1.0]", "decision_thresholds", "1"),
+            (
+                "decision_thresholds = [0.2, 1.0]",
+                "decision_thresholds",
+                "1",
+            ),
             ("decision_thresholds = [0.0]", "decision_thresholds", "0"),
             ("decision_thresholds = [nan]", "decision_thresholds", "NaN"),
             ("cost_ratios = [0.0]", "cost_ratios", "0"),
             ("cost_ratios = [-1.0]", "cost_ratios", "-1"),
             ("cost_ratios = [inf]", "cost_ratios", "inf"),
             // Finite, but its threshold rounds to 1.
-            ("cost_ratios = [1e300]", "cost_ratios", &1e300f64.to_string()),
+            (
+                "cost_ratios = [1e300]",
+                "cost_ratios",
+                &1e300f64.to_string(),
+            ),
         ] {
             let s: MetricSettings = toml::from_str(toml).unwrap();
             let e = s.validate().unwrap_err();

@@ -818,20 +818,28 @@ mod tests {
         // Bad values: the key, the value, and the line and column of the value.
         let line = suite("brier", "").lines().count() + 1;
         for (table, key, shown) in [
-            ("decision_thresholds = [0.2, 1.5]", "decision_thresholds", "1.5"),
+            (
+                "decision_thresholds = [0.2, 1.5]",
+                "decision_thresholds",
+                "1.5",
+            ),
             ("cost_ratios = [2.0, -1.0]", "cost_ratios", "-1"),
             ("cost_ratios = [0.0]", "cost_ratios", "0"),
         ] {
             let e = plan("brier", &format!("{table}\n")).unwrap_err();
             assert_eq!(e.key, format!("metric_settings.{key}"), "{e}");
             assert!(
-                e.message.contains(&format!("metric_settings.{key} = {shown}: ")),
+                e.message
+                    .contains(&format!("metric_settings.{key} = {shown}: ")),
                 "{e}"
             );
             assert_eq!((e.line, e.column), (line, key.len() + 4), "{e}");
         }
-        let e = plan("brier", "decision_threshold = 0.3\ndecision_thresholds = [0.2]\n")
-            .unwrap_err();
+        let e = plan(
+            "brier",
+            "decision_threshold = 0.3\ndecision_thresholds = [0.2]\n",
+        )
+        .unwrap_err();
         assert_eq!(e.key, "metric_settings.decision_threshold", "{e}");
         assert_eq!(e.line, line, "{e}");
         let e = plan("brier", "decision_thresholds = [\"x\"]\n").unwrap_err();
