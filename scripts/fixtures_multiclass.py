@@ -42,6 +42,21 @@ published formula, independent of the Rust code:
                 penalty 1e-4, analytic gradient, started at w = 1, b = 0.
                 Recorded: w, b, the gradient norm at the solution and the
                 smallest eigenvalue of the analytic Hessian there.
+  matrix        the same minimiser over (W, b) (K^2 + K parameters) of the
+                mean log loss of softmax(z W^T + b) plus
+                (penalty / 2)(|W - I|_F^2 + |b|^2), penalty 1e-4, started at
+                W = I, b = 0, then, when BFGS stops above a gradient norm of
+                1e-11, polished by solving gradient = 0 with
+                scipy.optimize.root ("hybr", analytic Hessian as Jacobian),
+                keeping whichever point has the smaller gradient. Recorded: W (row-major), b, the objective, the
+                gradient norm and the smallest Hessian eigenvalue.
+  dirichlet     the same for the map softmax(ln(q) W^T + b) of the given
+                probabilities q = softmax(z), with ln q clipped below at
+                ln(1e-12), and the ODIR penalty at FIXED strengths
+                lambda = mu = 1e-2:
+                  lambda * sum_{j != k} W_jk^2 / (K (K - 1))
+                  + mu * sum_k b_k^2 / K + kappa * sum_k (W_kk - 1)^2 / K,
+                kappa = 1e-6 (plumbline's diagonal guard).
   *_log_loss    sklearn log_loss of the fitted maps' predictions on the
                 calibration rows.
 """
@@ -53,7 +68,7 @@ import sys
 import numpy as np
 import scipy
 import sklearn
-from scipy.optimize import minimize
+from scipy.optimize import minimize, root
 from scipy.special import logsumexp, softmax
 from sklearn.metrics import log_loss
 
@@ -62,6 +77,10 @@ from fixtures_ece import ece_mass, ece_width  # noqa: E402
 
 OUT = os.path.join("tests", "fixtures", "multiclass", "reference.json")
 PENALTY = 1e-4
+ODIR_LAMBDA = 1e-2
+ODIR_MU = 1e-2
+DIAGONAL_GUARD = 1e-6
+LOG_CLIP = 1e-12
 BINS = 10
 
 GENERATOR = {
@@ -171,6 +190,93 @@ def fit_vector(z, y):
     return res.x[:k], res.x[k:], loss, gnorm, mu, p
 
 
+def affine_parts(theta, x, y, k, pen):
+    n = len(y)
+    m = theta.reshape(k, k + 1)
+    w, b = m[:, :k], m[:, k]
+    a = x @ w.T + b
+    p = softmax(a, axis=1)
+    e = np.zeros_like(p)
+    e[np.arange(n), y] = 1.0
+    value, grad_w, grad_b = pen(w, b)
+    loss = float(np.mean(logsumexp(a, axis=1) - a[np.arange(n), y]) + value)
+    d = p - e
+    gw = d.T @ x / n + grad_w
+    gb = d.mean(axis=0) + grad_b
+    grad = np.hstack([gw, gb[:, None]]).ravel()
+    return loss, grad, p
+
+
+def affine_hessian(theta, x, y, k, pen_hess):
+    n = len(y)
+    m = theta.reshape(k, k + 1)
+    p = softmax(x @ m[:, :k].T + m[:, k], axis=1)
+    h = np.zeros((k * (k + 1), k * (k + 1)))
+    for i in range(n):
+        s = np.diag(p[i]) - np.outer(p[i], p[i])
+        xt = np.append(x[i], 1.0)
+        h += np.kron(s, np.outer(xt, xt))
+    return h / n + np.diag(pen_hess)
+
+
+def fit_affine(x, y, pen, pen_hess):
+    k = x.shape[1]
+    theta0 = np.hstack([np.eye(k), np.zeros((k, 1))]).ravel()
+    f = lambda t: affine_parts(t, x, y, k, pen)[0]  # noqa: E731
+    g = lambda t: affine_parts(t, x, y, k, pen)[1]  # noqa: E731
+    res = minimize(f, theta0, jac=g, method="BFGS",
+                   options={"gtol": 1e-11, "maxiter": 100000})
+    theta = res.x
+    hess = lambda t: affine_hessian(t, x, y, k, pen_hess)  # noqa: E731
+    if np.linalg.norm(g(theta)) > 1e-11:
+        # Near the optimum J changes by about |grad|^2 / mu, below the
+        # rounding of J, so a minimiser's line search stalls: polish by
+        # solving grad = 0 (scipy's root finder, analytic Jacobian = Hessian)
+        # and keep the point with the smaller gradient.
+        sol = root(g, theta, jac=hess, method="hybr", options={"xtol": 1e-15})
+        if np.linalg.norm(g(sol.x)) < np.linalg.norm(g(theta)):
+            theta = sol.x
+    loss, grad, p = affine_parts(theta, x, y, k, pen)
+    gnorm = float(np.linalg.norm(grad))
+    mu = float(np.linalg.eigvalsh(affine_hessian(theta, x, y, k, pen_hess)).min())
+    assert gnorm < 1e-9, (res.message, gnorm)
+    m = theta.reshape(k, k + 1)
+    return m[:, :k], m[:, k], loss, gnorm, mu, p
+
+
+def matrix_penalty(k):
+    def pen(w, b):
+        d = w - np.eye(k)
+        value = 0.5 * PENALTY * (np.sum(d ** 2) + np.sum(b ** 2))
+        return value, PENALTY * d, PENALTY * b
+    return pen, np.full(k * (k + 1), PENALTY)
+
+
+def odir_penalty(k):
+    off = 1.0 - np.eye(k)
+
+    def pen(w, b):
+        dg = np.diag(w) - 1.0
+        value = (ODIR_LAMBDA * np.sum((w * off) ** 2) / (k * (k - 1))
+                 + ODIR_MU * np.sum(b ** 2) / k + DIAGONAL_GUARD * np.sum(dg ** 2) / k)
+        gw = 2.0 * ODIR_LAMBDA * w * off / (k * (k - 1)) + np.diag(2.0 * DIAGONAL_GUARD * dg / k)
+        return value, gw, 2.0 * ODIR_MU * b / k
+    hw = 2.0 * ODIR_LAMBDA * off / (k * (k - 1)) + np.eye(k) * 2.0 * DIAGONAL_GUARD / k
+    hb = np.full((k, 1), 2.0 * ODIR_MU / k)
+    return pen, np.hstack([hw, hb]).ravel()
+
+
+def affine_record(fitted, y, labels, extra):
+    w, b, loss, gnorm, mu, p = fitted
+    out = dict(extra)
+    out.update({
+        "w": [float(v) for v in w.ravel()], "b": [float(v) for v in b],
+        "objective": loss, "grad_norm": gnorm, "min_hessian_eigenvalue": mu,
+        "log_loss": float(log_loss(y, p, labels=labels)),
+    })
+    return out
+
+
 def make_case(name, rng, n, scales, offsets):
     z, y = make_data(rng, n, scales, offsets)
     k = z.shape[1]
@@ -180,6 +286,13 @@ def make_case(name, rng, n, scales, offsets):
     brier = float(np.mean(((p - np.eye(k)[y]) ** 2).sum(axis=1)))
     t, tg, tcurv, pt = fit_temperature(z, y)
     w, b, vloss, vg, vmu, pv = fit_vector(z, y)
+    mpen, mhess = matrix_penalty(k)
+    mfit = fit_affine(z, y, mpen, mhess)
+    assert p.min() > LOG_CLIP
+    dpen, dhess = odir_penalty(k)
+    dfit = fit_affine(np.log(np.maximum(p, LOG_CLIP)), y, dpen, dhess)
+    print(f"  matrix |grad| = {mfit[3]:.1e}, mu = {mfit[4]:.1e}; "
+          f"dirichlet |grad| = {dfit[3]:.1e}, mu = {dfit[4]:.1e}")
     print(f"{name}: n = {n}, K = {k}, class counts {np.bincount(y, minlength=k).tolist()}, "
           f"T = {t:.6f}, w = {np.round(w, 4).tolist()}, |grad| = {vg:.1e}, mu = {vmu:.1e}")
     return {
@@ -203,6 +316,10 @@ def make_case(name, rng, n, scales, offsets):
             "objective": vloss, "grad_norm": vg, "min_hessian_eigenvalue": vmu,
             "log_loss": float(log_loss(y, pv, labels=labels)),
         },
+        "matrix": affine_record(mfit, y, labels, {"penalty": PENALTY}),
+        "dirichlet": affine_record(dfit, y, labels, {
+            "lambda": ODIR_LAMBDA, "mu": ODIR_MU, "diagonal_guard": DIAGONAL_GUARD,
+            "log_clip": LOG_CLIP}),
     }
 
 
@@ -218,8 +335,9 @@ def main():
     doc = {
         "generator": GENERATOR,
         "note": "multiclass log loss (scikit-learn), Brier score (numpy), top-label and "
-                "classwise ECE (numpy), temperature and vector scaling fitted by "
-                "scipy.optimize.minimize (BFGS)",
+                "classwise ECE (numpy), temperature, vector and matrix scaling and "
+                "Dirichlet calibration (ODIR, fixed strengths) fitted by "
+                "scipy.optimize.minimize (BFGS, polished by scipy.optimize.root on the gradient)",
         "cases": cases,
     }
     os.makedirs(os.path.dirname(OUT), exist_ok=True)

@@ -21,11 +21,18 @@
 //!   direction that shifts every bias alike), so μ = λ there. Temperature
 //!   scaling in ln T is convex only near the optimum: μ is the second
 //!   derivative there (quadratic model), the factor 2 covering the rest.
+//!   Matrix scaling (K² + K parameters) stops at
+//!   gradient entries below 1e-12, a norm below √(K² + K)·1e-12; its
+//!   objective is strongly convex with μ at least the smallest Hessian
+//!   eigenvalue the fixture records at scipy's optimum (the Hessian changes
+//!   little over the tiny distance between the two points; the factor 2
+//!   covers it), so they agree within 2·(|g_scipy| + √(K² + K)·1e-12)/μ
+//!   plus 1e-9.
 //! * Objective at the optimum: the two minima agree within twice |g|²/(2μ)
 //!   plus 1e-12.
 
 use plumbline::multiclass::metrics::{self, Binning};
-use plumbline::multiclass::{temperature, vector};
+use plumbline::multiclass::{matrix, temperature, vector};
 use serde::Deserialize;
 
 #[derive(Deserialize)]
@@ -62,6 +69,17 @@ struct Vector {
 }
 
 #[derive(Deserialize)]
+struct Matrix {
+    penalty: f64,
+    w: Vec<f64>,
+    b: Vec<f64>,
+    objective: f64,
+    grad_norm: f64,
+    min_hessian_eigenvalue: f64,
+    log_loss: f64,
+}
+
+#[derive(Deserialize)]
 struct Case {
     name: String,
     classes: usize,
@@ -74,6 +92,7 @@ struct Case {
     ece: Ece,
     temperature: Temperature,
     vector: Vector,
+    matrix: Matrix,
 }
 
 /// The plumbline log-loss clip; the fixture checks it changes nothing.
@@ -102,6 +121,9 @@ fn load() -> Fixture {
         );
         assert_eq!(c.vector.w.len(), c.classes, "{}: w", c.name);
         assert_eq!(c.vector.b.len(), c.classes, "{}: b", c.name);
+        let kk = c.classes * c.classes;
+        assert_eq!(c.matrix.w.len(), kk, "{}: matrix W", c.name);
+        assert_eq!(c.matrix.b.len(), c.classes, "{}: matrix b", c.name);
     }
     f
 }
@@ -225,5 +247,65 @@ fn vector_scaling_matches_scipy() {
         };
         let spread = 0.5 * r.penalty * dist * (norm(&f.w, &f.b) + norm(&r.w, &r.b));
         close(&c.name, "log loss", ll, r.log_loss, jtol + spread + 1e-12);
+    }
+}
+
+/// Euclidean distance between two parameter lists.
+fn distance(a: &[f64], b: &[f64]) -> f64 {
+    a.iter()
+        .zip(b)
+        .map(|(x, y)| (x - y) * (x - y))
+        .sum::<f64>()
+        .sqrt()
+}
+
+/// The distance bound of a (K² + K)-parameter fit (module doc).
+fn affine_tolerance(classes: usize, grad_norm: f64, min_eigenvalue: f64) -> f64 {
+    let own = ((classes * (classes + 1)) as f64).sqrt() * 1e-12;
+    2.0 * (grad_norm + own) / min_eigenvalue + 1e-9
+}
+
+#[test]
+fn matrix_scaling_matches_scipy() {
+    for c in load().cases {
+        let r = &c.matrix;
+        assert_eq!(r.penalty, matrix::DEFAULT_PENALTY, "{}: penalty", c.name);
+        let f = matrix::fit(&c.logits, c.classes, &c.labels).unwrap();
+        // λ-strong convexity: the Hessian's smallest eigenvalue is never below λ.
+        assert!(r.min_hessian_eigenvalue >= r.penalty * (1.0 - 1e-6));
+        let tol = affine_tolerance(c.classes, r.grad_norm, r.min_hessian_eigenvalue);
+        let (own, theirs): (Vec<f64>, Vec<f64>) = (
+            f.w.iter().chain(&f.b).copied().collect(),
+            r.w.iter().chain(&r.b).copied().collect(),
+        );
+        let dist = distance(&own, &theirs);
+        assert!(
+            dist <= tol,
+            "{}: (W, b) {own:?} against scipy's {theirs:?}: distance {dist:e} > {tol:e}",
+            c.name
+        );
+        let j = matrix::objective(&c.logits, c.classes, &c.labels, &f.w, &f.b, f.penalty);
+        let gap = r.grad_norm * r.grad_norm / (2.0 * r.min_hessian_eigenvalue);
+        close(
+            &c.name,
+            "matrix objective",
+            j,
+            r.objective,
+            2.0 * gap + 1e-12,
+        );
+        // The log loss alone: within the Lipschitz bound of the mean log loss
+        // in the parameters over the distance (features below max|z| + 1 per
+        // row), plus rounding.
+        let p = f.predict(&c.logits).unwrap();
+        let ll = metrics::log_loss(&p, c.classes, &c.labels, CLIP).unwrap();
+        let zmax = c.logits.iter().fold(1.0f64, |m, v| m.max(v.abs()));
+        let lip = 2.0 * zmax * ((c.classes + 1) as f64).sqrt();
+        close(
+            &c.name,
+            "matrix log loss",
+            ll,
+            r.log_loss,
+            lip * dist + 1e-12,
+        );
     }
 }

@@ -9,11 +9,14 @@
 //!   expected calibration error.
 //! * [`temperature`]: temperature scaling, p = softmax(z / T).
 //! * [`vector`]: vector scaling, p = softmax(w ⊙ z + b).
+//! * [`matrix`]: matrix scaling, p = softmax(W z + b).
 //!
 //! Inputs are checked before any work ([`check_probabilities`],
 //! [`check_logits`]); bad input is a [`MulticlassError`] naming the row and
 //! column, never a panic and never a NaN result.
 
+mod affine;
+pub mod matrix;
 pub mod metrics;
 pub mod temperature;
 pub mod vector;
@@ -115,7 +118,23 @@ pub fn check_probabilities(
     classes: usize,
     labels: &[usize],
 ) -> Result<usize, MulticlassError> {
-    let rows = check_shape(p, classes, labels)?;
+    check_shape(p, classes, labels)?;
+    check_probability_rows(p, classes)
+}
+
+/// Checks probability rows without labels (for predictions): K ≥ 2, whole
+/// rows, every entry finite and in [0, 1], every row summing to 1 within
+/// [`ROW_SUM_TOLERANCE`]. Returns n (0 for no values).
+pub fn check_probability_rows(p: &[f64], classes: usize) -> Result<usize, MulticlassError> {
+    if classes < 2 {
+        return Err(MulticlassError::TooFewClasses { classes });
+    }
+    if p.len() % classes != 0 {
+        return Err(MulticlassError::Shape {
+            len: p.len(),
+            classes,
+        });
+    }
     for (row, r) in p.chunks_exact(classes).enumerate() {
         for (class, &value) in r.iter().enumerate() {
             if !value.is_finite() {
@@ -130,7 +149,7 @@ pub fn check_probabilities(
             return Err(MulticlassError::RowSum { row, sum });
         }
     }
-    Ok(rows)
+    Ok(p.len() / classes)
 }
 
 /// Checks a logit matrix: the shape and every entry finite. Returns n.

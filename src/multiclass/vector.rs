@@ -161,7 +161,7 @@ fn gradient_hessian(
 
 /// Solves H x = r for symmetric positive definite H (row-major m×m) by
 /// Cholesky; None when H is not numerically positive definite.
-fn cholesky_solve(h: &[f64], r: &[f64]) -> Option<Vec<f64>> {
+pub(super) fn cholesky_solve(h: &[f64], r: &[f64]) -> Option<Vec<f64>> {
     let m = r.len();
     let mut l = vec![0.0; m * m];
     for i in 0..m {
