@@ -3,8 +3,9 @@
 //! The fixture `tests/fixtures/multiclass/reference.json` is written by
 //! `scripts/fixtures_multiclass.py` (library versions in its "generator"
 //! header), which says how every reference value is computed: scikit-learn's
-//! log loss, the Brier score and binned ECEs by numpy, and temperature and
-//! vector scaling fitted by scipy's BFGS.
+//! log loss, the Brier score and binned ECEs by numpy, and temperature,
+//! vector and matrix scaling and Dirichlet calibration (at fixed ODIR
+//! strengths) fitted by scipy's BFGS.
 //!
 //! Tolerances:
 //! * Metrics: the same sums of at most a few hundred terms in another order,
@@ -21,18 +22,19 @@
 //!   direction that shifts every bias alike), so μ = λ there. Temperature
 //!   scaling in ln T is convex only near the optimum: μ is the second
 //!   derivative there (quadratic model), the factor 2 covering the rest.
-//!   Matrix scaling (K² + K parameters) stops at
-//!   gradient entries below 1e-12, a norm below √(K² + K)·1e-12; its
-//!   objective is strongly convex with μ at least the smallest Hessian
+//!   Matrix scaling and Dirichlet calibration (K² + K parameters) report the
+//!   largest gradient entry g_own where they stopped, a norm below
+//!   √(K² + K)·g_own; their
+//!   objectives are strongly convex with μ at least the smallest Hessian
 //!   eigenvalue the fixture records at scipy's optimum (the Hessian changes
 //!   little over the tiny distance between the two points; the factor 2
-//!   covers it), so they agree within 2·(|g_scipy| + √(K² + K)·1e-12)/μ
+//!   covers it), so they agree within 2·(|g_scipy| + √(K² + K)·g_own)/μ
 //!   plus 1e-9.
 //! * Objective at the optimum: the two minima agree within twice |g|²/(2μ)
 //!   plus 1e-12.
 
 use plumbline::multiclass::metrics::{self, Binning};
-use plumbline::multiclass::{matrix, temperature, vector};
+use plumbline::multiclass::{dirichlet, matrix, temperature, vector};
 use serde::Deserialize;
 
 #[derive(Deserialize)]
@@ -80,6 +82,20 @@ struct Matrix {
 }
 
 #[derive(Deserialize)]
+struct Dirichlet {
+    lambda: f64,
+    mu: f64,
+    diagonal_guard: f64,
+    log_clip: f64,
+    w: Vec<f64>,
+    b: Vec<f64>,
+    objective: f64,
+    grad_norm: f64,
+    min_hessian_eigenvalue: f64,
+    log_loss: f64,
+}
+
+#[derive(Deserialize)]
 struct Case {
     name: String,
     classes: usize,
@@ -93,6 +109,7 @@ struct Case {
     temperature: Temperature,
     vector: Vector,
     matrix: Matrix,
+    dirichlet: Dirichlet,
 }
 
 /// The plumbline log-loss clip; the fixture checks it changes nothing.
@@ -124,6 +141,8 @@ fn load() -> Fixture {
         let kk = c.classes * c.classes;
         assert_eq!(c.matrix.w.len(), kk, "{}: matrix W", c.name);
         assert_eq!(c.matrix.b.len(), c.classes, "{}: matrix b", c.name);
+        assert_eq!(c.dirichlet.w.len(), kk, "{}: Dirichlet W", c.name);
+        assert_eq!(c.dirichlet.b.len(), c.classes, "{}: Dirichlet b", c.name);
     }
     f
 }
@@ -259,9 +278,14 @@ fn distance(a: &[f64], b: &[f64]) -> f64 {
         .sqrt()
 }
 
-/// The distance bound of a (K² + K)-parameter fit (module doc).
-fn affine_tolerance(classes: usize, grad_norm: f64, min_eigenvalue: f64) -> f64 {
-    let own = ((classes * (classes + 1)) as f64).sqrt() * 1e-12;
+/// The distance bound of a (K² + K)-parameter fit (module doc); `own_max`
+/// is the largest gradient entry where plumbline's fit stopped.
+fn affine_tolerance(classes: usize, grad_norm: f64, own_max: f64, min_eigenvalue: f64) -> f64 {
+    assert!(
+        own_max <= 1e-9,
+        "the fit stopped at a gradient entry of {own_max:e}"
+    );
+    let own = ((classes * (classes + 1)) as f64).sqrt() * own_max;
     2.0 * (grad_norm + own) / min_eigenvalue + 1e-9
 }
 
@@ -273,7 +297,7 @@ fn matrix_scaling_matches_scipy() {
         let f = matrix::fit(&c.logits, c.classes, &c.labels).unwrap();
         // λ-strong convexity: the Hessian's smallest eigenvalue is never below λ.
         assert!(r.min_hessian_eigenvalue >= r.penalty * (1.0 - 1e-6));
-        let tol = affine_tolerance(c.classes, r.grad_norm, r.min_hessian_eigenvalue);
+        let tol = affine_tolerance(c.classes, r.grad_norm, f.gradient, r.min_hessian_eigenvalue);
         let (own, theirs): (Vec<f64>, Vec<f64>) = (
             f.w.iter().chain(&f.b).copied().collect(),
             r.w.iter().chain(&r.b).copied().collect(),
@@ -303,6 +327,54 @@ fn matrix_scaling_matches_scipy() {
         close(
             &c.name,
             "matrix log loss",
+            ll,
+            r.log_loss,
+            lip * dist + 1e-12,
+        );
+    }
+}
+
+#[test]
+fn dirichlet_matches_scipy_at_fixed_strengths() {
+    for c in load().cases {
+        let r = &c.dirichlet;
+        assert_eq!(r.diagonal_guard, dirichlet::DIAGONAL_GUARD, "{}", c.name);
+        assert_eq!(r.log_clip, dirichlet::LOG_CLIP, "{}", c.name);
+        let q = &c.probabilities;
+        let f = dirichlet::fit_with(q, c.classes, &c.labels, r.lambda, r.mu).unwrap();
+        assert!(f.choice.is_none());
+        assert!(r.min_hessian_eigenvalue > 0.0);
+        let tol = affine_tolerance(c.classes, r.grad_norm, f.gradient, r.min_hessian_eigenvalue);
+        let (own, theirs): (Vec<f64>, Vec<f64>) = (
+            f.w.iter().chain(&f.b).copied().collect(),
+            r.w.iter().chain(&r.b).copied().collect(),
+        );
+        let dist = distance(&own, &theirs);
+        assert!(
+            dist <= tol,
+            "{}: (W, b) {own:?} against scipy's {theirs:?}: distance {dist:e} > {tol:e}",
+            c.name
+        );
+        let j = dirichlet::objective(q, c.classes, &c.labels, &f.w, &f.b, r.lambda, r.mu);
+        let gap = r.grad_norm * r.grad_norm / (2.0 * r.min_hessian_eigenvalue);
+        close(
+            &c.name,
+            "Dirichlet objective",
+            j,
+            r.objective,
+            2.0 * gap + 1e-12,
+        );
+        // The log loss alone: Lipschitz in the parameters with features
+        // ln q (|ln q| ≤ |ln 1e-12|, and at most max|ln q| here) plus the 1.
+        let p = f.predict(q).unwrap();
+        let ll = metrics::log_loss(&p, c.classes, &c.labels, CLIP).unwrap();
+        let xmax = q
+            .iter()
+            .fold(1.0f64, |m, v| m.max(v.max(dirichlet::LOG_CLIP).ln().abs()));
+        let lip = 2.0 * xmax * ((c.classes + 1) as f64).sqrt();
+        close(
+            &c.name,
+            "Dirichlet log loss",
             ll,
             r.log_loss,
             lip * dist + 1e-12,

@@ -18,10 +18,15 @@
 //! Exact derivatives, with x̃ = (x, 1), p = softmax(a), e = the label's
 //! indicator and S = diag(p) − p pᵀ: ∂/∂θ_{(k,j)} = (p_k − e_k) x̃_j and
 //! H_{(k,j),(l,m)} = S_kl x̃_j x̃_m (the Kronecker product S ⊗ x̃x̃ᵀ), plus
-//! c_t on the diagonal; the Newton system is solved by Cholesky. The search
-//! stops when the largest gradient entry falls below 1e-12 or the Newton
-//! decrement gᵀH⁻¹g below 1e-20; more than 100 steps, a non-finite value or
-//! a failed line search is an error, never a panic. Cost per step:
+//! c_t on the diagonal; the Newton system is solved by Cholesky. Steps are
+//! damped by backtracking until the Newton decrement gᵀH⁻¹g falls below
+//! 1e-10; from there J changes by less than its own rounding can judge, so
+//! full Newton steps are taken (the quadratic phase). The search stops when
+//! the largest gradient entry falls below 1e-12, the decrement below 1e-20,
+//! or a full step no longer halves a largest gradient entry that is already
+//! below 1e-9 (the rounding floor of the row sums, reached for poorly
+//! conditioned objectives). More than 100 steps, a non-finite value or a
+//! failed line search is an error, never a panic. Cost per step:
 //! O(n K⁴) for the Hessian and O(K⁶) for the solve, meant for tens of
 //! classes. Every lse and softmax subtracts the row's maximum.
 
@@ -29,6 +34,16 @@ use super::{log_sum_exp, softmax_into, vector::cholesky_solve, MulticlassError};
 
 /// Most Newton steps.
 const MAX_STEPS: usize = 100;
+
+/// Converged when every gradient entry is at most this.
+const GRADIENT_STOP: f64 = 1e-12;
+
+/// Newton decrement below which full steps are taken without line search.
+const LOCAL_DECREMENT: f64 = 1e-10;
+
+/// Converged when a local step leaves the largest gradient entry above half
+/// its previous value while it is at most this (the sums' rounding floor).
+const FLOOR_STOP: f64 = 1e-9;
 
 /// The quadratic penalty ½ Σ_t c_t (θ_t − τ_t)², one weight and target per
 /// parameter in the layout of the module doc.
@@ -180,8 +195,9 @@ pub(crate) fn gradient_hessian(
     (g, h)
 }
 
-/// Minimises J from `start`; returns θ and the Newton steps taken. `what`
-/// names the method in messages.
+/// Minimises J from `start`; returns θ, the Newton steps taken and the
+/// largest gradient entry at the last check (before the last step when the
+/// search stopped on the decrement). `what` names the method in messages.
 pub(crate) fn fit(
     x: &[f64],
     k: usize,
@@ -189,7 +205,7 @@ pub(crate) fn fit(
     start: Vec<f64>,
     penalty: &Penalty,
     what: &str,
-) -> Result<(Vec<f64>, usize), MulticlassError> {
+) -> Result<(Vec<f64>, usize, f64), MulticlassError> {
     let mut theta = start;
     let j_of = |t: &[f64]| objective(x, k, labels, t, penalty);
     let mut j = j_of(&theta);
@@ -198,6 +214,8 @@ pub(crate) fn fit(
             "{what}: the log loss at the start is not finite"
         )));
     }
+    // The largest gradient entry after a full step of the local phase.
+    let mut local_gmax: Option<f64> = None;
     for it in 1..=MAX_STEPS {
         let (g, h) = gradient_hessian(x, k, labels, &theta, penalty);
         if g.iter().any(|v| !v.is_finite()) || h.iter().any(|v| !v.is_finite()) {
@@ -206,8 +224,13 @@ pub(crate) fn fit(
             )));
         }
         let gmax = g.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-        if gmax <= 1e-12 {
-            return Ok((theta, it));
+        if gmax <= GRADIENT_STOP {
+            return Ok((theta, it, gmax));
+        }
+        // A local step that no longer halves the gradient has reached the
+        // rounding floor of the sums.
+        if local_gmax.is_some_and(|prev| gmax > 0.5 * prev && gmax <= FLOOR_STOP) {
+            return Ok((theta, it, gmax));
         }
         let Some(step) = cholesky_solve(&h, &g) else {
             return Err(MulticlassError::Failed(format!(
@@ -217,8 +240,22 @@ pub(crate) fn fit(
         let decrement: f64 = g.iter().zip(&step).map(|(a, b)| a * b).sum();
         if decrement <= 1e-20 {
             theta.iter_mut().zip(&step).for_each(|(t, s)| *t -= s);
-            return Ok((theta, it));
+            return Ok((theta, it, gmax));
         }
+        if decrement <= LOCAL_DECREMENT {
+            // Local phase: J changes by about decrement / 2, near its own
+            // rounding, so a line search would judge noise; the full Newton
+            // step is safe this close to the optimum.
+            let trial: Vec<f64> = theta.iter().zip(&step).map(|(a, s)| a - s).collect();
+            let jt = j_of(&trial);
+            if jt.is_finite() {
+                theta = trial;
+                j = jt;
+                local_gmax = Some(gmax);
+                continue;
+            }
+        }
+        local_gmax = None;
         let mut t = 1.0;
         loop {
             let trial: Vec<f64> = theta.iter().zip(&step).map(|(a, s)| a - t * s).collect();
@@ -231,7 +268,7 @@ pub(crate) fn fit(
             t *= 0.5;
             if t < 1e-12 {
                 if decrement <= 1e-14 * j.abs().max(1.0) {
-                    return Ok((theta, it));
+                    return Ok((theta, it, gmax));
                 }
                 return Err(MulticlassError::Failed(format!(
                     "{what}: the line search failed at step {it}"

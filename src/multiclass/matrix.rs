@@ -46,6 +46,9 @@ pub struct MatrixFit {
     pub penalty: f64,
     /// Newton steps taken.
     pub iterations: usize,
+    /// Largest |∂J/∂θ| where the fit stopped (at most 1e-12, or 1e-9 at the
+    /// rounding floor of a poorly conditioned fit).
+    pub gradient: f64,
 }
 
 impl MatrixFit {
@@ -94,6 +97,7 @@ pub fn objective(
         b: b.to_vec(),
         penalty,
         iterations: 0,
+        gradient: f64::NAN,
     };
     affine::objective(
         z,
@@ -131,13 +135,14 @@ pub fn fit_with_penalty(
     if !affine::objective(z, k, labels, &start, &pen).is_finite() {
         start = affine::scaled_identity(k, 1.0);
     }
-    let (theta, iterations) = affine::fit(z, k, labels, start, &pen, "matrix scaling")?;
+    let (theta, iterations, gradient) = affine::fit(z, k, labels, start, &pen, "matrix scaling")?;
     let (w, b) = affine::split(&theta, k);
     Ok(MatrixFit {
         w,
         b,
         penalty,
         iterations,
+        gradient,
     })
 }
 

@@ -10,12 +10,15 @@
 //! * [`temperature`]: temperature scaling, p = softmax(z / T).
 //! * [`vector`]: vector scaling, p = softmax(w ⊙ z + b).
 //! * [`matrix`]: matrix scaling, p = softmax(W z + b).
+//! * [`dirichlet`]: Dirichlet calibration, p = softmax(W ln q + b) with
+//!   ODIR regularisation chosen by cross-validation.
 //!
 //! Inputs are checked before any work ([`check_probabilities`],
 //! [`check_logits`]); bad input is a [`MulticlassError`] naming the row and
 //! column, never a panic and never a NaN result.
 
 mod affine;
+pub mod dirichlet;
 pub mod matrix;
 pub mod metrics;
 pub mod temperature;
