@@ -12,6 +12,8 @@
 //! * [`matrix`]: matrix scaling, p = softmax(W z + b).
 //! * [`dirichlet`]: Dirichlet calibration, p = softmax(W ln q + b) with
 //!   ODIR regularisation chosen by cross-validation.
+//! * [`one_vs_rest`]: any binary method of `crate::calibrate` per class,
+//!   rows renormalised.
 //!
 //! Inputs are checked before any work ([`check_probabilities`],
 //! [`check_logits`]); bad input is a [`MulticlassError`] naming the row and
@@ -21,6 +23,7 @@ mod affine;
 pub mod dirichlet;
 pub mod matrix;
 pub mod metrics;
+pub mod one_vs_rest;
 pub mod temperature;
 pub mod vector;
 
