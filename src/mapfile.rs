@@ -255,12 +255,7 @@ pub fn from_bytes(path: &str, bytes: &[u8]) -> Result<LoadedMap, MapFileError> {
             ),
         });
     }
-    let state_kind = match &content.fitted {
-        MapState::Beta { score_kind, .. }
-        | MapState::Temperature { score_kind, .. }
-        | MapState::Spline { score_kind, .. } => Some(*score_kind),
-        _ => None,
-    };
+    let state_kind = content.fitted.score_kind();
     if state_kind.is_some_and(|k| k != content.score_kind) {
         return Err(MapFileError::State {
             path: p(),

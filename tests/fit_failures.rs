@@ -13,6 +13,7 @@ use std::fs;
 use std::path::Path;
 
 use assert_cmd::Command;
+use plumbline::calibrate::platt::Platt;
 use plumbline::calibrate::{MethodSpec, ScoreKind};
 use tempfile::TempDir;
 
@@ -161,9 +162,9 @@ fn every_draw_counts_with_the_base_rate_fallback() {
     let units = csv_rows(&dir.path().join("out/units.csv.gz"));
     assert_eq!(units.len(), REPEATS * 4);
     let plan = plumbline::suite::load(&suite_path).unwrap();
-    let smoothed = MethodSpec::Platt {
+    let smoothed = MethodSpec::Platt(Platt {
         target_smoothing: true,
-    }
+    })
     .build(ScoreKind::Probability)
     .unwrap();
     let test_scores: Vec<f64> = plan.tasks[0]

@@ -133,7 +133,7 @@ proptest! {
         let base_rate = y.iter().filter(|&&l| l).count() as f64 / y.len() as f64;
         let want = shrink_blocks(&pav(&reference_points(&s, &y)), m, base_rate);
         let got = match fitted.map.state() {
-            MapState::Isotonic { blocks, .. } => blocks,
+            MapState::Isotonic(state) => state.blocks,
             _ => unreachable!("an isotonic fit saves isotonic blocks"),
         };
         prop_assert_eq!(block_bits(&got), block_bits(&want));

@@ -1,7 +1,7 @@
 //! Reference checks of the penalized-spline calibration.
 
 use plumbline::calibrate::platt::fit_logistic_1d;
-use plumbline::calibrate::spline::{fit_spline, Criterion, Spline};
+use plumbline::calibrate::spline::{fit_spline, Criterion, Spline, SplineParams};
 use plumbline::calibrate::{sigmoid, Calibrator, ScoreKind};
 use plumbline::split::rng;
 use rand_chacha::rand_core::Rng;
@@ -298,11 +298,11 @@ fn suite_specs_parse_and_validate() {
     let d = spec("m = { kind = \"spline\" }").unwrap();
     assert_eq!(
         d,
-        MethodSpec::Spline {
+        MethodSpec::Spline(SplineParams {
             intervals: 20,
             lambda: None,
             criterion: None
-        }
+        })
     );
     assert_eq!(d.kind(), "spline");
     assert!(d.validate(ScoreKind::Probability).is_ok());

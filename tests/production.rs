@@ -330,8 +330,8 @@ score_kind = "probability"
         write_parquet(&cal_file, &cal);
         for m in &plan.methods {
             let set: Vec<String> = match &m.spec {
-                MethodSpec::Isotonic { pseudo_count } => {
-                    vec![format!("pseudo_count={pseudo_count}")]
+                MethodSpec::Isotonic(iso) => {
+                    vec![format!("pseudo_count={}", iso.pseudo_count)]
                 }
                 _ => vec![],
             };

@@ -17,6 +17,8 @@ use std::fs;
 use std::io::Write;
 
 use assert_cmd::Command;
+use plumbline::calibrate::isotonic::Isotonic;
+use plumbline::calibrate::platt::Platt;
 use plumbline::calibrate::{MethodSpec, ScoreKind};
 use plumbline::metrics::{MetricId, MetricSettings};
 use plumbline::split;
@@ -53,10 +55,10 @@ fn run_finds_the_known_isotonic_platt_crossover() {
 
     // θ(n) of isotonic − Platt for the Brier score at every tested size.
     let methods = [
-        MethodSpec::Isotonic { pseudo_count: 0.0 },
-        MethodSpec::Platt {
+        MethodSpec::Isotonic(Isotonic { pseudo_count: 0.0 }),
+        MethodSpec::Platt(Platt {
             target_smoothing: false,
-        },
+        }),
     ]
     .map(|m| m.build(ScoreKind::Probability).unwrap());
     let tc = TruthConfig {

@@ -45,8 +45,10 @@
 use super::isotonic::merge_ties;
 use super::logistic::{fit_logistic, softplus};
 use super::platt::smoothed_targets;
+use super::state::{finite, sig, smoothed_line, MapState, SavedMap};
 use super::{
-    check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, ScoreKind, LOGIT_EPS,
+    check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, Method, ParamError,
+    ScoreKind, Shape, LOGIT_EPS,
 };
 use serde::{Deserialize, Serialize};
 
@@ -70,6 +72,37 @@ impl BetaShape {
     }
 }
 
+/// Beta calibration's parameters.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BetaParams {
+    /// `full` (a, b, c) or `tied` (a = b).
+    #[serde(default)]
+    pub shape: BetaShape,
+}
+
+impl Method for BetaParams {
+    fn kind(&self) -> &'static str {
+        "beta"
+    }
+    fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        &[("shape", "full or tied")]
+    }
+    fn shape(&self) -> Shape {
+        Shape::Parametric
+    }
+    fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
+        Ok(())
+    }
+    fn calibrator(&self, score_kind: ScoreKind) -> Box<dyn Calibrator> {
+        Box::new(Beta {
+            shape: self.shape,
+            score_kind,
+        })
+    }
+}
+
+/// The beta calibrator for scores of one kind.
 pub struct Beta {
     pub shape: BetaShape,
     pub score_kind: ScoreKind,
@@ -149,15 +182,82 @@ impl FittedMap for BetaMap {
             *o = sigmoid(z);
         }
     }
-    fn state(&self) -> super::state::MapState {
-        super::state::MapState::Beta {
+    fn state(&self) -> MapState {
+        MapState::Beta(BetaState {
             shape: self.shape,
             score_kind: self.score_kind,
             a: self.a,
             b: self.b,
             c: self.c,
             smoothed_targets: self.smoothed,
+        })
+    }
+}
+
+/// The saved beta map.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BetaState {
+    pub shape: BetaShape,
+    pub score_kind: ScoreKind,
+    pub a: f64,
+    pub b: f64,
+    pub c: f64,
+    pub smoothed_targets: bool,
+}
+
+impl SavedMap for BetaState {
+    fn kind(&self) -> &'static str {
+        "beta"
+    }
+    fn summary(&self) -> Vec<String> {
+        let (a, b, c) = (self.a, self.b, self.c);
+        let mut v = match self.shape {
+            BetaShape::Full => vec![
+                "logit p = a·ln s − b·ln(1 − s) + c".to_string(),
+                format!("a = {}", sig(a)),
+                format!("b = {}", sig(b)),
+                format!("c = {}", sig(c)),
+            ],
+            BetaShape::Tied => vec![
+                "logit p = a·logit s + c (tied: a = b)".to_string(),
+                format!("a = {}", sig(a)),
+                format!("c = {}", sig(c)),
+            ],
+        };
+        v.extend(smoothed_line(self.smoothed_targets));
+        v
+    }
+    fn check(&self) -> Result<(), String> {
+        let (a, b, c) = (self.a, self.b, self.c);
+        finite("a", a)?;
+        finite("b", b)?;
+        finite("c", c)?;
+        if a < 0.0 || b < 0.0 {
+            return Err(format!(
+                "a = {a} and b = {b} must be >= 0 (the map must not decrease)"
+            ));
         }
+        if self.shape == BetaShape::Tied && a != b {
+            return Err(format!("the tied shape needs a = b, found {a} and {b}"));
+        }
+        Ok(())
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        Box::new(BetaMap {
+            a: self.a,
+            b: self.b,
+            c: self.c,
+            shape: self.shape,
+            score_kind: self.score_kind,
+            smoothed: self.smoothed_targets,
+        })
+    }
+    fn range_rule(&self) -> &'static str {
+        "the parametric map is evaluated as it is (extrapolated)"
+    }
+    fn score_kind(&self) -> Option<ScoreKind> {
+        Some(self.score_kind)
     }
 }
 

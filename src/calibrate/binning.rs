@@ -28,8 +28,14 @@
 //! scores below the first bin or above the last take the end bins. A NaN score
 //! predicts NaN.
 
+use serde::{Deserialize, Serialize};
+
 use super::isotonic::{base_rate, merge_ties};
-use super::{check_sample, Calibrator, FitError, Fitted, FittedMap};
+use super::state::{probability, pseudo, ranges, sig, MapState, SavedMap};
+use super::{
+    check_pseudo_count, check_sample, Calibrator, FitError, Fitted, FittedMap, Method, ParamError,
+    ScoreKind, Shape,
+};
 
 /// Default bin count (Zadrozny & Elkan 2001 used ten bins).
 pub const DEFAULT_BINS: usize = 10;
@@ -40,9 +46,54 @@ pub const DEFAULT_BINS: usize = 10;
 /// mistake (the suite check says so).
 pub const MAX_BINS: usize = 10_000;
 
+/// Histogram binning's parameters (and its calibrator).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Binning {
+    /// Number of equal-mass bins (default 10).
+    #[serde(default = "default_bins")]
     pub bins: usize,
+    /// Pseudo-rows at the base rate per bin (0 = raw bin frequencies).
+    #[serde(default)]
     pub pseudo_count: f64,
+}
+
+fn default_bins() -> usize {
+    DEFAULT_BINS
+}
+
+impl Default for Binning {
+    fn default() -> Self {
+        Binning {
+            bins: DEFAULT_BINS,
+            pseudo_count: 0.0,
+        }
+    }
+}
+
+impl Method for Binning {
+    fn kind(&self) -> &'static str {
+        "binning"
+    }
+    fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        &[("bins", "1 to 10000"), ("pseudo_count", "a number >= 0")]
+    }
+    fn shape(&self) -> Shape {
+        Shape::Flexible
+    }
+    fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
+        if self.bins == 0 || self.bins > MAX_BINS {
+            return Err(ParamError::new(
+                "bins",
+                self.bins,
+                "the number of bins must be between 1 and 10000",
+            ));
+        }
+        check_pseudo_count(self.pseudo_count)
+    }
+    fn calibrator(&self, _score_kind: ScoreKind) -> Box<dyn Calibrator> {
+        Box::new(self.clone())
+    }
 }
 
 /// One bin of a fit.
@@ -136,11 +187,56 @@ impl FittedMap for BinningMap {
             *o = self.eval(s);
         }
     }
-    fn state(&self) -> super::state::MapState {
-        super::state::MapState::Binning {
+    fn state(&self) -> MapState {
+        MapState::Binning(BinningState {
             pseudo_count: self.pseudo_count,
             bins: self.bins.clone(),
+        })
+    }
+}
+
+/// The saved binning map: its bins.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BinningState {
+    pub pseudo_count: f64,
+    pub bins: Vec<Bin>,
+}
+
+impl SavedMap for BinningState {
+    fn kind(&self) -> &'static str {
+        "binning"
+    }
+    fn summary(&self) -> Vec<String> {
+        let (n, lo, hi) = super::state::levels(self.bins.iter().map(|b| b.value));
+        vec![format!(
+            "{} bins, {n} distinct values from {} to {}, pseudo_count = {}",
+            self.bins.len(),
+            sig(lo),
+            sig(hi),
+            sig(self.pseudo_count)
+        )]
+    }
+    fn check(&self) -> Result<(), String> {
+        pseudo(self.pseudo_count)?;
+        let r: Vec<(f64, f64)> = self.bins.iter().map(|b| (b.lo, b.hi)).collect();
+        ranges("bins", &r)?;
+        for (i, b) in self.bins.iter().enumerate() {
+            probability("bins.value", i, b.value)?;
+            if !(b.rows.is_finite() && b.rows > 0.0 && (0.0..=b.rows).contains(&b.positives)) {
+                return Err(format!(
+                    "bins[{i}]: rows = {} and positives = {} must satisfy 0 <= positives <= rows, rows > 0",
+                    b.rows, b.positives
+                ));
+            }
         }
+        Ok(())
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        Box::new(BinningMap::new(self.bins.clone(), self.pseudo_count))
+    }
+    fn range_rule(&self) -> &'static str {
+        "they fall into the first or last bin (clamped to the fitted range)"
     }
 }
 

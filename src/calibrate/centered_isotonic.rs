@@ -20,15 +20,43 @@
 //! all values then lie strictly inside (0, 1). Default m = 0 (plain CIR).
 
 use super::isotonic::{base_rate, merge_ties, pav, shrink_blocks, StepLinear};
-use super::{check_sample, Calibrator, FitError, Fitted, FittedMap};
+use super::state::{increasing, monotone, pseudo, sig, MapState, SavedMap};
+use super::{
+    check_pseudo_count, check_sample, Calibrator, FitError, Fitted, FittedMap, Method, ParamError,
+    ScoreKind, Shape,
+};
+use serde::{Deserialize, Serialize};
 
 /// Block values closer than this count as equal. Mathematically equal shrunk
 /// values such as (3 + π)/7 and (6 + 2π)/14 can differ in the last bit, and
 /// keeping both would leave a numerically flat piece.
 pub const EQUAL_TOL: f64 = 1e-12;
 
+/// Centered isotonic regression's parameters (and its calibrator).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct CenteredIsotonic {
+    /// Pseudo-rows at the base rate per block (0 = plain CIR).
+    #[serde(default)]
     pub pseudo_count: f64,
+}
+
+impl Method for CenteredIsotonic {
+    fn kind(&self) -> &'static str {
+        "centered-isotonic"
+    }
+    fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        &[("pseudo_count", "a number >= 0")]
+    }
+    fn shape(&self) -> Shape {
+        Shape::Flexible
+    }
+    fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
+        check_pseudo_count(self.pseudo_count)
+    }
+    fn calibrator(&self, _score_kind: ScoreKind) -> Box<dyn Calibrator> {
+        Box::new(self.clone())
+    }
 }
 
 /// The CIR points (x̄, value), strictly increasing in both coordinates.
@@ -86,21 +114,62 @@ impl FittedMap for CirMap {
             *o = self.curve.eval(s).clamp(0.0, 1.0);
         }
     }
-    fn state(&self) -> super::state::MapState {
-        super::state::MapState::CenteredIsotonic {
+    fn state(&self) -> MapState {
+        MapState::CenteredIsotonic(CenteredIsotonicState {
             pseudo_count: self.pseudo_count,
             x: self.curve.xs.clone(),
             value: self.curve.vs.clone(),
-        }
+        })
     }
 }
 
-/// The map of saved points (checked by the caller).
-pub(super) fn restore(xs: Vec<f64>, vs: Vec<f64>, pseudo_count: f64) -> Box<dyn FittedMap> {
-    Box::new(CirMap {
-        curve: StepLinear { xs, vs },
-        pseudo_count,
-    })
+/// The saved centered isotonic map: its points (x, value).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CenteredIsotonicState {
+    pub pseudo_count: f64,
+    pub x: Vec<f64>,
+    pub value: Vec<f64>,
+}
+
+impl SavedMap for CenteredIsotonicState {
+    fn kind(&self) -> &'static str {
+        "centered-isotonic"
+    }
+    fn summary(&self) -> Vec<String> {
+        let (n, lo, hi) = super::state::levels(self.value.iter().copied());
+        vec![format!(
+            "{} points, {n} distinct values from {} to {}, pseudo_count = {}",
+            self.x.len(),
+            sig(lo),
+            sig(hi),
+            sig(self.pseudo_count)
+        )]
+    }
+    fn check(&self) -> Result<(), String> {
+        pseudo(self.pseudo_count)?;
+        increasing("x", &self.x)?;
+        if self.x.len() != self.value.len() {
+            return Err(format!(
+                "x has {} points but value has {}",
+                self.x.len(),
+                self.value.len()
+            ));
+        }
+        monotone("value", &self.value)
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        Box::new(CirMap {
+            curve: StepLinear {
+                xs: self.x.clone(),
+                vs: self.value.clone(),
+            },
+            pseudo_count: self.pseudo_count,
+        })
+    }
+    fn range_rule(&self) -> &'static str {
+        "the map is flat beyond its ends, so they get the end values (clamped to the fitted range)"
+    }
 }
 
 impl Calibrator for CenteredIsotonic {

@@ -33,12 +33,41 @@
 //! toward π (common practice; cf. the m-estimate of Cestnik 1990, ECAI), followed
 //! by an isotonic projection.
 
-use super::score_order::{self, KeySort};
-use super::{check_sample, Calibrator, FitError, Fitted, FittedMap};
+use serde::{Deserialize, Serialize};
 
+use super::score_order::{self, KeySort};
+use super::state::{monotone, pseudo, ranges, sig, MapState, SavedMap};
+use super::{
+    check_pseudo_count, check_sample, Calibrator, FitError, Fitted, FittedMap, Method, ParamError,
+    ScoreKind, Shape,
+};
+
+/// Isotonic regression's parameters (and its calibrator).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Isotonic {
-    /// Pseudo-rows at the base rate added to each block (0 = plain PAV).
+    /// Pseudo-rows at the base rate per block (0 = plain PAV; > 0 bounds the
+    /// outputs strictly inside (0, 1)).
+    #[serde(default)]
     pub pseudo_count: f64,
+}
+
+impl Method for Isotonic {
+    fn kind(&self) -> &'static str {
+        "isotonic"
+    }
+    fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        &[("pseudo_count", "a number >= 0")]
+    }
+    fn shape(&self) -> Shape {
+        Shape::Flexible
+    }
+    fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
+        check_pseudo_count(self.pseudo_count)
+    }
+    fn calibrator(&self, _score_kind: ScoreKind) -> Box<dyn Calibrator> {
+        Box::new(self.clone())
+    }
 }
 
 /// One pooled block of a PAV fit over distinct scores.
@@ -223,22 +252,60 @@ impl FittedMap for IsotonicMap {
             *o = self.curve.eval(s).clamp(0.0, 1.0);
         }
     }
-    fn state(&self) -> super::state::MapState {
-        super::state::MapState::Isotonic {
+    fn state(&self) -> MapState {
+        MapState::Isotonic(IsotonicState {
             pseudo_count: self.pseudo_count,
             blocks: self.blocks.clone(),
-        }
+        })
     }
 }
 
-/// The map of saved blocks (checked by the caller), as the fit builds it.
-pub(super) fn restore(blocks: Vec<Block>, pseudo_count: f64) -> Box<dyn FittedMap> {
-    let curve = StepLinear::from_blocks(&blocks);
-    Box::new(IsotonicMap {
-        blocks,
-        curve,
-        pseudo_count,
-    })
+/// The saved isotonic map: its PAV blocks.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct IsotonicState {
+    pub pseudo_count: f64,
+    pub blocks: Vec<Block>,
+}
+
+impl SavedMap for IsotonicState {
+    fn kind(&self) -> &'static str {
+        "isotonic"
+    }
+    fn summary(&self) -> Vec<String> {
+        let (n, lo, hi) = super::state::levels(self.blocks.iter().map(|b| b.value));
+        vec![format!(
+            "{n} steps ({} blocks) from {} to {}, pseudo_count = {}",
+            self.blocks.len(),
+            sig(lo),
+            sig(hi),
+            sig(self.pseudo_count)
+        )]
+    }
+    fn check(&self) -> Result<(), String> {
+        pseudo(self.pseudo_count)?;
+        let r: Vec<(f64, f64)> = self.blocks.iter().map(|b| (b.lo, b.hi)).collect();
+        ranges("blocks", &r)?;
+        for (i, b) in self.blocks.iter().enumerate() {
+            if !(b.weight.is_finite() && b.weight > 0.0) {
+                return Err(format!("blocks[{i}].weight = {} must be above 0", b.weight));
+            }
+        }
+        let v: Vec<f64> = self.blocks.iter().map(|b| b.value).collect();
+        monotone("blocks.value", &v)
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        let blocks = self.blocks.clone();
+        let curve = StepLinear::from_blocks(&blocks);
+        Box::new(IsotonicMap {
+            blocks,
+            curve,
+            pseudo_count: self.pseudo_count,
+        })
+    }
+    fn range_rule(&self) -> &'static str {
+        "the map is flat beyond its ends, so they get the end values (clamped to the fitted range)"
+    }
 }
 
 /// Fit PAV on raw (unsorted, possibly tied) calibration pairs.

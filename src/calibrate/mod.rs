@@ -9,8 +9,10 @@
 //! perfectly separated sample).
 //!
 //! Adding a method: one file in this folder with a `//!` doc that states the math
-//! and cites the paper, one variant in [`MethodSpec`], one arm in `validate` and
-//! `build`, and tests beside the code (see DEVELOPERS.md).
+//! and cites the paper, holding its parameters (a [`Method`]), its fit (a
+//! [`Calibrator`]) and its saved state (a [`state::SavedMap`]); then one line
+//! in the `methods!` list below, one in the `saved_maps!` list of `state.rs`,
+//! and its `pub mod` line (see DEVELOPERS.md).
 
 use serde::{Deserialize, Serialize};
 
@@ -173,70 +175,85 @@ pub fn check_sample(scores: &[f64], labels: &[bool]) -> Result<(), FitError> {
     Ok(())
 }
 
-/// A method as written in a suite: `kind` picks the method, the other keys are
-/// its parameters. Unknown keys are rejected.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
-pub enum MethodSpec {
+/// Where a method's map stands among the classes of the default data-size
+/// threshold pairs (`suite::default_pairs`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Shape {
+    /// Adapts its shape to the data (a step or spline map whose complexity
+    /// grows with the sample).
+    Flexible,
+    /// A fixed parametric form the flexible methods are compared with.
+    Parametric,
+    /// Neither (the identity map, temperature scaling).
+    Other,
+}
+
+/// The parameters of one method kind: the fields of its [`MethodSpec`]
+/// variant, declared in the method's own file with their serde defaults.
+pub trait Method {
+    /// The kind id as written in suites (the kebab-case variant name).
+    fn kind(&self) -> &'static str;
+    /// Every parameter key with the values it accepts, for `fit --help`.
+    fn keys(&self) -> &'static [(&'static str, &'static str)];
+    /// The class of the default threshold pairs.
+    fn shape(&self) -> Shape;
+    /// Check the parameters for a task whose scores are of `score_kind`.
+    fn validate(&self, score_kind: ScoreKind) -> Result<(), ParamError>;
+    /// The calibrator of checked parameters.
+    fn calibrator(&self, score_kind: ScoreKind) -> Box<dyn Calibrator>;
+}
+
+/// Declares [`MethodSpec`] from one line per method (its variant and its
+/// parameters type) and the dispatch to the parameters.
+macro_rules! methods {
+    ($($(#[$doc:meta])* $variant:ident($params:ty),)*) => {
+        /// A method as written in a suite: `kind` picks the method, the other
+        /// keys are its parameters. Unknown keys are rejected.
+        #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+        #[serde(tag = "kind", rename_all = "kebab-case")]
+        pub enum MethodSpec {
+            $($(#[$doc])* $variant($params),)*
+        }
+
+        impl MethodSpec {
+            /// The parameters of this kind, through which every call dispatches.
+            pub fn params(&self) -> &dyn Method {
+                match self {
+                    $(MethodSpec::$variant(p) => p,)*
+                }
+            }
+
+            /// Every kind with its default parameters, in declaration order.
+            pub fn defaults() -> Vec<MethodSpec> {
+                vec![$(MethodSpec::$variant(<$params>::default()),)*]
+            }
+        }
+    };
+}
+
+methods! {
     /// The raw probability, unchanged (probability tasks only).
-    Identity {},
+    Identity(identity::Identity),
     /// Platt scaling.
-    Platt {
-        /// Use Platt's (1999) smoothed targets instead of 0/1 labels.
-        #[serde(default)]
-        target_smoothing: bool,
-    },
+    Platt(platt::Platt),
     /// Isotonic regression by pool-adjacent-violators.
-    Isotonic {
-        /// Pseudo-rows at the base rate per block (0 = plain PAV; > 0 bounds the
-        /// outputs strictly inside (0, 1)).
-        #[serde(default)]
-        pseudo_count: f64,
-    },
+    Isotonic(isotonic::Isotonic),
     /// Beta calibration (Kull, Silva Filho & Flach 2017).
-    Beta {
-        /// `full` (a, b, c) or `tied` (a = b).
-        #[serde(default)]
-        shape: beta::BetaShape,
-    },
+    Beta(beta::BetaParams),
     /// Histogram binning with equal-mass bins (Zadrozny & Elkan 2001).
-    Binning {
-        /// Number of equal-mass bins (default 10).
-        #[serde(default = "default_bins")]
-        bins: usize,
-        /// Pseudo-rows at the base rate per bin (0 = raw bin frequencies).
-        #[serde(default)]
-        pseudo_count: f64,
-    },
+    Binning(binning::Binning),
     /// Temperature scaling of the log-odds (Guo et al. 2017).
-    Temperature {},
+    Temperature(temperature::TemperatureParams),
     /// Centered isotonic regression (Oron & Flournoy 2017).
-    CenteredIsotonic {
-        /// Pseudo-rows at the base rate per block (0 = plain CIR).
-        #[serde(default)]
-        pseudo_count: f64,
-    },
+    CenteredIsotonic(centered_isotonic::CenteredIsotonic),
     /// Penalized cubic-spline logistic calibration on the log-odds (P-spline).
-    Spline {
-        /// Number of equal knot intervals over the log-odds range.
-        #[serde(default = "spline::default_intervals")]
-        intervals: usize,
-        /// Fixed smoothing parameter λ > 0; when absent λ is chosen by `criterion`.
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        lambda: Option<f64>,
-        /// How λ is chosen on its grid (`aic`, the default, or `bic`).
-        #[serde(default, skip_serializing_if = "Option::is_none")]
-        criterion: Option<spline::Criterion>,
-    },
+    Spline(spline::SplineParams),
     /// Inductive Venn–Abers predictor (isotonic fits with the test point added).
-    VennAbers {},
+    VennAbers(venn_abers::VennAbers),
 }
 
-fn default_bins() -> usize {
-    binning::DEFAULT_BINS
-}
-
-fn check_pseudo_count(m: f64) -> Result<(), ParamError> {
+/// The shared check of a `pseudo_count` parameter.
+pub(crate) fn check_pseudo_count(m: f64) -> Result<(), ParamError> {
     if !(m.is_finite() && m >= 0.0) {
         return Err(ParamError::new(
             "pseudo_count",
@@ -250,17 +267,12 @@ fn check_pseudo_count(m: f64) -> Result<(), ParamError> {
 impl MethodSpec {
     /// The kind id as written in suites.
     pub fn kind(&self) -> &'static str {
-        match self {
-            MethodSpec::Identity {} => "identity",
-            MethodSpec::Platt { .. } => "platt",
-            MethodSpec::Isotonic { .. } => "isotonic",
-            MethodSpec::Beta { .. } => "beta",
-            MethodSpec::Binning { .. } => "binning",
-            MethodSpec::Temperature { .. } => "temperature",
-            MethodSpec::CenteredIsotonic { .. } => "centered-isotonic",
-            MethodSpec::Spline { .. } => "spline",
-            MethodSpec::VennAbers { .. } => "venn-abers",
-        }
+        self.params().kind()
+    }
+
+    /// Every parameter key of this kind with the values it accepts.
+    pub fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        self.params().keys()
     }
 
     /// Whether the method adapts its shape to the data (a step or spline
@@ -268,133 +280,24 @@ impl MethodSpec {
     /// paired with the [`Self::is_parametric`] ones for the default
     /// data-size thresholds of a suite.
     pub fn is_flexible(&self) -> bool {
-        match self {
-            MethodSpec::Isotonic { .. }
-            | MethodSpec::CenteredIsotonic { .. }
-            | MethodSpec::Binning { .. }
-            | MethodSpec::VennAbers {}
-            | MethodSpec::Spline { .. } => true,
-            MethodSpec::Identity {}
-            | MethodSpec::Platt { .. }
-            | MethodSpec::Beta { .. }
-            | MethodSpec::Temperature {} => false,
-        }
+        self.params().shape() == Shape::Flexible
     }
 
     /// Whether the method has a fixed parametric shape that the default
     /// threshold pairs compare flexible methods with (Platt and beta).
     pub fn is_parametric(&self) -> bool {
-        match self {
-            MethodSpec::Platt { .. } | MethodSpec::Beta { .. } => true,
-            MethodSpec::Identity {}
-            | MethodSpec::Isotonic { .. }
-            | MethodSpec::Binning { .. }
-            | MethodSpec::Temperature {}
-            | MethodSpec::CenteredIsotonic { .. }
-            | MethodSpec::Spline { .. }
-            | MethodSpec::VennAbers {} => false,
-        }
+        self.params().shape() == Shape::Parametric
     }
 
     /// Check the parameters for a task whose scores are of `score_kind`.
     pub fn validate(&self, score_kind: ScoreKind) -> Result<(), ParamError> {
-        match self {
-            MethodSpec::Identity {} => {
-                if score_kind != ScoreKind::Probability {
-                    return Err(ParamError::new(
-                        "kind",
-                        "identity",
-                        "the identity map needs probability scores; this task's scores are margins",
-                    ));
-                }
-                Ok(())
-            }
-            MethodSpec::Platt { .. } => Ok(()),
-            MethodSpec::Isotonic { pseudo_count } => check_pseudo_count(*pseudo_count),
-            MethodSpec::Beta { .. } => Ok(()),
-            MethodSpec::Binning { bins, pseudo_count } => {
-                if *bins == 0 || *bins > binning::MAX_BINS {
-                    return Err(ParamError::new(
-                        "bins",
-                        bins,
-                        "the number of bins must be between 1 and 10000",
-                    ));
-                }
-                check_pseudo_count(*pseudo_count)
-            }
-            MethodSpec::Temperature { .. } => Ok(()),
-            MethodSpec::CenteredIsotonic { pseudo_count } => check_pseudo_count(*pseudo_count),
-            MethodSpec::Spline {
-                intervals,
-                lambda,
-                criterion,
-            } => {
-                if *intervals == 0 || *intervals > spline::MAX_INTERVALS {
-                    return Err(ParamError::new(
-                        "intervals",
-                        intervals,
-                        "the number of knot intervals must be between 1 and 200",
-                    ));
-                }
-                if let Some(l) = lambda {
-                    if !(l.is_finite() && *l > 0.0) {
-                        return Err(ParamError::new(
-                            "lambda",
-                            l,
-                            "the smoothing parameter must be a finite number above 0",
-                        ));
-                    }
-                    if criterion.is_some() {
-                        return Err(ParamError::new(
-                            "criterion",
-                            criterion.unwrap().as_str(),
-                            "give either a fixed lambda or a criterion to choose it, not both",
-                        ));
-                    }
-                }
-                Ok(())
-            }
-            MethodSpec::VennAbers { .. } => Ok(()),
-        }
+        self.params().validate(score_kind)
     }
 
     /// Build a calibrator for scores of `score_kind`; calls [`Self::validate`].
     pub fn build(&self, score_kind: ScoreKind) -> Result<Box<dyn Calibrator>, ParamError> {
         self.validate(score_kind)?;
-        Ok(match self {
-            MethodSpec::Identity {} => Box::new(identity::Identity),
-            MethodSpec::Platt { target_smoothing } => Box::new(platt::Platt {
-                target_smoothing: *target_smoothing,
-            }),
-            MethodSpec::Isotonic { pseudo_count } => Box::new(isotonic::Isotonic {
-                pseudo_count: *pseudo_count,
-            }),
-            MethodSpec::Beta { shape } => Box::new(beta::Beta {
-                shape: *shape,
-                score_kind,
-            }),
-            MethodSpec::Binning { bins, pseudo_count } => Box::new(binning::Binning {
-                bins: *bins,
-                pseudo_count: *pseudo_count,
-            }),
-            MethodSpec::Temperature {} => Box::new(temperature::Temperature { score_kind }),
-            MethodSpec::CenteredIsotonic { pseudo_count } => {
-                Box::new(centered_isotonic::CenteredIsotonic {
-                    pseudo_count: *pseudo_count,
-                })
-            }
-            MethodSpec::Spline {
-                intervals,
-                lambda,
-                criterion,
-            } => Box::new(spline::Spline {
-                score_kind,
-                intervals: *intervals,
-                lambda: *lambda,
-                criterion: criterion.unwrap_or_default(),
-            }),
-            MethodSpec::VennAbers {} => Box::new(venn_abers::VennAbers {}),
-        })
+        Ok(self.params().calibrator(score_kind))
     }
 }
 
@@ -445,9 +348,9 @@ mod spec_tests {
         let ok: W = toml::from_str("m = { kind = \"platt\", target_smoothing = true }").unwrap();
         assert_eq!(
             ok.m,
-            MethodSpec::Platt {
+            MethodSpec::Platt(platt::Platt {
                 target_smoothing: true
-            }
+            })
         );
         let iso: W = toml::from_str("m = { kind = \"isotonic\" }").unwrap();
         assert_eq!(iso.m.kind(), "isotonic");
@@ -459,7 +362,7 @@ mod spec_tests {
         // The identity map takes no parameters: an unknown key is refused
         // as for every other kind, in a method and in a saved map.
         let id: W = toml::from_str("m = { kind = \"identity\" }").unwrap();
-        assert_eq!(id.m, MethodSpec::Identity {});
+        assert_eq!(id.m, MethodSpec::Identity(identity::Identity {}));
         let e = toml::from_str::<W>("m = { kind = \"identity\", foo = 1 }")
             .err()
             .unwrap();
@@ -469,7 +372,7 @@ mod spec_tests {
             .unwrap();
         assert!(e.to_string().contains("unknown field `foo`"), "{e}");
         assert_eq!(
-            serde_json::to_string(&state::MapState::Identity {}).unwrap(),
+            serde_json::to_string(&state::MapState::Identity(identity::IdentityState {})).unwrap(),
             r#"{"kind":"identity"}"#
         );
     }
@@ -479,27 +382,27 @@ mod spec_tests {
         let parse = |s: &str| toml::from_str::<W>(s).map(|w| w.m);
         assert_eq!(
             parse("m = { kind = \"isotonic\" }").unwrap(),
-            MethodSpec::Isotonic { pseudo_count: 0.0 }
+            MethodSpec::Isotonic(isotonic::Isotonic { pseudo_count: 0.0 })
         );
         assert_eq!(
             parse("m = { kind = \"beta\" }").unwrap(),
-            MethodSpec::Beta {
+            MethodSpec::Beta(beta::BetaParams {
                 shape: beta::BetaShape::Full
-            }
+            })
         );
         assert_eq!(
             parse("m = { kind = \"beta\", shape = \"tied\" }").unwrap(),
-            MethodSpec::Beta {
+            MethodSpec::Beta(beta::BetaParams {
                 shape: beta::BetaShape::Tied
-            }
+            })
         );
         assert!(parse("m = { kind = \"beta\", shape = \"three\" }").is_err());
         assert_eq!(
             parse("m = { kind = \"binning\" }").unwrap(),
-            MethodSpec::Binning {
+            MethodSpec::Binning(binning::Binning {
                 bins: 10,
                 pseudo_count: 0.0
-            }
+            })
         );
         let b = parse("m = { kind = \"binning\", bins = 0 }").unwrap();
         let e = b.validate(ScoreKind::Probability).err().unwrap();
@@ -520,26 +423,20 @@ mod spec_tests {
     }
 
     /// The shape classes of the default threshold pairs: every kind is in
-    /// at most one, and the classes are the documented ones.
+    /// at most one, and the classes are the documented ones. Each kind's
+    /// default parameters are those of a bare `{ kind = "..." }`.
     #[test]
     fn flexible_and_parametric_kinds() {
-        let kinds = [
-            "identity",
-            "platt",
-            "isotonic",
-            "beta",
-            "binning",
-            "temperature",
-            "centered-isotonic",
-            "spline",
-            "venn-abers",
-        ];
+        let mut kinds = Vec::new();
         let mut flexible = Vec::new();
         let mut parametric = Vec::new();
-        for k in kinds {
+        for default in MethodSpec::defaults() {
+            let k = default.kind();
+            kinds.push(k);
             let spec = toml::from_str::<W>(&format!("m = {{ kind = \"{k}\" }}"))
                 .unwrap_or_else(|e| panic!("{k}: {e}"))
                 .m;
+            assert_eq!(spec, default, "{k}");
             assert_eq!(spec.kind(), k);
             assert!(!(spec.is_flexible() && spec.is_parametric()), "{k}");
             if spec.is_flexible() {
@@ -549,6 +446,20 @@ mod spec_tests {
                 parametric.push(k);
             }
         }
+        assert_eq!(
+            kinds,
+            [
+                "identity",
+                "platt",
+                "isotonic",
+                "beta",
+                "binning",
+                "temperature",
+                "centered-isotonic",
+                "spline",
+                "venn-abers",
+            ]
+        );
         assert_eq!(
             flexible,
             [

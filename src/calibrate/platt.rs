@@ -23,11 +23,40 @@
 //! status, so the comparison keeps the unit and the report can count how often
 //! it happened.
 
-use super::logistic::fit_logistic;
-use super::{check_sample, sigmoid, Calibrator, FitError, Fitted, FittedMap};
+use serde::{Deserialize, Serialize};
 
+use super::logistic::fit_logistic;
+use super::state::{finite, sig, smoothed_line, MapState, SavedMap};
+use super::{
+    check_sample, sigmoid, Calibrator, FitError, Fitted, FittedMap, Method, ParamError, ScoreKind,
+    Shape,
+};
+
+/// Platt scaling's parameters (and its calibrator).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Platt {
+    /// Use Platt's (1999) smoothed targets instead of 0/1 labels.
+    #[serde(default)]
     pub target_smoothing: bool,
+}
+
+impl Method for Platt {
+    fn kind(&self) -> &'static str {
+        "platt"
+    }
+    fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        &[("target_smoothing", "true or false")]
+    }
+    fn shape(&self) -> Shape {
+        Shape::Parametric
+    }
+    fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
+        Ok(())
+    }
+    fn calibrator(&self, _score_kind: ScoreKind) -> Box<dyn Calibrator> {
+        Box::new(self.clone())
+    }
 }
 
 /// Fitted parameters of σ(a·s + b).
@@ -93,12 +122,53 @@ impl FittedMap for PlattMap {
             *o = sigmoid(self.fit.a * s + self.fit.b);
         }
     }
-    fn state(&self) -> super::state::MapState {
-        super::state::MapState::Platt {
+    fn state(&self) -> MapState {
+        MapState::Platt(PlattState {
             a: self.fit.a,
             b: self.fit.b,
             smoothed_targets: self.smoothed,
-        }
+        })
+    }
+}
+
+/// The saved Platt map σ(a·s + b).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PlattState {
+    pub a: f64,
+    pub b: f64,
+    pub smoothed_targets: bool,
+}
+
+impl SavedMap for PlattState {
+    fn kind(&self) -> &'static str {
+        "platt"
+    }
+    fn summary(&self) -> Vec<String> {
+        let mut v = vec![
+            "p = σ(a·score + b)".to_string(),
+            format!("a = {} (slope)", sig(self.a)),
+            format!("b = {} (intercept)", sig(self.b)),
+        ];
+        v.extend(smoothed_line(self.smoothed_targets));
+        v
+    }
+    fn check(&self) -> Result<(), String> {
+        finite("a", self.a)?;
+        finite("b", self.b)
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        Box::new(PlattMap {
+            fit: LogisticFit {
+                a: self.a,
+                b: self.b,
+                iterations: 0,
+            },
+            smoothed: self.smoothed_targets,
+        })
+    }
+    fn range_rule(&self) -> &'static str {
+        "the parametric map is evaluated as it is (extrapolated)"
     }
 }
 

@@ -60,7 +60,12 @@
 //! converge is skipped, and if none converges the fit fails.
 
 use super::platt::is_separable;
-use super::{check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, ScoreKind};
+use super::state::{finite, probability, sig, smoothed_line, MapState, SavedMap};
+use super::{
+    check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, Method, ParamError,
+    ScoreKind, Shape,
+};
+use serde::{Deserialize, Serialize};
 
 /// Default number of equal knot intervals over the log-odds range.
 pub const DEFAULT_INTERVALS: usize = 20;
@@ -89,6 +94,81 @@ impl Criterion {
             Criterion::Aic => "aic",
             Criterion::Bic => "bic",
         }
+    }
+}
+
+/// The spline's parameters.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SplineParams {
+    /// Number of equal knot intervals over the log-odds range.
+    #[serde(default = "default_intervals")]
+    pub intervals: usize,
+    /// Fixed smoothing parameter λ > 0; when absent λ is chosen by `criterion`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub lambda: Option<f64>,
+    /// How λ is chosen on its grid (`aic`, the default, or `bic`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub criterion: Option<Criterion>,
+}
+
+impl Default for SplineParams {
+    fn default() -> Self {
+        SplineParams {
+            intervals: DEFAULT_INTERVALS,
+            lambda: None,
+            criterion: None,
+        }
+    }
+}
+
+impl Method for SplineParams {
+    fn kind(&self) -> &'static str {
+        "spline"
+    }
+    fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        &[
+            ("intervals", "1 to 200"),
+            ("lambda", "a number > 0"),
+            ("criterion", "aic or bic"),
+        ]
+    }
+    fn shape(&self) -> Shape {
+        Shape::Flexible
+    }
+    fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
+        if self.intervals == 0 || self.intervals > MAX_INTERVALS {
+            return Err(ParamError::new(
+                "intervals",
+                self.intervals,
+                "the number of knot intervals must be between 1 and 200",
+            ));
+        }
+        if let Some(l) = self.lambda {
+            if !(l.is_finite() && l > 0.0) {
+                return Err(ParamError::new(
+                    "lambda",
+                    l,
+                    "the smoothing parameter must be a finite number above 0",
+                ));
+            }
+            if let Some(c) = self.criterion {
+                return Err(ParamError::new(
+                    "criterion",
+                    c.as_str(),
+                    "give either a fixed lambda or a criterion to choose it, not both",
+                ));
+            }
+        }
+        Ok(())
+    }
+    fn calibrator(&self, score_kind: ScoreKind) -> Box<dyn Calibrator> {
+        Box::new(Spline {
+            score_kind,
+            intervals: self.intervals,
+            lambda: self.lambda,
+            criterion: self.criterion.unwrap_or_default(),
+        })
     }
 }
 
@@ -775,9 +855,9 @@ impl FittedMap for SplineMap {
             };
         }
     }
-    fn state(&self) -> super::state::MapState {
+    fn state(&self) -> MapState {
         let b = &self.fit.basis;
-        super::state::MapState::Spline {
+        MapState::Spline(SplineState {
             score_kind: self.score_kind,
             lo: b.lo,
             hi: b.hi,
@@ -787,7 +867,7 @@ impl FittedMap for SplineMap {
             edf: self.fit.chosen.edf,
             criterion: self.criterion,
             smoothed_targets: self.fit.separable,
-        }
+        })
     }
     fn extras(&self, _test_scores: &[f64]) -> Vec<(&'static str, f64)> {
         vec![("spline_edf", self.fit.chosen.edf)]
@@ -805,14 +885,148 @@ impl FittedMap for ConstantMap {
             *o = if s.is_nan() { f64::NAN } else { self.p };
         }
     }
-    fn state(&self) -> super::state::MapState {
-        super::state::MapState::Constant { p: self.p }
+    fn state(&self) -> MapState {
+        MapState::Constant(ConstantState { p: self.p })
     }
 }
 
-/// The constant map p (the saved form of a fit on all-equal log-odds).
-pub(super) fn constant_map(p: f64) -> Box<dyn FittedMap> {
-    Box::new(ConstantMap { p })
+/// The saved spline map: cubic B-spline coefficients on `intervals` equal
+/// intervals of [lo, hi] of the log-odds; linear continuation outside.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SplineState {
+    pub score_kind: ScoreKind,
+    pub lo: f64,
+    pub hi: f64,
+    pub intervals: usize,
+    pub coefficients: Vec<f64>,
+    pub lambda: f64,
+    pub edf: f64,
+    pub criterion: Option<Criterion>,
+    pub smoothed_targets: bool,
+}
+
+impl SavedMap for SplineState {
+    fn kind(&self) -> &'static str {
+        "spline"
+    }
+    fn summary(&self) -> Vec<String> {
+        let intervals = self.intervals;
+        let mut v = vec![
+            format!(
+                "{intervals} knot intervals on the log-odds [{}, {}], {} coefficients",
+                sig(self.lo),
+                sig(self.hi),
+                intervals + 3
+            ),
+            format!(
+                "λ = {}{}, effective degrees of freedom {}",
+                sig(self.lambda),
+                self.criterion.map_or(" (fixed)".to_string(), |c| format!(
+                    " (chosen by {})",
+                    c.as_str()
+                )),
+                sig(self.edf)
+            ),
+        ];
+        v.extend(smoothed_line(self.smoothed_targets));
+        v
+    }
+    fn check(&self) -> Result<(), String> {
+        let (lo, hi, intervals) = (self.lo, self.hi, self.intervals);
+        finite("lo", lo)?;
+        finite("hi", hi)?;
+        if !(hi > lo && (hi - lo) / intervals.max(1) as f64 > 0.0) {
+            return Err(format!("the knot range needs lo < hi, found [{lo}, {hi}]"));
+        }
+        if intervals == 0 || intervals > MAX_INTERVALS {
+            return Err(format!(
+                "intervals = {intervals} must be between 1 and {MAX_INTERVALS}"
+            ));
+        }
+        if self.coefficients.len() != intervals + 3 {
+            return Err(format!(
+                "{intervals} knot intervals need {} coefficients, found {}",
+                intervals + 3,
+                self.coefficients.len()
+            ));
+        }
+        for (i, &c) in self.coefficients.iter().enumerate() {
+            finite(&format!("coefficients[{i}]"), c)?;
+        }
+        if !(hi - lo).is_finite() {
+            return Err(format!(
+                "the knot range [{lo:?}, {hi:?}] is wider than the largest double"
+            ));
+        }
+        // Beyond the knot range the spline continues with its value
+        // and slope at the ends: both must be numbers.
+        let basis = Basis { lo, hi, intervals };
+        for (name, at) in [("lo", lo), ("hi", hi)] {
+            let (value, slope) = basis.value_and_slope(&self.coefficients, at);
+            if !value.is_finite() || !slope.is_finite() {
+                return Err(format!(
+                    "the spline's {} at {name} = {at:?} is not a finite number (value {value:?}, slope {slope:?}); the knot intervals of [{lo:?}, {hi:?}] are too narrow or the coefficients too large",
+                    if value.is_finite() { "slope" } else { "value" }
+                ));
+            }
+        }
+        finite("lambda", self.lambda)?;
+        finite("edf", self.edf)
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        Box::new(SplineMap {
+            score_kind: self.score_kind,
+            fit: SplineFit {
+                basis: Basis {
+                    lo: self.lo,
+                    hi: self.hi,
+                    intervals: self.intervals,
+                },
+                chosen: LambdaFit {
+                    lambda: self.lambda,
+                    beta: self.coefficients.clone(),
+                    nll: f64::NAN,
+                    edf: self.edf,
+                    iterations: 0,
+                },
+                path: Vec::new(),
+                separable: self.smoothed_targets,
+            },
+            criterion: self.criterion,
+        })
+    }
+    fn range_rule(&self) -> &'static str {
+        "the spline continues linearly on the log-odds scale with its boundary value and slope (extrapolated)"
+    }
+    fn score_kind(&self) -> Option<ScoreKind> {
+        Some(self.score_kind)
+    }
+}
+
+/// The saved constant map p (a spline fitted on all-equal log-odds).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ConstantState {
+    pub p: f64,
+}
+
+impl SavedMap for ConstantState {
+    fn kind(&self) -> &'static str {
+        "spline"
+    }
+    fn summary(&self) -> Vec<String> {
+        vec![format!("p = {} for every score", sig(self.p))]
+    }
+    fn check(&self) -> Result<(), String> {
+        probability("p", 0, self.p)
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        Box::new(ConstantMap { p: self.p })
+    }
+    fn range_rule(&self) -> &'static str {
+        "the map is constant"
+    }
 }
 
 impl Calibrator for Spline {

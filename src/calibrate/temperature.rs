@@ -38,8 +38,37 @@
 use super::exact_sum::{pow2_above, Grid, Lane, Total, CHUNK};
 use super::logistic::sigmoid_pair;
 use super::platt::smoothed_targets;
-use super::{check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, ScoreKind};
+use super::state::{finite, sig, smoothed_line, MapState, SavedMap};
+use super::{
+    check_sample, log_odds, sigmoid, Calibrator, FitError, Fitted, FittedMap, Method, ParamError,
+    ScoreKind, Shape,
+};
+use serde::{Deserialize, Serialize};
 
+/// Temperature scaling's parameters: none.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TemperatureParams {}
+
+impl Method for TemperatureParams {
+    fn kind(&self) -> &'static str {
+        "temperature"
+    }
+    fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        &[]
+    }
+    fn shape(&self) -> Shape {
+        Shape::Other
+    }
+    fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
+        Ok(())
+    }
+    fn calibrator(&self, score_kind: ScoreKind) -> Box<dyn Calibrator> {
+        Box::new(Temperature { score_kind })
+    }
+}
+
+/// The temperature calibrator for scores of one kind.
 pub struct Temperature {
     pub score_kind: ScoreKind,
 }
@@ -274,12 +303,59 @@ impl FittedMap for TemperatureMap {
         };
         v
     }
-    fn state(&self) -> super::state::MapState {
-        super::state::MapState::Temperature {
+    fn state(&self) -> MapState {
+        MapState::Temperature(TemperatureState {
             score_kind: self.score_kind,
             inverse_temperature: self.inverse_temperature,
             smoothed_targets: self.smoothed,
+        })
+    }
+}
+
+/// The saved temperature map σ(β·z).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TemperatureState {
+    pub score_kind: ScoreKind,
+    pub inverse_temperature: f64,
+    pub smoothed_targets: bool,
+}
+
+impl SavedMap for TemperatureState {
+    fn kind(&self) -> &'static str {
+        "temperature"
+    }
+    fn summary(&self) -> Vec<String> {
+        let beta = self.inverse_temperature;
+        let mut v = vec![
+            "p = σ(β·log-odds)".to_string(),
+            format!("β = {} (temperature 1/β = {})", sig(beta), sig(1.0 / beta)),
+        ];
+        v.extend(smoothed_line(self.smoothed_targets));
+        v
+    }
+    fn check(&self) -> Result<(), String> {
+        let inverse_temperature = self.inverse_temperature;
+        finite("inverse_temperature", inverse_temperature)?;
+        if inverse_temperature < 0.0 {
+            return Err(format!(
+                "inverse_temperature = {inverse_temperature} must be >= 0"
+            ));
         }
+        Ok(())
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        Box::new(TemperatureMap {
+            inverse_temperature: self.inverse_temperature,
+            score_kind: self.score_kind,
+            smoothed: self.smoothed_targets,
+        })
+    }
+    fn range_rule(&self) -> &'static str {
+        "the parametric map is evaluated as it is (extrapolated)"
+    }
+    fn score_kind(&self) -> Option<ScoreKind> {
+        Some(self.score_kind)
     }
 }
 

@@ -37,9 +37,34 @@
 //! ordered as usual. Test scores outside the calibration range use the first or
 //! last gap, which is the definition (no extrapolation rule is needed).
 
-use super::{check_sample, Calibrator, FitError, Fitted, FittedMap};
+use super::state::{increasing, probability, MapState, SavedMap};
+use super::{
+    check_sample, Calibrator, FitError, Fitted, FittedMap, Method, ParamError, ScoreKind, Shape,
+};
+use serde::{Deserialize, Serialize};
 
+/// The Venn–Abers method (and its calibrator); it takes no parameters.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct VennAbers {}
+
+impl Method for VennAbers {
+    fn kind(&self) -> &'static str {
+        "venn-abers"
+    }
+    fn keys(&self) -> &'static [(&'static str, &'static str)] {
+        &[]
+    }
+    fn shape(&self) -> Shape {
+        Shape::Flexible
+    }
+    fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
+        Ok(())
+    }
+    fn calibrator(&self, _score_kind: ScoreKind) -> Box<dyn Calibrator> {
+        Box::new(VennAbers {})
+    }
+}
 
 type Pt = (i64, i64);
 
@@ -222,17 +247,17 @@ impl FittedMap for VennAbersMap {
             *o = merge_pair(p0, p1);
         }
     }
-    fn state(&self) -> super::state::MapState {
+    fn state(&self) -> MapState {
         let t = &self.table;
         let gaps = |v: &[f64]| v.iter().step_by(2).copied().collect::<Vec<_>>();
         let ties = |v: &[f64]| v.iter().skip(1).step_by(2).copied().collect::<Vec<_>>();
-        super::state::MapState::VennAbers {
+        MapState::VennAbers(VennAbersState {
             scores: t.scores.clone(),
             gap_p0: gaps(&t.p0),
             gap_p1: gaps(&t.p1),
             tie_p0: ties(&t.p0),
             tie_p1: ties(&t.p1),
-        }
+        })
     }
     fn extras(&self, test_scores: &[f64]) -> Vec<(&'static str, f64)> {
         let (mut sum, mut n) = (0.0, 0usize);
@@ -248,9 +273,82 @@ impl FittedMap for VennAbersMap {
     }
 }
 
-/// The map of a saved table (checked by the caller).
-pub(super) fn restore(table: VennAbersTable) -> Box<dyn FittedMap> {
-    Box::new(VennAbersMap { table })
+/// The saved Venn–Abers table: the pairs at each gap (below, between, above
+/// the distinct calibration scores) and each tie (on a distinct score).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct VennAbersState {
+    pub scores: Vec<f64>,
+    pub gap_p0: Vec<f64>,
+    pub gap_p1: Vec<f64>,
+    pub tie_p0: Vec<f64>,
+    pub tie_p1: Vec<f64>,
+}
+
+impl SavedMap for VennAbersState {
+    fn kind(&self) -> &'static str {
+        "venn-abers"
+    }
+    fn summary(&self) -> Vec<String> {
+        vec![format!(
+            "{} distinct calibration scores (a probability pair per score and gap)",
+            self.scores.len()
+        )]
+    }
+    fn check(&self) -> Result<(), String> {
+        increasing("scores", &self.scores)?;
+        let k = self.scores.len();
+        for (name, v, want) in [
+            ("gap_p0", &self.gap_p0, k + 1),
+            ("gap_p1", &self.gap_p1, k + 1),
+            ("tie_p0", &self.tie_p0, k),
+            ("tie_p1", &self.tie_p1, k),
+        ] {
+            if v.len() != want {
+                return Err(format!(
+                    "{k} scores need {want} values in {name}, found {}",
+                    v.len()
+                ));
+            }
+            for (i, &p) in v.iter().enumerate() {
+                probability(name, i, p)?;
+            }
+        }
+        for (name, p0, p1) in [
+            ("gap", &self.gap_p0, &self.gap_p1),
+            ("tie", &self.tie_p0, &self.tie_p1),
+        ] {
+            if let Some(i) = (0..p0.len()).find(|&i| p0[i] > p1[i]) {
+                return Err(format!(
+                    "{name}_p0[{i}] = {} exceeds {name}_p1[{i}] = {}",
+                    p0[i], p1[i]
+                ));
+            }
+        }
+        Ok(())
+    }
+    fn restore(&self) -> Box<dyn FittedMap> {
+        let interleave = |gap: &[f64], tie: &[f64]| {
+            let mut v = Vec::with_capacity(gap.len() + tie.len());
+            for (i, &g) in gap.iter().enumerate() {
+                v.push(g);
+                if let Some(&t) = tie.get(i) {
+                    v.push(t);
+                }
+            }
+            v
+        };
+        Box::new(VennAbersMap {
+            table: VennAbersTable {
+                p0: interleave(&self.gap_p0, &self.tie_p0),
+                p1: interleave(&self.gap_p1, &self.tie_p1),
+                scores: self.scores.clone(),
+            },
+        })
+    }
+    fn range_rule(&self) -> &'static str {
+        "they take the pair of the gap below the first or above the last calibration score (clamped to the fitted range)"
+    }
 }
 
 impl Calibrator for VennAbers {

@@ -7,7 +7,8 @@
 //! otherwise). Memory does not grow with the file.
 //!
 //! Scores outside the fitted range [score_min, score_max] of the map's training
-//! summary follow the map's own prediction rule ([`range_rule`]) and are
+//! summary follow the map's own prediction rule
+//! ([`crate::calibrate::state::MapState::range_rule`]) and are
 //! counted in a warning. A score that is not a finite number (or, for
 //! probability maps, not in [0, 1]) stops the command with the file, row and
 //! value; a regular output file goes through a staging file beside the target
@@ -27,7 +28,6 @@ use std::process::ExitCode;
 
 use anyhow::{bail, Context, Result};
 
-use crate::calibrate::state::MapState;
 use crate::data::rows::RowSource;
 use crate::data::scorefile::{bad_value, find_column, parse_score};
 use crate::mapfile;
@@ -81,27 +81,6 @@ impl ApplySummary {
                 self.rule
             )
         })
-    }
-}
-
-/// How a map treats scores outside its fitted range (docs/map-format.md).
-pub fn range_rule(state: &MapState) -> &'static str {
-    match state {
-        MapState::Identity {} => "the identity map passes them through unchanged",
-        MapState::Isotonic { .. } | MapState::CenteredIsotonic { .. } => {
-            "the map is flat beyond its ends, so they get the end values (clamped to the fitted range)"
-        }
-        MapState::Binning { .. } => "they fall into the first or last bin (clamped to the fitted range)",
-        MapState::VennAbers { .. } => {
-            "they take the pair of the gap below the first or above the last calibration score (clamped to the fitted range)"
-        }
-        MapState::Spline { .. } => {
-            "the spline continues linearly on the log-odds scale with its boundary value and slope (extrapolated)"
-        }
-        MapState::Constant { .. } => "the map is constant",
-        MapState::Platt { .. } | MapState::Beta { .. } | MapState::Temperature { .. } => {
-            "the parametric map is evaluated as it is (extrapolated)"
-        }
     }
 }
 
@@ -269,7 +248,7 @@ pub fn apply(args: &ApplyArgs) -> Result<ApplySummary> {
         above: 0,
         score_min: lo,
         score_max: hi,
-        rule: range_rule(&content.fitted),
+        rule: content.fitted.range_rule(),
         closed: false,
     };
     let mut header = csv::ByteRecord::new();

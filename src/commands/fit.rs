@@ -28,37 +28,23 @@ use crate::suite::{self, MethodEntry};
 /// resolves its method ids wherever plumbline runs.
 pub const DEFAULT_SUITE_TEXT: &str = include_str!("../../suites/open-uci.toml");
 
-/// Every method kind with its `--set` keys and the values each takes.
-pub const METHOD_KEYS: &[(&str, &[(&str, &str)])] = &[
-    ("identity", &[]),
-    ("platt", &[("target_smoothing", "true or false")]),
-    ("isotonic", &[("pseudo_count", "a number >= 0")]),
-    ("beta", &[("shape", "full or tied")]),
-    (
-        "binning",
-        &[("bins", "1 to 10000"), ("pseudo_count", "a number >= 0")],
-    ),
-    ("temperature", &[]),
-    ("centered-isotonic", &[("pseudo_count", "a number >= 0")]),
-    (
-        "spline",
-        &[
-            ("intervals", "1 to 200"),
-            ("lambda", "a number > 0"),
-            ("criterion", "aic or bic"),
-        ],
-    ),
-    ("venn-abers", &[]),
-];
+/// Every method kind with its `--set` keys and the values each takes, in the
+/// order of [`MethodSpec`] (each method's file declares its keys).
+pub fn method_keys() -> Vec<(&'static str, &'static [(&'static str, &'static str)])> {
+    MethodSpec::defaults()
+        .iter()
+        .map(|m| (m.kind(), m.keys()))
+        .collect()
+}
 
-/// The long help of `--set`: every kind's keys ([`METHOD_KEYS`]).
+/// The long help of `--set`: every kind's keys ([`method_keys`]).
 fn set_help() -> String {
     let mut s = String::from(
         "A method parameter, as in a suite (repeatable), e.g. `--set pseudo_count=1`; \
          added to (or replacing) those of a suite method id. Keys by method kind \
          (docs/methods.md):",
     );
-    for (kind, keys) in METHOD_KEYS {
+    for (kind, keys) in method_keys() {
         s.push_str(&format!("\n  {kind}: "));
         if keys.is_empty() {
             s.push_str("no parameters");
@@ -180,6 +166,15 @@ pub fn suite_methods(suite: Option<&Path>) -> Result<(String, Vec<MethodEntry>)>
     }
 }
 
+/// The method kinds as a list in words: `a, b, … or z`.
+fn kinds_text() -> String {
+    let kinds: Vec<&str> = method_keys().iter().map(|(k, _)| *k).collect();
+    match kinds.split_last() {
+        Some((last, rest)) if !rest.is_empty() => format!("{} or {last}", rest.join(", ")),
+        _ => kinds.join(""),
+    }
+}
+
 /// The method spec of `--method` and `--set`: `method` is looked up among
 /// the ids of `table` (the method table of `suite_name`) first, then among
 /// the method kinds; `--set` adds or replaces parameters. Checked for `kind`
@@ -194,7 +189,10 @@ pub fn resolve_method(
     super::require_name(
         "--method",
         method,
-        &format!("give a method id of {suite_name} (e.g. isotonic-bounded) or a method kind: identity, platt, isotonic, beta, binning, temperature, centered-isotonic, spline or venn-abers"),
+        &format!(
+            "give a method id of {suite_name} (e.g. isotonic-bounded) or a method kind: {}",
+            kinds_text()
+        ),
     )?;
     if let Some(entry) = table.iter().find(|m| m.id == method) {
         let Ok(toml::Value::Table(t)) = toml::Value::try_from(&entry.spec) else {
@@ -202,10 +200,10 @@ pub fn resolve_method(
         };
         return with_set(t, method, set, kind);
     }
-    if METHOD_KEYS.iter().any(|(k, _)| *k == method) {
+    let kinds: Vec<&str> = method_keys().iter().map(|(k, _)| *k).collect();
+    if kinds.contains(&method) {
         return method_spec(method, set, kind);
     }
-    let kinds: Vec<&str> = METHOD_KEYS.iter().map(|(k, _)| *k).collect();
     let ids: Vec<&str> = table.iter().map(|m| m.id.as_str()).collect();
     bail!(
         "--method {method}: not a method id of {suite_name} ({}) nor a method kind ({}); --suite FILE looks ids up in another suite",
@@ -430,7 +428,7 @@ mod tests {
             .collect()
     }
 
-    /// [`METHOD_KEYS`] (shown by `fit --help`) is the parameter list of
+    /// [`method_keys`] (shown by `fit --help`) is the parameter list of
     /// [`MethodSpec`]: every kind, every key, each key accepted with a value
     /// of the kind described, and no key left out (serde's unknown-field
     /// error lists the keys a kind takes).
@@ -440,7 +438,7 @@ mod tests {
             .err()
             .unwrap()
             .to_string();
-        let kinds: BTreeSet<String> = METHOD_KEYS.iter().map(|(k, _)| k.to_string()).collect();
+        let kinds: BTreeSet<String> = method_keys().iter().map(|(k, _)| k.to_string()).collect();
         assert_eq!(expected_names(&e), kinds, "{e}");
         let sample = |key: &str| match key {
             "target_smoothing" => "true",
@@ -452,8 +450,8 @@ mod tests {
             "criterion" => "bic",
             other => panic!("no sample value for `{other}`"),
         };
-        for (kind, keys) in METHOD_KEYS {
-            for (key, _) in *keys {
+        for (kind, keys) in method_keys() {
+            for (key, _) in keys {
                 let set = vec![format!("{key}={}", sample(key))];
                 method_spec(kind, &set, ScoreKind::Margin)
                     .unwrap_or_else(|e| panic!("{kind} {set:?}: {e}"));
@@ -469,12 +467,12 @@ mod tests {
         // The long help shows every key.
         let mut cmd = <FitArgs as clap::Args>::augment_args(clap::Command::new("fit"));
         let help = cmd.render_long_help().to_string();
-        for (kind, keys) in METHOD_KEYS {
+        for (kind, keys) in method_keys() {
             let line = help
                 .lines()
                 .find(|l| l.trim_start().starts_with(&format!("{kind}: ")))
                 .unwrap_or_else(|| panic!("no line for {kind} in {help}"));
-            for (key, _) in *keys {
+            for (key, _) in keys {
                 assert!(line.contains(key), "{kind}: {line}");
             }
         }
