@@ -196,7 +196,10 @@ impl FittedMap for BetaMap {
 
 /// The saved beta map.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::Beta with 6 elements"
+)]
 pub struct BetaState {
     pub shape: BetaShape,
     pub score_kind: ScoreKind,

@@ -197,7 +197,10 @@ impl FittedMap for BinningMap {
 
 /// The saved binning map: its bins.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::Binning with 2 elements"
+)]
 pub struct BinningState {
     pub pseudo_count: f64,
     pub bins: Vec<Bin>,

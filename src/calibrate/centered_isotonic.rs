@@ -125,7 +125,10 @@ impl FittedMap for CirMap {
 
 /// The saved centered isotonic map: its points (x, value).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::CenteredIsotonic with 3 elements"
+)]
 pub struct CenteredIsotonicState {
     pub pseudo_count: f64,
     pub x: Vec<f64>,

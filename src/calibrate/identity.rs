@@ -55,7 +55,10 @@ impl FittedMap for IdentityMap {
 
 /// The saved identity map: nothing fitted.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::Identity with 0 elements"
+)]
 pub struct IdentityState {}
 
 impl SavedMap for IdentityState {

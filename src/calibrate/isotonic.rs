@@ -262,7 +262,10 @@ impl FittedMap for IsotonicMap {
 
 /// The saved isotonic map: its PAV blocks.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::Isotonic with 2 elements"
+)]
 pub struct IsotonicState {
     pub pseudo_count: f64,
     pub blocks: Vec<Block>,

@@ -133,7 +133,10 @@ impl FittedMap for PlattMap {
 
 /// The saved Platt map σ(a·s + b).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::Platt with 3 elements"
+)]
 pub struct PlattState {
     pub a: f64,
     pub b: f64,

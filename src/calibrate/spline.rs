@@ -893,7 +893,10 @@ impl FittedMap for ConstantMap {
 /// The saved spline map: cubic B-spline coefficients on `intervals` equal
 /// intervals of [lo, hi] of the log-odds; linear continuation outside.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::Spline with 9 elements"
+)]
 pub struct SplineState {
     pub score_kind: ScoreKind,
     pub lo: f64,
@@ -1006,7 +1009,10 @@ impl SavedMap for SplineState {
 
 /// The saved constant map p (a spline fitted on all-equal log-odds).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::Constant with 1 element"
+)]
 pub struct ConstantState {
     pub p: f64,
 }

@@ -8,7 +8,9 @@
 //!
 //! Each method's file declares its saved state (a struct implementing
 //! [`SavedMap`]: summary lines, check, rebuild, out-of-range rule); this file
-//! holds the tagged enum over them and the checks they share.
+//! holds the tagged enum over them and the checks they share. Each state
+//! struct names its variant in a serde `expecting`, so a saved state written
+//! as a list that is too short is refused in the words of this enum.
 //!
 //! Exactness: the rebuilt map is the same Rust type with the same fields (any
 //! derived lookup structure, such as the isotonic knots or the binning cut
@@ -239,5 +241,43 @@ impl MapState {
     /// (beta, temperature, spline).
     pub fn score_kind(&self) -> Option<ScoreKind> {
         self.saved().score_kind()
+    }
+}
+#[cfg(test)]
+mod tests {
+    use super::MapState;
+
+    /// A saved state may also be written as a list (tag first, then the
+    /// fields in order); a short list is refused in the words of a variant
+    /// of this enum, as each state's `expecting` says.
+    #[test]
+    fn short_lists_are_refused_in_the_enum_words() {
+        for (tag, variant, fields) in [
+            ("identity", "Identity", 0),
+            ("platt", "Platt", 3),
+            ("isotonic", "Isotonic", 2),
+            ("beta", "Beta", 6),
+            ("binning", "Binning", 2),
+            ("temperature", "Temperature", 3),
+            ("centered-isotonic", "CenteredIsotonic", 3),
+            ("spline", "Spline", 9),
+            ("constant", "Constant", 1),
+            ("venn-abers", "VennAbers", 5),
+        ] {
+            let got = serde_json::from_str::<MapState>(&format!("[\"{tag}\"]"));
+            if fields == 0 {
+                assert!(got.is_ok(), "{tag}");
+                continue;
+            }
+            let e = got.err().unwrap().to_string();
+            let unit = if fields == 1 { "element" } else { "elements" };
+            assert_eq!(
+                e,
+                format!(
+                    "invalid length 0, expected struct variant MapState::{variant} with {fields} {unit}"
+                ),
+                "{tag}"
+            );
+        }
     }
 }

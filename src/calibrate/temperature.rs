@@ -314,7 +314,10 @@ impl FittedMap for TemperatureMap {
 
 /// The saved temperature map σ(β·z).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::Temperature with 3 elements"
+)]
 pub struct TemperatureState {
     pub score_kind: ScoreKind,
     pub inverse_temperature: f64,

@@ -276,7 +276,10 @@ impl FittedMap for VennAbersMap {
 /// The saved Venn–Abers table: the pairs at each gap (below, between, above
 /// the distinct calibration scores) and each tie (on a distinct score).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "struct variant MapState::VennAbers with 5 elements"
+)]
 pub struct VennAbersState {
     pub scores: Vec<f64>,
     pub gap_p0: Vec<f64>,
