@@ -166,7 +166,6 @@ pub fn fit(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::calibrate::beta::BetaShape;
 
     fn margins(n: usize, k: usize, seed: u64) -> (Vec<f64>, Vec<usize>) {
         crate::multiclass::testdata::labelled(n, k, seed, |c, v| {
@@ -183,22 +182,29 @@ mod tests {
         (q, y)
     }
 
+    /// A method spec as a suite writes it, e.g. `kind = "binning", bins = 5`.
+    fn spec(toml_fields: &str) -> MethodSpec {
+        #[derive(serde::Deserialize)]
+        struct W {
+            m: MethodSpec,
+        }
+        toml::from_str::<W>(&format!("m = {{ {toml_fields} }}"))
+            .unwrap()
+            .m
+    }
+
     fn methods() -> Vec<MethodSpec> {
-        vec![
-            MethodSpec::Platt {
-                target_smoothing: false,
-            },
-            MethodSpec::Isotonic { pseudo_count: 0.0 },
-            MethodSpec::Beta {
-                shape: BetaShape::default(),
-            },
-            MethodSpec::Binning {
-                bins: 5,
-                pseudo_count: 0.0,
-            },
-            MethodSpec::Temperature {},
-            MethodSpec::VennAbers {},
+        [
+            r#"kind = "platt""#,
+            r#"kind = "isotonic""#,
+            r#"kind = "beta""#,
+            r#"kind = "binning", bins = 5"#,
+            r#"kind = "temperature""#,
+            r#"kind = "venn-abers""#,
         ]
+        .iter()
+        .map(|s| spec(s))
+        .collect()
     }
 
     #[test]
@@ -230,13 +236,20 @@ mod tests {
     #[test]
     fn identity_returns_the_probability_rows() {
         let (q, y) = probabilities(50, 3, 8);
-        let f = fit(&q, 3, &y, &MethodSpec::Identity {}, ScoreKind::Probability).unwrap();
+        let f = fit(
+            &q,
+            3,
+            &y,
+            &spec(r#"kind = "identity""#),
+            ScoreKind::Probability,
+        )
+        .unwrap();
         let p = f.predict(&q).unwrap();
         for (a, b) in p.iter().zip(&q) {
             assert!((a - b).abs() < 1e-15);
         }
         // The identity needs probabilities.
-        assert!(fit(&q, 3, &y, &MethodSpec::Identity {}, ScoreKind::Margin).is_err());
+        assert!(fit(&q, 3, &y, &spec(r#"kind = "identity""#), ScoreKind::Margin).is_err());
     }
 
     #[test]
@@ -276,7 +289,7 @@ mod tests {
             z.extend_from_slice(&r);
             y.push(c);
         }
-        let iso = MethodSpec::Isotonic { pseudo_count: 0.0 };
+        let iso = spec(r#"kind = "isotonic""#);
         let f = fit(&z, 3, &y, &iso, ScoreKind::Margin).unwrap();
         let rows = [-5.0, -6.0, -7.0, 2.0, -1.0, -1.0];
         let (p, fallbacks) = f.predict_with_fallbacks(&rows).unwrap();
@@ -289,9 +302,7 @@ mod tests {
 
     #[test]
     fn bad_input_is_an_error() {
-        let platt = MethodSpec::Platt {
-            target_smoothing: false,
-        };
+        let platt = spec(r#"kind = "platt""#);
         let m = ScoreKind::Margin;
         assert_eq!(
             fit(&[], 3, &[], &platt, m).unwrap_err(),
@@ -313,10 +324,7 @@ mod tests {
             ScoreKind::Probability
         )
         .is_err());
-        let bad = MethodSpec::Binning {
-            bins: 0,
-            pseudo_count: 0.0,
-        };
+        let bad = spec(r#"kind = "binning", bins = 0"#);
         let e = fit(&[1.0, 0.0, 0.0, 2.0], 2, &[0, 1], &bad, m).unwrap_err();
         assert!(e.to_string().contains("bins"), "{e}");
         let f = fit(&[1.0, 0.0, 0.0, 2.0, 3.0, 1.0], 2, &[0, 1, 0], &platt, m).unwrap();
