@@ -15,6 +15,11 @@ population's base rate: the values stated with each population in
 benches/coverage/study.rs; two-step's 0.482 is the integral of its map over
 its Kumaraswamy(2, 3) scores), and the coverage of the cells there. It is the
 evidence for the report's 10-row flag (`RARE_CLASS_ROWS`).
+Last, "Approximate intervals": per population and metric, the coverage of
+the replicates a report does not mark approximate († rare class, ‡ a
+log-loss comparison with a method that can predict 0 or 1; columns
+`approximate` and `covered_unmarked`), over the cells where at least half the
+replicates are unmarked, and every such cell outside 93–97%.
 Standard library only.
 """
 import csv
@@ -120,6 +125,45 @@ def main() -> None:
         if cov:
             print(f"- {'fewer' if flagged else 'at least'} {RARE_ROWS} rows: {len(cov)} cells, "
                   f"{sum(c < 0.93 for c in cov)} below 93% ({100 * sum(c < 0.93 for c in cov) / len(cov):.1f}%)")
+
+    if "covered_unmarked" not in rows[0]:
+        return
+    print()
+    print(f"Approximate intervals: interval `{kind}`, coverage of the replicates a report "
+          "does not mark († or ‡), over the cells where at least half of them are unmarked:\n")
+    print("| population | metric | cells | mostly marked | unmarked cells | below 93% | above 97% | lowest | highest |")
+    print("|---|---|---|---|---|---|---|---|---|")
+    outside = []
+    totals = [0, 0, 0, 0, 0]
+    for pop in pops:
+        for metric in OrderedDict.fromkeys(r["metric"] for r in rows):
+            sel = [r for r in rows if r["population"] == pop and r["metric"] == metric and r["interval"] == kind]
+            if not sel:
+                continue
+            cov = []
+            marked = 0
+            for r in sel:
+                n = int(r["replicates"]) - int(r["approximate"])
+                if 2 * n < int(r["replicates"]):
+                    marked += 1
+                    continue
+                c = int(r["covered_unmarked"]) / n
+                cov.append(c)
+                if not 0.93 <= c <= 0.97:
+                    outside.append((r, c, n))
+            below = sum(c < 0.93 for c in cov)
+            above = sum(c > 0.97 for c in cov)
+            for i, v in enumerate([len(sel), marked, len(cov), below, above]):
+                totals[i] += v
+            lo = f"{100 * min(cov):.1f}%" if cov else "–"
+            hi = f"{100 * max(cov):.1f}%" if cov else "–"
+            print(f"| `{pop}` | {metric} | {len(sel)} | {marked} | {len(cov)} | {below} | {above} | {lo} | {hi} |")
+    print(f"| all | all | {totals[0]} | {totals[1]} | {totals[2]} | {totals[3]} | {totals[4]} | | |")
+    print()
+    print("Unmarked cells outside 93–97% (coverage of the unmarked replicates, their count):\n")
+    for r, c, n in sorted(outside, key=lambda t: t[1]):
+        print(f"- `{r['population']}`, {r['method']} − {r['reference']}, {r['metric']}, "
+              f"n = {r['size']}: {100 * c:.1f}% of {n}")
 
 
 if __name__ == "__main__":

@@ -390,6 +390,12 @@ pub fn settings_of(plan: &Plan) -> AnalysisSettings {
                 )
             })
             .then_some(plan.metric_settings.decision_threshold),
+        zero_one_methods: plan
+            .methods
+            .iter()
+            .filter(|m| m.spec.can_predict_zero_one())
+            .map(|m| m.id.clone())
+            .collect(),
     }
 }
 
@@ -473,6 +479,7 @@ mod tests {
                 raw_method: Some("identity".into()),
                 max_fallback: 0.1,
                 decision_threshold: None,
+                zero_one_methods: Vec::new(),
             },
             tasks: vec![TaskRecord {
                 id: "a".into(),

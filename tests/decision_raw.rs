@@ -418,10 +418,18 @@ fn rare_class_intervals_are_flagged_approximate() {
     assert!(small > 0 && large > 0);
     let csv = fs::read_to_string(out.join("paired.csv")).unwrap();
     let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
-    assert_eq!(&header[header.len() - 2..], ["minority_rows", "rare_class"]);
+    assert_eq!(
+        &header[header.len() - 4..],
+        [
+            "minority_rows",
+            "rare_class",
+            "first_order_share",
+            "approximate"
+        ]
+    );
     assert!(csv
         .lines()
-        .any(|l| l.contains(",50,") && l.ends_with(",true")));
+        .any(|l| l.contains(",50,") && l.ends_with(",true,1,rare-class")));
     let text = summary(&out);
     assert!(
         text.contains("**Approximate intervals (†):** 4 of 8 comparisons"),
@@ -433,4 +441,38 @@ fn rare_class_intervals_are_flagged_approximate() {
             || text.contains("] ✗ †")
             || text.contains("] = †")
     );
+}
+
+/// A log-loss comparison with a method that can predict exactly 0 or 1
+/// (isotonic regression without pseudo-rows) is marked approximate (‡) in
+/// `paired.csv`, beside its interval and in the evidence paragraph; its
+/// Brier-score comparison, and the bounded variant's, are not.
+#[test]
+fn zero_one_log_loss_intervals_are_flagged_approximate() {
+    let files: Vec<String> = (0..2)
+        .map(|t| calibrated_csv(4000, 7_901 + t, 1.0))
+        .collect();
+    let text_suite = suite(
+        &[("platt", "platt"), ("isotonic", "isotonic")],
+        "200, 1000",
+        2,
+    )
+        + "\n[[method]]\nid = \"isotonic-bounded\"\nkind = \"isotonic\"\npseudo_count = 1.0\n";
+    let (a, out, _dir) = run(&files, &text_suite);
+    let mut seen = 0;
+    for p in &a.paired {
+        let want = p.method == "isotonic" && p.metric == plumbline::metrics::MetricId::LogLoss;
+        assert_eq!(p.zero_one, want, "{p:?}");
+        assert_eq!(p.approximate(), want.then_some("zero-one"), "{p:?}");
+        seen += want as usize;
+    }
+    assert_eq!(seen, 4, "2 tasks × 2 sizes");
+    let csv = fs::read_to_string(out.join("paired.csv")).unwrap();
+    assert_eq!(csv.lines().filter(|l| l.ends_with(",zero-one")).count(), 4);
+    let text = summary(&out);
+    assert!(
+        text.contains("**Approximate log-loss intervals (‡):** 4 of 16 comparisons involve a method that can predict a probability of exactly 0 or 1 (`isotonic`)."),
+        "{text}"
+    );
+    assert!(text.contains(" ‡"), "{text}");
 }

@@ -34,6 +34,7 @@ fn paired_t_matches_scipy_ttest_rel_and_t_interval() {
             test_rows: 1000,
             extreme: false,
             rare_class: false,
+            positives: None,
         };
         let iv = interval(IntervalKind::PairedT, &input, conf).unwrap();
         // scipy.stats.t.interval(conf, n − 1, loc = mean, scale = sem).

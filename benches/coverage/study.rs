@@ -407,6 +407,9 @@ pub struct Draw {
     pub df: f64,
     pub test_term: f64,
     pub order: u32,
+    /// Whether a report marks this interval as approximate (rare class, or
+    /// a log-loss comparison with a method that can predict 0 or 1).
+    pub approximate: bool,
 }
 
 /// Key of a cell: (population, pair, metric, size, kind) indices.
@@ -628,6 +631,12 @@ fn run_replicate(
             raw_method: None,
             max_fallback: plumbline::analysis::DEFAULT_MAX_FALLBACK,
             decision_threshold: None,
+            zero_one_methods: cfg
+                .methods
+                .iter()
+                .filter(|(_, m)| m.can_predict_zero_one())
+                .map(|(id, _)| id.clone())
+                .collect(),
         };
         let src = PairSource {
             table: &table,
@@ -643,6 +652,24 @@ fn run_replicate(
                     let Some(iv) = pair_interval(&src, "pool", size, a, b, *met, col) else {
                         return Err(format!("no interval for {a} − {b} at n = {size}"));
                     };
+                    // The report's flags: rows of the rarer class in the
+                    // calibration samples (read off the reference's units,
+                    // as the analysis does) and the zero-one rule.
+                    let minority = cells
+                        .get(&TableCell::new("pool", size, b))
+                        .map(|c| {
+                            let v: Vec<f64> = c
+                                .values()
+                                .map(|&i| {
+                                    let r = &table.rows[i];
+                                    r.positives.min(r.size - r.positives) as f64
+                                })
+                                .collect();
+                            v.iter().sum::<f64>() / v.len().max(1) as f64
+                        })
+                        .unwrap_or(f64::NAN);
+                    let approximate = minority < plumbline::analysis::RARE_CLASS_ROWS
+                        || plumbline::analysis::zero_one_pair(&settings, *met, a, b);
                     out.push((
                         (pi, qi, mi, si, ki),
                         Draw {
@@ -653,6 +680,7 @@ fn run_replicate(
                             df: iv.df,
                             test_term: iv.test_term.unwrap_or(f64::NAN),
                             order: iv.reservoir_order.unwrap_or(0),
+                            approximate,
                         },
                     ));
                 }
@@ -747,11 +775,26 @@ pub struct CoverageRow {
     pub rmse: f64,
     /// Share of replicates whose reservoir term took degree 1.
     pub first_order_share: f64,
+    /// Replicates whose interval a report marks as approximate.
+    pub approximate: usize,
+    /// Covering replicates among the others.
+    pub covered_unmarked: usize,
 }
 
 impl CoverageRow {
     pub fn coverage(&self) -> f64 {
         self.covered as f64 / self.replicates.max(1) as f64
+    }
+
+    /// Coverage among the replicates a report does not mark approximate
+    /// (NaN when it marks them all).
+    pub fn coverage_unmarked(&self) -> f64 {
+        let n = self.replicates - self.approximate;
+        if n == 0 {
+            f64::NAN
+        } else {
+            self.covered_unmarked as f64 / n as f64
+        }
     }
 }
 
@@ -783,6 +826,11 @@ impl StudyOutput {
                     rms_se: (ds.iter().map(|d| d.se * d.se).sum::<f64>() / c).sqrt(),
                     rmse: (ds.iter().map(|d| (d.mean - th).powi(2)).sum::<f64>() / c).sqrt(),
                     first_order_share: ds.iter().filter(|d| d.order == 1).count() as f64 / c,
+                    approximate: ds.iter().filter(|d| d.approximate).count(),
+                    covered_unmarked: ds
+                        .iter()
+                        .filter(|d| !d.approximate && d.low <= th && th <= d.high)
+                        .count(),
                 }
             })
             .collect()
@@ -793,11 +841,11 @@ impl StudyOutput {
     /// only where the underlying numbers are).
     pub fn table_csv(&self) -> String {
         let mut s = String::from(
-            "population,method,reference,metric,size,interval,truth,truth_se,replicates,covered,missed_low,missed_high,coverage,mean_half_width,bias,rms_se,rmse,first_order_share\n",
+            "population,method,reference,metric,size,interval,truth,truth_se,replicates,covered,missed_low,missed_high,coverage,mean_half_width,bias,rms_se,rmse,first_order_share,approximate,covered_unmarked,coverage_unmarked\n",
         );
         for r in self.rows() {
             s.push_str(&format!(
-                "{},{},{},{},{},{},{:.6e},{:.3e},{},{},{},{},{:.4},{:.6e},{:.3e},{:.6e},{:.6e},{:.4}\n",
+                "{},{},{},{},{},{},{:.6e},{:.3e},{},{},{},{},{:.4},{:.6e},{:.3e},{:.6e},{:.6e},{:.4},{},{},{:.4}\n",
                 r.population,
                 r.method,
                 r.reference,
@@ -815,7 +863,10 @@ impl StudyOutput {
                 r.bias,
                 r.rms_se,
                 r.rmse,
-                r.first_order_share
+                r.first_order_share,
+                r.approximate,
+                r.covered_unmarked,
+                r.coverage_unmarked()
             ));
         }
         s

@@ -66,6 +66,12 @@ pub struct AnalysisSettings {
     /// written) otherwise.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub decision_threshold: Option<f64>,
+    /// Methods whose map can predict a probability of exactly 0 or 1
+    /// ([`crate::calibrate::MethodSpec::can_predict_zero_one`]): their
+    /// log-loss intervals are marked approximate. Empty (and not written)
+    /// when there are none, and in results written before the field existed.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub zero_one_methods: Vec<String>,
 }
 
 /// The default relative equivalence margin: 1% of the reference's mean loss.
@@ -197,6 +203,15 @@ pub struct Paired {
     /// Rows of the rarer class in the calibration sample, averaged over the
     /// repeats (min(positives, n − positives)).
     pub minority_rows: f64,
+    /// The share of the interval's reservoir term taken at degree 1 (see
+    /// [`crate::stats::paired::composition_share`]); `None` for the t
+    /// intervals.
+    pub first_order_share: Option<f64>,
+    /// A log-loss comparison in which either method can predict exactly 0
+    /// or 1 ([`AnalysisSettings::zero_one_methods`]): its expected log loss
+    /// hinges on rare test rows that the repeats may not show, and the
+    /// interval is approximate.
+    pub zero_one: bool,
 }
 
 impl Paired {
@@ -205,6 +220,24 @@ impl Paired {
     pub fn rare_class(&self) -> bool {
         self.minority_rows < RARE_CLASS_ROWS
     }
+
+    /// Whether the report marks the interval as approximate, and why:
+    /// `rare-class`, `zero-one`, both joined by `+`, or `None`.
+    pub fn approximate(&self) -> Option<&'static str> {
+        match (self.rare_class(), self.zero_one) {
+            (true, true) => Some("rare-class+zero-one"),
+            (true, false) => Some("rare-class"),
+            (false, true) => Some("zero-one"),
+            (false, false) => None,
+        }
+    }
+}
+
+/// Whether a paired comparison on `metric` between methods `a` and `b` is
+/// approximate because either can predict exactly 0 or 1 under a loss that
+/// is unbounded there (the log loss).
+pub fn zero_one_pair(settings: &AnalysisSettings, metric: MetricId, a: &str, b: &str) -> bool {
+    metric == MetricId::LogLoss && settings.zero_one_methods.iter().any(|m| m == a || m == b)
 }
 
 /// Everything the reports show.
@@ -409,6 +442,13 @@ pub fn paired_interval(
     // The calibration sample is the same for both methods of a repeat: its
     // class counts, averaged over repeats, decide the rare-class rule.
     let rare_class = minority_rows(table, pr.rows.iter().map(|&(i, _)| i)) < RARE_CLASS_ROWS;
+    // Per repeat, the positives of the calibration sample, in the order of
+    // the differences.
+    let positives: Vec<f64> = pr
+        .rows
+        .iter()
+        .map(|&(i, _)| table.rows[i].positives as f64)
+        .collect();
     let input = PairedInput {
         diffs: &pr.diffs,
         row_stats: row_stats.as_deref(),
@@ -417,6 +457,7 @@ pub fn paired_interval(
         test_rows: first.map(|r| r.test_rows).unwrap_or(0),
         extreme,
         rare_class,
+        positives: Some(&positives),
     };
     interval(kind, &input, settings.confidence).unwrap_or(Interval {
         kind,
@@ -428,6 +469,7 @@ pub fn paired_interval(
         confidence: settings.confidence,
         test_term: None,
         reservoir_order: None,
+        first_order_share: None,
     })
 }
 
@@ -582,6 +624,8 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
                         margin,
                         verdict: Verdict::of_metric(lo, hi, margin, hib),
                         minority_rows,
+                        first_order_share: iv.first_order_share,
+                        zero_one: zero_one_pair(settings, metric, method, &settings.reference),
                     });
                 }
             }
@@ -774,6 +818,7 @@ mod tests {
             raw_method: None,
             max_fallback: DEFAULT_MAX_FALLBACK,
             decision_threshold: None,
+            zero_one_methods: Vec::new(),
         };
         let a = analyse(&table, &settings);
         let beta: Vec<(String, usize)> = a.status_counts[&CellKey::new("t", 20, "beta")]

@@ -81,6 +81,10 @@ impl Method for Binning {
     fn shape(&self) -> Shape {
         Shape::Flexible
     }
+
+    fn predicts_zero_one(&self) -> bool {
+        self.pseudo_count == 0.0
+    }
     fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
         if self.bins == 0 || self.bins > MAX_BINS {
             return Err(ParamError::new(

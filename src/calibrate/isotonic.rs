@@ -62,6 +62,10 @@ impl Method for Isotonic {
     fn shape(&self) -> Shape {
         Shape::Flexible
     }
+
+    fn predicts_zero_one(&self) -> bool {
+        self.pseudo_count == 0.0
+    }
     fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
         check_pseudo_count(self.pseudo_count)
     }

@@ -197,6 +197,11 @@ pub trait Method {
     fn keys(&self) -> &'static [(&'static str, &'static str)];
     /// The class of the default threshold pairs.
     fn shape(&self) -> Shape;
+    /// Whether the fitted map can predict exactly 0 or 1 (see
+    /// [`MethodSpec::can_predict_zero_one`]); no by default.
+    fn predicts_zero_one(&self) -> bool {
+        false
+    }
     /// Check the parameters for a task whose scores are of `score_kind`.
     fn validate(&self, score_kind: ScoreKind) -> Result<(), ParamError>;
     /// The calibrator of checked parameters.
@@ -287,6 +292,17 @@ impl MethodSpec {
     /// threshold pairs compare flexible methods with (Platt and beta).
     pub fn is_parametric(&self) -> bool {
         self.params().shape() == Shape::Parametric
+    }
+
+    /// Whether the fitted map can predict a probability of exactly 0 or 1
+    /// (or within the log-loss clip of them) for scores like those it was
+    /// fitted on: the step maps without pseudo-rows (isotonic, centered
+    /// isotonic, binning), whose end blocks can be all of one class, and the
+    /// spline, whose ends follow few rows. In the coverage study these maps'
+    /// log-loss intervals fell short where the others did not
+    /// (`docs/statistics.md`, "Approximate intervals").
+    pub fn can_predict_zero_one(&self) -> bool {
+        self.params().predicts_zero_one()
     }
 
     /// Check the parameters for a task whose scores are of `score_kind`.
@@ -425,6 +441,27 @@ mod spec_tests {
     /// The shape classes of the default threshold pairs: every kind is in
     /// at most one, and the classes are the documented ones. Each kind's
     /// default parameters are those of a bare `{ kind = "..." }`.
+    #[test]
+    fn zero_one_kinds_are_the_unbounded_step_maps_and_the_spline() {
+        let zero_one: Vec<&str> = MethodSpec::defaults()
+            .iter()
+            .filter(|m| m.can_predict_zero_one())
+            .map(|m| m.kind())
+            .collect();
+        assert_eq!(
+            zero_one,
+            ["isotonic", "binning", "centered-isotonic", "spline"]
+        );
+        // Pseudo-rows keep the step maps strictly inside (0, 1).
+        for k in ["isotonic", "binning", "centered-isotonic"] {
+            let spec =
+                toml::from_str::<W>(&format!("m = {{ kind = \"{k}\", pseudo_count = 1.0 }}"))
+                    .unwrap()
+                    .m;
+            assert!(!spec.can_predict_zero_one(), "{k}");
+        }
+    }
+
     #[test]
     fn flexible_and_parametric_kinds() {
         let mut kinds = Vec::new();

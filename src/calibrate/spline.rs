@@ -136,6 +136,10 @@ impl Method for SplineParams {
     fn shape(&self) -> Shape {
         Shape::Flexible
     }
+
+    fn predicts_zero_one(&self) -> bool {
+        true
+    }
     fn validate(&self, _score_kind: ScoreKind) -> Result<(), ParamError> {
         if self.intervals == 0 || self.intervals > MAX_INTERVALS {
             return Err(ParamError::new(

@@ -218,6 +218,10 @@ pub fn report_dir(args: &ReportArgs) -> Result<String> {
         },
         max_fallback,
         decision_threshold: from_manifest.as_ref().and_then(|s| s.decision_threshold),
+        zero_one_methods: from_manifest
+            .as_ref()
+            .map(|s| s.zero_one_methods.clone())
+            .unwrap_or_default(),
     };
     let a = analysis::analyse(&table, &settings);
     let suite_info = recorded.suite.unwrap_or_default();

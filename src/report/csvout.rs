@@ -4,7 +4,7 @@ use crate::analysis::Analysis;
 use crate::run::table::num;
 
 pub const PAIRED_HEADER: &str =
-    "task,size,method,reference,metric,repeats,mean_method,mean_reference,mean_diff,ci_low,ci_high,se,wins,ties,losses,interval,confidence,reservoir_order,margin,verdict,minority_rows,rare_class";
+    "task,size,method,reference,metric,repeats,mean_method,mean_reference,mean_diff,ci_low,ci_high,se,wins,ties,losses,interval,confidence,reservoir_order,margin,verdict,minority_rows,rare_class,first_order_share,approximate";
 
 /// Seven significant digits: more than the intervals resolve, and half the
 /// bytes of the shortest round-trip form.
@@ -21,7 +21,7 @@ pub fn paired_csv(a: &Analysis) -> String {
     s.push('\n');
     for p in &a.paired {
         s.push_str(&format!(
-            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
+            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
             p.task,
             p.size,
             p.method,
@@ -43,7 +43,9 @@ pub fn paired_csv(a: &Analysis) -> String {
             f(p.margin),
             p.verdict.as_str(),
             f(p.minority_rows),
-            p.rare_class()
+            p.rare_class(),
+            p.first_order_share.map(f).unwrap_or_default(),
+            p.approximate().unwrap_or("")
         ));
     }
     s

@@ -103,7 +103,7 @@ pub fn task_table(
                     dec.diff(p.ci_low),
                     dec.diff(p.ci_high),
                     p.verdict.mark(),
-                    if p.rare_class() { " †" } else { "" }
+                    approximate_marks(p)
                 );
                 let diff = if markdown && p.verdict != Verdict::Undetermined {
                     format!("**{diff}**")
@@ -131,6 +131,12 @@ pub fn task_table(
     {
         notes.push(RARE_NOTE.to_string());
     }
+    if a.paired
+        .iter()
+        .any(|p| p.task == *task && p.metric == metric && p.zero_one)
+    {
+        notes.push(ZERO_ONE_NOTE.to_string());
+    }
     Table {
         title: format!("Task `{task}` — {metric}"),
         header,
@@ -138,6 +144,20 @@ pub fn task_table(
         notes,
     }
 }
+
+/// The marks after an interval: † for a rare class, ‡ for a log-loss
+/// comparison with a method that can predict 0 or 1.
+fn approximate_marks(p: &crate::analysis::Paired) -> &'static str {
+    match (p.rare_class(), p.zero_one) {
+        (true, true) => " †‡",
+        (true, false) => " †",
+        (false, true) => " ‡",
+        (false, false) => "",
+    }
+}
+
+/// What ‡ means, under every table that has one.
+const ZERO_ONE_NOTE: &str = "‡: approximate interval — a method of the comparison can predict a probability of exactly 0 or 1, so its expected log loss hinges on rare test rows that the repeats may not show; in the coverage study such intervals fell short of their nominal level (docs/statistics.md, \"Approximate intervals\"). Compare such methods on the Brier score, or use their bounded variants, when it matters.";
 
 /// What † means, under every table that has one.
 const RARE_NOTE: &str = "†: approximate interval — the calibration samples held fewer than 10 rows of the rarer class on average; in the coverage study such intervals fell short of their nominal level far more often (docs/statistics.md, \"Rare classes\").";
@@ -692,6 +712,21 @@ fn evidence_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
             cells.len(),
             sizes.iter().map(|n| n.to_string()).collect::<Vec<_>>().join(", "),
             crate::analysis::RARE_CLASS_ROWS
+        )));
+    }
+    let zero_one = a.paired.iter().filter(|p| p.zero_one).count();
+    if zero_one > 0 {
+        let methods: std::collections::BTreeSet<&str> = a
+            .paired
+            .iter()
+            .filter(|p| p.zero_one)
+            .flat_map(|p| [p.method.as_str(), p.reference.as_str()])
+            .filter(|m| s.zero_one_methods.iter().any(|z| z == m))
+            .collect();
+        out.push(Block::Para(format!(
+            "**Approximate log-loss intervals (‡):** {zero_one} of {} comparisons involve a method that can predict a probability of exactly 0 or 1 ({}). Its expected log loss is driven by rare test rows on which it is certain and wrong, which a run's repeats may not show, so these intervals can fall short of their nominal level (`docs/statistics.md`, \"Approximate intervals\"). Read their log-loss verdicts as approximate; the Brier score, or the bounded variants of these methods, do not have this problem.",
+            a.paired.len(),
+            methods.iter().map(|m| format!("`{m}`")).collect::<Vec<_>>().join(", ")
         )));
     }
     if kind == Some(IntervalKind::default()) {

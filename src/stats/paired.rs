@@ -45,6 +45,19 @@
 //!     step-function map, whose end blocks are decided by single calibration
 //!     rows) the first-order term matters and k = 1 is taken instead; the
 //!     coverage study (`benches/coverage/study.rs`) shows both halves of this rule.
+//!     Neither half of that rule sees a first-order part that a fit scored
+//!     on a loss it does not minimise carries (a maximum-likelihood map scored
+//!     on the Brier score, when the map family does not hold the population's
+//!     map). Part of such a first-order effect moves with how many positives
+//!     the calibration sample drew, and shows across the repeats as a
+//!     regression of d_r on the sample's positive count c_r. Without extreme
+//!     predictions or rare classes the default therefore splits s_d²: the
+//!     share w that this regression explains (the adjusted R² of d_r on c_r,
+//!     floored at 0; [`composition_share`]) takes degree 1 and the rest
+//!     degree 2, so the reservoir term is
+//!     s_d² [w ρ/(1 − ρ) + (1 − w) ρ²/(1 − ρ²)]. The coverage study measured
+//!     this rule against the plain degree-2 term (`docs/statistics.md`,
+//!     "Choosing the reservoir rule").
 //!     [`IntervalKind::DecomposedLinear`] always takes k = 1, the bound over
 //!     all degrees, s_d² · n/(M − n). Both grow as n approaches M (draws overlap,
 //!     repeats become dependent) and are undefined at n = M.
@@ -244,6 +257,58 @@ pub struct PairedInput<'a> {
     /// [`IntervalKind::DecomposedSkew`] take the first-order reservoir term
     /// for every metric.
     pub rare_class: bool,
+    /// Positives in each repeat's calibration sample (same order as
+    /// `diffs`), for the share of the reservoir term that takes degree 1
+    /// ([`composition_share`]); `None` leaves the plain degree-2 term.
+    pub positives: Option<&'a [f64]>,
+}
+
+/// The share of the spread of the per-repeat differences d_r that the
+/// calibration samples' positive counts c_r explain: the adjusted R² of the
+/// least-squares line of d_r on c_r, 1 − (1 − R²)(R − 1)/(R − 2), floored at 0.
+/// It is 0 with fewer than 4 repeats, when the counts or the differences do
+/// not vary, or when the lengths differ.
+pub fn composition_share(diffs: &[f64], positives: &[f64]) -> f64 {
+    let r = diffs.len();
+    if r < 4 || positives.len() != r {
+        return 0.0;
+    }
+    let mx = positives.iter().sum::<f64>() / r as f64;
+    let my = diffs.iter().sum::<f64>() / r as f64;
+    let (mut sxx, mut syy, mut sxy) = (0.0, 0.0, 0.0);
+    for (&x, &y) in positives.iter().zip(diffs) {
+        sxx += (x - mx) * (x - mx);
+        syy += (y - my) * (y - my);
+        sxy += (x - mx) * (y - my);
+    }
+    if !(sxx > 0.0 && syy > 0.0) {
+        return 0.0;
+    }
+    let r2 = sxy * sxy / (sxx * syy);
+    let adj = 1.0 - (1.0 - r2) * (r - 1) as f64 / (r - 2) as f64;
+    if adj.is_finite() {
+        adj.clamp(0.0, 1.0)
+    } else {
+        0.0
+    }
+}
+
+/// The reservoir factor f of the decomposed intervals (the reservoir term is
+/// s_d² f) for ρ = n/M, the Hoeffding degree `order` and the share `w` of the
+/// spread that takes degree 1 when `order` is 2:
+/// f = w ρ/(1 − ρ) + (1 − w) ρ²/(1 − ρ²); `order` 1 gives ρ/(1 − ρ).
+pub fn reservoir_factor(rho: f64, order: u32, first_order_share: f64) -> f64 {
+    let f1 = rho / (1.0 - rho);
+    if order <= 1 {
+        return f1;
+    }
+    let f2 = rho * rho / (1.0 - rho * rho);
+    let w = first_order_share.clamp(0.0, 1.0);
+    if w == 0.0 {
+        f2
+    } else {
+        w * f1 + (1.0 - w) * f2
+    }
 }
 
 /// The variance terms of a [`IntervalKind::Decomposed`] interval (squared standard errors).
@@ -272,6 +337,10 @@ pub struct Interval {
     pub test_term: Option<f64>,
     /// The Hoeffding degree k of the reservoir term (decomposed intervals only).
     pub reservoir_order: Option<u32>,
+    /// The share of the reservoir term's spread taken at degree 1: 1 when
+    /// `reservoir_order` is 1, [`composition_share`] (often 0) when it is 2;
+    /// `None` for the t intervals.
+    pub first_order_share: Option<f64>,
 }
 
 impl Interval {
@@ -360,8 +429,14 @@ fn kurtosis_df(n: usize, kappa: f64) -> f64 {
 }
 
 /// The variance terms of the decomposed interval and their Satterthwaite df;
-/// `order` is the Hoeffding degree k of the reservoir term (1 or 2).
-pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64), StatsError> {
+/// `order` is the Hoeffding degree k of the reservoir term (1 or 2) and
+/// `first_order_share` the share taken at degree 1 when it is 2
+/// ([`reservoir_factor`]).
+pub fn decompose(
+    input: &PairedInput,
+    order: u32,
+    first_order_share: f64,
+) -> Result<(VarianceParts, f64), StatsError> {
     check(input)?;
     let r = input.diffs.len();
     let (mean_d, s2) = mean_var(input.diffs);
@@ -372,8 +447,7 @@ pub fn decompose(input: &PairedInput, order: u32) -> Result<(VarianceParts, f64)
         });
     }
     let rho = input.size as f64 / input.reservoir as f64;
-    let rk = rho.powi(order.clamp(1, 2) as i32);
-    let f = rk / (1.0 - rk);
+    let f = reservoir_factor(rho, order.clamp(1, 2), first_order_share);
     let c1 = 1.0 / r as f64 + f;
     let draws = s2 / r as f64;
     let reservoir = s2 * f;
@@ -466,14 +540,20 @@ pub fn interval(
     let (mean, s2) = mean_var(input.diffs);
     // Skewness of the estimator for the asymmetric interval (0: symmetric).
     let mut skew = 0.0;
-    let (var, df, test_term, reservoir_order) = match kind {
-        IntervalKind::PairedT => (s2 / r as f64, (r - 1) as f64, None, None),
+    let (var, df, test_term, reservoir_order, first_order_share) = match kind {
+        IntervalKind::PairedT => (s2 / r as f64, (r - 1) as f64, None, None, None),
         IntervalKind::CorrectedT => {
             if input.size == 0 {
                 return Err(StatsError::Shape("calibration size is 0".into()));
             }
             let ratio = input.test_rows as f64 / input.size as f64;
-            (s2 * (1.0 / r as f64 + ratio), (r - 1) as f64, None, None)
+            (
+                s2 * (1.0 / r as f64 + ratio),
+                (r - 1) as f64,
+                None,
+                None,
+                None,
+            )
         }
         IntervalKind::Decomposed
         | IntervalKind::DecomposedLinear
@@ -484,12 +564,19 @@ pub fn interval(
             let order = kind
                 .reservoir_order(input.extreme || input.rare_class)
                 .unwrap_or(1);
-            let (p, df) = decompose(input, order)?;
+            // At degree 2, the share of the spread that moves with the
+            // samples' positive counts takes degree 1.
+            let share = match (order, input.positives) {
+                (1, _) => 1.0,
+                (_, Some(pos)) => composition_share(input.diffs, pos),
+                (_, None) => 0.0,
+            };
+            let (p, df) = decompose(input, order, share)?;
             let var = p.draws + p.reservoir + p.test.unwrap_or(0.0);
             if kind == IntervalKind::DecomposedSkew && var > 0.0 {
                 skew = p.third / var.powf(1.5);
             }
-            (var, df, p.test, Some(order))
+            (var, df, p.test, Some(order), Some(share))
         }
     };
     let se = var.sqrt();
@@ -511,6 +598,7 @@ pub fn interval(
         confidence,
         test_term,
         reservoir_order,
+        first_order_share,
     })
 }
 
@@ -564,6 +652,71 @@ mod tests {
             test_rows: 500,
             extreme: false,
             rare_class: false,
+            positives: None,
+        }
+    }
+
+    #[test]
+    fn composition_share_by_hand() {
+        // d = (1, 2, 3, 5), c = (0, 1, 2, 3): x̄ = 1.5, ȳ = 2.75, Sxx = 5,
+        // Syy = 8.75, Sxy = 6.5; R² = 42.25/43.75 = 0.965714…, adjusted
+        // 1 − (1 − R²)·3/2 = 0.948571….
+        let d = [1.0, 2.0, 3.0, 5.0];
+        let c = [0.0, 1.0, 2.0, 3.0];
+        let w = composition_share(&d, &c);
+        assert!(
+            (w - (1.0 - (1.0 - 42.25 / 43.75) * 1.5)).abs() < 1e-12,
+            "{w}"
+        );
+        // Uncorrelated counts: the adjusted R² is negative, floored at 0.
+        assert_eq!(composition_share(&d, &[1.0, 0.0, 0.0, 1.0]), 0.0);
+        // Constant counts, too few repeats, mismatched lengths: 0.
+        assert_eq!(composition_share(&d, &[2.0; 4]), 0.0);
+        assert_eq!(composition_share(&d[..3], &c[..3]), 0.0);
+        assert_eq!(composition_share(&d, &c[..3]), 0.0);
+    }
+
+    #[test]
+    fn reservoir_factor_mixes_the_degrees_by_the_share() {
+        // ρ = 0.1: degree 1 gives 1/9, degree 2 gives 0.01/0.99.
+        let (f1, f2) = (1.0 / 9.0, 0.01 / 0.99);
+        assert!((reservoir_factor(0.1, 1, 0.0) - f1).abs() < 1e-15);
+        assert!((reservoir_factor(0.1, 2, 0.0) - f2).abs() < 1e-15);
+        assert!((reservoir_factor(0.1, 2, 1.0) - f1).abs() < 1e-15);
+        assert!((reservoir_factor(0.1, 2, 0.25) - (0.25 * f1 + 0.75 * f2)).abs() < 1e-15);
+        // Through the interval: d = (1, 2, 3, 5) with counts (0, 1, 2, 3),
+        // s² = 8.75/3, R = 4, no batch means.
+        let d = [1.0, 2.0, 3.0, 5.0];
+        let c = [0.0, 1.0, 2.0, 3.0];
+        let w = 1.0 - (1.0 - 42.25 / 43.75) * 1.5;
+        let s2 = 8.75 / 3.0;
+        let plain = input(&d, None);
+        let mixed = PairedInput {
+            positives: Some(&c),
+            ..plain
+        };
+        let iv = interval(IntervalKind::Decomposed, &mixed, 0.95).unwrap();
+        assert_eq!(iv.reservoir_order, Some(2));
+        assert!((iv.first_order_share.unwrap() - w).abs() < 1e-12);
+        let want = s2 / 4.0 + s2 * (w * f1 + (1.0 - w) * f2);
+        assert!((iv.se * iv.se - want).abs() < 1e-12);
+        let iv0 = interval(IntervalKind::Decomposed, &plain, 0.95).unwrap();
+        assert_eq!(iv0.first_order_share, Some(0.0));
+        assert!((iv0.se * iv0.se - (s2 / 4.0 + s2 * f2)).abs() < 1e-12);
+        // Extreme predictions take degree 1 whole, whatever the counts.
+        let rough = PairedInput {
+            extreme: true,
+            ..mixed
+        };
+        let ivx = interval(IntervalKind::Decomposed, &rough, 0.95).unwrap();
+        assert_eq!(ivx.first_order_share, Some(1.0));
+        assert!((ivx.se * ivx.se - (s2 / 4.0 + s2 * f1)).abs() < 1e-12);
+        // The linear kind is degree 1 already; the t intervals ignore counts.
+        for k in [IntervalKind::PairedT, IntervalKind::CorrectedT] {
+            assert_eq!(
+                interval(k, &plain, 0.95).unwrap(),
+                interval(k, &mixed, 0.95).unwrap()
+            );
         }
     }
 
@@ -774,7 +927,7 @@ mod tests {
         // MS_E = 1 / ((3 − 1)(2 − 1)) = 0.5. Test term = (13.5 − 0.5) / (3·2).
         let rows = vec![vec![1.0, 3.0], vec![2.0, 6.0], vec![3.0, 6.0]];
         let d: Vec<f64> = rows.iter().map(|r| (r[0] + r[1]) / 2.0).collect();
-        let (p, _) = decompose(&input(&d, Some(&rows)), 2).unwrap();
+        let (p, _) = decompose(&input(&d, Some(&rows)), 2, 0.0).unwrap();
         assert!((p.test.unwrap() - 13.0 / 6.0).abs() < 1e-12, "{p:?}");
     }
 
@@ -820,8 +973,9 @@ mod tests {
                 test_rows: 1000,
                 extreme: false,
                 rare_class: false,
+                positives: None,
             };
-            let (p, _) = decompose(&inp, 2).unwrap();
+            let (p, _) = decompose(&inp, 2, 0.0).unwrap();
             draws += p.draws / sims as f64;
             test += p.test.unwrap() / sims as f64;
             means.push(d.iter().sum::<f64>() / r_n as f64);
@@ -871,8 +1025,8 @@ mod tests {
             let moved: Vec<Vec<f64>> = rows.iter().zip(&shift).map(|(row, s)| row.iter().map(|x| x + s).collect()).collect();
             let d1: Vec<f64> = rows.iter().map(|r| r.iter().sum::<f64>() / 8.0).collect();
             let d2: Vec<f64> = moved.iter().map(|r| r.iter().sum::<f64>() / 8.0).collect();
-            let (a, _) = decompose(&input(&d1, Some(&rows)), 1).unwrap();
-            let (b, _) = decompose(&input(&d2, Some(&moved)), 1).unwrap();
+            let (a, _) = decompose(&input(&d1, Some(&rows)), 1, 1.0).unwrap();
+            let (b, _) = decompose(&input(&d2, Some(&moved)), 1, 1.0).unwrap();
             prop_assert!((a.test.unwrap() - b.test.unwrap()).abs() < 1e-9);
         }
     }

@@ -169,6 +169,7 @@ mod tests {
             confidence: 0.95,
             test_term: None,
             reservoir_order: None,
+            first_order_share: None,
         }
     }
 
