@@ -30,7 +30,7 @@
 //! O(n K⁴) for the Hessian and O(K⁶) for the solve, meant for tens of
 //! classes. Every lse and softmax subtracts the row's maximum.
 
-use super::{log_sum_exp, softmax_into, vector::cholesky_solve, MulticlassError};
+use super::{log_sum_exp, softmax_into, MulticlassError};
 
 /// Most Newton steps.
 const MAX_STEPS: usize = 100;
@@ -195,6 +195,37 @@ pub(crate) fn gradient_hessian(
     (g, h)
 }
 
+/// Solves H x = r for symmetric positive definite H (row-major m×m) by
+/// Cholesky; None when H is not numerically positive definite.
+pub(super) fn cholesky_solve(h: &[f64], r: &[f64]) -> Option<Vec<f64>> {
+    let m = r.len();
+    let mut l = vec![0.0; m * m];
+    for i in 0..m {
+        for j in 0..=i {
+            let s: f64 = (0..j).map(|t| l[i * m + t] * l[j * m + t]).sum();
+            if i == j {
+                let d = h[i * m + i] - s;
+                if !(d > 0.0 && d.is_finite()) {
+                    return None;
+                }
+                l[i * m + i] = d.sqrt();
+            } else {
+                l[i * m + j] = (h[i * m + j] - s) / l[j * m + j];
+            }
+        }
+    }
+    let mut x = r.to_vec();
+    for i in 0..m {
+        let s: f64 = (0..i).map(|t| l[i * m + t] * x[t]).sum();
+        x[i] = (x[i] - s) / l[i * m + i];
+    }
+    for i in (0..m).rev() {
+        let s: f64 = (i + 1..m).map(|t| l[t * m + i] * x[t]).sum();
+        x[i] = (x[i] - s) / l[i * m + i];
+    }
+    Some(x)
+}
+
 /// Minimises J from `start`; returns θ, the Newton steps taken and the
 /// largest gradient entry at the last check (before the last step when the
 /// search stopped on the decrement). `what` names the method in messages.
@@ -206,8 +237,27 @@ pub(crate) fn fit(
     penalty: &Penalty,
     what: &str,
 ) -> Result<(Vec<f64>, usize, f64), MulticlassError> {
+    minimise(
+        start,
+        |t| objective(x, k, labels, t, penalty),
+        |t| gradient_hessian(x, k, labels, t, penalty),
+        what,
+    )
+}
+
+/// The Newton search of the module doc for any strongly convex J given by
+/// `objective` and `derivatives` (gradient and row-major Hessian at θ):
+/// backtracking while the decrement is large, full steps in the quadratic
+/// phase, and the stopping rules stated there. Vector scaling uses it with
+/// its own 2K-parameter derivatives. Returns as [`fit`] does.
+pub(crate) fn minimise(
+    start: Vec<f64>,
+    objective: impl Fn(&[f64]) -> f64,
+    derivatives: impl Fn(&[f64]) -> (Vec<f64>, Vec<f64>),
+    what: &str,
+) -> Result<(Vec<f64>, usize, f64), MulticlassError> {
     let mut theta = start;
-    let j_of = |t: &[f64]| objective(x, k, labels, t, penalty);
+    let j_of = objective;
     let mut j = j_of(&theta);
     if !j.is_finite() {
         return Err(MulticlassError::Failed(format!(
@@ -217,7 +267,7 @@ pub(crate) fn fit(
     // The largest gradient entry after a full step of the local phase.
     let mut local_gmax: Option<f64> = None;
     for it in 1..=MAX_STEPS {
-        let (g, h) = gradient_hessian(x, k, labels, &theta, penalty);
+        let (g, h) = derivatives(&theta);
         if g.iter().any(|v| !v.is_finite()) || h.iter().any(|v| !v.is_finite()) {
             return Err(MulticlassError::Failed(format!(
                 "{what}: the gradient or Hessian is not finite"
