@@ -1,7 +1,8 @@
 //! The softmax of an affine map of K features, fitted by penalised Newton
 //! steps: the engine shared by matrix scaling ([`super::matrix`], features =
 //! logits) and Dirichlet calibration ([`super::dirichlet`], features = log
-//! probabilities).
+//! probabilities). Its Newton search ([`minimise`]) also fits vector scaling
+//! ([`super::vector`]) on that map's own 2K parameters and derivatives.
 //!
 //! Math: with features x_i ∈ ℝ^K, p_i = softmax(W x_i + b), W ∈ ℝ^{K×K},
 //! b ∈ ℝ^K. The parameters θ are stored class by class, row k of

@@ -30,17 +30,22 @@
 //!   ∂/∂w_k = z_k (p_k − e_k),  ∂/∂b_k = p_k − e_k,
 //!   H_ww = diag(p ⊙ z²) − u uᵀ,  H_wb = diag(u) − u pᵀ,  H_bb = diag(p) − p pᵀ,
 //! plus λ on the diagonal; the Newton system is solved by Cholesky. The
-//! search starts from the temperature-scaling fit (w = 1/T, b = 0) when one
-//! exists, else from the identity, and stops when the Newton decrement
-//! gᵀH⁻¹g falls below 1e-20 or the largest gradient entry below 1e-12.
+//! search is the one of matrix scaling (`affine::minimise`, whose module doc
+//! states it), run on these 2K parameters: it backtracks while the Newton
+//! decrement gᵀH⁻¹g is above 1e-10 and takes full steps below it, where J
+//! changes by less than its own rounding can judge (a line search there
+//! would refuse good steps and never finish), and it stops when the largest
+//! gradient entry falls below 1e-12, the decrement below 1e-20, or a full
+//! step no longer halves a largest gradient entry already below 1e-9. It
+//! starts from the temperature-scaling fit (w = 1/T, b = 0) when one exists,
+//! else from the identity.
 //! Cost per step: O(n K²) for the Hessian and O(K³) for the solve.
 //! A fit that does not converge in 100 steps, or meets a non-finite value,
 //! is an error, never a panic. Every lse and softmax subtracts the row's
 //! maximum, so extreme logits give no NaN.
 
 use super::{
-    affine, check_finite, check_fit_input, log_sum_exp, softmax_into, temperature,
-    MulticlassError,
+    affine, check_finite, check_fit_input, log_sum_exp, softmax_into, temperature, MulticlassError,
 };
 
 /// The L2 penalty λ of [`fit`].
@@ -360,7 +365,7 @@ mod tests {
     }
 
     proptest::proptest! {
-        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(48))]
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(64))]
 
         /// Vector scaling fits every randomly mixed sample, and its log loss
         /// on the calibration rows is never above temperature scaling's.
@@ -369,11 +374,15 @@ mod tests {
         /// vector scaling's parameter space, with penalty P(θ_T) =
         /// (λ/2)·K·(β − 1)². The fit θ_V minimises J = L + P, so
         /// L(θ_V) ≤ J(θ_V) ≤ J(θ_T) + ε = L(θ_T) + P(θ_T) + ε, where ε covers
-        /// the stopping rule and rounding: at a stop with largest gradient
-        /// entry at most 1e-9 over 2K ≤ 12 entries, λ-strong convexity gives
-        /// J(θ_V) − min J ≤ ‖g‖²/(2λ) ≤ 12·1e-18/2e-4 = 6e-14, and the two
-        /// mean log losses of at most 1,000 rows each carry rounding far
-        /// below 1e-12. So the bound is L(θ_T) + P(θ_T) + 1e-12.
+        /// the stopping rules and rounding: at a stop on the gradient (every
+        /// entry at most 1e-9, 2K ≤ 12 entries) λ-strong convexity gives
+        /// J(θ_V) − min J ≤ ‖g‖²/(2λ) ≤ 12·1e-18/2e-4 = 6e-14; at a stop on
+        /// the Newton decrement δ (at most 1e-14·max(J, 1), and J is below
+        /// its start, the temperature fit's log loss ≤ ln K plus a penalty
+        /// far below 1) the gap is about δ/2 < 1e-13; and the two mean log losses
+        /// of at most 1,000 rows each carry rounding far below 1e-12. So the
+        /// bound is L(θ_T) + P(θ_T) + 1e-12. The temperature fit θ_T is only
+        /// compared when it exists (not for separable rows).
         #[test]
         fn converges_and_never_loses_to_temperature_scaling(
             seed in proptest::prelude::any::<u64>(),
