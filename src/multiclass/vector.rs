@@ -338,7 +338,7 @@ mod tests {
     /// [`testdata::labelled`]: crate::multiclass::testdata::labelled
     fn randomly_mixed(n: usize, k: usize, seed: u64) -> (Vec<f64>, Vec<usize>) {
         use crate::split::splitmix64;
-        let mut h = seed ^ 0x5eed_0f_4d17;
+        let mut h = seed ^ 0x005e_ed0f_4d17;
         let mut next = || {
             h = splitmix64(h);
             ((h >> 11) as f64 + 0.5) / (1u64 << 53) as f64
