@@ -318,48 +318,16 @@ fn evidence(
 }
 
 pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
-    let DecisionInput {
-        across,
-        table,
-        margins,
-        settings,
-        fallback_counts,
-        raw_thresholds,
-        ..
-    } = *input;
     // Every size with at least one task that has a value for every method:
     // the ranks are defined from one task on, and the comparisons below fall
     // back to the paired intervals when there is a single dataset.
-    let rows: Vec<&AcrossRow> = across
+    let rows: Vec<&AcrossRow> = input
+        .across
         .iter()
         .filter(|r| r.metric == metric && !r.tasks.is_empty())
         .collect();
-    let first = rows.first()?;
-    let methods = &first.methods;
-    let k = methods.len();
-    let datasets_of = |tasks: &[String]| -> usize {
-        tasks
-            .iter()
-            .map(|t| task_parts(t).0)
-            .collect::<BTreeSet<_>>()
-            .len()
-    };
-    let mut total = vec![0.0; k];
-    let mut weight = 0.0;
-    for r in &rows {
-        let w = datasets_of(&r.tasks) as f64;
-        weight += w;
-        for (t, rank) in total.iter_mut().zip(&r.avg_ranks) {
-            *t += w * rank;
-        }
-    }
-    let mut standing: Vec<(String, f64)> = methods
-        .iter()
-        .cloned()
-        .zip(total.iter().map(|t| t / weight))
-        .collect();
-    // Stable sort: ties keep the suite's order.
-    standing.sort_by(|a, b| a.1.total_cmp(&b.1));
+    let methods = &rows.first()?.methods;
+    let standing = standing(&rows, methods);
     let default = standing[0].0.clone();
     let runner_up = standing.get(1).map(|s| s.0.clone());
     let di = methods.iter().position(|m| *m == default)?;
@@ -367,196 +335,24 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
         .as_ref()
         .and_then(|r| methods.iter().position(|m| m == r));
     // Results without the metric's column have nothing to decide on.
-    table.metric_index(metric)?;
-    let raw_method = settings.raw_method.clone().filter(|r| methods.contains(r));
-    let mut per_size = Vec::new();
-    for r in &rows {
-        let best = r.methods[r.best].clone();
-        let versus: Vec<(String, Evidence)> = standing
-            .iter()
-            .map(|s| &s.0)
-            .filter(|m| **m != default)
-            .map(|m| {
-                (
-                    m.clone(),
-                    evidence(input, metric, r.size, (&default, m), &r.tasks, None),
-                )
-            })
-            .collect();
-        let beaten_by: Vec<String> = versus
-            .iter()
-            .filter(|v| v.1.second_better)
-            .map(|v| v.0.clone())
-            .collect();
-        let versus_runner_up = runner_up.as_ref().map(|ru| {
-            task_verdicts(input, metric, r.size, (&default, ru), &r.tasks)
-                .into_iter()
-                .collect::<VerdictCounts>()
-        });
-        let share_of = |m: &str| -> FallbackShare {
-            let mut f = FallbackShare::default();
-            for t in &r.tasks {
-                if let Some(&(k, n)) = fallback_counts.get(&CellKey::new(t, r.size, m)) {
-                    f.fallback += k;
-                    f.draws += n;
-                }
-            }
-            f
-        };
-        let default_fallback = share_of(&default);
-        let mut worst_fallback: Option<(String, FallbackShare)> = None;
-        for t in &r.tasks {
-            if let Some(&(k, n)) = fallback_counts.get(&CellKey::new(t, r.size, &default)) {
-                let f = FallbackShare {
-                    fallback: k,
-                    draws: n,
-                };
-                if k > 0
-                    && worst_fallback
-                        .as_ref()
-                        .is_none_or(|w| f.share() > w.1.share())
-                {
-                    worst_fallback = Some((t.clone(), f));
-                }
-            }
-        }
-        // Steps 2 and 3 of the rule: a default beyond the fallback limit is
-        // passed over for the next method of the standing within it;
-        // otherwise the default, unless a method within the limit is
-        // reliably better than it.
-        let too_many = |m: &str| share_of(m).share() > settings.max_fallback;
-        let beaten_by: Vec<String> = beaten_by.into_iter().filter(|m| !too_many(m)).collect();
-        let (mut recommended, mut why) = if too_many(&default) {
-            let mut passed = Vec::new();
-            let mut pick = None;
-            for (m, _) in &standing {
-                if too_many(m) {
-                    passed.push((m.clone(), share_of(m).share()));
-                } else {
-                    pick = Some(m.clone());
-                    break;
-                }
-            }
-            match pick {
-                Some(m) => (m, Recommendation::PassedOver(passed)),
-                // Every method fell back too often: none is recommended.
-                None => (String::new(), Recommendation::PassedOver(passed)),
-            }
-        } else if let Some(first) = beaten_by.first() {
-            (first.clone(), Recommendation::Beaten(beaten_by.clone()))
-        } else {
-            (default.clone(), Recommendation::Default)
-        };
-        // Step 4: calibrate at all, per base model.
-        let raw = raw_method.as_ref().map(|raw| {
-            // Verdict of each method against the raw scores on each task
-            // at this size, read off the raw-score threshold rows.
-            let verdict = |m: &str, task: &str| -> Option<Verdict> {
-                let row = raw_thresholds.iter().find(|t| {
-                    t.metric == metric && t.flexible == m && t.parametric == *raw && t.task == task
-                })?;
-                let &(_, _, low, high) = row.points.iter().find(|p| p.0 == r.size)?;
-                Some(Verdict::of(
-                    low,
-                    high,
-                    margin_of(margins, task, r.size, metric),
-                ))
-            };
-            let default_vs_raw = (default != *raw).then(|| {
-                r.tasks
-                    .iter()
-                    .filter_map(|t| verdict(&default, t))
-                    .collect::<VerdictCounts>()
-            });
-            let others: Vec<&String> = standing
-                .iter()
-                .map(|s| &s.0)
-                .filter(|m| *m != raw)
-                .collect();
-            let better = |m: &str| {
-                r.tasks
-                    .iter()
-                    .filter(|t| verdict(m, t) == Some(Verdict::Better))
-                    .count()
-            };
-            let any_better = r
-                .tasks
-                .iter()
-                .filter(|t| {
-                    others
-                        .iter()
-                        .any(|m| verdict(m, t) == Some(Verdict::Better))
-                })
-                .count();
-            let mut most_better: Option<(String, usize)> = None;
-            for m in &others {
-                let k = better(m);
-                if most_better.as_ref().is_none_or(|b| k > b.1) {
-                    most_better = Some(((*m).clone(), k));
-                }
-            }
-            let mut by_model: BTreeMap<&str, Vec<String>> = BTreeMap::new();
-            for t in &r.tasks {
-                by_model
-                    .entry(task_parts(t).1.unwrap_or(""))
-                    .or_default()
-                    .push(t.clone());
-            }
-            let groups: Vec<RawGroup> = by_model
-                .into_iter()
-                .map(|(model, tasks)| {
-                    if recommended.is_empty() || recommended == *raw {
-                        return RawGroup {
-                            model: model.to_string(),
-                            evidence: None,
-                        };
-                    }
-                    let group = (!model.is_empty()).then_some(model);
-                    let e = evidence(input, metric, r.size, (&recommended, raw), &tasks, group);
-                    RawGroup {
-                        model: model.to_string(),
-                        evidence: Some(e),
-                    }
-                })
-                .collect();
-            RawAtSize {
-                default_vs_raw,
-                any_better,
-                most_better,
-                groups,
-            }
-        });
-        if raw.as_ref().is_some_and(RawAtSize::keep_raw) {
-            recommended = raw_method.clone().unwrap_or_default();
-            if !matches!(why, Recommendation::PassedOver(_)) {
-                why = Recommendation::KeepRaw;
-            }
-        }
-        let dr = r.avg_ranks[di];
-        let rr = ri.map(|i| r.avg_ranks[i]);
-        per_size.push(SizeVerdict {
-            size: r.size,
-            tasks: r.tasks.len(),
-            datasets: datasets_of(&r.tasks),
-            best,
-            default_rank: dr,
-            runner_up_rank: rr,
-            versus,
-            versus_runner_up,
-            raw,
-            default_fallback,
-            worst_fallback,
-            recommended,
-            why,
-        });
-    }
-    let mut segments: Vec<(usize, usize, String)> = Vec::new();
-    for v in &per_size {
-        match segments.last_mut() {
-            Some(s) if s.2 == v.best => s.1 = v.size,
-            _ => segments.push((v.size, v.size, v.best.clone())),
-        }
-    }
+    input.table.metric_index(metric)?;
+    let raw_method = input
+        .settings
+        .raw_method
+        .clone()
+        .filter(|r| methods.contains(r));
+    let choice = Choice {
+        input,
+        metric,
+        standing: &standing,
+        default: &default,
+        runner_up: runner_up.as_ref(),
+        raw_method: raw_method.as_ref(),
+        default_index: di,
+        runner_up_index: ri,
+    };
+    let per_size: Vec<SizeVerdict> = rows.iter().map(|r| size_verdict(&choice, r)).collect();
+    let segments = best_segments(&per_size);
     let mut tasks = BTreeSet::new();
     for r in &rows {
         tasks.extend(r.tasks.iter().map(|t| t.as_str()));
@@ -564,38 +360,7 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
     let datasets: BTreeSet<&str> = tasks.iter().map(|t| task_parts(t).0).collect();
     let models: BTreeSet<&str> = tasks.iter().filter_map(|t| task_parts(t).1).collect();
     let pays_from = match &raw_method {
-        Some(raw) => {
-            let per_task = |m: Option<&String>| -> Vec<Thresholds> {
-                let mut by_task: BTreeMap<&str, Option<usize>> = BTreeMap::new();
-                for t in raw_thresholds.iter().filter(|t| {
-                    t.metric == metric
-                        && t.parametric == *raw
-                        && m.is_none_or(|m| t.flexible == *m)
-                        && tasks.contains(t.task.as_str())
-                }) {
-                    let Ok(th) = &t.result else { continue };
-                    let e = by_task.entry(t.task.as_str()).or_insert(None);
-                    if let Some(b) = th.better_from {
-                        *e = Some(e.map_or(b, |x| x.min(b)));
-                    }
-                }
-                by_task
-                    .into_values()
-                    .map(|b| Thresholds {
-                        better_from: b,
-                        worse_until: None,
-                        crossover: None,
-                    })
-                    .collect()
-            };
-            let mut out = vec![(None, summarize(&per_task(None)))];
-            for m in std::iter::once(&default).chain(runner_up.as_ref()) {
-                if m != raw {
-                    out.push((Some(m.clone()), summarize(&per_task(Some(m)))));
-                }
-            }
-            out
-        }
+        Some(raw) => pays_from(&choice, raw, &tasks),
         None => Vec::new(),
     };
     Some(Decision {
@@ -609,7 +374,323 @@ pub fn decide(input: &DecisionInput, metric: MetricId) -> Option<Decision> {
         datasets: datasets.len(),
         models: models.len(),
         raw: raw_method,
-        max_fallback: settings.max_fallback,
+        max_fallback: input.settings.max_fallback,
         pays_from,
     })
+}
+
+/// What every size of one decision shares: the input, the standing and the
+/// methods it names.
+struct Choice<'a> {
+    input: &'a DecisionInput<'a>,
+    metric: MetricId,
+    standing: &'a [(String, f64)],
+    default: &'a String,
+    runner_up: Option<&'a String>,
+    /// The raw-score method, when the suite has one among the compared.
+    raw_method: Option<&'a String>,
+    /// Positions of the default and the runner-up in the rows' methods.
+    default_index: usize,
+    runner_up_index: Option<usize>,
+}
+
+/// Distinct datasets behind `tasks` ([`task_parts`]).
+fn datasets_of(tasks: &[String]) -> usize {
+    tasks
+        .iter()
+        .map(|t| task_parts(t).0)
+        .collect::<BTreeSet<_>>()
+        .len()
+}
+
+/// Step 1 of the rule: every method with the mean of its average ranks over
+/// the sizes, each size weighted by its datasets, best first (ties keep the
+/// suite's order).
+fn standing(rows: &[&AcrossRow], methods: &[String]) -> Vec<(String, f64)> {
+    let mut total = vec![0.0; methods.len()];
+    let mut weight = 0.0;
+    for r in rows {
+        let w = datasets_of(&r.tasks) as f64;
+        weight += w;
+        for (t, rank) in total.iter_mut().zip(&r.avg_ranks) {
+            *t += w * rank;
+        }
+    }
+    let mut standing: Vec<(String, f64)> = methods
+        .iter()
+        .cloned()
+        .zip(total.iter().map(|t| t / weight))
+        .collect();
+    // Stable sort: ties keep the suite's order.
+    standing.sort_by(|a, b| a.1.total_cmp(&b.1));
+    standing
+}
+
+/// The verdict at the size of one row.
+fn size_verdict(c: &Choice, r: &AcrossRow) -> SizeVerdict {
+    let default = c.default;
+    let versus: Vec<(String, Evidence)> = c
+        .standing
+        .iter()
+        .map(|s| &s.0)
+        .filter(|m| *m != default)
+        .map(|m| {
+            (
+                m.clone(),
+                evidence(c.input, c.metric, r.size, (default, m), &r.tasks, None),
+            )
+        })
+        .collect();
+    let versus_runner_up = c.runner_up.map(|ru| {
+        task_verdicts(c.input, c.metric, r.size, (default, ru), &r.tasks)
+            .into_iter()
+            .collect::<VerdictCounts>()
+    });
+    let default_fallback = fallback_share(c, r, default);
+    let worst_fallback = worst_fallback(c, r);
+    let (mut recommended, mut why) = recommend(c, r, &versus);
+    let raw = c.raw_method.map(|raw| raw_at_size(c, r, raw, &recommended));
+    if raw.as_ref().is_some_and(RawAtSize::keep_raw) {
+        recommended = c.raw_method.cloned().unwrap_or_default();
+        if !matches!(why, Recommendation::PassedOver(_)) {
+            why = Recommendation::KeepRaw;
+        }
+    }
+    SizeVerdict {
+        size: r.size,
+        tasks: r.tasks.len(),
+        datasets: datasets_of(&r.tasks),
+        best: r.methods[r.best].clone(),
+        default_rank: r.avg_ranks[c.default_index],
+        runner_up_rank: c.runner_up_index.map(|i| r.avg_ranks[i]),
+        versus,
+        versus_runner_up,
+        raw,
+        default_fallback,
+        worst_fallback,
+        recommended,
+        why,
+    }
+}
+
+/// The draws of method `m` at the row's size over its tasks, and those that
+/// fell back to the base rate.
+fn fallback_share(c: &Choice, r: &AcrossRow, m: &str) -> FallbackShare {
+    let mut f = FallbackShare::default();
+    for t in &r.tasks {
+        if let Some(&(k, n)) = c.input.fallback_counts.get(&CellKey::new(t, r.size, m)) {
+            f.fallback += k;
+            f.draws += n;
+        }
+    }
+    f
+}
+
+/// The task where the largest share of the default's draws fell back (first
+/// such task on ties; none when no draw fell back).
+fn worst_fallback(c: &Choice, r: &AcrossRow) -> Option<(String, FallbackShare)> {
+    let mut worst: Option<(String, FallbackShare)> = None;
+    for t in &r.tasks {
+        if let Some(&(k, n)) = c
+            .input
+            .fallback_counts
+            .get(&CellKey::new(t, r.size, c.default))
+        {
+            let f = FallbackShare {
+                fallback: k,
+                draws: n,
+            };
+            if k > 0 && worst.as_ref().is_none_or(|w| f.share() > w.1.share()) {
+                worst = Some((t.clone(), f));
+            }
+        }
+    }
+    worst
+}
+
+/// Steps 2 and 3 of the rule: a default beyond the fallback limit is passed
+/// over for the next method of the standing within it; otherwise the
+/// default, unless a method within the limit is reliably better than it.
+fn recommend(c: &Choice, r: &AcrossRow, versus: &[(String, Evidence)]) -> (String, Recommendation) {
+    let too_many = |m: &str| fallback_share(c, r, m).share() > c.input.settings.max_fallback;
+    let beaten_by: Vec<String> = versus
+        .iter()
+        .filter(|v| v.1.second_better)
+        .map(|v| v.0.clone())
+        .filter(|m| !too_many(m))
+        .collect();
+    if too_many(c.default) {
+        let mut passed = Vec::new();
+        let mut pick = None;
+        for (m, _) in c.standing {
+            if too_many(m) {
+                passed.push((m.clone(), fallback_share(c, r, m).share()));
+            } else {
+                pick = Some(m.clone());
+                break;
+            }
+        }
+        match pick {
+            Some(m) => (m, Recommendation::PassedOver(passed)),
+            // Every method fell back too often: none is recommended.
+            None => (String::new(), Recommendation::PassedOver(passed)),
+        }
+    } else if let Some(first) = beaten_by.first() {
+        (first.clone(), Recommendation::Beaten(beaten_by.clone()))
+    } else {
+        (c.default.clone(), Recommendation::Default)
+    }
+}
+
+/// Verdict of method `m` against the raw scores on `task` at `size`, read
+/// off the raw-score threshold rows.
+fn raw_verdict(c: &Choice, raw: &str, size: usize, m: &str, task: &str) -> Option<Verdict> {
+    let row = c.input.raw_thresholds.iter().find(|t| {
+        t.metric == c.metric && t.flexible == m && t.parametric == raw && t.task == task
+    })?;
+    let &(_, _, low, high) = row.points.iter().find(|p| p.0 == size)?;
+    Some(Verdict::of(
+        low,
+        high,
+        margin_of(c.input.margins, task, size, c.metric),
+    ))
+}
+
+/// Step 4 of the rule: calibrate at all, per base model, with the
+/// per-task counts against the raw scores beside it.
+fn raw_at_size(c: &Choice, r: &AcrossRow, raw: &str, recommended: &str) -> RawAtSize {
+    let verdict = |m: &str, task: &str| raw_verdict(c, raw, r.size, m, task);
+    let default_vs_raw = (c.default != raw).then(|| {
+        r.tasks
+            .iter()
+            .filter_map(|t| verdict(c.default, t))
+            .collect::<VerdictCounts>()
+    });
+    let others: Vec<&String> = c
+        .standing
+        .iter()
+        .map(|s| &s.0)
+        .filter(|m| *m != raw)
+        .collect();
+    let better = |m: &str| {
+        r.tasks
+            .iter()
+            .filter(|t| verdict(m, t) == Some(Verdict::Better))
+            .count()
+    };
+    let any_better = r
+        .tasks
+        .iter()
+        .filter(|t| {
+            others
+                .iter()
+                .any(|m| verdict(m, t) == Some(Verdict::Better))
+        })
+        .count();
+    let mut most_better: Option<(String, usize)> = None;
+    for m in &others {
+        let k = better(m);
+        if most_better.as_ref().is_none_or(|b| k > b.1) {
+            most_better = Some(((*m).clone(), k));
+        }
+    }
+    RawAtSize {
+        default_vs_raw,
+        any_better,
+        most_better,
+        groups: raw_groups(c, r, raw, recommended),
+    }
+}
+
+/// The recommended method against the raw scores on each base model's
+/// tasks at the row's size.
+fn raw_groups(c: &Choice, r: &AcrossRow, raw: &str, recommended: &str) -> Vec<RawGroup> {
+    let mut by_model: BTreeMap<&str, Vec<String>> = BTreeMap::new();
+    for t in &r.tasks {
+        by_model
+            .entry(task_parts(t).1.unwrap_or(""))
+            .or_default()
+            .push(t.clone());
+    }
+    by_model
+        .into_iter()
+        .map(|(model, tasks)| {
+            if recommended.is_empty() || recommended == raw {
+                return RawGroup {
+                    model: model.to_string(),
+                    evidence: None,
+                };
+            }
+            let group = (!model.is_empty()).then_some(model);
+            let e = evidence(c.input, c.metric, r.size, (recommended, raw), &tasks, group);
+            RawGroup {
+                model: model.to_string(),
+                evidence: Some(e),
+            }
+        })
+        .collect()
+}
+
+/// Runs of consecutive sizes with the same best-ranked method: (first,
+/// last, best).
+fn best_segments(per_size: &[SizeVerdict]) -> Vec<(usize, usize, String)> {
+    let mut segments: Vec<(usize, usize, String)> = Vec::new();
+    for v in per_size {
+        match segments.last_mut() {
+            Some(s) if s.2 == v.best => s.1 = v.size,
+            _ => segments.push((v.size, v.size, v.best.clone())),
+        }
+    }
+    segments
+}
+
+/// From which size calibrating pays off, summarised over `tasks`: for any
+/// method (`None`), the default and the runner-up.
+fn pays_from(
+    c: &Choice,
+    raw: &str,
+    tasks: &BTreeSet<&str>,
+) -> Vec<(Option<String>, ThresholdSummary)> {
+    let mut out = vec![(None, summarize(&pays_from_per_task(c, raw, tasks, None)))];
+    for m in std::iter::once(c.default).chain(c.runner_up) {
+        if m != raw {
+            out.push((
+                Some(m.clone()),
+                summarize(&pays_from_per_task(c, raw, tasks, Some(m))),
+            ));
+        }
+    }
+    out
+}
+
+/// Per task, the smallest size from which method `m` (any method when
+/// `None`) is reliably better than the raw scores at every larger tested
+/// size.
+fn pays_from_per_task(
+    c: &Choice,
+    raw: &str,
+    tasks: &BTreeSet<&str>,
+    m: Option<&String>,
+) -> Vec<Thresholds> {
+    let mut by_task: BTreeMap<&str, Option<usize>> = BTreeMap::new();
+    for t in c.input.raw_thresholds.iter().filter(|t| {
+        t.metric == c.metric
+            && t.parametric == *raw
+            && m.is_none_or(|m| t.flexible == *m)
+            && tasks.contains(t.task.as_str())
+    }) {
+        let Ok(th) = &t.result else { continue };
+        let e = by_task.entry(t.task.as_str()).or_insert(None);
+        if let Some(b) = th.better_from {
+            *e = Some(e.map_or(b, |x| x.min(b)));
+        }
+    }
+    by_task
+        .into_values()
+        .map(|b| Thresholds {
+            better_from: b,
+            worse_until: None,
+            crossover: None,
+        })
+        .collect()
 }
