@@ -390,13 +390,31 @@ pub fn posterior_cell(e: &Evidence) -> String {
 
 /// The decision on one metric as blocks.
 fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
-    let mut out = Vec::new();
+    let mut out = vec![
+        Block::Para(headline_words(d, primary)),
+        Block::Para(by_size_words(d)),
+        Block::Para(default_holds_words(d)),
+    ];
+    if let Some(raw) = d.raw.as_ref() {
+        out.push(Block::Para(raw_words(d, raw)));
+    }
+    out.extend(passed_over_blocks(d));
+    out.push(Block::Table(decision_table(d, detail)));
+    if detail == Detail::Full {
+        out.extend(super::evidence::versus_blocks(d));
+    }
+    out.extend(super::evidence::raw_blocks(d, detail == Detail::Brief));
+    out
+}
+
+/// The team default and the runner-up on one metric, in words.
+fn headline_words(d: &Decision, primary: bool) -> String {
     let runner = d
         .runner_up
         .as_ref()
         .map(|r| format!("; runner-up **`{r}`**"))
         .unwrap_or_default();
-    out.push(Block::Para(format!(
+    format!(
         "{} **team default: `{}`**{}{runner}.",
         if primary {
             format!("On `{}` (the primary metric):", d.metric)
@@ -409,24 +427,32 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         } else {
             ""
         }
-    )));
-    let parts: Vec<String> = {
-        let mut acc: Vec<(usize, usize, String)> = Vec::new();
-        for v in &d.per_size {
-            let w = recommended_words(d, v);
-            match acc.last_mut() {
-                Some(s) if s.2 == w => s.1 = v.size,
-                _ => acc.push((v.size, v.size, w)),
-            }
+    )
+}
+
+/// What is recommended over runs of sizes with the same words.
+fn by_size_words(d: &Decision) -> String {
+    let mut acc: Vec<(usize, usize, String)> = Vec::new();
+    for v in &d.per_size {
+        let w = recommended_words(d, v);
+        match acc.last_mut() {
+            Some(s) if s.2 == w => s.1 = v.size,
+            _ => acc.push((v.size, v.size, w)),
         }
-        acc.into_iter()
-            .map(|(lo, hi, w)| format!("{}: {w}", size_range(lo, hi)))
-            .collect()
-    };
-    out.push(Block::Para(format!(
+    }
+    let parts: Vec<String> = acc
+        .into_iter()
+        .map(|(lo, hi, w)| format!("{}: {w}", size_range(lo, hi)))
+        .collect();
+    format!(
         "**Recommended by calibration size** — {}.",
         parts.join("; ")
-    )));
+    )
+}
+
+/// At how many sizes the default holds, what beats it where, and the best
+/// average rank by size.
+fn default_holds_words(d: &Decision) -> String {
     let holds = d.per_size.iter().filter(|v| v.default_holds()).count();
     let beaten: Vec<String> = d
         .per_size
@@ -456,7 +482,7 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
     } else {
         format!("across datasets (Bayesian signed-rank test, P ≥ {DECISIVE})")
     };
-    out.push(Block::Para(format!(
+    format!(
         "No method is reliably better than `{}` {by} at {holds} of {} sizes{}. Best average rank by calibration size (a picture, not a test) — {}.",
         d.default,
         d.per_size.len(),
@@ -466,11 +492,12 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
             format!("; reliably better than it — {}", beaten.join("; "))
         },
         changes.join("; "),
-    )));
-    let raw = d.raw.as_ref();
-    if let Some(raw) = raw {
-        out.push(Block::Para(raw_words(d, raw)));
-    }
+    )
+}
+
+/// One paragraph per size where methods were passed over for fallbacks.
+fn passed_over_blocks(d: &Decision) -> Vec<Block> {
+    let mut out = Vec::new();
     for v in &d.per_size {
         if let Recommendation::PassedOver(passed) = &v.why {
             let list: Vec<String> = passed
@@ -490,9 +517,37 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
             )));
         }
     }
+    out
+}
+
+/// The decision table by calibration size; the brief one keeps the columns
+/// a decision is read from.
+fn decision_table(d: &Decision, detail: Detail) -> Table {
     let ru = d.runner_up.clone().unwrap_or_else(|| "–".into());
-    // Each column with whether the terminal keeps it: the columns a decision
-    // is read from; the ranks and per-task counts are in summary.md.
+    let columns = decision_columns(d);
+    let mut t = Table {
+        title: format!("Decision by calibration size ({})", d.metric),
+        header: columns.iter().map(|c| c.0.clone()).collect(),
+        rows: d.per_size.iter().map(|v| decision_row(d, v)).collect(),
+        notes: decision_notes(d, &ru),
+    };
+    if detail == Detail::Brief {
+        let keep: Vec<usize> = (0..columns.len()).filter(|&i| columns[i].1).collect();
+        let pick = |row: &[String]| keep.iter().map(|&i| row[i].clone()).collect::<Vec<_>>();
+        t.header = pick(&t.header);
+        t.rows = t.rows.iter().map(|r| pick(r)).collect();
+        t.notes = vec![format!(
+            "Vs runner-up P(✓/=/✗): the posterior probability that `{}` is better than, practically equivalent to, or worse than `{ru}` (Bayesian signed-rank test, dataset as unit; bold: one reaches {DECISIVE}, which decides). Ranks, per-task counts and the test's full tables are in summary.md.",
+            d.default
+        )];
+    }
+    t
+}
+
+/// Each column of the decision table with whether the terminal keeps it:
+/// the columns a decision is read from; the ranks and per-task counts are
+/// in summary.md.
+fn decision_columns(d: &Decision) -> Vec<(String, bool)> {
     let mut columns: Vec<(String, bool)> = vec![
         ("n".into(), true),
         ("tasks (datasets)".into(), true),
@@ -502,12 +557,16 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         ("vs runner-up P(✓/=/✗)".into(), true),
         (format!("tasks vs runner-up {}", marks_slashed()), false),
     ];
-    if raw.is_some() {
+    if d.raw.is_some() {
         columns.push((format!("tasks vs raw {}", marks_slashed()), false));
     }
     columns.push(("default fell back".into(), true));
     columns.push(("recommended".into(), true));
-    let header: Vec<String> = columns.iter().map(|c| c.0.clone()).collect();
+    columns
+}
+
+/// The notes under the full decision table; `ru` names the runner-up.
+fn decision_notes(d: &Decision, ru: &str) -> Vec<String> {
     let mut notes = vec![format!(
         "Default `{}`, runner-up `{ru}`. Tasks (datasets): tasks with a value for every method at that size, and the datasets they come from. Ranks: average over tasks of each method's rank by mean {} (1 = best) — a picture of the field that treats tasks as independent; it decides nothing. Vs runner-up P(✓/=/✗): the test this decision rests on — the Bayesian signed-rank test with the dataset as unit and the margin as region of practical equivalence (table below): the posterior probability that `{}` is better than, practically equivalent to, or worse than `{ru}`; bold: one reaches {DECISIVE}. With a single dataset it cannot decide, and the dataset's paired interval does (✓ / ✗ when every task of it says so).",
         d.default,
@@ -519,7 +578,7 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         d.default,
         Verdict::ALL.map(|v| v.words()).join(" / ")
     )];
-    if let Some(raw) = raw {
+    if let Some(raw) = d.raw.as_ref() {
         notes.push(format!(
             "Tasks vs raw: the same counts for `{}` against the uncalibrated scores `{raw}`. Recommended: the method chosen by the rule; \"keep the raw scores for\" names the base models on which the test does not show it reliably better than the raw scores (the per-model table below).",
             d.default
@@ -530,90 +589,77 @@ fn decision_blocks(d: &Decision, primary: bool, detail: Detail) -> Vec<Block> {
         d.default,
         d.max_fallback * 100.0
     ));
-    let mut t = Table {
-        title: format!("Decision by calibration size ({})", d.metric),
-        header,
-        rows: Vec::new(),
-        notes,
-    };
-    for v in &d.per_size {
-        let mut row = vec![
-            v.size.to_string(),
-            format!("{} ({})", v.tasks, v.datasets),
-            format!("`{}`", v.best),
-            format!("{:.2}", v.default_rank),
-            v.runner_up_rank
-                .map(|r| format!("{r:.2}"))
-                .unwrap_or_else(|| "–".into()),
-            d.runner_up
+    notes
+}
+
+/// One size's row of the full decision table.
+fn decision_row(d: &Decision, v: &SizeVerdict) -> Vec<String> {
+    let mut row = vec![
+        v.size.to_string(),
+        format!("{} ({})", v.tasks, v.datasets),
+        format!("`{}`", v.best),
+        format!("{:.2}", v.default_rank),
+        v.runner_up_rank
+            .map(|r| format!("{r:.2}"))
+            .unwrap_or_else(|| "–".into()),
+        d.runner_up
+            .as_ref()
+            .and_then(|ru| v.against(ru))
+            .map(posterior_cell)
+            .unwrap_or_else(|| "–".into()),
+        v.versus_runner_up
+            .map(|r| r.slashed())
+            .unwrap_or_else(|| "–".into()),
+    ];
+    if d.raw.is_some() {
+        row.push(
+            v.raw
                 .as_ref()
-                .and_then(|ru| v.against(ru))
-                .map(posterior_cell)
-                .unwrap_or_else(|| "–".into()),
-            v.versus_runner_up
+                .and_then(|r| r.default_vs_raw)
                 .map(|r| r.slashed())
                 .unwrap_or_else(|| "–".into()),
-        ];
-        if raw.is_some() {
-            row.push(
-                v.raw
-                    .as_ref()
-                    .and_then(|r| r.default_vs_raw)
-                    .map(|r| r.slashed())
-                    .unwrap_or_else(|| "–".into()),
-            );
+        );
+    }
+    row.push(match &v.worst_fallback {
+        Some((task, w)) => format!(
+            "{:.1}%; most {}/{} on `{task}`",
+            v.default_fallback.share() * 100.0,
+            w.fallback,
+            w.draws
+        ),
+        None => "0%".into(),
+    });
+    row.push(recommended_cell(d, v));
+    row
+}
+
+/// The "recommended" cell: the method, why, and the base models that keep
+/// the raw scores.
+fn recommended_cell(d: &Decision, v: &SizeVerdict) -> String {
+    let raw_for = v.raw.as_ref().map(|r| r.raw_for()).unwrap_or_default();
+    let raw_note = if raw_for.is_empty() {
+        String::new()
+    } else {
+        format!(
+            "; raw for {}",
+            raw_for
+                .iter()
+                .map(|m| model_name(m))
+                .collect::<Vec<_>>()
+                .join(", ")
+        )
+    };
+    match &v.why {
+        Recommendation::Default => format!("`{}`{raw_note}", v.recommended),
+        Recommendation::Beaten(_) => {
+            format!("`{}` (beats `{}`){raw_note}", v.recommended, d.default)
         }
-        row.push(match &v.worst_fallback {
-            Some((task, w)) => format!(
-                "{:.1}%; most {}/{} on `{task}`",
-                v.default_fallback.share() * 100.0,
-                w.fallback,
-                w.draws
-            ),
-            None => "0%".into(),
-        });
-        let raw_for = v.raw.as_ref().map(|r| r.raw_for()).unwrap_or_default();
-        let raw_note = if raw_for.is_empty() {
-            String::new()
-        } else {
-            format!(
-                "; raw for {}",
-                raw_for
-                    .iter()
-                    .map(|m| model_name(m))
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            )
-        };
-        row.push(match &v.why {
-            Recommendation::Default => format!("`{}`{raw_note}", v.recommended),
-            Recommendation::Beaten(_) => {
-                format!("`{}` (beats `{}`){raw_note}", v.recommended, d.default)
-            }
-            Recommendation::KeepRaw => format!("`{}` (raw scores)", v.recommended),
-            Recommendation::PassedOver(_) if v.recommended.is_empty() => "none (fallbacks)".into(),
-            Recommendation::PassedOver(_) => {
-                format!("`{}` (fallbacks){raw_note}", v.recommended)
-            }
-        });
-        t.rows.push(row);
+        Recommendation::KeepRaw => format!("`{}` (raw scores)", v.recommended),
+        Recommendation::PassedOver(_) if v.recommended.is_empty() => "none (fallbacks)".into(),
+        Recommendation::PassedOver(_) => {
+            format!("`{}` (fallbacks){raw_note}", v.recommended)
+        }
     }
-    if detail == Detail::Brief {
-        let keep: Vec<usize> = (0..columns.len()).filter(|&i| columns[i].1).collect();
-        let pick = |row: &[String]| keep.iter().map(|&i| row[i].clone()).collect::<Vec<_>>();
-        t.header = pick(&t.header);
-        t.rows = t.rows.iter().map(|r| pick(r)).collect();
-        t.notes = vec![format!(
-            "Vs runner-up P(✓/=/✗): the posterior probability that `{}` is better than, practically equivalent to, or worse than `{ru}` (Bayesian signed-rank test, dataset as unit; bold: one reaches {DECISIVE}, which decides). Ranks, per-task counts and the test's full tables are in summary.md.",
-            d.default
-        )];
-    }
-    out.push(Block::Table(t));
-    if detail == Detail::Full {
-        out.extend(super::evidence::versus_blocks(d));
-    }
-    out.extend(super::evidence::raw_blocks(d, detail == Detail::Brief));
-    out
 }
 
 /// The commands that take the primary decision's recommendation to
@@ -995,6 +1041,40 @@ pub fn task_blocks(a: &Analysis, ctx: &ReportContext, task: &str) -> Vec<Block> 
 
 /// The whole summary document.
 pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> {
+    let mut b = preamble_blocks(a, ctx);
+    b.extend(decision_section(a, ctx, detail));
+    b.extend(evidence_blocks(a, ctx));
+    b.push(Block::Caution(CAUTION.into()));
+    b.push(Block::Heading(
+        2,
+        "How to read the marks".into(),
+        "legend".into(),
+    ));
+    b.push(Block::List(legend(&margin_words(&ctx.settings))));
+    b.extend(rank_blocks(a, ctx, detail));
+    b.extend(threshold_blocks(a, detail));
+    if detail == Detail::Brief {
+        b.push(Block::Para(format!(
+            "Per-task tables: `plumbline report <folder> --task <id>` (tasks: {}). Everything, with figures: `summary.md` and `index.html` in the results folder.",
+            a.tasks.len()
+        )));
+        return b;
+    }
+    b.extend(reliability_blocks(a, ctx));
+    b.extend(per_dataset_blocks(a, ctx));
+    b.extend(status_blocks(a));
+    b.extend(super::fallback::fallback_blocks(a));
+    b.push(Block::Heading(2, "Reproduce".into(), "reproduce".into()));
+    b.push(Block::Para(format!(
+        "Run `plumbline run {}` with the same suite file (check its SHA-256 above) to get byte-identical `units.csv.gz`, `paired.csv`, `thresholds.csv`, `reliability*.csv`, `summary.md`, `index.html` and figures; `plumbline report <folder>` rebuilds the tables and figures from `units.csv.gz` and the reliability files.",
+        ctx.suite_file
+    )));
+    b
+}
+
+/// The title, the suite and settings the results come from, and how the
+/// metrics at a threshold score.
+fn preamble_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
     let s = &ctx.settings;
     let mut b = vec![Block::Heading(
         1,
@@ -1035,7 +1115,13 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
             at.iter().map(|m| format!("`{m}`")).collect::<Vec<_>>().join(", ")
         )));
     }
-    b.push(Block::Heading(2, "Decision".into(), "decision".into()));
+    b
+}
+
+/// The "Decision" section: every metric's decision, then how to take the
+/// primary one to production.
+fn decision_section(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block> {
+    let mut b = vec![Block::Heading(2, "Decision".into(), "decision".into())];
     if a.decisions.is_empty() {
         b.push(Block::Para("Too few tasks share a calibration size for a comparison across tasks (it needs at least two tasks with a value for every method).".into()));
     }
@@ -1045,92 +1131,91 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
     if let Some(d) = a.decisions.first() {
         b.extend(production_block(d, ctx));
     }
-    b.extend(evidence_blocks(a, ctx));
-    b.push(Block::Caution(CAUTION.into()));
-    b.push(Block::Heading(
-        2,
-        "How to read the marks".into(),
-        "legend".into(),
-    ));
-    b.push(Block::List(legend(&margin_words(s))));
-    b.extend(rank_blocks(a, ctx, detail));
-    b.extend(threshold_blocks(a, detail));
-    if detail == Detail::Brief {
-        b.push(Block::Para(format!(
-            "Per-task tables: `plumbline report <folder> --task <id>` (tasks: {}). Everything, with figures: `summary.md` and `index.html` in the results folder.",
-            a.tasks.len()
-        )));
-        return b;
-    }
-    b.push(Block::Heading(
+    b
+}
+
+/// The "Reliability diagrams" section: what the figures show and a link to
+/// each task's.
+fn reliability_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
+    let mut b = vec![Block::Heading(
         2,
         "Reliability diagrams".into(),
         "reliability".into(),
-    ));
+    )];
     if ctx.curves.is_empty() {
         b.push(Block::Para(
             "This folder holds no reliability curves (`reliability.csv`).".into(),
         ));
-    } else {
-        // Each task's figure has a column per size drawn for that task; say
-        // which, grouping tasks that share their sizes.
-        let mut groups: Vec<(Vec<usize>, usize)> = Vec::new();
-        for t in &a.tasks {
-            let set: std::collections::BTreeSet<usize> = ctx
-                .curves
-                .iter()
-                .filter(|c| &c.task == t)
-                .map(|c| c.size)
-                .collect();
-            if set.is_empty() {
-                continue;
-            }
-            let set: Vec<usize> = set.into_iter().collect();
-            match groups.iter_mut().find(|(s, _)| *s == set) {
-                Some(g) => g.1 += 1,
-                None => groups.push((set, 1)),
-            }
-        }
-        groups.sort_by(|x, y| y.1.cmp(&x.1).then(x.0.cmp(&y.0)));
-        let sizes_words = |s: &[usize]| {
-            let w: Vec<String> = s.iter().map(|n| n.to_string()).collect();
-            format!(
-                "{} {}",
-                if w.len() == 1 { "size" } else { "sizes" },
-                and_list(&w)
-            )
-        };
-        let shows = match groups.as_slice() {
-            [(s, _)] => format!("calibration {}", sizes_words(s)),
-            _ => format!(
-                "the calibration sizes drawn for that task — {}",
-                groups
-                    .iter()
-                    .map(|(s, k)| format!(
-                        "{} on {k} {}",
-                        sizes_words(s),
-                        if *k == 1 { "task" } else { "tasks" }
-                    ))
-                    .collect::<Vec<_>>()
-                    .join("; ")
-            ),
-        };
-        b.push(Block::Para(format!(
-            "One figure per task, from repeat 0, with a column for each of {shows}: the CORP reliability curve of each method's test predictions (isotonic regression of the outcome on the prediction; Dimitriadis, Gneiting & Jordan 2021) with a consistency band from label draws under the hypothesis of calibration (Bröcker & Smith 2007), on a probability and a log-odds scale, the histogram of predictions beneath, and the CORP decomposition of the Brier score (BS = MCB − DSC + UNC: miscalibration, discrimination, uncertainty). A curve leaving its band shows miscalibration beyond chance. Points are in `reliability.csv`, histograms in `reliability_hist.csv`, terms in `reliability_terms.csv`.",
-        )));
-        let mut items = Vec::new();
-        for t in &a.tasks {
-            if ctx.curves.iter().any(|c| &c.task == t) {
-                items.push(format!("[`{t}`]({})", figures::reliability_name(t)));
-            }
-        }
-        b.push(Block::Para(items.join(" · ")));
+        return b;
     }
-    b.push(Block::Heading(
+    let shows = reliability_sizes_words(a, ctx);
+    b.push(Block::Para(format!(
+        "One figure per task, from repeat 0, with a column for each of {shows}: the CORP reliability curve of each method's test predictions (isotonic regression of the outcome on the prediction; Dimitriadis, Gneiting & Jordan 2021) with a consistency band from label draws under the hypothesis of calibration (Bröcker & Smith 2007), on a probability and a log-odds scale, the histogram of predictions beneath, and the CORP decomposition of the Brier score (BS = MCB − DSC + UNC: miscalibration, discrimination, uncertainty). A curve leaving its band shows miscalibration beyond chance. Points are in `reliability.csv`, histograms in `reliability_hist.csv`, terms in `reliability_terms.csv`.",
+    )));
+    let mut items = Vec::new();
+    for t in &a.tasks {
+        if ctx.curves.iter().any(|c| &c.task == t) {
+            items.push(format!("[`{t}`]({})", figures::reliability_name(t)));
+        }
+    }
+    b.push(Block::Para(items.join(" · ")));
+    b
+}
+
+/// Which calibration sizes the reliability figures have columns for: each
+/// task's figure has a column per size drawn for that task, and tasks that
+/// share their sizes are grouped.
+fn reliability_sizes_words(a: &Analysis, ctx: &ReportContext) -> String {
+    let mut groups: Vec<(Vec<usize>, usize)> = Vec::new();
+    for t in &a.tasks {
+        let set: std::collections::BTreeSet<usize> = ctx
+            .curves
+            .iter()
+            .filter(|c| &c.task == t)
+            .map(|c| c.size)
+            .collect();
+        if set.is_empty() {
+            continue;
+        }
+        let set: Vec<usize> = set.into_iter().collect();
+        match groups.iter_mut().find(|(s, _)| *s == set) {
+            Some(g) => g.1 += 1,
+            None => groups.push((set, 1)),
+        }
+    }
+    groups.sort_by(|x, y| y.1.cmp(&x.1).then(x.0.cmp(&y.0)));
+    let sizes_words = |s: &[usize]| {
+        let w: Vec<String> = s.iter().map(|n| n.to_string()).collect();
+        format!(
+            "{} {}",
+            if w.len() == 1 { "size" } else { "sizes" },
+            and_list(&w)
+        )
+    };
+    match groups.as_slice() {
+        [(s, _)] => format!("calibration {}", sizes_words(s)),
+        _ => format!(
+            "the calibration sizes drawn for that task — {}",
+            groups
+                .iter()
+                .map(|(s, k)| format!(
+                    "{} on {k} {}",
+                    sizes_words(s),
+                    if *k == 1 { "task" } else { "tasks" }
+                ))
+                .collect::<Vec<_>>()
+                .join("; ")
+        ),
+    }
+}
+
+/// The "Results per dataset" section: each dataset's tasks' tables.
+fn per_dataset_blocks(a: &Analysis, ctx: &ReportContext) -> Vec<Block> {
+    let mut b = vec![Block::Heading(
         2,
         "Results per dataset".into(),
         "tasks".into(),
-    ));
+    )];
     for (d, tasks) in datasets(a) {
         b.push(Block::Heading(
             3,
@@ -1141,41 +1226,40 @@ pub fn document(a: &Analysis, ctx: &ReportContext, detail: Detail) -> Vec<Block>
             b.extend(task_blocks(a, ctx, &t));
         }
     }
-    b.push(Block::Heading(2, "Unit status".into(), "status".into()));
+    b
+}
+
+/// The "Unit status" section: units whose status was not `ok`.
+fn status_blocks(a: &Analysis) -> Vec<Block> {
+    let mut b = vec![Block::Heading(2, "Unit status".into(), "status".into())];
     if a.status_counts.is_empty() {
         b.push(Block::Para("Every fit finished with status `ok`.".into()));
-    } else {
-        let mut t = Table {
-            title: "Units whose status was not `ok`".into(),
-            header: vec![
-                "task".into(),
-                "size".into(),
-                "method".into(),
-                "status".into(),
-                "units".into(),
-            ],
-            rows: Vec::new(),
-            notes: vec!["A `separable` fit used Platt's smoothed targets, its documented fallback; `fallback:base-rate` units could not be fitted and predicted the smoothed base rate, with metric values as usual (see Fallback fits); `one_class` and `failed` units, kept only under `on_fit_failure = \"drop\"`, have no metric values and are left out of the paired differences.".into()],
-        };
-        for (cell, counts) in &a.status_counts {
-            for (status, n) in counts {
-                t.rows.push(vec![
-                    cell.task.clone(),
-                    cell.size.to_string(),
-                    cell.method.clone(),
-                    status.to_string(),
-                    n.to_string(),
-                ]);
-            }
-        }
-        b.push(Block::Table(t));
+        return b;
     }
-    b.extend(super::fallback::fallback_blocks(a));
-    b.push(Block::Heading(2, "Reproduce".into(), "reproduce".into()));
-    b.push(Block::Para(format!(
-        "Run `plumbline run {}` with the same suite file (check its SHA-256 above) to get byte-identical `units.csv.gz`, `paired.csv`, `thresholds.csv`, `reliability*.csv`, `summary.md`, `index.html` and figures; `plumbline report <folder>` rebuilds the tables and figures from `units.csv.gz` and the reliability files.",
-        ctx.suite_file
-    )));
+    let mut t = Table {
+        title: "Units whose status was not `ok`".into(),
+        header: vec![
+            "task".into(),
+            "size".into(),
+            "method".into(),
+            "status".into(),
+            "units".into(),
+        ],
+        rows: Vec::new(),
+        notes: vec!["A `separable` fit used Platt's smoothed targets, its documented fallback; `fallback:base-rate` units could not be fitted and predicted the smoothed base rate, with metric values as usual (see Fallback fits); `one_class` and `failed` units, kept only under `on_fit_failure = \"drop\"`, have no metric values and are left out of the paired differences.".into()],
+    };
+    for (cell, counts) in &a.status_counts {
+        for (status, n) in counts {
+            t.rows.push(vec![
+                cell.task.clone(),
+                cell.size.to_string(),
+                cell.method.clone(),
+                status.to_string(),
+                n.to_string(),
+            ]);
+        }
+    }
+    b.push(Block::Table(t));
     b
 }
 
