@@ -492,192 +492,41 @@ fn minority_rows(table: &UnitTable, rows: impl Iterator<Item = usize>) -> f64 {
 
 /// Build summaries and paired comparisons from the unit table.
 pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
-    let mut tasks: Vec<String> = Vec::new();
-    let mut methods: Vec<String> = Vec::new();
-    let mut sizes: BTreeMap<String, Vec<usize>> = BTreeMap::new();
-    // (task, size, method) -> repeat -> row index
-    let mut cells = steps::Cells::new();
-    let mut status_counts: BTreeMap<CellKey, BTreeMap<UnitStatus, usize>> = BTreeMap::new();
-    let mut fallback_counts = FallbackCounts::new();
-    for (i, r) in table.rows.iter().enumerate() {
-        let fc = fallback_counts.entry(CellKey::of(r)).or_default();
-        fc.1 += 1;
-        if r.status.is_fallback() {
-            fc.0 += 1;
-        }
-        if !tasks.contains(&r.task) {
-            tasks.push(r.task.clone());
-        }
-        if !methods.contains(&r.method) {
-            methods.push(r.method.clone());
-        }
-        let s = sizes.entry(r.task.clone()).or_default();
-        if !s.contains(&r.size) {
-            s.push(r.size);
-        }
-        cells.entry(CellKey::of(r)).or_default().insert(r.repeat, i);
-        if !r.status.is_ok() {
-            *status_counts
-                .entry(CellKey::of(r))
-                .or_default()
-                .entry(r.status.clone())
-                .or_default() += 1;
-        }
-    }
-    for s in sizes.values_mut() {
-        s.sort_unstable();
-    }
+    let ix = index_units(table);
     let metric_ids = table.metric_ids();
-    let margins = margins_of(table, &metric_ids, &cells, &sizes, settings);
-    let mut summaries = Vec::new();
-    let mut paired = Vec::new();
-    for task in &tasks {
-        for &size in &sizes[task] {
-            for (mi, &metric) in metric_ids.iter().enumerate() {
-                let hib = metric.higher_is_better();
-                let reference = cells.get(&CellKey::new(task, size, &settings.reference));
-                for method in &methods {
-                    let Some(c) = cells.get(&CellKey::new(task, size, method)) else {
-                        continue;
-                    };
-                    let vals: Vec<f64> = c
-                        .values()
-                        .filter_map(|&i| table.rows[i].metrics[mi])
-                        .collect();
-                    let noted = c
-                        .values()
-                        .filter(|&&i| !table.rows[i].status.is_ok() && table.rows[i].has_values())
-                        .count();
-                    let clipped: Vec<f64> = c
-                        .values()
-                        .filter_map(|&i| table.rows[i].clipped.map(|x| x as f64))
-                        .collect();
-                    let (mean, sd) = if vals.is_empty() {
-                        (f64::NAN, f64::NAN)
-                    } else {
-                        mean_sd(&vals)
-                    };
-                    summaries.push(MethodSummary {
-                        task: task.clone(),
-                        size,
-                        method: method.clone(),
-                        metric,
-                        n: vals.len(),
-                        mean,
-                        sd,
-                        noted,
-                        missing: c.len() - vals.len(),
-                        mean_clipped: if clipped.is_empty() {
-                            f64::NAN
-                        } else {
-                            clipped.iter().sum::<f64>() / clipped.len() as f64
-                        },
-                    });
-                    if *method == settings.reference || !is_compared(metric) {
-                        continue;
-                    }
-                    let Some(rc) = reference else { continue };
-                    let pr = pair_up(table, c, rc, mi, metric);
-                    let (dm, dr, diffs) = (&pr.a, &pr.b, &pr.diffs);
-                    let (mut wins, mut ties, mut losses) = (0, 0, 0);
-                    for &d in diffs {
-                        if d.abs() <= TIE_TOLERANCE {
-                            ties += 1;
-                        } else if (d < 0.0) != hib {
-                            wins += 1;
-                        } else {
-                            losses += 1;
-                        }
-                    }
-                    let iv = paired_interval(table, &pr, metric, settings);
-                    let (lo, hi, se) = (iv.low, iv.high, iv.se);
-                    let margin = margin_of(&margins, task, size, metric);
-                    let mean_of = |v: &[f64]| {
-                        if v.is_empty() {
-                            f64::NAN
-                        } else {
-                            v.iter().sum::<f64>() / v.len() as f64
-                        }
-                    };
-                    // The calibration sample is the same for every method of
-                    // a repeat: read its class counts off the reference's units.
-                    let minority_rows = minority_rows(table, rc.values().copied());
-                    paired.push(Paired {
-                        task: task.clone(),
-                        size,
-                        method: method.clone(),
-                        reference: settings.reference.clone(),
-                        metric,
-                        repeats: diffs.len(),
-                        mean_method: mean_of(dm),
-                        mean_reference: mean_of(dr),
-                        mean_diff: mean_of(diffs),
-                        ci_low: lo,
-                        ci_high: hi,
-                        se,
-                        wins,
-                        ties,
-                        losses,
-                        interval: settings.interval.clone(),
-                        confidence: settings.confidence,
-                        reservoir_order: iv.reservoir_order,
-                        margin,
-                        verdict: Verdict::of_metric(lo, hi, margin, hib),
-                        minority_rows,
-                        first_order_share: iv.first_order_share,
-                        zero_one: zero_one_pair(settings, metric, method, &settings.reference),
-                    });
-                }
-            }
-        }
-    }
+    let margins = margins_of(table, &metric_ids, &ix.cells, &ix.sizes, settings);
+    let (summaries, paired) = summaries_and_pairs(table, settings, &ix, &metric_ids, &margins);
     let metrics = decision_metrics(settings.primary(), &metric_ids);
-    let mut across = Vec::new();
-    let mut thresholds = Vec::new();
-    let mut threshold_summaries = Vec::new();
-    let mut raw_thresholds = Vec::new();
-    let raw = settings
-        .raw_method
-        .as_ref()
-        .filter(|r| methods.contains(r))
-        .map(|r| raw_pairs(&methods, r))
-        .unwrap_or_default();
-    for &metric in &metrics {
-        let Some(mi) = table.metric_index(metric) else {
-            continue;
-        };
-        let ctx = StepInput {
-            table,
-            settings,
-            tasks: &tasks,
-            methods: &methods,
-            sizes: &sizes,
-            cells: &cells,
-            summaries: &summaries,
-            paired: &paired,
-            margins: &margins,
-        };
-        across.extend(across_step(&ctx, metric));
-        let (rows, sums) = threshold_step(&ctx, metric, mi);
-        thresholds.extend(rows);
-        threshold_summaries.extend(sums.into_iter().map(|(pair, s)| (metric, pair, s)));
-        raw_thresholds.extend(pair_thresholds(&ctx, metric, mi, &raw).0);
-    }
-    let decisions: Vec<Decision> = metrics
-        .iter()
-        .filter_map(|m| {
-            let input = decision::DecisionInput {
-                across: &across,
-                table,
-                cells: &cells,
-                margins: &margins,
-                settings,
-                fallback_counts: &fallback_counts,
-                raw_thresholds: &raw_thresholds,
-            };
-            decide(&input, *m)
-        })
-        .collect();
+    let ctx = StepInput {
+        table,
+        settings,
+        tasks: &ix.tasks,
+        methods: &ix.methods,
+        sizes: &ix.sizes,
+        cells: &ix.cells,
+        summaries: &summaries,
+        paired: &paired,
+        margins: &margins,
+    };
+    let steps = steps_by_metric(&ctx, &metrics);
+    let input = decision::DecisionInput {
+        across: &steps.across,
+        table,
+        cells: &ix.cells,
+        margins: &margins,
+        settings,
+        fallback_counts: &ix.fallback_counts,
+        raw_thresholds: &steps.raw_thresholds,
+    };
+    let decisions: Vec<Decision> = metrics.iter().filter_map(|m| decide(&input, *m)).collect();
+    let UnitIndex {
+        tasks,
+        methods,
+        sizes,
+        status_counts,
+        fallback_counts,
+        ..
+    } = ix;
     Analysis {
         tasks,
         methods,
@@ -687,13 +536,263 @@ pub fn analyse(table: &UnitTable, settings: &AnalysisSettings) -> Analysis {
         paired,
         status_counts,
         fallback_counts,
-        across,
-        thresholds,
-        threshold_summaries,
-        raw_thresholds,
+        across: steps.across,
+        thresholds: steps.thresholds,
+        threshold_summaries: steps.threshold_summaries,
+        raw_thresholds: steps.raw_thresholds,
         decisions,
         margins,
     }
+}
+
+/// The unit table indexed: tasks and methods in order of first appearance,
+/// each task's sizes ascending, the units of each cell by repeat, and the
+/// status and fallback counts of each cell.
+struct UnitIndex {
+    tasks: Vec<String>,
+    methods: Vec<String>,
+    sizes: BTreeMap<String, Vec<usize>>,
+    /// (task, size, method) -> repeat -> row index
+    cells: steps::Cells,
+    status_counts: BTreeMap<CellKey, BTreeMap<UnitStatus, usize>>,
+    fallback_counts: FallbackCounts,
+}
+
+/// One pass over the unit table: its [`UnitIndex`].
+fn index_units(table: &UnitTable) -> UnitIndex {
+    let mut ix = UnitIndex {
+        tasks: Vec::new(),
+        methods: Vec::new(),
+        sizes: BTreeMap::new(),
+        cells: steps::Cells::new(),
+        status_counts: BTreeMap::new(),
+        fallback_counts: FallbackCounts::new(),
+    };
+    for (i, r) in table.rows.iter().enumerate() {
+        let fc = ix.fallback_counts.entry(CellKey::of(r)).or_default();
+        fc.1 += 1;
+        if r.status.is_fallback() {
+            fc.0 += 1;
+        }
+        if !ix.tasks.contains(&r.task) {
+            ix.tasks.push(r.task.clone());
+        }
+        if !ix.methods.contains(&r.method) {
+            ix.methods.push(r.method.clone());
+        }
+        let s = ix.sizes.entry(r.task.clone()).or_default();
+        if !s.contains(&r.size) {
+            s.push(r.size);
+        }
+        ix.cells
+            .entry(CellKey::of(r))
+            .or_default()
+            .insert(r.repeat, i);
+        if !r.status.is_ok() {
+            *ix.status_counts
+                .entry(CellKey::of(r))
+                .or_default()
+                .entry(r.status.clone())
+                .or_default() += 1;
+        }
+    }
+    for s in ix.sizes.values_mut() {
+        s.sort_unstable();
+    }
+    ix
+}
+
+/// One method's units at one (task, size), read on one metric.
+struct MetricCell<'a> {
+    task: &'a str,
+    size: usize,
+    method: &'a str,
+    metric: MetricId,
+    /// The metric's column in the unit table.
+    mi: usize,
+    /// Repeat -> row index.
+    units: &'a BTreeMap<usize, usize>,
+}
+
+/// Every method's summary at every (task, size, metric), and every method's
+/// paired comparison with the reference on the compared metrics.
+fn summaries_and_pairs(
+    table: &UnitTable,
+    settings: &AnalysisSettings,
+    ix: &UnitIndex,
+    metric_ids: &[MetricId],
+    margins: &Margins,
+) -> (Vec<MethodSummary>, Vec<Paired>) {
+    let mut summaries = Vec::new();
+    let mut paired = Vec::new();
+    for task in &ix.tasks {
+        for &size in &ix.sizes[task] {
+            for (mi, &metric) in metric_ids.iter().enumerate() {
+                let reference = ix.cells.get(&CellKey::new(task, size, &settings.reference));
+                for method in &ix.methods {
+                    let Some(units) = ix.cells.get(&CellKey::new(task, size, method)) else {
+                        continue;
+                    };
+                    let cell = MetricCell {
+                        task,
+                        size,
+                        method,
+                        metric,
+                        mi,
+                        units,
+                    };
+                    summaries.push(method_summary(table, &cell));
+                    if *method == settings.reference || !is_compared(metric) {
+                        continue;
+                    }
+                    let Some(rc) = reference else { continue };
+                    paired.push(paired_with_reference(table, settings, margins, &cell, rc));
+                }
+            }
+        }
+    }
+    (summaries, paired)
+}
+
+/// Mean, SD, counts and mean clipping of one method's values in a cell.
+fn method_summary(table: &UnitTable, cell: &MetricCell) -> MethodSummary {
+    let c = cell.units;
+    let vals: Vec<f64> = c
+        .values()
+        .filter_map(|&i| table.rows[i].metrics[cell.mi])
+        .collect();
+    let noted = c
+        .values()
+        .filter(|&&i| !table.rows[i].status.is_ok() && table.rows[i].has_values())
+        .count();
+    let clipped: Vec<f64> = c
+        .values()
+        .filter_map(|&i| table.rows[i].clipped.map(|x| x as f64))
+        .collect();
+    let (mean, sd) = if vals.is_empty() {
+        (f64::NAN, f64::NAN)
+    } else {
+        mean_sd(&vals)
+    };
+    MethodSummary {
+        task: cell.task.to_string(),
+        size: cell.size,
+        method: cell.method.to_string(),
+        metric: cell.metric,
+        n: vals.len(),
+        mean,
+        sd,
+        noted,
+        missing: c.len() - vals.len(),
+        mean_clipped: if clipped.is_empty() {
+            f64::NAN
+        } else {
+            clipped.iter().sum::<f64>() / clipped.len() as f64
+        },
+    }
+}
+
+/// One method against the reference's units `rc` in a cell: wins, ties and
+/// losses over the repeats, the paired interval and its verdict.
+fn paired_with_reference(
+    table: &UnitTable,
+    settings: &AnalysisSettings,
+    margins: &Margins,
+    cell: &MetricCell,
+    rc: &BTreeMap<usize, usize>,
+) -> Paired {
+    let (task, size, method, metric) = (cell.task, cell.size, cell.method, cell.metric);
+    let hib = metric.higher_is_better();
+    let pr = pair_up(table, cell.units, rc, cell.mi, metric);
+    let (dm, dr, diffs) = (&pr.a, &pr.b, &pr.diffs);
+    let (mut wins, mut ties, mut losses) = (0, 0, 0);
+    for &d in diffs {
+        if d.abs() <= TIE_TOLERANCE {
+            ties += 1;
+        } else if (d < 0.0) != hib {
+            wins += 1;
+        } else {
+            losses += 1;
+        }
+    }
+    let iv = paired_interval(table, &pr, metric, settings);
+    let (lo, hi, se) = (iv.low, iv.high, iv.se);
+    let margin = margin_of(margins, task, size, metric);
+    let mean_of = |v: &[f64]| {
+        if v.is_empty() {
+            f64::NAN
+        } else {
+            v.iter().sum::<f64>() / v.len() as f64
+        }
+    };
+    // The calibration sample is the same for every method of
+    // a repeat: read its class counts off the reference's units.
+    let minority_rows = minority_rows(table, rc.values().copied());
+    Paired {
+        task: task.to_string(),
+        size,
+        method: method.to_string(),
+        reference: settings.reference.clone(),
+        metric,
+        repeats: diffs.len(),
+        mean_method: mean_of(dm),
+        mean_reference: mean_of(dr),
+        mean_diff: mean_of(diffs),
+        ci_low: lo,
+        ci_high: hi,
+        se,
+        wins,
+        ties,
+        losses,
+        interval: settings.interval.clone(),
+        confidence: settings.confidence,
+        reservoir_order: iv.reservoir_order,
+        margin,
+        verdict: Verdict::of_metric(lo, hi, margin, hib),
+        minority_rows,
+        first_order_share: iv.first_order_share,
+        zero_one: zero_one_pair(settings, metric, method, &settings.reference),
+    }
+}
+
+/// What the steps across tasks give on the decision metrics.
+struct StepOutputs {
+    across: Vec<AcrossRow>,
+    thresholds: Vec<ThresholdRow>,
+    threshold_summaries: Vec<(MetricId, (String, String), ThresholdSummary)>,
+    raw_thresholds: Vec<ThresholdRow>,
+}
+
+/// The comparison across tasks, the data-size thresholds of the suite's
+/// pairs and of every method against the raw scores, on each of `metrics`
+/// that the table has.
+fn steps_by_metric(ctx: &StepInput, metrics: &[MetricId]) -> StepOutputs {
+    let mut out = StepOutputs {
+        across: Vec::new(),
+        thresholds: Vec::new(),
+        threshold_summaries: Vec::new(),
+        raw_thresholds: Vec::new(),
+    };
+    let raw = ctx
+        .settings
+        .raw_method
+        .as_ref()
+        .filter(|r| ctx.methods.contains(r))
+        .map(|r| raw_pairs(ctx.methods, r))
+        .unwrap_or_default();
+    for &metric in metrics {
+        let Some(mi) = ctx.table.metric_index(metric) else {
+            continue;
+        };
+        out.across.extend(across_step(ctx, metric));
+        let (rows, sums) = threshold_step(ctx, metric, mi);
+        out.thresholds.extend(rows);
+        out.threshold_summaries
+            .extend(sums.into_iter().map(|(pair, s)| (metric, pair, s)));
+        out.raw_thresholds
+            .extend(pair_thresholds(ctx, metric, mi, &raw).0);
+    }
+    out
 }
 
 /// The equivalence margin of every (task, size, metric) where the reference
