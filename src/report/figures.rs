@@ -31,7 +31,7 @@
 //! per character: headings wrap, labels near a panel edge turn inward, and
 //! tick labels carry only the decimals their step needs.
 
-use crate::analysis::Analysis;
+use crate::analysis::{Analysis, ThresholdRow};
 use crate::metrics::reliability::{Curve, CurveRecord, LOGIT_RANGE};
 use crate::metrics::MetricId;
 
@@ -363,6 +363,59 @@ fn key(
 /// One method's points of a learning curve: (size, mean, low, high).
 type Series<'a> = (&'a String, Vec<(usize, f64, f64, f64)>);
 
+/// Where the learning-curve panels sit: `cols` to a row below the heading
+/// (`top`), each with sizes on a log scale from `xmin` over `xspan`.
+struct CurveGrid {
+    cols: usize,
+    top: f64,
+    xmin: f64,
+    xspan: f64,
+}
+
+impl CurveGrid {
+    /// Panel width and height.
+    const PW: f64 = 170.0;
+    const PH: f64 = 110.0;
+    /// Left margin and the gaps between panels.
+    const ML: f64 = 62.0;
+    const GAP_X: f64 = 62.0;
+    const GAP_Y: f64 = 48.0;
+
+    /// Left edge of the panel in column `col`.
+    fn left(col: usize) -> f64 {
+        Self::ML + col as f64 * (Self::PW + Self::GAP_X)
+    }
+
+    /// Top-left corner of panel `k`.
+    fn corner(&self, k: usize) -> (f64, f64) {
+        (
+            Self::left(k % self.cols),
+            self.top + (k / self.cols) as f64 * (Self::PH + Self::GAP_Y),
+        )
+    }
+}
+
+/// One panel's scales: the calibration size on a log scale across, the
+/// difference to the reference (from `lo` to `hi`) up.
+struct CurveScale {
+    cx: f64,
+    cy: f64,
+    xmin: f64,
+    xspan: f64,
+    lo: f64,
+    hi: f64,
+}
+
+impl CurveScale {
+    fn x(&self, n: usize) -> f64 {
+        self.cx + ((n as f64).ln() - self.xmin) / self.xspan * CurveGrid::PW
+    }
+
+    fn y(&self, v: f64) -> f64 {
+        self.cy + (self.hi - v) / (self.hi - self.lo) * CurveGrid::PH
+    }
+}
+
 /// Learning curves of one task: one panel per method against the reference.
 pub fn learning_curves(
     a: &Analysis,
@@ -373,8 +426,67 @@ pub fn learning_curves(
     let sizes = a.sizes.get(task)?;
     let (xmin, xmax) = ((*sizes.first()? as f64).ln(), (*sizes.last()? as f64).ln());
     let xspan = if xmax > xmin { xmax - xmin } else { 1.0 };
-    let panels: Vec<Series> = a
-        .methods
+    let panels = curve_series(a, task, metric, reference);
+    if panels.is_empty() {
+        return None;
+    }
+    let cols = 4usize.min(panels.len());
+    let rows = panels.len().div_ceil(cols);
+    // The canvas ends 10 px right of the rightmost panel or method name.
+    let w = panels
+        .iter()
+        .enumerate()
+        .map(|(k, (m, _))| {
+            CurveGrid::left(k % cols) + CurveGrid::PW.max(10.0 + text_width(m, 12.0))
+        })
+        .fold(0.0f64, f64::max)
+        + 10.0;
+    let w = w.ceil();
+    let better = if metric.higher_is_better() {
+        "above"
+    } else {
+        "below"
+    };
+    let mut s = String::new();
+    let last = write_heading(
+        &mut s,
+        &format!("{task}: mean {metric} of each method − {reference}"),
+        &[format!("band: paired interval; {better} the zero line is better; dotted line: size from which the method is reliably better than {reference} at every larger size; each panel has its own vertical scale")],
+        w,
+    );
+    let grid = CurveGrid {
+        cols,
+        top: last + 21.0,
+        xmin,
+        xspan,
+    };
+    let h = grid.top + rows as f64 * (CurveGrid::PH + CurveGrid::GAP_Y) + 10.0;
+    s = open_svg(
+        w,
+        h,
+        &format!("{task}: {metric} difference to {reference} by calibration size"),
+    ) + &s;
+    for (k, series) in panels.iter().enumerate() {
+        s.push_str(&curve_panel(a, metric, sizes, series, &grid, k));
+    }
+    s.push_str(&format!(
+        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" fill=\"#444\">calibration-set size (log scale)</text>\n",
+        f(w / 2.0),
+        f(h - 4.0)
+    ));
+    s.push_str("</svg>\n");
+    Some(s)
+}
+
+/// Each method's paired differences to the reference on one task, by size;
+/// methods without a finite one are left out.
+fn curve_series<'a>(
+    a: &'a Analysis,
+    task: &str,
+    metric: MetricId,
+    reference: &str,
+) -> Vec<Series<'a>> {
+    a.methods
         .iter()
         .filter(|m| *m != reference)
         .map(|m| {
@@ -392,161 +504,158 @@ pub fn learning_curves(
             (m, pts)
         })
         .filter(|(_, p)| !p.is_empty())
-        .collect();
-    if panels.is_empty() {
-        return None;
+        .collect()
+}
+
+/// The vertical range of one panel: zero and every finite mean and bound,
+/// padded by 8%.
+fn curve_range(pts: &[(usize, f64, f64, f64)]) -> (f64, f64) {
+    let (mut lo, mut hi) = (0.0f64, 0.0f64);
+    for &(_, d, l, u) in pts {
+        for v in [d, l, u] {
+            if v.is_finite() {
+                lo = lo.min(v);
+                hi = hi.max(v);
+            }
+        }
     }
-    let cols = 4usize.min(panels.len());
-    let rows = panels.len().div_ceil(cols);
-    let (pw, ph) = (170.0, 110.0);
-    let (ml, gap_x, gap_y) = (62.0, 62.0, 48.0);
-    // The canvas ends 10 px right of the rightmost panel or method name.
-    let w = panels
-        .iter()
-        .enumerate()
-        .map(|(k, (m, _))| {
-            ml + (k % cols) as f64 * (pw + gap_x) + pw.max(10.0 + text_width(m, 12.0))
-        })
-        .fold(0.0f64, f64::max)
-        + 10.0;
-    let w = w.ceil();
-    let better = if metric.higher_is_better() {
-        "above"
-    } else {
-        "below"
+    let pad = (hi - lo).max(1e-9) * 0.08;
+    (lo - pad, hi + pad)
+}
+
+/// One method's panel `k`: key, frame, axes, zero line, the curve with its
+/// band, and the size from which it is reliably better.
+fn curve_panel(
+    a: &Analysis,
+    metric: MetricId,
+    sizes: &[usize],
+    (m, pts): &Series,
+    grid: &CurveGrid,
+    k: usize,
+) -> String {
+    let (pw, ph) = (CurveGrid::PW, CurveGrid::PH);
+    let st = style_of(a, m);
+    let (cx, cy) = grid.corner(k);
+    let (lo, hi) = curve_range(pts);
+    let sc = CurveScale {
+        cx,
+        cy,
+        xmin: grid.xmin,
+        xspan: grid.xspan,
+        lo,
+        hi,
     };
     let mut s = String::new();
-    let last = write_heading(
-        &mut s,
-        &format!("{task}: mean {metric} of each method − {reference}"),
-        &[format!("band: paired interval; {better} the zero line is better; dotted line: size from which the method is reliably better than {reference} at every larger size; each panel has its own vertical scale")],
-        w,
-    );
-    let mt = last + 21.0;
-    let h = mt + rows as f64 * (ph + gap_y) + 10.0;
-    s = open_svg(
-        w,
-        h,
-        &format!("{task}: {metric} difference to {reference} by calibration size"),
-    ) + &s;
-    for (k, (m, pts)) in panels.iter().enumerate() {
-        let st = style_of(a, m);
-        let (cx, cy) = (
-            ml + (k % cols) as f64 * (pw + gap_x),
-            mt + (k / cols) as f64 * (ph + gap_y),
-        );
-        let (mut lo, mut hi) = (0.0f64, 0.0f64);
-        for &(_, d, l, u) in pts {
-            for v in [d, l, u] {
-                if v.is_finite() {
-                    lo = lo.min(v);
-                    hi = hi.max(v);
-                }
-            }
-        }
-        let pad = (hi - lo).max(1e-9) * 0.08;
-        let (lo, hi) = (lo - pad, hi + pad);
-        let x = |n: usize| cx + ((n as f64).ln() - xmin) / xspan * pw;
-        let y = |v: f64| cy + (hi - v) / (hi - lo) * ph;
-        s.push_str("<g>");
-        s.push_str(&key(m, m, st, cx + 10.0, cy - 6.0, 12.0, true, false));
-        s.push('\n');
+    s.push_str("<g>");
+    s.push_str(&key(m, m, st, cx + 10.0, cy - 6.0, 12.0, true, false));
+    s.push('\n');
+    s.push_str(&format!(
+        "<rect x=\"{}\" y=\"{}\" width=\"{pw}\" height=\"{ph}\" fill=\"#fafafa\" stroke=\"#bbb\"/>\n",
+        f(cx),
+        f(cy)
+    ));
+    let (tick_values, step) = ticks(lo, hi, 4);
+    for t in tick_values {
         s.push_str(&format!(
-            "<rect x=\"{}\" y=\"{}\" width=\"{pw}\" height=\"{ph}\" fill=\"#fafafa\" stroke=\"#bbb\"/>\n",
-            f(cx),
-            f(cy)
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"9\">{}</text>\n",
+            f(cx - 3.0),
+            f(sc.y(t) + 3.0),
+            esc(&tick_label(t, step))
         ));
-        let (tick_values, step) = ticks(lo, hi, 4);
-        for t in tick_values {
-            s.push_str(&format!(
-                "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"9\">{}</text>\n",
-                f(cx - 3.0),
-                f(y(t) + 3.0),
-                esc(&tick_label(t, step))
-            ));
-        }
-        for &n in sizes {
-            s.push_str(&format!(
-                "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"9\">{n}</text>\n",
-                f(x(n)),
-                f(cy + ph + 13.0)
-            ));
-        }
+    }
+    for &n in sizes {
         s.push_str(&format!(
-            "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\"/>\n",
-            f(cx),
-            f(cx + pw),
-            f(y(0.0)),
-            f(y(0.0))
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" font-size=\"9\">{n}</text>\n",
+            f(sc.x(n)),
+            f(cy + ph + 13.0)
         ));
-        let ok: Vec<_> = pts
-            .iter()
-            .filter(|p| p.2.is_finite() && p.3.is_finite())
-            .collect();
-        if !ok.is_empty() {
-            let band = point_list(
-                ok.iter()
-                    .map(|p| (x(p.0), y(p.3)))
-                    .chain(ok.iter().rev().map(|p| (x(p.0), y(p.2)))),
-            );
-            s.push_str(&format!(
-                "<polygon points=\"{band}\" fill=\"{}\" fill-opacity=\"0.2\"/>\n",
-                st.colour
-            ));
-        }
-        let line = point_list(pts.iter().map(|p| (x(p.0), y(p.1))));
-        s.push_str(&format!(
-            "<polyline points=\"{line}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>\n",
-            st.colour,
-            dash(st)
-        ));
-        for p in pts {
-            s.push_str(&marker(st.marker, x(p.0), y(p.1), 2.8, st.colour));
-        }
-        s.push('\n');
-        // Reliably better than the reference from this size on.
-        let hib = metric.higher_is_better();
-        let mut from = None;
-        for p in pts.iter().rev() {
-            let better = if hib { p.2 > 0.0 } else { p.3 < 0.0 };
-            if better {
-                from = Some(p.0);
-            } else {
-                break;
-            }
-        }
-        if let Some(n) = from {
-            // The label goes right of the line when it fits inside the
-            // panel, else left of it, else as far right as fits.
-            let label = format!("better from {n}");
-            let lw = text_width(&label, 9.0);
-            let xn = x(n);
-            let (tx, anchor) = if xn + 2.0 + lw <= cx + pw - 2.0 {
-                (xn + 2.0, "start")
-            } else if xn - 2.0 - lw >= cx + 2.0 {
-                (xn - 2.0, "end")
-            } else {
-                ((cx + pw - 2.0 - lw).max(cx + 2.0), "start")
-            };
-            s.push_str(&format!(
-                "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\" stroke-dasharray=\"2 2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\" text-anchor=\"{anchor}\">{label}</text>\n",
-                f(xn),
-                f(xn),
-                f(cy),
-                f(cy + ph),
-                f(tx),
-                f(cy + 10.0)
-            ));
-        }
-        s.push_str("</g>\n");
     }
     s.push_str(&format!(
-        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\" fill=\"#444\">calibration-set size (log scale)</text>\n",
-        f(w / 2.0),
-        f(h - 4.0)
+        "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\"/>\n",
+        f(cx),
+        f(cx + pw),
+        f(sc.y(0.0)),
+        f(sc.y(0.0))
     ));
-    s.push_str("</svg>\n");
-    Some(s)
+    s.push_str(&curve_line(pts, st, &sc));
+    if let Some(n) = better_from(pts, metric.higher_is_better()) {
+        s.push_str(&better_from_mark(n, &sc));
+    }
+    s.push_str("</g>\n");
+    s
+}
+
+/// A curve's interval band, its line and its markers.
+fn curve_line(pts: &[(usize, f64, f64, f64)], st: Style, sc: &CurveScale) -> String {
+    let mut s = String::new();
+    let ok: Vec<_> = pts
+        .iter()
+        .filter(|p| p.2.is_finite() && p.3.is_finite())
+        .collect();
+    if !ok.is_empty() {
+        let band = point_list(
+            ok.iter()
+                .map(|p| (sc.x(p.0), sc.y(p.3)))
+                .chain(ok.iter().rev().map(|p| (sc.x(p.0), sc.y(p.2)))),
+        );
+        s.push_str(&format!(
+            "<polygon points=\"{band}\" fill=\"{}\" fill-opacity=\"0.2\"/>\n",
+            st.colour
+        ));
+    }
+    let line = point_list(pts.iter().map(|p| (sc.x(p.0), sc.y(p.1))));
+    s.push_str(&format!(
+        "<polyline points=\"{line}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.8\"{}/>\n",
+        st.colour,
+        dash(st)
+    ));
+    for p in pts {
+        s.push_str(&marker(st.marker, sc.x(p.0), sc.y(p.1), 2.8, st.colour));
+    }
+    s.push('\n');
+    s
+}
+
+/// The smallest size from which the interval is better than the reference
+/// at every larger size of the curve.
+fn better_from(pts: &[(usize, f64, f64, f64)], hib: bool) -> Option<usize> {
+    let mut from = None;
+    for p in pts.iter().rev() {
+        let better = if hib { p.2 > 0.0 } else { p.3 < 0.0 };
+        if better {
+            from = Some(p.0);
+        } else {
+            break;
+        }
+    }
+    from
+}
+
+/// The dotted line at the size `n` from which the method is reliably better,
+/// with its label.
+fn better_from_mark(n: usize, sc: &CurveScale) -> String {
+    let (cx, cy, pw, ph) = (sc.cx, sc.cy, CurveGrid::PW, CurveGrid::PH);
+    // The label goes right of the line when it fits inside the
+    // panel, else left of it, else as far right as fits.
+    let label = format!("better from {n}");
+    let lw = text_width(&label, 9.0);
+    let xn = sc.x(n);
+    let (tx, anchor) = if xn + 2.0 + lw <= cx + pw - 2.0 {
+        (xn + 2.0, "start")
+    } else if xn - 2.0 - lw >= cx + 2.0 {
+        (xn - 2.0, "end")
+    } else {
+        ((cx + pw - 2.0 - lw).max(cx + 2.0), "start")
+    };
+    format!(
+        "<line x1=\"{}\" x2=\"{}\" y1=\"{}\" y2=\"{}\" stroke=\"#333\" stroke-dasharray=\"2 2\"/><text x=\"{}\" y=\"{}\" font-size=\"9\" text-anchor=\"{anchor}\">{label}</text>\n",
+        f(xn),
+        f(xn),
+        f(cy),
+        f(cy + ph),
+        f(tx),
+        f(cy + 10.0)
+    )
 }
 
 fn logit(p: f64) -> f64 {
@@ -1155,8 +1264,107 @@ fn size_colour(frac: f64) -> String {
     )
 }
 
+/// Cell width and row height of the threshold chart.
+const CELL_W: f64 = 50.0;
+const ROW_H: f64 = 15.0;
+/// Width and height of a swatch in the threshold chart's key.
+const SWATCH_W: f64 = 36.0;
+const SWATCH_H: f64 = 13.0;
+/// The title of the threshold chart's cell key.
+const COLOUR_TITLE: &str = "cell: size from which better";
+/// The cells that hold a symbol: (fill, text, ink, meaning).
+const SYMBOLS: [(&str, &str, &str, &str); 2] = [
+    ("#f2f2f2", "–", "#666", "not within the sizes tried"),
+    ("#ffffff", "?", "#999", "no result"),
+];
+
+/// What the threshold chart of one metric shows, and where its parts sit
+/// across.
+struct ThresholdChart<'a> {
+    rows: Vec<&'a ThresholdRow>,
+    /// (flexible, parametric) pairs and tasks in order of first appearance.
+    pairs: Vec<(&'a str, &'a str)>,
+    tasks: Vec<&'a str>,
+    /// Methods of the pairs, in order of first appearance, for the key.
+    methods: Vec<&'a str>,
+    /// The sizes the cell key shows a swatch for: up to six of those tried.
+    swatches: Vec<usize>,
+    /// Smallest and largest size tried (at least 1).
+    smin: f64,
+    smax: f64,
+    /// Left edge of the cells.
+    ml: f64,
+    /// Left edge of the key, right of the cells.
+    key_x: f64,
+    /// Width of the longest column label.
+    longest_pair: f64,
+}
+
+impl ThresholdChart<'_> {
+    /// Where size `n` sits on the colour scale (log, 0 to 1).
+    fn frac(&self, n: usize) -> f64 {
+        if self.smax > self.smin {
+            ((n as f64).ln() - self.smin.ln()) / (self.smax.ln() - self.smin.ln())
+        } else {
+            0.5
+        }
+    }
+
+    /// Fill and ink of a cell for size `n`, with its text.
+    fn size_cell(&self, n: usize) -> (String, String, &'static str) {
+        let fr = self.frac(n);
+        (
+            size_colour(fr),
+            n.to_string(),
+            if fr > 0.5 { "#fff" } else { "#000" },
+        )
+    }
+}
+
 /// The threshold chart of one metric: rows = tasks, columns = pairs.
 pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
+    let c = threshold_chart(a, metric)?;
+    // Room above the cells for the column labels, rotated by 55°.
+    let (sin, cos) = (55f64.to_radians().sin(), 55f64.to_radians().cos());
+    let w = threshold_width(&c, sin, cos);
+    let mut s = String::new();
+    let last = write_heading(
+        &mut s,
+        &format!("From which calibration size a flexible method is reliably better ({metric})"),
+        &["cell: smallest size tried from which the flexible method beats the parametric one at every larger size; darker = larger; “–” = not within the sizes tried; “?” = no result".to_string()],
+        w,
+    );
+    let mt = (last + 16.0 + c.longest_pair * sin + 10.0 * cos).ceil();
+    let key_top = mt + 14.0 * c.methods.len() as f64 + 8.0;
+    let key_bottom = key_top + 14.0 + (SWATCH_H + 2.0) * (c.swatches.len() + SYMBOLS.len()) as f64;
+    let h = (mt + (ROW_H * c.tasks.len() as f64).max(key_bottom - mt) + 10.0).ceil();
+    s = open_svg(w, h, &format!("data-size thresholds, {metric}"))
+        + "<style>.c{stroke:#fff}.v{text-anchor:middle;font-size:9px}</style>\n"
+        + &s;
+    s.push_str(&pair_labels(a, &c, mt));
+    for (i, m) in c.methods.iter().enumerate() {
+        s.push_str(&key(
+            m,
+            m,
+            style_of(a, m),
+            c.key_x + 10.0,
+            mt + 11.0 + 14.0 * i as f64,
+            10.0,
+            false,
+            false,
+        ));
+        s.push('\n');
+    }
+    s.push_str(&cell_key(&c, key_top));
+    s.push_str(&threshold_cells(&c, mt));
+    s.push_str("</svg>\n");
+    Some(s)
+}
+
+/// The threshold rows of one metric with their pairs, tasks and methods,
+/// the sizes tried, and the chart's left margin and key position; `None`
+/// without rows.
+fn threshold_chart(a: &Analysis, metric: MetricId) -> Option<ThresholdChart<'_>> {
     let rows: Vec<_> = a.thresholds.iter().filter(|t| t.metric == metric).collect();
     if rows.is_empty() {
         return None;
@@ -1176,14 +1384,6 @@ pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
         all.iter().copied().min().unwrap_or(1).max(1) as f64,
         all.iter().copied().max().unwrap_or(1).max(1) as f64,
     );
-    let frac = |n: usize| {
-        if smax > smin {
-            ((n as f64).ln() - smin.ln()) / (smax.ln() - smin.ln())
-        } else {
-            0.5
-        }
-    };
-    // Methods of the pairs, in order of first appearance, for the key.
     let mut methods: Vec<&str> = Vec::new();
     for (fl, pa) in &pairs {
         for m in [*fl, *pa] {
@@ -1192,7 +1392,6 @@ pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
             }
         }
     }
-    let (cw, rh) = (50.0, 15.0);
     let longest_task = tasks
         .iter()
         .map(|t| text_width(t, 10.0))
@@ -1200,8 +1399,8 @@ pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
     let ml = (longest_task + 16.0).ceil();
     // The key, right of the cells: the methods, then what a cell's colour
     // and symbols mean, with a swatch for up to six of the sizes tried.
-    let key_x = ml + cw * pairs.len() as f64 + 24.0;
-    let mut tried: Vec<usize> = all.clone();
+    let key_x = ml + CELL_W * pairs.len() as f64 + 24.0;
+    let mut tried: Vec<usize> = all;
     tried.sort_unstable();
     tried.dedup();
     let swatches: Vec<usize> = if tried.len() <= 6 {
@@ -1209,47 +1408,50 @@ pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
     } else {
         (0..6).map(|i| tried[i * (tried.len() - 1) / 5]).collect()
     };
-    let (sw, sh) = (36.0, 13.0);
-    let colour_title = "cell: size from which better";
-    let symbols = [
-        ("#f2f2f2", "–", "#666", "not within the sizes tried"),
-        ("#ffffff", "?", "#999", "no result"),
-    ];
-    let key_right = methods
-        .iter()
-        .map(|m| key_x + 10.0 + text_width(m, 10.0))
-        .chain([key_x + text_width(colour_title, 10.0)])
-        .chain(
-            symbols
-                .iter()
-                .map(|(.., l)| key_x + sw + 6.0 + text_width(l, 10.0)),
-        )
-        .fold(0.0f64, f64::max);
-    // Room above the cells for the column labels, rotated by 55°.
-    let (sin, cos) = (55f64.to_radians().sin(), 55f64.to_radians().cos());
     let longest_pair = pairs
         .iter()
         .map(|(fl, pa)| text_width(&format!("{fl} vs {pa}"), 10.0))
         .fold(0.0f64, f64::max);
-    let labels_right = ml + cw * (pairs.len() as f64 - 0.5) + longest_pair * cos + 10.0 * sin;
-    let w = (key_right.max(labels_right) + 10.0).ceil();
+    Some(ThresholdChart {
+        rows,
+        pairs,
+        tasks,
+        methods,
+        swatches,
+        smin,
+        smax,
+        ml,
+        key_x,
+        longest_pair,
+    })
+}
+
+/// The threshold chart's width: 10 px right of the key or the rotated
+/// column labels, whichever reaches further.
+fn threshold_width(c: &ThresholdChart, sin: f64, cos: f64) -> f64 {
+    let key_x = c.key_x;
+    let key_right = c
+        .methods
+        .iter()
+        .map(|m| key_x + 10.0 + text_width(m, 10.0))
+        .chain([key_x + text_width(COLOUR_TITLE, 10.0)])
+        .chain(
+            SYMBOLS
+                .iter()
+                .map(|(.., l)| key_x + SWATCH_W + 6.0 + text_width(l, 10.0)),
+        )
+        .fold(0.0f64, f64::max);
+    let labels_right =
+        c.ml + CELL_W * (c.pairs.len() as f64 - 0.5) + c.longest_pair * cos + 10.0 * sin;
+    (key_right.max(labels_right) + 10.0).ceil()
+}
+
+/// The column labels ("flexible vs parametric", in the methods' colours),
+/// rotated above the cells that start at `mt`.
+fn pair_labels(a: &Analysis, c: &ThresholdChart, mt: f64) -> String {
     let mut s = String::new();
-    let last = write_heading(
-        &mut s,
-        &format!("From which calibration size a flexible method is reliably better ({metric})"),
-        &["cell: smallest size tried from which the flexible method beats the parametric one at every larger size; darker = larger; “–” = not within the sizes tried; “?” = no result".to_string()],
-        w,
-    );
-    let mt = (last + 16.0 + longest_pair * sin + 10.0 * cos).ceil();
-    let key_top = mt + 14.0 * methods.len() as f64 + 8.0;
-    let key_bottom = key_top + 14.0 + (sh + 2.0) * (swatches.len() + symbols.len()) as f64;
-    let h = (mt + (rh * tasks.len() as f64).max(key_bottom - mt) + 10.0).ceil();
-    s = open_svg(w, h, &format!("data-size thresholds, {metric}"))
-        + "<style>.c{stroke:#fff}.v{text-anchor:middle;font-size:9px}</style>\n"
-        + &s;
-    let (cwi, rhi) = (cw - 1.0, rh - 1.0);
-    for (j, (fl, pa)) in pairs.iter().enumerate() {
-        let x = ml + cw * j as f64 + cw / 2.0;
+    for (j, (fl, pa)) in c.pairs.iter().enumerate() {
+        let x = c.ml + CELL_W * j as f64 + CELL_W / 2.0;
         s.push_str(&format!(
             "<text transform=\"translate({},{}) rotate(-55)\" font-size=\"10\"><tspan fill=\"{}\">{}</tspan> vs <tspan fill=\"{}\">{}</tspan></text>\n",
             f(x),
@@ -1260,25 +1462,18 @@ pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
             esc(pa)
         ));
     }
-    for (i, m) in methods.iter().enumerate() {
-        s.push_str(&key(
-            m,
-            m,
-            style_of(a, m),
-            key_x + 10.0,
-            mt + 11.0 + 14.0 * i as f64,
-            10.0,
-            false,
-            false,
-        ));
-        s.push('\n');
-    }
-    // What the cells mean.
-    s.push_str(&format!(
-        "<g class=\"cell-key\"><text x=\"{}\" y=\"{}\" font-size=\"10\">{colour_title}</text>",
+    s
+}
+
+/// What the cells mean: a swatch per shown size, then the symbol cells with
+/// their meaning, from `key_top` down.
+fn cell_key(c: &ThresholdChart, key_top: f64) -> String {
+    let (key_x, sw, sh) = (c.key_x, SWATCH_W, SWATCH_H);
+    let mut s = format!(
+        "<g class=\"cell-key\"><text x=\"{}\" y=\"{}\" font-size=\"10\">{COLOUR_TITLE}</text>",
         f(key_x),
         f(key_top + 10.0)
-    ));
+    );
     let swatch = |i: usize, fill: &str, text: &str, ink: &str| {
         let y = key_top + 14.0 + (sh + 2.0) * i as f64;
         format!(
@@ -1289,17 +1484,12 @@ pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
             f(y + sh - 3.5)
         )
     };
-    for (i, &n) in swatches.iter().enumerate() {
-        let fr = frac(n);
-        s.push_str(&swatch(
-            i,
-            &size_colour(fr),
-            &n.to_string(),
-            if fr > 0.5 { "#fff" } else { "#000" },
-        ));
+    for (i, &n) in c.swatches.iter().enumerate() {
+        let (fill, text, ink) = c.size_cell(n);
+        s.push_str(&swatch(i, &fill, &text, ink));
     }
-    for (k, (fill, text, ink, label)) in symbols.iter().enumerate() {
-        let i = swatches.len() + k;
+    for (k, (fill, text, ink, label)) in SYMBOLS.iter().enumerate() {
+        let i = c.swatches.len() + k;
         s.push_str(&swatch(i, fill, text, ink));
         s.push_str(&format!(
             "<text x=\"{}\" y=\"{}\" font-size=\"10\">{label}</text>",
@@ -1308,29 +1498,32 @@ pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
         ));
     }
     s.push_str("</g>\n");
-    for (i, task) in tasks.iter().enumerate() {
+    s
+}
+
+/// A row per task, starting at `mt`: its name, then a cell per pair with the
+/// size from which the flexible method is better, `–` or `?`.
+fn threshold_cells(c: &ThresholdChart, mt: f64) -> String {
+    let (cw, rh) = (CELL_W, ROW_H);
+    let (cwi, rhi) = (cw - 1.0, rh - 1.0);
+    let mut s = String::new();
+    for (i, task) in c.tasks.iter().enumerate() {
         let y = mt + rh * i as f64;
         s.push_str(&format!(
             "<text x=\"{}\" y=\"{}\" text-anchor=\"end\" font-size=\"10\">{}</text>\n",
-            f(ml - 6.0),
+            f(c.ml - 6.0),
             f(y + rh - 4.0),
             esc(task)
         ));
-        for (j, (fl, pa)) in pairs.iter().enumerate() {
-            let x = ml + cw * j as f64;
-            let cell = rows
+        for (j, (fl, pa)) in c.pairs.iter().enumerate() {
+            let x = c.ml + cw * j as f64;
+            let cell = c
+                .rows
                 .iter()
                 .find(|t| t.task == *task && t.flexible == *fl && t.parametric == *pa);
             let (fill, text, ink) = match cell.map(|t| &t.result) {
                 Some(Ok(r)) => match r.better_from {
-                    Some(n) => {
-                        let fr = frac(n);
-                        (
-                            size_colour(fr),
-                            n.to_string(),
-                            if fr > 0.5 { "#fff" } else { "#000" },
-                        )
-                    }
+                    Some(n) => c.size_cell(n),
                     None => ("#f2f2f2".to_string(), "–".to_string(), "#666"),
                 },
                 _ => ("#ffffff".to_string(), "?".to_string(), "#999"),
@@ -1344,8 +1537,7 @@ pub fn threshold_figure(a: &Analysis, metric: MetricId) -> Option<String> {
             ));
         }
     }
-    s.push_str("</svg>\n");
-    Some(s)
+    s
 }
 
 /// File name of a task's learning-curve figure.
